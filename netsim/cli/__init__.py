@@ -1,0 +1,66 @@
+"""The ``netsim`` command line: parsing and printing only, no physics.
+
+Each subcommand lives in its own module in this package and exposes
+``register(subparsers) -> None``, which adds its parser and sets ``func`` (a callable taking the
+parsed namespace and returning an exit code). Errors a user can cause are :class:`NetsimError`;
+they are printed as one line on stderr and the process exits with code 2, without a traceback.
+Ctrl-C exits with code 130 after the command has had its chance to leave files consistent.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import importlib.util
+import sys
+from collections.abc import Sequence
+from typing import NoReturn
+
+from netsim import __version__
+from netsim.errors import NetsimError
+
+__all__ = ["main", "build_parser", "OneLineParser"]
+
+#: Subcommand modules, in the order ``netsim --help`` lists them.
+COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare")
+
+
+class OneLineParser(argparse.ArgumentParser):
+    """An argument parser whose errors are a single line and exit code 2."""
+
+    def error(self, message: str) -> NoReturn:
+        self.exit(2, f"{self.prog}: error: {message}\n")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = OneLineParser(
+        prog="netsim",
+        description="Planning estimates for metropolitan quantum networks.",
+    )
+    parser.add_argument("--version", action="version", version=f"netsim {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=OneLineParser)
+    for name in COMMANDS:
+        module_name = f"netsim.cli.{name}_cmd"
+        if importlib.util.find_spec(module_name) is None:
+            continue
+        importlib.import_module(module_name).register(sub)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.func(args) or 0)
+    except NetsimError as exc:
+        for line in str(exc).splitlines() or [type(exc).__name__]:
+            print(f"netsim {args.command}: error: {line}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print(f"netsim {args.command}: interrupted; results written so far are kept", file=sys.stderr)
+        return 130
+    except BrokenPipeError:
+        return 0

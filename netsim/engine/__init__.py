@@ -1,0 +1,1 @@
+"""netsim.engine (see DEVELOPERS.md for this layer's contract)."""

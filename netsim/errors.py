@@ -1,0 +1,82 @@
+"""The one exception hierarchy of netsim.
+
+Every error a user can cause is a :class:`NetsimError`. Its message is a single line that names
+the parameter as the user wrote it (``links[3].length_km``), the value received and what is
+allowed. The command line prints that line and exits with code 2, without a traceback.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+__all__ = [
+    "NetsimError",
+    "ParameterError",
+    "Problem",
+    "ScenarioError",
+    "StoreError",
+    "format_value",
+]
+
+
+class NetsimError(Exception):
+    """Base class of every error netsim raises on bad input or an unusable file."""
+
+
+def format_value(value: Any) -> str:
+    """Render a received value compactly for an error message."""
+    if isinstance(value, float):
+        return repr(value) if value != value or value in (float("inf"), float("-inf")) else f"{value:g}"
+    if isinstance(value, str):
+        return repr(value)
+    text = repr(value)
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+class ParameterError(NetsimError, ValueError):
+    """A parameter outside its allowed range.
+
+    Parameters
+    ----------
+    name : str
+        The parameter as the user wrote it, e.g. ``"p"`` or ``"links[3].length_km"``.
+    value : Any
+        The value received.
+    allowed : str
+        What is allowed, e.g. ``"a number in [0, 1]"``.
+    """
+
+    def __init__(self, name: str, value: Any, allowed: str) -> None:
+        self.name = name
+        self.value = value
+        self.allowed = allowed
+        super().__init__(f"{name} = {format_value(value)} is not allowed; expected {allowed}")
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One problem found in a scenario or sweep file: where, and what is wrong."""
+
+    path: str
+    message: str
+
+    def __str__(self) -> str:
+        return f"{self.path}: {self.message}" if self.path else self.message
+
+
+class ScenarioError(NetsimError):
+    """A scenario (or sweep specification) with one or more problems, all reported at once.
+
+    ``str(error)`` is one line per problem, each prefixed with the file name when known.
+    """
+
+    def __init__(self, problems: list[Problem], source: str | None = None) -> None:
+        self.problems = list(problems)
+        self.source = source
+        prefix = f"{source}: " if source else ""
+        super().__init__("\n".join(prefix + str(p) for p in self.problems))
+
+
+class StoreError(NetsimError):
+    """A result store that cannot be used (corrupt, foreign, or from another scenario)."""

@@ -1,0 +1,1 @@
+"""netsim.hardware (see DEVELOPERS.md for this layer's contract)."""

@@ -1,0 +1,54 @@
+"""The per-link physics handed from ``hardware`` to ``network`` and ``engine``."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+__all__ = ["LinkPhysics"]
+
+
+@dataclass(frozen=True, eq=False)
+class LinkPhysics:
+    """What one heralded link delivers, per attempt round.
+
+    Attributes
+    ----------
+    scheme : str
+        One of :data:`netsim.scenario.model.SCHEMES`.
+    length_km, loss_db, transmissivity : float
+        Fibre length, total loss budget in dB (fibre + extra) and eta = 10^(-loss_db/10).
+    success_probability : float
+        Heralded success per mode per attempt, in [0, 1].
+    modes : int
+        Multiplexed modes per attempt round.
+    round_success_probability : float
+        1 - (1 - success_probability)^modes.
+    attempt_period_s : float
+        Time between the starts of consecutive attempt rounds (preparation plus the signalling
+        needed before the next round may start).
+    herald_delay_s : float
+        From the start of a successful round until both ends know of the success.
+    state : numpy.ndarray
+        4x4 density matrix of the heralded pair (qubit 0 at site ``a``), target Phi+.
+    fidelity : float
+        <Phi+|state|Phi+>.
+    """
+
+    scheme: str
+    length_km: float
+    loss_db: float
+    transmissivity: float
+    success_probability: float
+    modes: int
+    round_success_probability: float
+    attempt_period_s: float
+    herald_delay_s: float
+    state: np.ndarray
+    fidelity: float
+
+    @property
+    def rate_per_s(self) -> float:
+        """Analytic elementary-pair rate: round success over attempt period."""
+        return self.round_success_probability / self.attempt_period_s

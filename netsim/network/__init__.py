@@ -1,0 +1,1 @@
+"""netsim.network (see DEVELOPERS.md for this layer's contract)."""

@@ -1,0 +1,1 @@
+"""netsim.qinfo (see DEVELOPERS.md for this layer's contract)."""

@@ -1,0 +1,1 @@
+"""netsim.scenario (see DEVELOPERS.md for this layer's contract)."""

@@ -1,0 +1,1 @@
+"""netsim.sweep (see DEVELOPERS.md for this layer's contract)."""
