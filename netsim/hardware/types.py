@@ -34,6 +34,8 @@ class LinkPhysics:
         4x4 density matrix of the heralded pair (qubit 0 at site ``a``), target Phi+.
     fidelity : float
         <Phi+|state|Phi+>.
+    dark_count_fraction : float
+        Share of heralds caused by detector dark counts (0 when not modelled).
     """
 
     scheme: str
@@ -47,6 +49,7 @@ class LinkPhysics:
     herald_delay_s: float
     state: np.ndarray
     fidelity: float
+    dark_count_fraction: float = 0.0
 
     @property
     def rate_per_s(self) -> float:

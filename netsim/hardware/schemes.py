@@ -1,0 +1,280 @@
+"""Heralding schemes: from a light path and its two end sites to :class:`LinkPhysics`.
+
+Every scheme computes, per mode and per attempt:
+
+- ``p_true``: the probability that photons alone produce an accepted herald, with the heralded
+  state ``rho_true``;
+- ``p_false``: the probability that a detector dark count completes (or alone makes) an
+  accepted herald, with the state ``rho_false`` the memories are then left in.
+
+Derived here (dark counts): the heralded state is the mixture weighted by how often each kind of
+herald happens, rho = (p_true rho_true + p_false rho_false) / (p_true + p_false), so the fidelity
+drops from F_true to (p_true F_true + p_false F_false) / (p_true + p_false): dark counts matter
+when ``p_false`` is not small against ``p_true``, i.e. on long, lossy links. Dark counts are kept
+to leading order in the dark-count probability d per detector per window.
+
+Per-arm efficiency: P = (emission or memory efficiency) x (fibre transmissivity of the arm) x
+(detector efficiency). States are written in the frame where the target is Phi+ (the Pauli
+correction that turns the heralded Bell state into Phi+ is known from the click pattern and
+applied). Qubit 0 is the memory at ``site_a`` (left factor of ``numpy.kron``).
+
+Multiplexing over M modes: round success 1 - (1 - p)^M (modes are independent attempts that
+share one attempt period; Collins et al., PRL 98, 060502, 2007).
+
+References
+----------
+S. D. Barrett and P. Kok, Phys. Rev. A 71, 060310(R) (2005).
+C. Cabrillo, J. I. Cirac, P. Garcia-Fernandez and P. Zoller, Phys. Rev. A 59, 1025 (1999).
+P. C. Humphreys et al., Nature 558, 268 (2018).
+J. Calsamiglia and N. Lütkenhaus, Appl. Phys. B 72, 67 (2001).
+N. Sangouard, C. Simon, H. de Riedmatten and N. Gisin, Rev. Mod. Phys. 83, 33 (2011).
+O. A. Collins, S. D. Jenkins, A. Kuzmich and T. A. B. Kennedy, Phys. Rev. Lett. 98, 060502 (2007).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from netsim.errors import ParameterError
+from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S
+from netsim.hardware.lightpath import LightPath
+from netsim.hardware.types import LinkPhysics
+from netsim.scenario.model import SCHEMES, Link, Site
+
+__all__ = ["Herald", "two_photon", "single_photon", "midpoint_source", "direct",
+           "two_photon_herald", "single_photon_herald", "midpoint_source_herald", "direct_herald",
+           "path_physics", "link_physics", "assemble", "SCHEME_FUNCTIONS", "PHI_PLUS", "MIXED"]
+
+PHI_PLUS: np.ndarray = np.outer([1, 0, 0, 1], [1, 0, 0, 1]) / 2.0
+MIXED: np.ndarray = np.eye(4) / 4.0
+
+
+@dataclass(frozen=True)
+class Herald:
+    """Per-mode heralding outcome of one attempt (see the module docstring)."""
+
+    p_true: float
+    rho_true: np.ndarray
+    p_false: float
+    rho_false: np.ndarray
+    attempt_period_s: float
+    herald_delay_s: float
+
+
+def _db_to_eta(db: float) -> float:
+    return float(10.0 ** (-db / 10.0))
+
+
+def _arm_efficiencies(path: LightPath, source_a: float, source_b: float) -> tuple[float, float]:
+    """P_a, P_b: source (emission or memory) efficiency x arm transmissivity x detector efficiency."""
+    loss_a, loss_b = path.arm_losses_db()
+    eta_d = path.first.detector_efficiency
+    return source_a * _db_to_eta(loss_a) * eta_d, source_b * _db_to_eta(loss_b) * eta_d
+
+
+def _station_timing(path: LightPath, preparations: int = 1) -> float:
+    """Attempt period with a station at fraction f: preparation + 2 max(f, 1 - f) L / v.
+
+    Derived here: both photons must reach the station together, so the nearer end fires later;
+    each end waits for its emission to reach the station and the herald to come back before it
+    may re-initialise its memory, a round trip of 2 f L / v for ``site_a`` and 2 (1 - f) L / v
+    for ``site_b``; the slower end sets the period (L / v for a centred station).
+    """
+    f = path.station_fraction
+    prep = max(path.site_a.attempt_prep_time_s, path.site_b.attempt_prep_time_s) * preparations
+    return prep + 2.0 * max(f, 1.0 - f) * path.length_km / FIBRE_SPEED_KM_PER_S
+
+
+def two_photon_herald(path: LightPath) -> Herald:
+    """Two-photon heralding at a midpoint station (Barrett & Kok 2005).
+
+    Each memory emits a photon entangled with its spin in two rounds separated by a spin flip;
+    a herald is one click in each round. With a linear-optics Bell measurement only two of the
+    four Bell states are identified (Calsamiglia & Lütkenhaus 2001), so p_true = P_a P_b / 2
+    (Barrett & Kok: eta^2 / 2 for equal arms), with the heralded state a Bell state (Phi+ after
+    correction) for indistinguishable photons.
+
+    Dark counts (derived here, leading order in d): if only one photon is detected (probability
+    P_a (1 - P_b) + P_b (1 - P_a)) its click falls in one round; a dark click in either detector
+    of the other round (2 d) completes the pattern; with no photon detected two dark clicks are
+    needed ((2 d)^2). The memories are then left uncorrelated: rho_false = I/4 (approximation).
+    Two preparations per attempt (one per round).
+    """
+    pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
+    d2 = 2.0 * path.first.dark_count_probability
+    p_false = (pa * (1 - pb) + pb * (1 - pa)) * d2 + (1 - pa) * (1 - pb) * d2 ** 2
+    period = _station_timing(path, preparations=2)
+    return Herald(pa * pb / 2.0, PHI_PLUS, p_false, MIXED, period, period)
+
+
+def single_photon_herald(path: LightPath) -> Herald:
+    """Single-photon heralding with bright-state population alpha (Cabrillo et al. 1999).
+
+    Each memory is prepared in sqrt(1 - alpha)|0>|vac> + sqrt(alpha)|1>|photon>; the photons
+    meet on a beam splitter at the station and one click heralds. Derived here for arm
+    efficiencies P_a, P_b and non-photon-number-resolving detectors:
+
+    - one emitted photon detected: weight alpha (1 - alpha)(P_a + P_b), state
+      (sqrt(P_a)|10> + sqrt(P_b)|01>) / sqrt(P_a + P_b) (Psi+ for equal arms);
+    - both emitted, at least one detected: weight alpha^2 (P_a + P_b - P_a P_b), state |11>;
+
+    so p_true = 1 - (1 - alpha P_a)(1 - alpha P_b) ~ 2 alpha eta and, for equal arms,
+    F = (1 - alpha) / (1 - alpha P / 2) ~ 1 - alpha (Humphreys et al. 2018: p ~ 2 alpha eta,
+    F ~ 1 - alpha). Optical phase drift between the arms is not modelled.
+
+    Dark counts: two detectors watch one window, p_false = 2 d (1 - p_true); the memories are
+    then in the no-click state, diagonal with weights (1 - alpha)^2 |00>,
+    alpha (1 - alpha)(1 - P_a) |10>, alpha (1 - alpha)(1 - P_b) |01>,
+    alpha^2 (1 - P_a)(1 - P_b) |11> (derived here).
+    """
+    alpha = path.first.bright_state_population
+    pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
+    w_one, w_two = alpha * (1 - alpha) * (pa + pb), alpha ** 2 * (pa + pb - pa * pb)
+    p_true = w_one + w_two
+    psi = np.zeros(4)
+    psi[2], psi[1] = np.sqrt(pa), np.sqrt(pb)          # |10> and |01> before correction
+    psi = psi / np.linalg.norm(psi) if pa + pb > 0 else psi
+    raw_true = w_one * np.outer(psi, psi) + w_two * np.diag([0.0, 0.0, 0.0, 1.0])
+    no_click = np.diag([(1 - alpha) ** 2, alpha * (1 - alpha) * (1 - pb),
+                        alpha * (1 - alpha) * (1 - pa), alpha ** 2 * (1 - pa) * (1 - pb)])
+    p_false = 2.0 * path.first.dark_count_probability * (1 - p_true)
+    period = _station_timing(path)
+    return Herald(p_true, _flip_b(_normalised(raw_true)), p_false, _flip_b(_normalised(no_click)),
+                  period, period)
+
+
+def midpoint_source_herald(path: LightPath) -> Herald:
+    """An entangled-pair source at the station; absorptive memories with heralded storage at both ends.
+
+    The source emits mu pairs per pulse on average (``pair_probability``) with thermal
+    statistics P(n) = mu^n / (1 + mu)^(n + 1), as for one mode of spontaneous parametric
+    down-conversion (Sangouard et al. 2011, Sec. V). P_x = memory efficiency x arm
+    transmissivity x detector efficiency of the storage herald. Derived here, to second order
+    in mu: one pair stored at both ends, p_1 P_a P_b, gives Phi+; two pairs with at least one
+    photon stored per side, p_2 (1 - (1 - P_a)^2)(1 - (1 - P_b)^2), give with probability 1/2
+    photons of the same pair (Phi+) and otherwise halves of different pairs (I/4).
+
+    Dark counts (one herald detector per memory): one side stored a photon and the other side's
+    detector fires dark, d p_1 (P_a (1 - P_b) + P_b (1 - P_a)), plus two dark clicks d^2 (1 - p_1);
+    the memories are then uncorrelated, rho_false = I/4 (approximation).
+
+    Attempt period (derived here): the next photon must not reach a memory before that memory has
+    heard whether the far memory stored, so site a waits 2 (1 - f) L / v between pulses and site
+    b waits 2 f L / v: period = preparation + 2 max(f, 1 - f) L / v. Both ends know the outcome
+    (1 + max(f, 1 - f)) L / v after emission.
+    """
+    mu = path.first.pair_probability
+    p1, p2 = mu / (1 + mu) ** 2, mu ** 2 / (1 + mu) ** 3
+    pa, pb = _arm_efficiencies(path, path.site_a.memory_efficiency, path.site_b.memory_efficiency)
+    w_one = p1 * pa * pb
+    w_two = p2 * (1 - (1 - pa) ** 2) * (1 - (1 - pb) ** 2)
+    rho_true = _normalised(w_one * PHI_PLUS + w_two * (PHI_PLUS + MIXED) / 2.0)
+    d = path.first.dark_count_probability
+    p_false = d * p1 * (pa * (1 - pb) + pb * (1 - pa)) + d ** 2 * (1 - p1)
+    f, v = path.station_fraction, FIBRE_SPEED_KM_PER_S
+    prep = max(path.site_a.attempt_prep_time_s, path.site_b.attempt_prep_time_s)
+    period = prep + 2.0 * max(f, 1 - f) * path.length_km / v
+    delay = prep + (1.0 + max(f, 1 - f)) * path.length_km / v
+    return Herald(w_one + w_two, rho_true, p_false, MIXED, period, delay)
+
+
+def direct_herald(path: LightPath) -> Herald:
+    """Emitter-to-receiver transmission: one end emits, the photon is stored at the other end.
+
+    The emitter's memory emits a photon entangled with it; the receiving memory absorbs it and
+    a detector heralds storage. Derived here: p_true = e_emit x eta x m_receive x eta_det over
+    the whole path (no station), heralded state Phi+. A dark count of the storage herald
+    (d (1 - p_true)) leaves the emitter's qubit unpaired: rho_false = I/4 (approximation).
+    The emitter must hear the outcome before it re-initialises: period = preparation + 2 L / v.
+    The emitter is the ``a`` end of the path's first link as written in the scenario.
+    """
+    emitter, receiver = (path.site_a, path.site_b) if path.emitter_is_a else (path.site_b, path.site_a)
+    eta = _db_to_eta(path.loss_db)
+    p_true = emitter.emission_efficiency * eta * receiver.memory_efficiency * path.first.detector_efficiency
+    p_false = path.first.dark_count_probability * (1 - p_true)
+    period = emitter.attempt_prep_time_s + 2.0 * path.length_km / FIBRE_SPEED_KM_PER_S
+    return Herald(p_true, PHI_PLUS, p_false, MIXED, period, period)
+
+
+def _normalised(rho: np.ndarray) -> np.ndarray:
+    trace = float(np.trace(rho).real)
+    return rho / trace if trace > 0 else MIXED.copy()
+
+
+_X_ON_B = np.kron(np.eye(2), np.array([[0.0, 1.0], [1.0, 0.0]]))
+
+
+def _flip_b(rho: np.ndarray) -> np.ndarray:
+    """Apply X to qubit 1 (the Psi -> Phi correction)."""
+    return _X_ON_B @ rho @ _X_ON_B
+
+
+SCHEME_FUNCTIONS: dict[str, Callable[[LightPath], Herald]] = {
+    "two_photon": two_photon_herald,
+    "single_photon": single_photon_herald,
+    "midpoint_source": midpoint_source_herald,
+    "direct": direct_herald,
+}
+
+
+def path_physics(path: LightPath) -> LinkPhysics:
+    """LinkPhysics of a whole light path, dispatching on the first link's ``scheme``."""
+    scheme = path.first.scheme
+    if scheme not in SCHEME_FUNCTIONS:
+        raise ParameterError(f"links[{path.first.index}].scheme", scheme, "one of " + ", ".join(SCHEMES))
+    herald = SCHEME_FUNCTIONS[scheme](path)
+    return assemble(path, herald)
+
+
+def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
+    """Mix true and dark-count heralds, apply multiplexing and fill :class:`LinkPhysics`."""
+    p = min(herald.p_true + herald.p_false, 1.0)
+    if herald.p_true + herald.p_false > 0:
+        rho = (herald.p_true * herald.rho_true + herald.p_false * herald.rho_false) / (herald.p_true + herald.p_false)
+    else:
+        rho = MIXED.copy()
+    modes = int(path.first.modes)
+    round_p = float(-np.expm1(modes * np.log1p(-p))) if p < 1 else 1.0
+    loss = path.loss_db
+    return LinkPhysics(
+        scheme=path.first.scheme, length_km=path.length_km, loss_db=loss,
+        transmissivity=_db_to_eta(loss), success_probability=p, modes=modes,
+        round_success_probability=round_p, attempt_period_s=herald.attempt_period_s,
+        herald_delay_s=herald.herald_delay_s, state=rho,
+        fidelity=float(np.real(np.trace(PHI_PLUS @ rho))),
+        dark_count_fraction=herald.p_false / p if p > 0 else 0.0,
+    )
+
+
+def link_physics(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
+    """LinkPhysics of one fibre link; qubit 0 of the state at ``site_a`` (either end of the link)."""
+    return path_physics(LightPath.join((link,), site_a, site_b))
+
+
+def _with_scheme(link: Link, scheme: str) -> Link:
+    from dataclasses import replace
+
+    return link if link.scheme == scheme else replace(link, scheme=scheme)  # type: ignore[arg-type]
+
+
+def two_photon(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
+    """LinkPhysics of ``link`` under two-photon heralding (see :func:`two_photon_herald`)."""
+    return link_physics(_with_scheme(link, "two_photon"), site_a, site_b)
+
+
+def single_photon(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
+    """LinkPhysics of ``link`` under single-photon heralding (see :func:`single_photon_herald`)."""
+    return link_physics(_with_scheme(link, "single_photon"), site_a, site_b)
+
+
+def midpoint_source(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
+    """LinkPhysics of ``link`` with a midpoint pair source (see :func:`midpoint_source_herald`)."""
+    return link_physics(_with_scheme(link, "midpoint_source"), site_a, site_b)
+
+
+def direct(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
+    """LinkPhysics of ``link`` as emitter-to-receiver transmission (see :func:`direct_herald`)."""
+    return link_physics(_with_scheme(link, "direct"), site_a, site_b)
