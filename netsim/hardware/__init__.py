@@ -15,5 +15,13 @@ from netsim.hardware.schemes import (
 )
 from netsim.hardware.types import LinkPhysics
 
-__all__ = ["LinkPhysics", "LightPath", "link_physics", "path_physics",
-           "two_photon", "single_photon", "midpoint_source", "direct"]
+__all__ = [
+    "LightPath",
+    "LinkPhysics",
+    "direct",
+    "link_physics",
+    "midpoint_source",
+    "path_physics",
+    "single_photon",
+    "two_photon",
+]

@@ -17,14 +17,14 @@ from typing import Any
 from netsim.errors import ParameterError
 
 __all__ = [
-    "GROUP_INDEX",
-    "SPEED_OF_LIGHT_KM_PER_S",
     "FIBRE_SPEED_KM_PER_S",
+    "GROUP_INDEX",
     "LOSS_MODELS",
+    "SPEED_OF_LIGHT_KM_PER_S",
     "loss_db",
-    "transmissivity",
     "propagation_delay_s",
     "qubit_channel",
+    "transmissivity",
 ]
 
 #: Group index of standard single-mode fibre near 1550 nm (common practice).
@@ -131,7 +131,8 @@ def qubit_channel(transmissivity: float, depolarizing: float = 0.0, loss_model: 
     C. H. Bennett, D. P. DiVincenzo and J. A. Smolin, "Capacities of quantum erasure channels",
     Phys. Rev. Lett. 78, 3217 (1997).
     """
-    from netsim import qinfo  # lazy: the math layer is imported only when a channel is needed
+    # lazy: the math layer is imported only when a channel is needed
+    from netsim import qinfo
 
     eta = _probability("transmissivity", transmissivity)
     p = _probability("depolarizing", depolarizing)

@@ -42,7 +42,7 @@ class LightPath:
     reversed_links: tuple[bool, ...]
 
     @classmethod
-    def join(cls, links: tuple[Link, ...] | list[Link], site_a: Site, site_b: Site) -> "LightPath":
+    def join(cls, links: tuple[Link, ...] | list[Link], site_a: Site, site_b: Site) -> LightPath:
         """Join ``links`` (ordered from ``site_a``) into a path; check that they connect."""
         links = tuple(links)
         if not links:

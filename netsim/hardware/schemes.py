@@ -44,9 +44,23 @@ from netsim.hardware.lightpath import LightPath
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import SCHEMES, Link, Site
 
-__all__ = ["Herald", "two_photon", "single_photon", "midpoint_source", "direct",
-           "two_photon_herald", "single_photon_herald", "midpoint_source_herald", "direct_herald",
-           "path_physics", "link_physics", "assemble", "SCHEME_FUNCTIONS", "PHI_PLUS", "MIXED"]
+__all__ = [
+    "MIXED",
+    "PHI_PLUS",
+    "SCHEME_FUNCTIONS",
+    "Herald",
+    "assemble",
+    "direct",
+    "direct_herald",
+    "link_physics",
+    "midpoint_source",
+    "midpoint_source_herald",
+    "path_physics",
+    "single_photon",
+    "single_photon_herald",
+    "two_photon",
+    "two_photon_herald",
+]
 
 PHI_PLUS: np.ndarray = np.outer([1, 0, 0, 1], [1, 0, 0, 1]) / 2.0
 MIXED: np.ndarray = np.eye(4) / 4.0
