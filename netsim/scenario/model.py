@@ -14,6 +14,9 @@ Scenario file layout (TOML)::
     [[sites]]          name, role, x_km, y_km, memory_slots, t1_s, t2_s, ...
     [[links]]          ends = [site, site], length_km, attenuation_db_per_km, ...
     [[demands]]        users = [site, site], pairs or duration_s, min_fidelity
+    [sweep]            kept untouched in Scenario.data for the sweep layer
+
+The full reference (every key, unit, default and allowed range) is scenarios/REFERENCE.md.
 """
 
 from __future__ import annotations
@@ -21,8 +24,21 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Literal
 
-__all__ = ["Site", "Link", "Demand", "Encoding", "Protocol", "Scenario",
-           "SITE_ROLES", "SCHEMES", "ROUTING_POLICIES", "PURIFICATION_PROTOCOLS"]
+__all__ = [
+    "DEFAULT_DEMAND_PAIRS",
+    "PURIFICATION_PROTOCOLS",
+    "ROUTING_POLICIES",
+    "SCHEDULING_POLICIES",
+    "SCHEMES",
+    "SITE_ROLES",
+    "SWAP_POLICIES",
+    "Demand",
+    "Encoding",
+    "Link",
+    "Protocol",
+    "Scenario",
+    "Site",
+]
 
 SiteRole = Literal["user", "repeater", "switch"]
 Scheme = Literal["two_photon", "single_photon", "midpoint_source", "direct"]
@@ -35,6 +51,12 @@ SITE_ROLES: tuple[str, ...] = ("user", "repeater", "switch")
 SCHEMES: tuple[str, ...] = ("two_photon", "single_photon", "midpoint_source", "direct")
 ROUTING_POLICIES: tuple[str, ...] = ("least_loss", "fewest_hops", "highest_bound")
 PURIFICATION_PROTOCOLS: tuple[str, ...] = ("none", "bbpssw", "dejmps")
+#: Swapping orders the engine offers (a plug-in family; add a name here when adding a plug-in).
+SWAP_POLICIES: tuple[str, ...] = ("asap",)
+#: Memory-slot scheduling between demands (a plug-in family; add names with new plug-ins).
+SCHEDULING_POLICIES: tuple[str, ...] = ("fair",)
+#: Pairs asked for by a demand that gives neither ``pairs`` nor ``duration_s``.
+DEFAULT_DEMAND_PAIRS: int = 100
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,196 @@
+"""What each key of a scenario file may hold: type, allowed range and unit.
+
+One :class:`Spec` per key. The loader checks every value against its spec and reports a problem
+in the form ``<value> is not allowed; expected <allowed>``, where ``<allowed>`` is
+:meth:`Spec.allowed`. Defaults are not kept here: they are the field defaults of the dataclasses
+in :mod:`netsim.scenario.model`, so the contract and the loader cannot disagree.
+"""
+
+from __future__ import annotations
+
+import math
+import numbers
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any
+
+from netsim.errors import format_value
+from netsim.scenario.model import (
+    PURIFICATION_PROTOCOLS,
+    ROUTING_POLICIES,
+    SCHEDULING_POLICIES,
+    SCHEMES,
+    SITE_ROLES,
+    SWAP_POLICIES,
+)
+
+__all__ = [
+    "DEMAND_FIELDS",
+    "LINK_DEFAULTABLE",
+    "LINK_FIELDS",
+    "NETWORK_FIELDS",
+    "PROTOCOL_FIELDS",
+    "SITE_DEFAULTABLE",
+    "SITE_FIELDS",
+    "Spec",
+    "is_integer",
+    "is_number",
+]
+
+
+def is_number(value: Any) -> bool:
+    """True for int and float values (and numpy scalars), False for bool."""
+    return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
+def is_integer(value: Any) -> bool:
+    """True for int values (and numpy integers), False for bool and float."""
+    return isinstance(value, numbers.Integral) and not isinstance(value, bool)
+
+
+@dataclass(frozen=True)
+class Spec:
+    """The type and allowed range of one key.
+
+    Parameters
+    ----------
+    kind : {"real", "int", "str", "choice"}
+        ``real`` accepts int and float (never bool); ``int`` accepts integers only.
+    low, high : float, optional
+        Bounds of a number; ``low_open``/``high_open`` exclude the bound itself.
+    choices : tuple of str
+        The allowed strings of a ``choice``.
+    unit : str
+        The unit shown in messages and in the reference (also part of the key name).
+    required : bool
+        Whether the key must be present (after ``[defaults]`` are applied).
+    """
+
+    kind: str
+    low: float | None = None
+    high: float | None = None
+    low_open: bool = False
+    high_open: bool = False
+    choices: tuple[str, ...] = ()
+    unit: str = ""
+    required: bool = False
+
+    def allowed(self) -> str:
+        """What is allowed, as a phrase: ``a number in (0, 1]``, ``one of 'a', 'b'``."""
+        if self.kind == "choice":
+            return "one of " + ", ".join(repr(c) for c in self.choices)
+        if self.kind == "str":
+            return "a non-empty string"
+        noun = "an integer" if self.kind == "int" else "a number"
+        text = noun + self._range_text()
+        return f"{text} ({self.unit})" if self.unit else text
+
+    def _range_text(self) -> str:
+        lo, hi = self.low, self.high
+        if lo is not None and hi is not None:
+            left = "(" if self.low_open else "["
+            right = ")" if self.high_open else "]"
+            return f" in {left}{lo:g}, {hi:g}{right}"
+        if lo is not None:
+            return f" {'>' if self.low_open else '>='} {lo:g}"
+        if hi is not None:
+            return f" {'<' if self.high_open else '<='} {hi:g}"
+        return ""
+
+    def accepts(self, value: Any) -> bool:
+        """Whether ``value`` has the right type and lies in the allowed range."""
+        if self.kind == "choice":
+            return isinstance(value, str) and value in self.choices
+        if self.kind == "str":
+            return isinstance(value, str) and value.strip() != ""
+        if self.kind == "int" and not is_integer(value):
+            return False
+        if not is_number(value) or not math.isfinite(value):
+            return False
+        return self._in_range(float(value))
+
+    def _in_range(self, x: float) -> bool:
+        if self.low is not None and (x < self.low or (self.low_open and x == self.low)):
+            return False
+        if self.high is not None and (x > self.high or (self.high_open and x == self.high)):
+            return False
+        return True
+
+    def complaint(self, value: Any) -> str:
+        """The message for a value this spec does not accept."""
+        return f"{format_value(value)} is not allowed; expected {self.allowed()}"
+
+    def convert(self, value: Any) -> Any:
+        """An accepted value as a plain Python object (float for ``real``, int for ``int``)."""
+        if self.kind == "real":
+            return float(value)
+        if self.kind == "int":
+            return int(value)
+        return value
+
+
+def _prob(low_open: bool = False, high_open: bool = False) -> Spec:
+    return Spec("real", 0.0, 1.0, low_open=low_open, high_open=high_open)
+
+
+def _positive(unit: str) -> Spec:
+    return Spec("real", 0.0, None, low_open=True, unit=unit)
+
+
+NETWORK_FIELDS: Mapping[str, Spec] = {
+    "name": Spec("str", required=True),
+    "purpose": Spec("str"),
+}
+
+#: Keys of a ``[[sites]]`` table. ``memory_slots`` may be 0 only at a switch (checked apart).
+SITE_FIELDS: Mapping[str, Spec] = {
+    "name": Spec("str", required=True),
+    "role": Spec("choice", choices=SITE_ROLES, required=True),
+    "x_km": Spec("real", unit="km"),
+    "y_km": Spec("real", unit="km"),
+    "memory_slots": Spec("int", 0, None),
+    "t1_s": _positive("s"),
+    "t2_s": _positive("s"),
+    "emission_efficiency": _prob(low_open=True),
+    "memory_efficiency": _prob(low_open=True),
+    "bsm_success_probability": _prob(low_open=True),
+    "gate_error": _prob(),
+    "attempt_prep_time_s": Spec("real", 0.0, None, unit="s"),
+}
+
+#: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
+LINK_FIELDS: Mapping[str, Spec] = {
+    "length_km": _positive("km"),
+    "attenuation_db_per_km": Spec("real", 0.0, None, unit="dB/km"),
+    "extra_loss_db": Spec("real", 0.0, None, unit="dB"),
+    "scheme": Spec("choice", choices=SCHEMES),
+    "modes": Spec("int", 1, None),
+    "detector_efficiency": _prob(low_open=True),
+    "dark_count_probability": _prob(high_open=True),
+    "midpoint_fraction": _prob(),
+    "bright_state_population": _prob(low_open=True, high_open=True),
+    "pair_probability": _prob(low_open=True, high_open=True),
+}
+
+#: Keys of a ``[[demands]]`` table (``users`` is checked apart: two site names).
+DEMAND_FIELDS: Mapping[str, Spec] = {
+    "pairs": Spec("int", 1, None),
+    "duration_s": _positive("s"),
+    "min_fidelity": _prob(),
+}
+
+PROTOCOL_FIELDS: Mapping[str, Spec] = {
+    "routing": Spec("choice", choices=ROUTING_POLICIES),
+    "swap_policy": Spec("choice", choices=SWAP_POLICIES),
+    "scheduling": Spec("choice", choices=SCHEDULING_POLICIES),
+    "cutoff_s": _positive("s"),
+    "purification": Spec("choice", choices=PURIFICATION_PROTOCOLS),
+    "purification_rounds": Spec("int", 0, None),
+}
+
+#: Site keys that ``[defaults.site]`` may set.
+SITE_DEFAULTABLE: Mapping[str, Spec] = {
+    k: v for k, v in SITE_FIELDS.items() if k not in ("name", "role", "x_km", "y_km")
+}
+#: Link keys that ``[defaults.link]`` may set.
+LINK_DEFAULTABLE: Mapping[str, Spec] = dict(LINK_FIELDS)
