@@ -15,7 +15,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["Column", "Table", "FORMATS", "format_number", "render"]
+__all__ = ["FORMATS", "Column", "Table", "format_number", "render", "sig_for_interval", "tex_escape"]
 
 FORMATS = ("table", "csv", "md", "tex", "json")
 
@@ -48,13 +48,67 @@ def format_number(value: Any, sig: int = 4) -> str:
     return str(value)
 
 
+def sig_for_interval(value: Any, interval: Any, default: int = 4) -> int:
+    """Significant figures for ``value`` so that its last digit sits where its interval allows.
+
+    The 95 % interval's half-width is kept to two significant figures and ``value`` is printed
+    to the same decimal place (at least one and at most ``default + 2`` figures). Without a
+    usable interval, ``default`` is returned.
+
+    Examples
+    --------
+    >>> sig_for_interval(1234.5, [1200.0, 1270.0])  # half-width 35: print to the unit
+    4
+    """
+    try:
+        low, high = float(interval[0]), float(interval[1])
+        value = float(value)
+    except (TypeError, ValueError, IndexError, KeyError):
+        return default
+    half = (high - low) / 2.0
+    if not (math.isfinite(half) and math.isfinite(value)) or half <= 0 or value == 0:
+        return default
+    place = math.floor(math.log10(half)) - 1
+    return max(1, min(default + 2, math.floor(math.log10(abs(value))) - place + 1))
+
+
 @dataclass(frozen=True)
 class Column:
-    """One column: the row key, the header shown to readers (unit included) and its precision."""
+    """One column: the row key, the header shown to readers (unit included) and its precision.
+
+    ``ci_key`` names the row key of the 95 % interval that belongs to this column's value (or
+    to the interval itself, when the column shows it): the cell is then printed to the decimal
+    place its uncertainty allows (see :func:`sig_for_interval`) instead of ``sig`` figures.
+    """
 
     key: str
     header: str
     sig: int = 4
+    ci_key: str | None = None
+
+    def format(self, row: Mapping[str, Any]) -> str:
+        """The text of this column's cell in ``row``."""
+        value = row.get(self.key)
+        if self.ci_key is None or row.get(self.ci_key) is None:
+            return format_number(value, self.sig)
+        interval = row[self.ci_key]
+        if isinstance(value, (list, tuple)) and len(value) == 2:
+            centre = (float(value[0]) + float(value[1])) / 2.0
+            sigs = [_bound_sig(v, centre, interval, self.sig) for v in value]
+            return f"[{format_number(value[0], sigs[0])}, {format_number(value[1], sigs[1])}]"
+        return format_number(value, sig_for_interval(value, interval, self.sig))
+
+
+def _bound_sig(bound: Any, centre: float, interval: Any, default: int) -> int:
+    """Figures for one interval bound, placed at the same decimal as the centre value."""
+    sig_centre = sig_for_interval(centre, interval, default)
+    try:
+        if float(bound) == 0 or centre == 0:
+            return sig_centre
+        shift = math.floor(math.log10(abs(float(bound)))) - math.floor(math.log10(abs(centre)))
+    except (TypeError, ValueError):
+        return default
+    return max(1, min(default + 2, sig_centre + shift))
 
 
 @dataclass
@@ -67,7 +121,7 @@ class Table:
     notes: list[str] = field(default_factory=list)
 
     def cells(self) -> list[list[str]]:
-        return [[format_number(row.get(c.key), c.sig) for c in self.columns] for row in self.rows]
+        return [[c.format(row) for c in self.columns] for row in self.rows]
 
     def to_records(self) -> list[dict[str, Any]]:
         """Rows as JSON-ready dicts keyed by column key (NaN becomes ``None``)."""

@@ -1,0 +1,174 @@
+"""Figures for proposals (matplotlib, drawn off-screen with the Agg canvas; PNG and PDF).
+
+Every function takes plain arrays or records and returns a :class:`matplotlib.figure.Figure`
+(no pyplot, so no global state and no display needed). Figures are sized for one column
+(3.5 in wide) with 8 pt text, put units on every axis, and stay readable in greyscale: each
+series has its own line style and marker, and colour maps are perceptually uniform (viridis,
+cividis). The network map lives in :mod:`netsim.report.netmap`.
+"""
+
+from __future__ import annotations
+
+import functools
+from collections.abc import Callable, Mapping, Sequence
+from pathlib import Path
+from typing import Any, ParamSpec, TypeVar
+
+import matplotlib
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+P = ParamSpec("P")
+R = TypeVar("R")
+
+__all__ = [
+    "COLUMN_WIDTH_IN",
+    "LINE_STYLES",
+    "MARKERS",
+    "STYLE",
+    "heatmap",
+    "metric_vs_parameter",
+    "new_figure",
+    "rate_vs_distance",
+    "save_figure",
+    "with_style",
+]
+
+COLUMN_WIDTH_IN = 3.5
+#: Text sizes legible at column width (8 pt body, 7 pt ticks and legends).
+STYLE: dict[str, Any] = {"font.size": 8, "axes.labelsize": 8, "axes.titlesize": 8,
+                         "xtick.labelsize": 7, "ytick.labelsize": 7, "legend.fontsize": 7,
+                         "lines.linewidth": 1.2, "lines.markersize": 4, "pdf.fonttype": 42}
+LINE_STYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 3)))
+MARKERS = ("o", "s", "^", "D", "v", "x")
+#: Greyscale-distinguishable colours sampled from cividis (dark to light).
+COLOURS = ("#00204c", "#414d6b", "#7c7b78", "#bcaf6f", "#575c6d", "#a59c74")
+
+
+def with_style(func: Callable[P, R]) -> Callable[P, R]:
+    """Run a figure function under the report's text sizes (:data:`STYLE`)."""
+
+    @functools.wraps(func)
+    def wrapper(*args: P.args, **kwargs: P.kwargs) -> R:
+        with matplotlib.rc_context(STYLE):  # type: ignore[arg-type]
+            return func(*args, **kwargs)
+
+    return wrapper
+
+
+@with_style
+def new_figure(height_in: float = 2.6, width_in: float = COLUMN_WIDTH_IN) -> tuple[Figure, Axes]:
+    """A one-axes figure at column width (call it from a function wrapped by :func:`with_style`)."""
+    fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig, fig.add_subplot()
+
+
+def save_figure(fig: Figure, stem: str | Path) -> list[Path]:
+    """Write ``stem.png`` (300 dpi) and ``stem.pdf``; return both paths."""
+    stem = Path(stem)
+    stem.parent.mkdir(parents=True, exist_ok=True)
+    paths = [stem.with_suffix(".png"), stem.with_suffix(".pdf")]
+    fig.savefig(paths[0], dpi=300)
+    fig.savefig(paths[1])
+    return paths
+
+
+def _style(i: int) -> dict[str, Any]:
+    return {"linestyle": LINE_STYLES[i % len(LINE_STYLES)], "marker": MARKERS[i % len(MARKERS)],
+            "color": COLOURS[i % len(COLOURS)], "markevery": 0.1}
+
+
+@with_style
+def rate_vs_distance(length_km: Sequence[float], rates: Mapping[str, Sequence[float]],
+                     bound: Sequence[float], *, ylabel: str = "entangled pairs per channel use",
+                     bound_label: str = r"repeaterless bound $-\log_2(1-\eta)$") -> Figure:
+    """Rate against link length for each heralding scheme, with the repeaterless bound (log y).
+
+    Parameters
+    ----------
+    length_km : sequence of float
+        Link lengths (x axis).
+    rates : mapping of str to sequence of float
+        Scheme name -> rate at each length (same unit as ``bound``). Zeros are not drawn.
+    bound : sequence of float
+        The repeaterless bound at each length, drawn as a thick grey line.
+
+    References
+    ----------
+    S. Pirandola, R. Laurenza, C. Ottaviani and L. Banchi, "Fundamental limits of
+    repeaterless quantum communications", Nat. Commun. 8, 15043 (2017).
+    """
+    fig, ax = new_figure()
+    x = np.asarray(length_km, dtype=float)
+    ax.plot(x, np.asarray(bound, dtype=float), color="0.55", linewidth=2.5, linestyle="-",
+            label=bound_label, zorder=1)
+    for i, (name, values) in enumerate(rates.items()):
+        y = np.asarray(values, dtype=float)
+        ax.plot(x, np.where(y > 0, y, np.nan), label=name.replace("_", " "), zorder=2, **_style(i))
+    ax.set_yscale("log")
+    ax.set_xlabel("link length (km)")
+    ax.set_ylabel(ylabel)
+    ax.grid(True, which="major", linewidth=0.3, color="0.85")
+    ax.legend(frameon=False, loc="lower left")
+    return fig
+
+
+@with_style
+def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlabel: str,
+                        ylabel: str, logx: bool = False, logy: bool = False) -> Figure:
+    """A metric against one swept parameter, one line per series with its 95 % band.
+
+    Parameters
+    ----------
+    curves : mapping of str to (x, y, low, high)
+        Series name -> arrays; ``low``/``high`` may hold NaN where no interval is known.
+    xlabel, ylabel : str
+        Axis labels, units included.
+    """
+    fig, ax = new_figure()
+    for i, (name, (x, y, low, high)) in enumerate(curves.items()):
+        style = _style(i)
+        ax.plot(x, y, label=name, **{**style, "markevery": 1})
+        ok = np.isfinite(np.asarray(low, float)) & np.isfinite(np.asarray(high, float))
+        if ok.any():
+            ax.fill_between(np.asarray(x, float)[ok], np.asarray(low, float)[ok],
+                            np.asarray(high, float)[ok], color=style["color"], alpha=0.2,
+                            linewidth=0, label=None)
+    ax.set_xscale("log" if logx else "linear")
+    ax.set_yscale("log" if logy else "linear")
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    ax.grid(True, linewidth=0.3, color="0.85")
+    if len(curves) > 1 or next(iter(curves), ""):
+        ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7)
+    return fig
+
+
+@with_style
+def heatmap(x: Sequence[float], y: Sequence[float], z: Any, *, xlabel: str, ylabel: str,
+            zlabel: str, annotate: bool = True) -> Figure:
+    """A two-parameter heatmap of a metric (viridis, colour bar with the metric and its unit)."""
+    fig, ax = new_figure(height_in=2.8)
+    z = np.asarray(z, dtype=float)
+    mesh = ax.imshow(z, origin="lower", aspect="auto", cmap="viridis", interpolation="nearest")
+    ax.set_xticks(range(len(x)), [f"{v:g}" for v in x])
+    ax.set_yticks(range(len(y)), [f"{v:g}" for v in y])
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    bar = fig.colorbar(mesh, ax=ax)
+    bar.set_label(zlabel)
+    if annotate and z.size <= 64:
+        _annotate(ax, z)
+    return fig
+
+
+def _annotate(ax: Axes, z: np.ndarray) -> None:
+    finite = z[np.isfinite(z)]
+    middle = (finite.min() + finite.max()) / 2 if finite.size else 0.0
+    for (i, j), value in np.ndenumerate(z):
+        if np.isfinite(value):
+            ax.text(j, i, f"{value:.3g}", ha="center", va="center", fontsize=6,
+                    color="white" if value < middle else "black")

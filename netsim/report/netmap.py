@@ -1,0 +1,163 @@
+"""A map of the network: sites at their coordinates, links coloured by capacity, width by use.
+
+Sites without coordinates are placed by a seeded spring layout (then the map is marked
+"layout, not to scale" and has no km scale bar). Sites are drawn with a marker per role, links
+with a perceptually uniform colour map (cividis, readable in greyscale) on a logarithmic scale
+with a colour bar, and line width growing with utilisation.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from matplotlib.axes import Axes
+from matplotlib.collections import LineCollection
+from matplotlib.colors import LogNorm, Normalize
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+
+from netsim.report.figures import new_figure, with_style
+
+__all__ = ["ROLE_MARKERS", "MapLink", "MapSite", "network_map", "positions", "scale_length_km"]
+
+ROLE_MARKERS = {"user": "o", "repeater": "s", "switch": "^"}
+MIN_WIDTH, MAX_WIDTH = 0.8, 4.0
+
+
+@dataclass(frozen=True)
+class MapSite:
+    """A site to draw: name, role and coordinates in km (``None`` when unknown)."""
+
+    name: str
+    role: str = "user"
+    x_km: float | None = None
+    y_km: float | None = None
+
+
+@dataclass(frozen=True)
+class MapLink:
+    """A link to draw: its ends, capacity (colour) and utilisation in [0, 1] (width)."""
+
+    a: str
+    b: str
+    capacity: float
+    utilisation: float | None = None
+
+
+def positions(sites: Sequence[MapSite], links: Sequence[MapLink],
+              seed: int = 1) -> tuple[dict[str, tuple[float, float]], bool]:
+    """Site positions and whether they are true coordinates in km.
+
+    Uses the sites' coordinates when every site has them; otherwise a spring layout of the link
+    graph (networkx, fixed ``seed``), which has no physical scale.
+    """
+    if all(s.x_km is not None and s.y_km is not None for s in sites):
+        return {s.name: (float(s.x_km), float(s.y_km)) for s in sites}, True  # type: ignore[arg-type]
+    import networkx as nx
+
+    graph = nx.Graph()
+    graph.add_nodes_from(s.name for s in sites)
+    graph.add_edges_from((link.a, link.b) for link in links)
+    layout = nx.spring_layout(graph, seed=seed)
+    return {n: (float(p[0]), float(p[1])) for n, p in layout.items()}, False
+
+
+def scale_length_km(span_km: float) -> float:
+    """A round scale-bar length (1, 2 or 5 times a power of ten) near a fifth of ``span_km``."""
+    target = max(span_km, 1e-9) / 5.0
+    power = 10.0 ** math.floor(math.log10(target))
+    return max(m * power for m in (1, 2, 5) if m * power <= target)
+
+
+def _widths(links: Sequence[MapLink]) -> np.ndarray:
+    use = np.array([np.nan if link.utilisation is None else link.utilisation for link in links])
+    use = np.clip(np.nan_to_num(use, nan=0.0), 0.0, 1.0)
+    return MIN_WIDTH + (MAX_WIDTH - MIN_WIDTH) * use
+
+
+def _norm(capacity: np.ndarray) -> Normalize:
+    positive = capacity[capacity > 0]
+    if positive.size and positive.max() > positive.min() * 1.0001:
+        return LogNorm(vmin=positive.min(), vmax=positive.max())
+    top = float(positive.max()) if positive.size else 1.0
+    return Normalize(vmin=0.0, vmax=top)
+
+
+def _draw_links(ax: Axes, links: Sequence[MapLink], pos: Mapping[str, tuple[float, float]],
+                cmap: str) -> LineCollection:
+    segments = [[pos[link.a], pos[link.b]] for link in links]
+    capacity = np.array([link.capacity for link in links], dtype=float)
+    collection = LineCollection(segments, cmap=cmap, norm=_norm(capacity),
+                                linewidths=_widths(links), capstyle="round", zorder=1)
+    collection.set_array(np.where(capacity > 0, capacity, np.nan))
+    ax.add_collection(collection)
+    return collection
+
+
+def _draw_sites(ax: Axes, sites: Sequence[MapSite], pos: Mapping[str, tuple[float, float]]) -> None:
+    for role, marker in ROLE_MARKERS.items():
+        chosen = [s for s in sites if s.role == role]
+        if chosen:
+            xy = np.array([pos[s.name] for s in chosen])
+            ax.scatter(xy[:, 0], xy[:, 1], marker=marker, s=28, facecolor="white",
+                       edgecolor="black", linewidth=0.9, zorder=3, label=role)
+    for s in sites:
+        x, y = pos[s.name]
+        ax.annotate(s.name, (x, y), xytext=(3, 3), textcoords="offset points", fontsize=6,
+                    zorder=4)
+
+
+def _scale_bar(ax: Axes, pos: Mapping[str, tuple[float, float]]) -> float:
+    from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
+
+    xs = [p[0] for p in pos.values()]
+    length = scale_length_km(max(xs) - min(xs) if len(xs) > 1 else 1.0)
+    bar = AnchoredSizeBar(ax.transData, length, f"{length:g} km", "lower right", pad=0.3,
+                          frameon=False, size_vertical=0, fontproperties={"size": 7})
+    ax.add_artist(bar)
+    return length
+
+
+def _legend(ax: Axes, sites: Sequence[MapSite]) -> None:
+    handles = [Line2D([], [], marker=m, linestyle="none", markerfacecolor="white",
+                      markeredgecolor="black", label=r) for r, m in ROLE_MARKERS.items()
+               if any(s.role == r for s in sites)]
+    handles += [Line2D([], [], color="0.3", linewidth=w, label=f"utilisation {u:.0%}")
+                for u, w in ((0.0, MIN_WIDTH), (1.0, MAX_WIDTH))]
+    ax.legend(handles=handles, loc="upper left", frameon=False, fontsize=6)
+
+
+@with_style
+def network_map(sites: Sequence[MapSite], links: Sequence[MapLink], *,
+                capacity_label: str = "repeaterless bound (ebit/s)", cmap: str = "cividis",
+                seed: int = 1) -> Figure:
+    """Draw the network: a colour bar for link capacity, line widths for utilisation.
+
+    Returns
+    -------
+    Figure
+        One map axes (equal aspect, km on both axes when coordinates are known) and one colour
+        bar axes labelled ``capacity_label``.
+    """
+    fig, ax = new_figure(height_in=3.2)
+    pos, to_scale = positions(sites, links, seed=seed)
+    collection = _draw_links(ax, links, pos, cmap)
+    _draw_sites(ax, sites, pos)
+    ax.autoscale_view()
+    ax.margins(0.12)
+    ax.set_aspect("equal", adjustable="datalim")
+    if to_scale:
+        ax.set_xlabel("x (km)")
+        ax.set_ylabel("y (km)")
+        _scale_bar(ax, pos)
+    else:
+        ax.set_xticks([])
+        ax.set_yticks([])
+        ax.set_xlabel("layout, not to scale")
+    bar = fig.colorbar(collection, ax=ax, shrink=0.8)
+    bar.set_label(capacity_label)
+    _legend(ax, sites)
+    return fig

@@ -1,0 +1,78 @@
+"""Headers with units for every metric a report shows, and the 95 % intervals behind them.
+
+Keys follow the project's naming (unit in the name). A header is what a reader sees; it always
+carries the unit. Unknown keys fall back to the key itself, which already names its unit.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+__all__ = ["HEADERS", "header", "mean_ci95", "poisson_rate_ci95"]
+
+HEADERS: dict[str, str] = {
+    "rate_per_s": "delivered rate (pairs/s)",
+    "rate_ci95": "rate 95% CI (pairs/s)",
+    "fidelity_mean": "fidelity",
+    "fidelity_ci95": "fidelity 95% CI",
+    "eof_mean": "EoF (ebit/pair)",
+    "eof_of_mean_state": "EoF of mean state (ebit/pair)",
+    "ebits_per_s": "ebits/s (EoF x rate)",
+    "coherent_information_mean": "coherent info (bit/pair)",
+    "key_fraction": "key fraction (bit/pair)",
+    "key_rate_per_s": "key rate (bit/s)",
+    "holevo_bits_per_s": "Holevo info rate (bit/s)",
+    "holevo_bits_per_qubit": "Holevo info (bit/qubit sent)",
+    "delivered_pairs": "pairs delivered",
+    "simulated_time_s": "simulated time (s)",
+    "utilisation": "utilisation",
+    "loss_db": "loss (dB)",
+    "length_km": "length (km)",
+    "transmissivity": "transmissivity",
+    "plob_bits_per_use": "repeaterless bound (ebit/use)",
+    "plob_bits_per_s": "repeaterless bound (ebit/s)",
+    "bound_single_path_per_s": "single-path bound (ebit/s)",
+    "bound_multipath_per_s": "multipath bound (ebit/s)",
+    "rate_to_bound": "rate / bound",
+}
+
+
+def header(key: str) -> str:
+    """The header (with unit) shown for metric ``key``; the key itself when none is known."""
+    return HEADERS.get(key, key)
+
+
+def poisson_rate_ci95(count: int, time_s: float) -> tuple[float, float]:
+    """Exact (Garwood) 95 % interval for a rate from ``count`` events seen in ``time_s`` seconds.
+
+    Lower = chi2.ppf(0.025, 2n) / (2 T), upper = chi2.ppf(0.975, 2n + 2) / (2 T).
+
+    References
+    ----------
+    F. Garwood, "Fiducial limits for the Poisson distribution", Biometrika 28, 437 (1936).
+    """
+    from scipy.stats import chi2
+
+    if time_s <= 0 or count < 0:
+        return (math.nan, math.nan)
+    low = 0.0 if count == 0 else float(chi2.ppf(0.025, 2 * count)) / (2 * time_s)
+    return (low, float(chi2.ppf(0.975, 2 * count + 2)) / (2 * time_s))
+
+
+def mean_ci95(values: Sequence[float]) -> tuple[float, float, float]:
+    """Mean of ``values`` and the Student-t 95 % interval of that mean: ``(mean, low, high)``.
+
+    With fewer than two finite values the interval is ``(nan, nan)``.
+    """
+    import numpy as np
+    from scipy.stats import t
+
+    data = np.asarray([v for v in values if v is not None and math.isfinite(v)], dtype=float)
+    if data.size == 0:
+        return (math.nan, math.nan, math.nan)
+    mean = float(data.mean())
+    if data.size < 2:
+        return (mean, math.nan, math.nan)
+    half = float(t.ppf(0.975, data.size - 1) * data.std(ddof=1) / math.sqrt(data.size))
+    return (mean, mean - half, mean + half)

@@ -1,0 +1,96 @@
+"""Figures: inspect the matplotlib objects (axes, labels, scales, lines), never pixels."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from matplotlib.collections import LineCollection, PolyCollection
+
+from netsim.report.figures import (COLUMN_WIDTH_IN, heatmap, metric_vs_parameter,
+                                   rate_vs_distance, save_figure)
+from netsim.report.netmap import MapLink, MapSite, network_map, scale_length_km
+
+LENGTHS = np.linspace(1.0, 100.0, 25)
+
+
+def _bound(length_km: np.ndarray, alpha_db_per_km: float = 0.2) -> np.ndarray:
+    eta = 10 ** (-alpha_db_per_km * length_km / 10)
+    return -np.log2(1 - eta)
+
+
+def test_rate_vs_distance_axes_and_lines(tmp_path) -> None:
+    rates = {"two_photon": 0.5 * 10 ** (-0.02 * LENGTHS), "single_photon": 0.1 * 10 ** (-0.01 * LENGTHS)}
+    fig = rate_vs_distance(LENGTHS, rates, _bound(LENGTHS))
+    ax = fig.axes[0]
+    assert ax.get_yscale() == "log"
+    assert ax.get_xlabel() == "link length (km)" and "channel use" in ax.get_ylabel()
+    lines = ax.get_lines()
+    assert [line.get_label() for line in lines][1:] == ["two photon", "single photon"]
+    assert "repeaterless" in lines[0].get_label()
+    # Repeaterless bound -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017).
+    assert np.allclose(lines[0].get_ydata(), _bound(LENGTHS))
+    assert len({str(line.get_linestyle()) for line in lines[1:]}) == 2
+    assert len({line.get_marker() for line in lines[1:]}) == 2
+    assert fig.get_size_inches()[0] == pytest.approx(COLUMN_WIDTH_IN)
+    assert ax.xaxis.label.get_fontsize() >= 7
+    paths = save_figure(fig, tmp_path / "rate")
+    assert [p.suffix for p in paths] == [".png", ".pdf"] and all(p.stat().st_size > 0 for p in paths)
+    assert paths[1].read_bytes()[:4] == b"%PDF"
+
+
+def test_metric_vs_parameter_draws_bands() -> None:
+    x = np.array([0.2, 0.25, 0.3])
+    fig = metric_vs_parameter({"Aldmoor-Cindervale": (x, [3.0, 2.0, 1.0], [2.5, 1.5, 0.5],
+                                                      [3.5, 2.5, 1.5])},
+                              xlabel="attenuation (dB/km)", ylabel="delivered rate (pairs/s)")
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "attenuation (dB/km)"
+    assert [c for c in ax.collections if isinstance(c, PolyCollection)]
+    assert np.allclose(ax.get_lines()[0].get_ydata(), [3.0, 2.0, 1.0])
+
+
+def test_heatmap_has_labelled_colour_bar() -> None:
+    z = np.arange(6.0).reshape(2, 3)
+    fig = heatmap([0.2, 0.25, 0.3], [0.1, 1.0], z, xlabel="attenuation (dB/km)",
+                  ylabel="T2 (s)", zlabel="delivered rate (pairs/s)")
+    assert len(fig.axes) == 2
+    assert fig.axes[1].get_ylabel() == "delivered rate (pairs/s)"
+    assert np.array_equal(fig.axes[0].images[0].get_array(), z)
+    assert fig.axes[0].images[0].get_cmap().name == "viridis"
+
+
+def _sites(with_coordinates: bool = True) -> list[MapSite]:
+    xy = {"Aldmoor": (0.0, 0.0), "Brackwater": (12.0, 3.0), "Cindervale": (25.0, -4.0),
+          "Fenwick Cross": (10.0, -10.0)}
+    roles = {"Aldmoor": "user", "Brackwater": "repeater", "Cindervale": "user",
+             "Fenwick Cross": "switch"}
+    return [MapSite(n, roles[n], *(xy[n] if with_coordinates else (None, None))) for n in xy]
+
+
+LINKS = [MapLink("Aldmoor", "Brackwater", 300.0, 0.8), MapLink("Brackwater", "Cindervale", 80.0, 0.4),
+         MapLink("Aldmoor", "Fenwick Cross", 150.0, 0.0), MapLink("Fenwick Cross", "Cindervale", 40.0)]
+
+
+def test_network_map_colours_and_widths() -> None:
+    fig = network_map(_sites(), LINKS)
+    ax, bar = fig.axes
+    links = [c for c in ax.collections if isinstance(c, LineCollection)][0]
+    assert np.allclose(links.get_array(), [300.0, 80.0, 150.0, 40.0])
+    widths = links.get_linewidths()
+    assert widths[0] > widths[1] > widths[2] == widths[3]
+    assert links.get_cmap().name == "cividis"
+    assert "ebit/s" in bar.get_ylabel()
+    assert ax.get_xlabel() == "x (km)" and ax.get_ylabel() == "y (km)"
+    assert any("km" in t.get_text() for a in ax.artists for t in a.findobj(lambda o: hasattr(o, "get_text")))
+    assert {t.get_text() for t in ax.get_legend().get_texts()} >= {"user", "repeater", "switch"}
+
+
+def test_network_map_without_coordinates_is_marked_not_to_scale() -> None:
+    fig = network_map(_sites(with_coordinates=False), LINKS)
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "layout, not to scale" and not ax.artists
+
+
+@pytest.mark.parametrize(("span", "expected"), [(25.0, 5.0), (100.0, 20.0), (3.0, 0.5), (60.0, 10.0)])
+def test_scale_bar_length_is_round(span: float, expected: float) -> None:
+    assert scale_length_km(span) == expected
