@@ -112,9 +112,8 @@ class Spec:
     def _in_range(self, x: float) -> bool:
         if self.low is not None and (x < self.low or (self.low_open and x == self.low)):
             return False
-        if self.high is not None and (x > self.high or (self.high_open and x == self.high)):
-            return False
-        return True
+        above = self.high is not None and (x > self.high or (self.high_open and x == self.high))
+        return not above
 
     def complaint(self, value: Any) -> str:
         """The message for a value this spec does not accept."""
