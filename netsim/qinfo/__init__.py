@@ -31,8 +31,17 @@ from netsim.qinfo.channels import (
     erasure,
     memory_decoherence,
 )
-from netsim.qinfo.entanglement import coherent_information, concurrence, entanglement_of_formation
-from netsim.qinfo.entropy import binary_entropy, holevo_information, shannon_entropy, von_neumann_entropy
+from netsim.qinfo.entanglement import (
+    coherent_information,
+    concurrence,
+    entanglement_of_formation,
+)
+from netsim.qinfo.entropy import (
+    binary_entropy,
+    holevo_information,
+    shannon_entropy,
+    von_neumann_entropy,
+)
 from netsim.qinfo.operations import entanglement_swap, purify_bbpssw, purify_dejmps
 from netsim.qinfo.states import bell_state, fidelity, werner_state
 

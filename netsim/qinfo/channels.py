@@ -121,7 +121,7 @@ def _dims_of(d: int, dims: tuple[int, ...] | None) -> tuple[int, ...]:
         if int(np.prod(dims_t)) != d:
             raise ParameterError("dims", dims, f"subsystem dimensions whose product is {d}")
         return dims_t
-    n = int(round(math.log2(d))) if d > 0 else -1
+    n = round(math.log2(d)) if d > 0 else -1
     if n < 1 or 2**n != d:
         raise ParameterError("rho", f"matrix of size {d}", "a state of n qubits (size a power of 2), or pass dims")
     return (2,) * n

@@ -190,7 +190,7 @@ def partial_trace(rho: ArrayLike, keep: int | tuple[int, ...], dims: tuple[int, 
 
 
 def _qubit_dims(d: int) -> tuple[int, ...]:
-    n = int(round(np.log2(d))) if d > 0 else 0
+    n = round(float(np.log2(d))) if d > 0 else 0
     if 2**n != d:
         raise ParameterError("rho", f"matrix of size {d}", "a state of n qubits (size a power of 2), or pass dims")
     return (2,) * n
