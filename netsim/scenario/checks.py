@@ -27,7 +27,7 @@ def join(path: str, key: Any) -> str:
 
 def suggest(word: str, candidates: Iterable[str]) -> str:
     """`` did you mean 'x'?`` for the closest candidate (difflib), or an empty string."""
-    matches = difflib.get_close_matches(word, list(candidates), n=1, cutoff=0.6)
+    matches = difflib.get_close_matches(word, list(candidates), n=1, cutoff=0.5)
     return f"; did you mean {matches[0]!r}?" if matches else ""
 
 

@@ -33,11 +33,18 @@ def _origin(key: str, own: Mapping[str, Any]) -> str:
 
 
 def parse_sites(value: Any, defaults: Mapping[str, Any],
-                problems: list[Problem]) -> tuple[list[Site], dict[str, str]]:
-    """Check every site; return the valid sites and the role of every validly named site."""
+                problems: list[Problem]) -> tuple[list[Site], dict[str, str] | None]:
+    """Check every site; return the valid sites and the role of every validly named site.
+
+    The roles are None when there is no usable array of sites: links and demands then skip
+    their site-name checks rather than repeat one problem many times.
+    """
     if value is None:
         problems.append(Problem("sites", "missing; required, at least two [[sites]] tables"))
-        return [], {}
+        return [], None
+    if not isinstance(value, (list, tuple)):
+        table_list(value, "sites", problems)
+        return [], None
     sites: list[Site] = []
     roles: dict[str, str] = {}
     first_index: dict[str, int] = {}
@@ -86,7 +93,7 @@ def _site_rules(path: str, own: Mapping[str, Any], merged: Mapping[str, Any],
                                 f"(T2 <= 2 T1; t1_s = {t1:g}{_origin('t1_s', own)})"))
 
 
-def parse_links(value: Any, defaults: Mapping[str, Any], roles: Mapping[str, str],
+def parse_links(value: Any, defaults: Mapping[str, Any], roles: Mapping[str, str] | None,
                 problems: list[Problem]) -> tuple[list[Link], list[tuple[str, str]]]:
     """Check every link; return the valid links and the ends of every link whose ends are valid
     (the latter to judge connectivity without follow-on errors)."""
@@ -115,14 +122,14 @@ def parse_links(value: Any, defaults: Mapping[str, Any], roles: Mapping[str, str
     return links, edges
 
 
-def _ends(table: Mapping[str, Any], path: str, roles: Mapping[str, str],
+def _ends(table: Mapping[str, Any], path: str, roles: Mapping[str, str] | None,
           problems: list[Problem]) -> tuple[str, str] | None:
     if "ends" not in table:
         problems.append(Problem(path, 'missing; required, two site names, e.g. ["Site A", "Site B"]'))
         return None
     pair = name_pair(table["ends"], path, problems)
-    if pair is None:
-        return None
+    if pair is None or roles is None:
+        return pair
     known = True
     for j, name in enumerate(pair):
         if name not in roles:
@@ -147,11 +154,11 @@ def _pair_rules(path: str, ends: tuple[str, str], pairs: dict[frozenset[str], in
         pairs[key] = index
 
 
-def parse_demands(value: Any, roles: Mapping[str, str], edges: list[tuple[str, str]],
+def parse_demands(value: Any, roles: Mapping[str, str] | None, edges: list[tuple[str, str]],
                   problems: list[Problem]) -> list[Demand]:
     """Check every demand: two connected user sites and either pairs or duration_s."""
     demands: list[Demand] = []
-    component = _components(roles, edges)
+    component = _components(roles or {}, edges)
     for i, table in table_list(value, "demands", problems):
         path = f"demands[{i}]"
         count = len(problems)
@@ -161,7 +168,7 @@ def parse_demands(value: Any, roles: Mapping[str, str], edges: list[tuple[str, s
             problems.append(Problem(path, "both pairs and duration_s are given, which is not "
                                           "allowed; expected one of them (or neither: "
                                           f"{DEFAULT_DEMAND_PAIRS} pairs)"))
-        if users is not None and component.get(users[0]) != component.get(users[1]):
+        if users is not None and roles is not None and component[users[0]] != component[users[1]]:
             problems.append(Problem(f"{path}.users", f"[{users[0]!r}, {users[1]!r}] is not allowed; "
                                     "no path of links joins these sites"))
         if "pairs" not in table and "duration_s" not in table:
@@ -171,14 +178,14 @@ def parse_demands(value: Any, roles: Mapping[str, str], edges: list[tuple[str, s
     return demands
 
 
-def _users(table: Mapping[str, Any], path: str, roles: Mapping[str, str],
+def _users(table: Mapping[str, Any], path: str, roles: Mapping[str, str] | None,
            problems: list[Problem]) -> tuple[str, str] | None:
     if "users" not in table:
         problems.append(Problem(path, 'missing; required, two user site names, e.g. ["Site A", "Site B"]'))
         return None
     pair = name_pair(table["users"], path, problems)
-    if pair is None:
-        return None
+    if pair is None or roles is None:
+        return pair
     ok = True
     for j, name in enumerate(pair):
         role = roles.get(name)

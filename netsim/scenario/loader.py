@@ -52,13 +52,22 @@ def load(path: str | PathLike[str]) -> Scenario:
         raise ScenarioError([Problem("", f"cannot read the file: {exc.strerror or exc}")],
                             source=source) from None
     try:
-        data = tomllib.loads(raw.decode("utf-8"))
+        text = raw.decode("utf-8")
+        data = tomllib.loads(text)
     except UnicodeDecodeError as exc:
         problem = Problem("", f"not UTF-8 text (byte {exc.start}); save the file as UTF-8")
         raise ScenarioError([problem], source=source) from None
     except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError([Problem("", f"TOML syntax error: {exc}")], source=source) from None
+        raise ScenarioError([_syntax_problem(exc, text)], source=source) from None
     return load_data(data, source=source)
+
+
+def _syntax_problem(exc: tomllib.TOMLDecodeError, text: str) -> Problem:
+    """The TOML parser's message, with a line number also when the error is at the end."""
+    message = str(exc)
+    last_line = text.count("\n") + (0 if text.endswith("\n") else 1)
+    message = message.replace("(at end of document)", f"(at end of document, line {last_line})")
+    return Problem("", f"TOML syntax error: {message}")
 
 
 def load_data(data: Mapping[str, Any], source: str | None = None) -> Scenario:
