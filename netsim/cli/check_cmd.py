@@ -1,0 +1,49 @@
+"""``netsim check FILE``: validate a scenario and print a short summary with planning warnings."""
+
+from __future__ import annotations
+
+import argparse
+import json
+from typing import Any
+
+__all__ = ["register", "run"]
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``check`` subcommand."""
+    parser = subparsers.add_parser(
+        "check", help="validate a scenario file and summarise it",
+        description="Validate a scenario file; print counts of sites, links and demands and "
+                    "planning warnings (links beyond what their scheme can bridge, routes below "
+                    "a demand's min_fidelity). Exit 0 if valid, 2 if not; with --strict, 1 when "
+                    "there are warnings.")
+    parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
+    parser.add_argument("--format", choices=("text", "json"), default="text", help="output format (default text)")
+    parser.add_argument("--strict", action="store_true", help="exit with code 1 when there are warnings")
+    parser.set_defaults(func=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from netsim.network.audit import audit, summary
+    from netsim.scenario import load
+
+    scenario = load(args.file)
+    facts, warnings = summary(scenario), audit(scenario)
+    if args.format == "json":
+        print(json.dumps({"file": args.file, "valid": True, **facts, "warnings": warnings}, indent=2))
+    else:
+        print(_text(args.file, facts, warnings))
+    return 1 if (args.strict and warnings) else 0
+
+
+def _text(path: str, facts: dict[str, Any], warnings: list[str]) -> str:
+    lines = [
+        f"{path}: valid scenario {facts['name']!r}",
+        (f"  sites: {facts['sites']} ({facts['users']} user, {facts['repeaters']} repeater, "
+         f"{facts['switches']} switch)"),
+        f"  links: {facts['links']} ({facts['fibre_km']:.4g} km of fibre)",
+        f"  demands: {facts['demands']} (routing: {facts['routing']})",
+    ]
+    lines.append(f"  warnings: {len(warnings)}" if warnings else "  warnings: none")
+    lines += [f"  warning: {w}" for w in warnings]
+    return "\n".join(lines)
