@@ -1,0 +1,151 @@
+"""The objects the engine runs on: a demand's chain of heralded hops between memory sites.
+
+A :class:`Chain` is one demand seen by the engine: the memory sites along its route
+(``sites[0]`` and ``sites[-1]`` are the two end users, the others repeaters) and one
+:class:`HopSpec` per heralded hop between consecutive memory sites. Passive switches are already
+folded into the hops by the network layer. The engine never parses files: tests and benchmarks
+build chains directly (see :func:`synthetic_physics`), and :mod:`netsim.engine.api` builds them
+from a scenario.
+
+Conventions: times in seconds, lengths in km. Classical messages (heralds, swap outcomes,
+purification outcomes) travel at c / 1.468 along the hops (:func:`netsim.hardware.fibre.propagation_delay_s`).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+from numpy.typing import NDArray
+
+from netsim.errors import ParameterError
+from netsim.hardware.fibre import propagation_delay_s
+from netsim.hardware.types import LinkPhysics
+from netsim.scenario.model import Site
+
+__all__ = ["HopSpec", "Chain", "synthetic_physics"]
+
+
+@dataclass(frozen=True, eq=False)
+class HopSpec:
+    """One heralded hop between consecutive memory sites of a chain.
+
+    Attributes
+    ----------
+    name : str
+        Display name, e.g. ``"Ashford-Brill"`` (site names of its two ends).
+    physics : LinkPhysics
+        What the hop delivers per attempt round; qubit 0 of ``physics.state`` sits at the hop's
+        left site (nearer ``Chain.sites[0]``).
+    links : tuple of str
+        Names of the fibre links the hop's light path uses (for per-link statistics).
+    """
+
+    name: str
+    physics: LinkPhysics
+    links: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True, eq=False)
+class Chain:
+    """A demand as the engine sees it: memory sites and the hops between them.
+
+    Attributes
+    ----------
+    name : str
+        The demand's name (``"A-B"``).
+    sites : tuple of Site
+        The ``len(hops) + 1`` memory sites in route order; ``sites[0]`` and ``sites[-1]`` are the
+        end users, the inner ones swap.
+    hops : tuple of HopSpec
+    index : int
+        Position of the demand in the scenario (for error messages and ordering).
+    pairs : int or None
+        Pairs the demand asks for (used when the run has no explicit stop rule).
+    duration_s : float or None
+        Simulated time the demand asks for.
+    """
+
+    name: str
+    sites: tuple[Site, ...]
+    hops: tuple[HopSpec, ...]
+    index: int = 0
+    pairs: int | None = None
+    duration_s: float | None = None
+
+    def __post_init__(self) -> None:
+        if len(self.hops) < 1:
+            raise ParameterError(f"demands[{self.index}].route", self.name, "a route with at least one hop")
+        if len(self.sites) != len(self.hops) + 1:
+            raise ParameterError(f"demands[{self.index}].route", len(self.sites),
+                                 f"{len(self.hops) + 1} memory sites for {len(self.hops)} hops")
+        for i, hop in enumerate(self.hops):
+            p = hop.physics.round_success_probability
+            if not (0.0 < p <= 1.0):
+                raise ParameterError(f"hops[{i}].round_success_probability ({hop.name})", p,
+                                     "a number in (0, 1]: a hop that never succeeds cannot deliver pairs")
+            if not hop.physics.attempt_period_s > 0:
+                raise ParameterError(f"hops[{i}].attempt_period_s ({hop.name})", hop.physics.attempt_period_s,
+                                     "a time > 0 in seconds")
+
+    @property
+    def n_hops(self) -> int:
+        return len(self.hops)
+
+    @cached_property
+    def p(self) -> NDArray[np.float64]:
+        """Per-round success probability of each hop, shape (n_hops,)."""
+        return np.array([h.physics.round_success_probability for h in self.hops], dtype=float)
+
+    @cached_property
+    def period_s(self) -> NDArray[np.float64]:
+        """Attempt period of each hop, shape (n_hops,)."""
+        return np.array([h.physics.attempt_period_s for h in self.hops], dtype=float)
+
+    @cached_property
+    def herald_s(self) -> NDArray[np.float64]:
+        """Herald delay of each hop, shape (n_hops,)."""
+        return np.array([h.physics.herald_delay_s for h in self.hops], dtype=float)
+
+    @cached_property
+    def position_s(self) -> NDArray[np.float64]:
+        """Classical signalling time from ``sites[0]`` to each site along the route, (n_hops + 1,)."""
+        delays = [propagation_delay_s(h.physics.length_km) for h in self.hops]
+        return np.concatenate([[0.0], np.cumsum(delays)])
+
+    def delay_s(self, j: int, k: int) -> float:
+        """Classical message time between memory sites ``j`` and ``k`` of the chain."""
+        return float(abs(self.position_s[k] - self.position_s[j]))
+
+    @cached_property
+    def link_states(self) -> NDArray[np.complex128]:
+        """Heralded state of each hop, shape (n_hops, 4, 4), qubit 0 at the left site."""
+        return np.stack([np.asarray(h.physics.state, dtype=complex) for h in self.hops])
+
+    @property
+    def site_names(self) -> tuple[str, ...]:
+        return tuple(s.name for s in self.sites)
+
+    def swap_success(self, j: int) -> float:
+        """Bell-measurement success probability at inner site ``j``."""
+        return float(self.sites[j].bsm_success_probability)
+
+
+def synthetic_physics(p: float, period_s: float, state: NDArray[np.complex128] | None = None, *,
+                      herald_s: float | None = None, length_km: float = 0.0, modes: int = 1) -> LinkPhysics:
+    """A :class:`LinkPhysics` with given per-mode success, period and state (tests, benchmarks).
+
+    ``p`` is the per-mode success; the round success is ``1 - (1 - p)^modes``. The herald delay
+    defaults to the attempt period; the state defaults to Phi+.
+    """
+    if state is None:
+        v = np.array([1, 0, 0, 1], dtype=complex) / np.sqrt(2)
+        state = np.outer(v, v.conj())
+    fid = float(np.real(np.array([1, 0, 0, 1]) @ state @ np.array([1, 0, 0, 1])) / 2)
+    return LinkPhysics(scheme="synthetic", length_km=length_km, loss_db=0.0, transmissivity=1.0,
+                       success_probability=p, modes=modes,
+                       round_success_probability=1.0 - (1.0 - p) ** modes,
+                       attempt_period_s=period_s,
+                       herald_delay_s=period_s if herald_s is None else herald_s,
+                       state=np.asarray(state, dtype=complex), fidelity=fid)

@@ -1,0 +1,108 @@
+"""Recorded histories of delivered pairs and the one batched pass that turns them into states.
+
+The event engines (:mod:`netsim.engine.vector`, :mod:`netsim.engine.des`) decide *when* things
+happen; for every delivered end-to-end pair they record, per hop of the chain, which heralded state
+the hop contributed and how long each of its two qubits sat in memory. :func:`pair_states` then
+computes all delivered states at once with numpy.
+
+Why this is exact
+-----------------
+Memory noise is a local channel on one qubit; Bell measurements act on other qubits. Local
+channels on different qubits commute, so every stored qubit can be brought up to date for its
+whole storage time first and the Bell measurements done afterwards, in any order. The Pauli
+corrections are kept in a Pauli frame and applied by the end user on delivery, after all swap
+outcomes have arrived: this is exactly what chaining :func:`netsim.qinfo.entanglement_swap`
+(outcome-averaged, correction on the far qubit) over the decohered link states computes, because a
+Pauli applied to a qubit just before it is Bell-measured only relabels that measurement's outcome.
+A site's ``gate_error`` q depolarizes the two measured qubits before an ideal Bell measurement
+(the convention of :func:`netsim.qinfo.entanglement_swap`: the swapped pair becomes
+(1 - q) rho + q rho_A (x) I/2). The fully mixed part on the far qubit is created at the swap; here
+it is not damped by that qubit's later T1 decay, which misstates the state by at most
+q (1 - exp(-t/T1)) for a far qubit stored a further time t after the swap (a documented
+approximation; exact when ``gate_error == 0`` or T1 is infinite).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from numpy.typing import NDArray
+
+from netsim import qinfo
+from netsim.engine.chain import Chain
+
+__all__ = ["History", "pair_states", "concat_histories"]
+
+
+@dataclass
+class History:
+    """What the engine records for each delivered pair of one chain (N pairs, n hops).
+
+    Attributes
+    ----------
+    delivered_s : array (N,)
+        Delivery times: both end users know every herald and swap outcome.
+    store_left_s, store_right_s : arrays (N, n)
+        Storage time of hop i's qubit at its left and right site before it was Bell-measured
+        (inner sites) or delivered (end users), counted from the moment its state was valid.
+    state_id : array (N, n) of int
+        0: the hop's heralded state; k >= 1: ``extra_states[i][k - 1]`` (a purified pair).
+    extra_states : list of n lists of (4, 4) arrays
+    """
+
+    delivered_s: NDArray[np.float64]
+    store_left_s: NDArray[np.float64]
+    store_right_s: NDArray[np.float64]
+    state_id: NDArray[np.int64]
+    extra_states: list[list[NDArray[np.complex128]]] = field(default_factory=list)
+
+    def __len__(self) -> int:
+        return int(self.delivered_s.shape[0])
+
+    @classmethod
+    def empty(cls, n_hops: int) -> History:
+        z = np.zeros((0, n_hops))
+        return cls(np.zeros(0), z, z.copy(), np.zeros((0, n_hops), dtype=np.int64),
+                   [[] for _ in range(n_hops)])
+
+
+def concat_histories(parts: list[History], n_hops: int) -> History:
+    """Join histories recorded in pieces (raw state ids only; used by the vector engine)."""
+    if not parts:
+        return History.empty(n_hops)
+    return History(np.concatenate([p.delivered_s for p in parts]),
+                   np.concatenate([p.store_left_s for p in parts]),
+                   np.concatenate([p.store_right_s for p in parts]),
+                   np.concatenate([p.state_id for p in parts]),
+                   parts[0].extra_states)
+
+
+def _hop_states(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
+    table = [chain.link_states[i]] + list(hist.extra_states[i] if hist.extra_states else [])
+    if len(table) == 1:
+        return np.broadcast_to(table[0], (len(hist), 4, 4))
+    return np.stack(table)[hist.state_id[:, i]]
+
+
+def pair_states(chain: Chain, hist: History) -> NDArray[np.complex128]:
+    """States of all delivered pairs, shape (N, 4, 4), qubit 0 at ``chain.sites[0]``.
+
+    Each hop's state is decohered on qubit 0 with the left site's T1/T2 for ``store_left_s`` and
+    on qubit 1 with the right site's for ``store_right_s`` (:func:`netsim.qinfo.decohere`), then
+    the hops are swapped left to right with each inner site's gate error
+    (:func:`netsim.qinfo.entanglement_swap`).
+    """
+    if len(hist) == 0:
+        return np.zeros((0, 4, 4), dtype=complex)
+    out = _decohered_hop(chain, hist, 0)
+    for i in range(1, chain.n_hops):
+        gate_error = float(chain.sites[i].gate_error)
+        out = qinfo.entanglement_swap(out, _decohered_hop(chain, hist, i), bsm_depolarizing=gate_error)
+    return out
+
+
+def _decohered_hop(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
+    left, right = chain.sites[i], chain.sites[i + 1]
+    rho = qinfo.decohere(_hop_states(chain, hist, i), hist.store_left_s[:, i], left.t1_s, left.t2_s, qubit=0)
+    return qinfo.decohere(rho, hist.store_right_s[:, i], right.t1_s, right.t2_s, qubit=1)

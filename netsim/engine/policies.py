@@ -1,0 +1,111 @@
+"""Plug-in policies of the event engine: memory-slot scheduling between demands, swap timing.
+
+Scheduling
+----------
+A demand runs in *cycles*. At the start of a cycle it asks for a path reservation: one memory
+slot per hop end at every site of its route (two at a repeater, one at each end user; times
+``purification_rounds + 1`` when purifying). Its hops generate, store, swap and regenerate after
+losses inside the reservation until one end-to-end pair is delivered; then the reservation is
+returned and the demand queues again. Reserving a whole path at once cannot deadlock (no demand
+ever holds part of what it needs while waiting for the rest). A :class:`SchedulingPolicy` orders
+the waiting requests; the broker grants, in that order, every request whose slots are free.
+
+- ``fair`` (default): first come, first served by request time, ties by demand order. A demand
+  that just finished queues behind every demand already waiting, so demands sharing a site take
+  turns.
+- ``demand_order``: strict priority to demands listed earlier in the scenario.
+
+Swapping
+--------
+A :class:`SwapPolicy` says how long an inner site waits, once it holds both of its qubits, before
+its Bell measurement. ``asap`` (default) swaps at once.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Protocol
+
+from netsim.errors import ParameterError
+
+__all__ = ["Request", "SchedulingPolicy", "SwapPolicy", "SCHEDULING", "SWAPPING",
+           "scheduling_policy", "swap_policy", "register_scheduling", "register_swap"]
+
+
+@dataclass
+class Request:
+    """A waiting path reservation: which demand, when it asked, and slots needed per site."""
+
+    demand_index: int
+    time_s: float
+    sequence: int
+    need: dict[str, int]
+
+
+class SchedulingPolicy(Protocol):
+    """Orders waiting requests; the broker grants them in this order when their slots are free."""
+
+    name: str
+
+    def order(self, requests: list[Request]) -> list[Request]: ...
+
+
+class SwapPolicy(Protocol):
+    """Delay (s) an inner site waits, holding both qubits, before its Bell measurement."""
+
+    name: str
+
+    def swap_delay_s(self, site_index: int, n_hops: int, now_s: float) -> float: ...
+
+
+@dataclass(frozen=True)
+class _Sorted:
+    name: str
+    key: Callable[[Request], tuple[float, ...]]
+
+    def order(self, requests: list[Request]) -> list[Request]:
+        return sorted(requests, key=self.key)
+
+
+@dataclass(frozen=True)
+class _Asap:
+    name: str = "asap"
+
+    def swap_delay_s(self, site_index: int, n_hops: int, now_s: float) -> float:
+        return 0.0
+
+
+SCHEDULING: dict[str, SchedulingPolicy] = {
+    "fair": _Sorted("fair", lambda r: (r.time_s, r.sequence)),
+    "demand_order": _Sorted("demand_order", lambda r: (r.demand_index, r.time_s, r.sequence)),
+}
+SWAPPING: dict[str, SwapPolicy] = {"asap": _Asap()}
+
+
+def register_scheduling(policy: SchedulingPolicy) -> None:
+    """Add a scheduling plug-in under ``policy.name``."""
+    SCHEDULING[policy.name] = policy
+
+
+def register_swap(policy: SwapPolicy) -> None:
+    """Add a swap-timing plug-in under ``policy.name``."""
+    SWAPPING[policy.name] = policy
+
+
+def scheduling_policy(name: str | SchedulingPolicy) -> SchedulingPolicy:
+    """Look up a scheduling policy by name (``protocol.scheduling``)."""
+    if not isinstance(name, str):
+        return name
+    if name not in SCHEDULING:
+        raise ParameterError("protocol.scheduling", name, "one of " + ", ".join(SCHEDULING))
+    return SCHEDULING[name]
+
+
+def swap_policy(name: str | SwapPolicy) -> SwapPolicy:
+    """Look up a swap policy by name (``protocol.swap_policy``)."""
+    if not isinstance(name, str):
+        return name
+    if name not in SWAPPING:
+        raise ParameterError("protocol.swap_policy", name, "one of " + ", ".join(SWAPPING))
+    return SWAPPING[name]
