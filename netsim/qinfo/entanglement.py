@@ -97,10 +97,11 @@ def concurrence(rho: ArrayLike) -> NDArray[np.float64]:
     x = is_xstate(r)
     if np.all(x):
         return concurrence_xstate(r)
-    out = np.empty(r.shape[:-2])
-    out[x] = concurrence_xstate(r[x])
-    out[~x] = concurrence_general(r[~x])
-    return out
+    flat, xf = r.reshape(-1, 4, 4), x.reshape(-1)
+    out = np.empty(xf.shape)
+    out[xf] = concurrence_xstate(flat[xf])
+    out[~xf] = concurrence_general(flat[~xf])
+    return out.reshape(r.shape[:-2])
 
 
 def entanglement_of_formation(rho: ArrayLike) -> NDArray[np.float64]:

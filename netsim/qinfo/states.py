@@ -152,14 +152,15 @@ def fidelity(rho: ArrayLike, sigma: ArrayLike) -> NDArray[np.float64]:
     r = as_states(rho, "rho")
     s = as_states(sigma, "sigma", r.shape[-1])
     r, s = np.broadcast_arrays(r, s)
+    batch, d = r.shape[:-2], r.shape[-1]
+    r, s = r.reshape(-1, d, d), s.reshape(-1, d, d)
     out = np.einsum("...ij,...ji->...", r, s).real
     general = ~(_is_pure(r) | _is_pure(s))
     if np.any(general):
-        rg, sg = r[general], s[general]
-        root = _psd_sqrt(rg)
-        vals = np.linalg.eigvalsh(root @ sg @ root)
+        root = _psd_sqrt(r[general])
+        vals = np.linalg.eigvalsh(root @ s[general] @ root)
         out[general] = np.sum(np.sqrt(np.clip(vals, 0.0, None)), axis=-1) ** 2
-    return np.clip(out, 0.0, 1.0)
+    return np.clip(out, 0.0, 1.0).reshape(batch)
 
 
 def partial_trace(rho: ArrayLike, keep: int | tuple[int, ...], dims: tuple[int, ...] | None = None) -> NDArray[np.complex128]:

@@ -1,0 +1,74 @@
+"""Shared fixtures and invariant checkers, written once and reused by every test file.
+
+Checkers (import them with ``from conftest import assert_valid_state`` or use the fixtures of
+the same name):
+
+- :func:`assert_valid_state`: Hermitian, positive semidefinite, trace 1 (batched).
+- :func:`assert_probability`: values in [0, 1].
+- :func:`assert_within_bound`: simulated values never above their bound (up to a tolerance).
+
+Fixtures: ``rng`` (a seeded ``numpy.random.Generator``), ``random_states`` (a factory of random
+density matrices with a fixed seed).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+import pytest
+
+from netsim.qinfo.states import random_density_matrices
+
+
+def assert_valid_state(rho: Any, atol: float = 1e-10) -> None:
+    """Fail unless every state in the batch is Hermitian, positive semidefinite, of trace 1.
+
+    Parameters
+    ----------
+    rho : array of shape (..., d, d)
+    atol : float
+        Absolute tolerance on the Hermiticity defect, the most negative eigenvalue and the trace.
+    """
+    r = np.asarray(rho, dtype=complex)
+    assert r.ndim >= 2 and r.shape[-1] == r.shape[-2], f"not square: shape {r.shape}"
+    assert np.all(np.isfinite(r)), "state has non-finite entries"
+    herm = np.max(np.abs(r - np.conj(np.swapaxes(r, -1, -2))), initial=0.0)
+    assert herm <= atol, f"not Hermitian: max |rho - rho^dagger| = {herm:.3g}"
+    trace = np.trace(r, axis1=-2, axis2=-1)
+    assert np.max(np.abs(trace - 1.0), initial=0.0) <= atol, f"trace not 1: {trace.ravel()[:4]}"
+    min_eig = np.min(np.linalg.eigvalsh((r + np.conj(np.swapaxes(r, -1, -2))) / 2), initial=0.0)
+    assert min_eig >= -atol, f"not positive: smallest eigenvalue {min_eig:.3g}"
+
+
+def assert_probability(values: Any, atol: float = 0.0) -> None:
+    """Fail unless all values are finite and lie in [0, 1] (within ``atol``)."""
+    v = np.asarray(values, dtype=float)
+    assert np.all(np.isfinite(v)), "non-finite probability"
+    assert np.all(v >= -atol) and np.all(v <= 1.0 + atol), f"outside [0, 1]: {v[(v < -atol) | (v > 1 + atol)][:4]}"
+
+
+def assert_within_bound(values: Any, bound: Any, rtol: float = 1e-9, atol: float = 1e-12) -> None:
+    """Fail if any value exceeds its bound by more than ``atol + rtol * |bound|``."""
+    v, b = np.broadcast_arrays(np.asarray(values, dtype=float), np.asarray(bound, dtype=float))
+    excess = v - b - (atol + rtol * np.abs(b))
+    assert np.all(excess <= 0), f"value above its bound: {v[excess > 0][:4]} > {b[excess > 0][:4]}"
+
+
+@pytest.fixture
+def rng() -> np.random.Generator:
+    """A seeded generator (seed 12345) so every run sees the same numbers."""
+    return np.random.default_rng(12345)
+
+
+@pytest.fixture
+def random_states() -> Callable[..., np.ndarray]:
+    """Factory ``random_states(n, d=4, seed=0, rank=None)`` of random density matrices."""
+    return random_density_matrices
+
+
+@pytest.fixture(name="valid_state")
+def _valid_state_fixture() -> Callable[..., None]:
+    """The :func:`assert_valid_state` checker as a fixture."""
+    return assert_valid_state
