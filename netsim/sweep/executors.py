@@ -66,7 +66,7 @@ class LocalPool:
         method = "forkserver" if sys.platform.startswith("linux") else "spawn"
         self._context = multiprocessing.get_context(method)
 
-    def run(self, tasks: Iterable[PointTask]) -> Iterator[PointRecord]:
+    def run(self, tasks: Iterable[PointTask]) -> Generator[PointRecord, None, None]:
         """Yield one record per task, in completion order."""
         queue: deque[PointTask] = deque()
         source = iter(tasks)
@@ -168,7 +168,7 @@ class DaskPool:
         except (OSError, TimeoutError) as exc:
             raise ParameterError("--cluster", self.address, f"a reachable Dask scheduler ({exc})") from None
 
-    def run(self, tasks: Iterable[PointTask]) -> Iterator[PointRecord]:
+    def run(self, tasks: Iterable[PointTask]) -> Generator[PointRecord, None, None]:
         """Yield one record per task, in completion order."""
         client, cluster = self._client()
         try:

@@ -126,11 +126,13 @@ def run_sweep(plan: SweepPlan, executor: LocalPool | DaskPool, *, store_path: st
         by_id = {p.point_id: p for p in todo}
         failed_before = counts["failed"] - (len(todo) if retry_failed else 0)
         progress = _Progress(len(plan.points), counts["done"], failed_before, quiet, stream)
+        records = executor.run(tasks_for(plan, todo, point_timeout_s))
         try:
-            for record in executor.run(tasks_for(plan, todo, point_timeout_s)):
+            for record in records:
                 store.record(record)
                 progress.update(by_id[record.point_id], record)
         finally:
+            records.close()  # stops the workers now, also on Ctrl-C
             progress.close()
         counts = store.counts()
     return SweepSummary(path, len(plan.points), len(todo), counts["done"], counts["failed"],

@@ -100,6 +100,10 @@ class Point:
     seed: int
 
 
+class _Detail(ValueError):
+    """A value problem whose message already says what is allowed."""
+
+
 def _canonical_json(obj: Any) -> str:
     return json.dumps(obj, sort_keys=True, separators=(",", ":"), allow_nan=False)
 
@@ -117,13 +121,13 @@ def _tidy(x: float) -> float:
 
 def _range(start: float, stop: float, n: Any, scale: str) -> tuple[float, ...]:
     if isinstance(n, bool) or not isinstance(n, int) or n < 2 or n > MAX_POINTS:
-        raise ValueError(f"points = {format_value(n)} is not allowed; expected an integer in [2, {MAX_POINTS}]")
+        raise _Detail(f"points = {format_value(n)} is not allowed; expected an integer in [2, {MAX_POINTS}]")
     if scale == "log":
         if start <= 0 or stop <= 0:
-            raise ValueError("a log range needs FROM > 0 and TO > 0")
+            raise _Detail("a log range needs FROM > 0 and TO > 0")
         return tuple(_tidy(v) for v in np.geomspace(start, stop, n))
     if scale != "linear":
-        raise ValueError(f"scale = {format_value(scale)} is not allowed; expected 'linear' or 'log'")
+        raise _Detail(f"scale = {format_value(scale)} is not allowed; expected 'linear' or 'log'")
     return tuple(_tidy(v) for v in np.linspace(start, stop, n))
 
 
@@ -160,9 +164,10 @@ def parse_values(raw: Any) -> tuple[float | int, ...]:
             values = tuple(raw)
         else:
             raise ValueError
-    except ValueError as exc:
-        detail = str(exc)
-        raise ValueError(detail if detail else f"{format_value(raw)} is not allowed; expected {_VALUES_ALLOWED}") from None
+    except _Detail:
+        raise
+    except (ValueError, TypeError):
+        raise ValueError(f"{format_value(raw)} is not allowed; expected {_VALUES_ALLOWED}") from None
     if not values:
         raise ValueError(f"{format_value(raw)} is not allowed; expected at least one value")
     return values

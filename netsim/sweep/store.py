@@ -28,7 +28,8 @@ from typing import Any, Self
 
 from netsim.errors import StoreError
 
-__all__ = ["FORMAT", "SCHEMA_VERSION", "PointRecord", "SweepStore", "create_or_resume", "open_store"]
+__all__ = ["FORMAT", "SCHEMA_VERSION", "PointRecord", "SweepStore", "create_or_resume", "open_store",
+           "refuse_other"]
 
 SCHEMA_VERSION = 1
 FORMAT = "netsim sweep store"
@@ -232,7 +233,7 @@ def _initialise(path: Path, db: sqlite3.Connection, meta: dict[str, str]) -> Non
         db.execute("COMMIT")
 
 
-def _refuse_other(path: Path, stored: dict[str, str], meta: dict[str, str]) -> None:
+def refuse_other(path: Path, stored: dict[str, str], meta: dict[str, str]) -> None:
     if stored.get("scenario_hash") != meta["scenario_hash"]:
         raise StoreError(
             f"{path}: the store belongs to another scenario ({stored.get('scenario_name')!r}, content hash "
@@ -264,7 +265,7 @@ def create_or_resume(path: str | Path, meta: dict[str, str]) -> SweepStore:
             db.execute("PRAGMA synchronous = FULL")
             if not _tables(db):
                 _initialise(path, db, meta)
-        _refuse_other(path, _check_format(path, db), meta)
+        refuse_other(path, _check_format(path, db), meta)
     except BaseException:
         db.close()
         raise

@@ -1,0 +1,168 @@
+"""``netsim sweep``: run a resumable parameter sweep of a scenario into an SQLite store."""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+from pathlib import Path
+from typing import Any
+
+from netsim.errors import ParameterError
+
+__all__ = ["register", "run_command"]
+
+_DESCRIPTION = """\
+Run the engine at every point of a parameter sweep and store each point's metrics in an SQLite
+file as soon as it finishes. Re-running the same command skips finished points, so a sweep that
+was interrupted (Ctrl-C, a crash, a killed job) resumes where it stopped and ends with exactly
+the results of an uninterrupted run.
+Exit status: 0 every point done, 1 some points failed (see --retry-failed), 2 bad input,
+130 interrupted (finished points are kept)."""
+
+_EPILOG = """\
+sweep keys (--vary KEY=VALUES, or KEY = VALUES in the file's [sweep.vary] table):
+  sites[SEL].KEY, links[SEL].KEY, demands[SEL].KEY   SEL is * (every entry), an index
+      (zero-based) or KEY=VALUE, e.g. sites[role=repeater].t2_s, links[3].length_km,
+      links[name=Ashford-Brindle].extra_loss_db (a link's or demand's name is its ends joined by -)
+  defaults.site.KEY, defaults.link.KEY, protocol.KEY
+  KEY must be a numeric key of that table.
+values:
+  10,20,40            a list
+  lin:FROM:TO:N       N evenly spaced values, both ends included
+  log:FROM:TO:N       N values evenly spaced in log (FROM, TO > 0)
+  in the file also:   [10, 20, 40] or {from = 1, to = 100, points = 5, scale = "log"}
+[sweep] table keys: vary, combine ("grid" | "zip"), repeats, seed, pairs | time_s | precision;
+command-line options replace them.
+
+examples:
+  netsim sweep scenarios/chain3.toml --vary 'links[*].length_km=lin:5:40:8' --pairs 200
+  netsim sweep city.toml --vary 'sites[role=repeater].t2_s=log:0.01:10:7' --repeats 3 --dry-run
+  netsim sweep city.toml --cluster local:4 --quiet
+  netsim sweep city.toml --retry-failed --point-timeout-s 600"""
+
+
+def _add_spec_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
+    parser.add_argument("--vary", action="append", default=[], metavar="KEY=VALUES",
+                        help="vary a numeric key (repeatable); replaces the file's axis with the same key")
+    parser.add_argument("--combine", choices=("grid", "zip"), default=None,
+                        help="every combination of the axes (grid, default) or their i-th values together (zip)")
+    parser.add_argument("--repeats", type=int, default=None, metavar="N",
+                        help="independent repetitions of each combination (default 1)")
+    parser.add_argument("--seed", type=int, default=None, metavar="S", help="base seed (default 0)")
+    stop = parser.add_mutually_exclusive_group()
+    stop.add_argument("--pairs", type=int, default=None, metavar="N", help="engine stop rule: N pairs per demand")
+    stop.add_argument("--time-s", type=float, default=None, metavar="T", help="engine stop rule: T simulated seconds")
+    stop.add_argument("--precision", type=float, default=None, metavar="R",
+                      help="engine stop rule: relative 95%% half-width R of every demand's rate")
+
+
+def _add_run_options(parser: argparse.ArgumentParser) -> None:
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, default=None, metavar="N",
+                       help="local worker processes (default: the number of cores)")
+    where.add_argument("--cluster", default=None, metavar="ADDRESS",
+                       help="a Dask scheduler address, or local:N for a Dask LocalCluster of N workers "
+                            "(needs the 'cluster' extra)")
+    parser.add_argument("--store", default=None, metavar="PATH",
+                        help="result store (default results/<scenario>/sweep.sqlite)")
+    parser.add_argument("--dry-run", action="store_true",
+                        help="list the points and estimate the run time from one calibration point; run nothing else")
+    parser.add_argument("--retry-failed", action="store_true", help="run only the points recorded as failed")
+    parser.add_argument("--point-timeout-s", type=float, default=None, metavar="T",
+                        help="record a point as failed when it runs longer than T seconds")
+    parser.add_argument("--quiet", action="store_true",
+                        help="one line per finished point instead of a progress bar")
+
+
+def register(subparsers: Any) -> None:
+    """Add the ``sweep`` subcommand."""
+    parser = subparsers.add_parser("sweep", help="run a resumable parameter sweep into an SQLite store",
+                                   description=_DESCRIPTION, epilog=_EPILOG,
+                                   formatter_class=argparse.RawDescriptionHelpFormatter)
+    _add_spec_options(parser)
+    _add_run_options(parser)
+    parser.set_defaults(func=run_command)
+
+
+def _check_numbers(args: argparse.Namespace) -> None:
+    timeout = args.point_timeout_s
+    if timeout is not None and not (math.isfinite(timeout) and timeout > 0):
+        raise ParameterError("--point-timeout-s", timeout, "a number of seconds > 0")
+    if args.workers is not None and args.workers < 1:
+        raise ParameterError("--workers", args.workers, "an integer >= 1")
+
+
+def _plan(args: argparse.Namespace) -> Any:
+    from netsim.scenario import load
+    from netsim.sweep.plan import make_plan
+
+    scenario = load(args.file)
+    return make_plan(scenario, args.vary, combine=args.combine, repeats=args.repeats, seed=args.seed,
+                     pairs=args.pairs, time_s=args.time_s, precision=args.precision)
+
+
+def _store_statuses(path: Path, plan: Any) -> dict[str, str]:
+    from netsim.sweep.runner import store_meta
+    from netsim.sweep.store import open_store, refuse_other
+
+    if not path.exists():
+        return {}
+    with open_store(path) as store:
+        refuse_other(path, store.meta(), store_meta(plan))
+        return {row["point_id"]: row["status"] for row in store.points()}
+
+
+def _dry_run(args: argparse.Namespace, plan: Any, point_function: Any, store: Path) -> int:
+    from netsim.sweep.executors import default_workers
+    from netsim.sweep.runner import calibrate, describe_point, estimate_s
+
+    statuses = _store_statuses(store, plan)
+    wanted = "failed" if args.retry_failed else "pending"
+    todo = [p for p in plan.points if statuses.get(p.point_id, "pending") == wanted]
+    for point in plan.points:
+        print(describe_point(point, statuses.get(point.point_id)))
+    print(f"{len(plan.points)} points, {len(todo)} to run; store {store}"
+          f"{'' if statuses else ' (not created yet)'}")
+    seconds, record = calibrate(plan, point_function, args.point_timeout_s)
+    if record.status != "done":
+        print(f"calibration point #0 failed after {seconds:.2f} s: {record.error}")
+        return 1
+    workers = args.workers or (_cluster_workers(args.cluster) if args.cluster else default_workers())
+    where = f"{workers} workers" if workers else "the cluster's workers"
+    print(f"calibration point #0 took {seconds:.2f} s; estimated run time for {len(todo)} points on "
+          f"{where}: {_duration(estimate_s(seconds, len(todo), workers or 1))}")
+    return 0
+
+
+def _cluster_workers(cluster: str) -> int | None:
+    count = cluster.removeprefix("local:")
+    return int(count) if cluster.startswith("local:") and count.isdigit() else None
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
+    """Run ``netsim sweep`` for parsed ``args``; ``point_function`` defaults to the engine."""
+    from netsim.sweep.executors import make_executor
+    from netsim.sweep.runner import default_store_path, run_sweep, summary_line
+    from netsim.sweep.worker import engine_point
+
+    _check_numbers(args)
+    point_function = point_function if point_function is not None else engine_point
+    plan = _plan(args)
+    store = Path(args.store) if args.store else default_store_path(plan)
+    if args.dry_run:
+        return _dry_run(args, plan, point_function, store)
+    executor = make_executor(point_function, args.workers, args.cluster)
+    summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
+                        point_timeout_s=args.point_timeout_s, quiet=args.quiet)
+    print(summary_line(summary), file=sys.stdout)
+    return 0 if summary.failed == 0 else 1
