@@ -131,6 +131,9 @@ CORPUS: list[tuple[str, str, tuple[str, ...]]] = [
      ("demands[1].users[0]: 'Pellow Switch' is not allowed; it is a switch site",)),
     ("demand-unconnected", BASE + ISLAND + '\n[[demands]]\nusers = ["Ferrow Isle", "Quill Street Lab"]\n',
      ("demands[1].users: ['Ferrow Isle', 'Quill Street Lab'] is not allowed; no path of links",)),
+    ("demand-relayed-by-user", BASE + ISLAND + '\n[[links]]\nends = ["Marrow Fen Campus", "Ferrow Isle"]\n'
+     'length_km = 3.0\n\n[[demands]]\nusers = ["Ferrow Isle", "Quill Street Lab"]\n',
+     ("demands[1].users:", "(end users do not relay)")),
     ("demand-to-itself", edit('users = ["Quill Street Lab", "Marrow Fen Campus"]',
                               'users = ["Quill Street Lab", "Quill Street Lab"]'),
      ("demands[0].users:", "a demand joins two different user sites")),

@@ -7,7 +7,8 @@ Decisions documented in scenarios/REFERENCE.md:
 - T2 <= 2 T1 is checked after ``[defaults.site]`` is applied.
 - At most one link joins a pair of sites (the network graph is simple); parallel fibres are
   modelled with ``modes``. Self-loops are rejected.
-- A demand joins two different ``user`` sites that some path of links connects. A demand gives
+- A demand joins two different ``user`` sites that a path of links connects whose inner sites
+  are repeaters or switches (end users do not relay). A demand gives
   ``pairs`` or ``duration_s`` (not both); with neither it asks for DEFAULT_DEMAND_PAIRS pairs.
 """
 
@@ -158,7 +159,7 @@ def parse_demands(value: Any, roles: Mapping[str, str] | None, edges: list[tuple
                   problems: list[Problem]) -> list[Demand]:
     """Check every demand: two connected user sites and either pairs or duration_s."""
     demands: list[Demand] = []
-    component = _components(roles or {}, edges)
+    neighbours = _neighbours(edges)
     for i, table in table_list(value, "demands", problems):
         path = f"demands[{i}]"
         count = len(problems)
@@ -168,9 +169,10 @@ def parse_demands(value: Any, roles: Mapping[str, str] | None, edges: list[tuple
             problems.append(Problem(path, "both pairs and duration_s are given, which is not "
                                           "allowed; expected one of them (or neither: "
                                           f"{DEFAULT_DEMAND_PAIRS} pairs)"))
-        if users is not None and roles is not None and component[users[0]] != component[users[1]]:
+        if users is not None and roles is not None and not _relayed(users, neighbours, roles):
             problems.append(Problem(f"{path}.users", f"[{users[0]!r}, {users[1]!r}] is not allowed; "
-                                    "no path of links joins these sites"))
+                                    "no path of links joins these sites through repeaters or "
+                                    "switches (end users do not relay)"))
         if "pairs" not in table and "duration_s" not in table:
             own["pairs"] = DEFAULT_DEMAND_PAIRS
         if len(problems) == count and users is not None:
@@ -206,17 +208,25 @@ def _users(table: Mapping[str, Any], path: str, roles: Mapping[str, str] | None,
     return pair if ok else None
 
 
-def _components(roles: Mapping[str, str], edges: list[tuple[str, str]]) -> dict[str, str]:
-    """The connected component of every site (union-find over the links' ends)."""
-    parent = {name: name for name in roles}
-
-    def find(x: str) -> str:
-        while parent[x] != x:
-            parent[x] = parent[parent[x]]
-            x = parent[x]
-        return x
-
+def _neighbours(edges: list[tuple[str, str]]) -> dict[str, set[str]]:
+    table: dict[str, set[str]] = {}
     for a, b in edges:
-        if a in parent and b in parent:
-            parent[find(a)] = find(b)
-    return {name: find(name) for name in parent}
+        table.setdefault(a, set()).add(b)
+        table.setdefault(b, set()).add(a)
+    return table
+
+
+def _relayed(users: tuple[str, str], neighbours: Mapping[str, set[str]],
+             roles: Mapping[str, str]) -> bool:
+    """Whether a path joins the two users whose inner sites are all repeaters or switches."""
+    start, goal = users
+    seen, frontier = {start}, [start]
+    while frontier:
+        site = frontier.pop()
+        for nxt in neighbours.get(site, ()):
+            if nxt == goal:
+                return True
+            if nxt not in seen and roles.get(nxt) in ("repeater", "switch", ""):  # "": role invalid
+                seen.add(nxt)
+                frontier.append(nxt)
+    return False

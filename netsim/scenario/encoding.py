@@ -14,7 +14,7 @@ from typing import Any
 
 from netsim.errors import Problem, format_value
 from netsim.scenario.checks import join, unknown_key
-from netsim.scenario.fields import is_number
+from netsim.scenario.fields import is_finite_number
 from netsim.scenario.model import Encoding
 
 __all__ = ["ENCODING_KEYS", "NAMED_ENSEMBLES", "parse_encoding"]
@@ -70,7 +70,7 @@ def _states(value: Any, problems: list[Problem]) -> tuple[str, tuple[Vector, ...
 
 def _vector(value: Any, path: str, problems: list[Problem]) -> Vector | None:
     ok = (isinstance(value, (list, tuple)) and len(value) == 3
-          and all(is_number(c) and math.isfinite(c) for c in value))
+          and all(is_finite_number(c) for c in value))
     if not ok:
         problems.append(Problem(path, f"{format_value(value)} is not allowed; expected a Bloch "
                                       "vector of three finite numbers [x, y, z]"))
@@ -89,7 +89,7 @@ def _probabilities(value: Any, count: int, problems: list[Problem]) -> tuple[flo
         return tuple(1.0 / count for _ in range(count))
     path = "encoding.probabilities"
     ok = (isinstance(value, (list, tuple)) and len(value) == count
-          and all(is_number(p) and math.isfinite(p) and 0.0 <= p <= 1.0 for p in value))
+          and all(is_finite_number(p) and 0.0 <= p <= 1.0 for p in value))
     if not ok:
         problems.append(Problem(path, f"{format_value(value)} is not allowed; expected {count} "
                                       "numbers in [0, 1], one per state, summing to 1"))

@@ -33,6 +33,7 @@ __all__ = [
     "SITE_DEFAULTABLE",
     "SITE_FIELDS",
     "Spec",
+    "is_finite_number",
     "is_integer",
     "is_number",
 ]
@@ -41,6 +42,16 @@ __all__ = [
 def is_number(value: Any) -> bool:
     """True for int and float values (and numpy scalars), False for bool."""
     return isinstance(value, numbers.Real) and not isinstance(value, bool)
+
+
+def is_finite_number(value: Any) -> bool:
+    """A number (not bool) that is neither NaN nor infinite, nor an int too large for a float."""
+    if not is_number(value):
+        return False
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:
+        return False
 
 
 def is_integer(value: Any) -> bool:
@@ -105,7 +116,7 @@ class Spec:
             return isinstance(value, str) and value.strip() != ""
         if self.kind == "int" and not is_integer(value):
             return False
-        if not is_number(value) or not math.isfinite(value):
+        if not is_finite_number(value):
             return False
         return self._in_range(float(value))
 
@@ -159,7 +170,7 @@ SITE_FIELDS: Mapping[str, Spec] = {
 
 #: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
 LINK_FIELDS: Mapping[str, Spec] = {
-    "length_km": _positive("km"),
+    "length_km": Spec("real", 0.0, None, low_open=True, unit="km", required=True),
     "attenuation_db_per_km": Spec("real", 0.0, None, unit="dB/km"),
     "extra_loss_db": Spec("real", 0.0, None, unit="dB"),
     "scheme": Spec("choice", choices=SCHEMES),
