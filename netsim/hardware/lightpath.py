@@ -2,8 +2,9 @@
 
 A switch holds no memory, so the links of a light path act as one span: lengths add and losses
 add in dB. The heralding settings of the path (scheme, modes, detector efficiency, dark counts,
-midpoint fraction, bright-state population, pair probability) are those of its *first* link,
-the one touching site ``a``; ``netsim check`` warns when the links of one path disagree.
+midpoint fraction, bright-state population, pair probability) are those of the link touching
+its reference end (see :attr:`LightPath.is_canonical`); ``netsim check`` warns when the links of
+one path disagree.
 
 Where the loss sits along the path matters for midpoint schemes. Decision (documented here and
 in the README): a link's extra loss (splices, connectors, patch panels) is spread uniformly along
@@ -91,9 +92,24 @@ class LightPath:
         return 1.0 - f if self.reversed_links[0] else f
 
     @property
-    def emitter_is_a(self) -> bool:
-        """For emitter-to-receiver links: whether ``site_a`` is the emitting end."""
-        return not self.reversed_links[0]
+    def is_canonical(self) -> bool:
+        """Whether ``site_a`` is the path's reference end.
+
+        The reference end is the end site that is the ``a`` end of the link touching it (for a
+        lone link: its ``a``); if both or neither end qualify, the end whose name sorts first.
+        Physics is computed from the reference end, so a path gives the same state whichever
+        way it is walked (with the qubits swapped), including the choice of which memory
+        applies the Pauli correction and, for emitter-to-receiver links, which end emits.
+        """
+        a_is_a = self.links[0].a == self.site_a.name
+        b_is_a = self.links[-1].a == self.site_b.name
+        if a_is_a != b_is_a:
+            return a_is_a
+        return self.site_a.name <= self.site_b.name
+
+    def reversed(self) -> LightPath:
+        """The same path walked from ``site_b`` to ``site_a``."""
+        return LightPath.join(tuple(reversed(self.links)), self.site_b, self.site_a)
 
     def loss_up_to_db(self, distance_km: float) -> float:
         """Loss in dB from ``site_a`` to a point ``distance_km`` along the path."""

@@ -203,9 +203,10 @@ def direct_herald(path: LightPath) -> Herald:
     the whole path (no station), heralded state Phi+. A dark count of the storage herald
     (d (1 - p_true)) leaves the emitter's qubit unpaired: rho_false = I/4 (approximation).
     The emitter must hear the outcome before it re-initialises: period = preparation + 2 L / v.
-    The emitter is the ``a`` end of the path's first link as written in the scenario.
+    The emitter is the path's reference end (:attr:`LightPath.is_canonical`): for a lone link,
+    its ``a`` end as written in the scenario.
     """
-    emitter, receiver = (path.site_a, path.site_b) if path.emitter_is_a else (path.site_b, path.site_a)
+    emitter, receiver = path.site_a, path.site_b  # path_physics calls this from the reference end
     eta = _db_to_eta(path.loss_db)
     p_true = emitter.emission_efficiency * eta * receiver.memory_efficiency * path.first.detector_efficiency
     p_false = path.first.dark_count_probability * (1 - p_true)
@@ -235,12 +236,27 @@ SCHEME_FUNCTIONS: dict[str, Callable[[LightPath], Herald]] = {
 
 
 def path_physics(path: LightPath) -> LinkPhysics:
-    """LinkPhysics of a whole light path, dispatching on the first link's ``scheme``."""
+    """LinkPhysics of a whole light path, dispatching on the first link's ``scheme``.
+
+    Computed from the path's reference end (:attr:`LightPath.is_canonical`); walked the other
+    way, the same state is returned with its two qubits swapped (qubit 0 at ``path.site_a``).
+    """
+    if not path.is_canonical:
+        return _swapped(path_physics(path.reversed()))
     scheme = path.first.scheme
     if scheme not in SCHEME_FUNCTIONS:
         raise ParameterError(f"links[{path.first.index}].scheme", scheme, "one of " + ", ".join(SCHEMES))
     herald = SCHEME_FUNCTIONS[scheme](path)
     return assemble(path, herald)
+
+
+_SWAP = np.eye(4)[[0, 2, 1, 3]]
+
+
+def _swapped(physics: LinkPhysics) -> LinkPhysics:
+    from dataclasses import replace
+
+    return replace(physics, state=_SWAP @ physics.state @ _SWAP)
 
 
 def assemble(path: LightPath, herald: Herald) -> LinkPhysics:

@@ -1,0 +1,237 @@
+"""Heralding schemes: success probability, fidelity and attempt period at worked points.
+
+Worked points use perfect emitters and detectors unless stated, so each expected value is the
+published (or here-derived) formula evaluated by hand in the test.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+import pytest
+from conftest import assert_probability, assert_valid_state
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from netsim.errors import ParameterError
+from netsim.hardware import LightPath, link_physics, path_physics
+from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S
+from netsim.hardware.schemes import PHI_PLUS
+from netsim.scenario.model import Link, Site
+
+V = FIBRE_SPEED_KM_PER_S
+PREP = 1e-6
+IDEAL = {"emission_efficiency": 1.0, "memory_efficiency": 1.0, "attempt_prep_time_s": PREP}
+
+
+def sites(**overrides: float) -> tuple[Site, Site]:
+    settings_ = {**IDEAL, **overrides}
+    return Site("Ashgrove", "user", **settings_), Site("Brookend", "user", **settings_)  # type: ignore[arg-type]
+
+
+def link(**overrides: object) -> Link:
+    base = {"index": 0, "a": "Ashgrove", "b": "Brookend", "length_km": 20.0, "attenuation_db_per_km": 0.2,
+                "extra_loss_db": 0.0, "detector_efficiency": 1.0, "dark_count_probability": 0.0}
+    return Link(**{**base, **overrides})  # type: ignore[arg-type]
+
+
+ETA_ARM = 10 ** (-0.2)  # 10 km at 0.2 dB/km = 2 dB per arm of the 20 km link
+
+
+def test_two_photon_success_is_half_eta_squared() -> None:
+    """p = eta_a eta_b / 2 with a linear-optics BSM (Barrett & Kok, PRA 71, 060310(R), 2005: eta^2/2
+    (memory); the 1/2 is the linear-optics limit, Calsamiglia & Lütkenhaus, Appl. Phys. B 72, 67, 2001)."""
+    physics = link_physics(link(scheme="two_photon"), *sites())
+    assert physics.success_probability == pytest.approx(ETA_ARM**2 / 2, rel=1e-12)
+    assert physics.fidelity == pytest.approx(1.0, abs=1e-12)
+
+
+def test_two_photon_with_imperfect_emitters_and_detectors() -> None:
+    """Per-arm efficiency = emission x arm transmissivity x detector efficiency (brief; derived here)."""
+    physics = link_physics(link(scheme="two_photon", detector_efficiency=0.9), *sites(emission_efficiency=0.3))
+    arm = 0.3 * ETA_ARM * 0.9
+    assert physics.success_probability == pytest.approx(arm**2 / 2, rel=1e-12)
+
+
+def test_single_photon_success_and_fidelity_exact() -> None:
+    """Derived in single_photon_herald: p = 1 - (1 - alpha P)^2, F = (1 - alpha) / (1 - alpha P / 2)."""
+    alpha = 0.05
+    physics = link_physics(link(bright_state_population=alpha), *sites())
+    assert physics.success_probability == pytest.approx(1 - (1 - alpha * ETA_ARM) ** 2, rel=1e-12)
+    assert physics.fidelity == pytest.approx((1 - alpha) / (1 - alpha * ETA_ARM / 2), rel=1e-12)
+
+
+@pytest.mark.parametrize("alpha", [0.02, 0.1, 0.3])
+def test_single_photon_matches_published_approximation_at_low_efficiency(alpha: float) -> None:
+    """p ~ 2 alpha eta and F ~ 1 - alpha when alpha eta << 1 (Cabrillo et al., PRA 59, 1025, 1999;
+    Humphreys et al., Nature 558, 268, 2018 (memory)). 100 km at 0.2 dB/km: eta_arm = 1e-1... 1e-2."""
+    physics = link_physics(link(length_km=100.0, bright_state_population=alpha), *sites())
+    eta = 10 ** (-1.0)  # 50 km per arm at 0.2 dB/km = 10 dB
+    assert physics.success_probability == pytest.approx(2 * alpha * eta, rel=alpha * eta)
+    assert physics.fidelity == pytest.approx(1 - alpha, abs=alpha * eta)
+
+
+def test_single_photon_unequal_arms_lower_the_fidelity() -> None:
+    """Station at f = 0.25: the heralded state is (sqrt(P_a)|10> + sqrt(P_b)|01>)/norm, fidelity to
+    Psi+ (sqrt(P_a) + sqrt(P_b))^2 / (2 (P_a + P_b)) (derived here); tiny alpha isolates that term."""
+    alpha = 1e-6
+    physics = link_physics(link(bright_state_population=alpha, midpoint_fraction=0.25), *sites())
+    pa, pb = 10 ** (-0.1), 10 ** (-0.3)  # 5 km and 15 km at 0.2 dB/km
+    expected = (math.sqrt(pa) + math.sqrt(pb)) ** 2 / (2 * (pa + pb))
+    assert physics.fidelity == pytest.approx(expected, abs=2 * alpha)
+    assert physics.fidelity < 1 - alpha
+
+
+def test_midpoint_source_low_pair_probability() -> None:
+    """p ~ mu P_a P_b and F ~ 1 for mu << 1 (one pair per pulse; Sangouard et al., RMP 83, 33, 2011)."""
+    mu = 1e-4
+    physics = link_physics(link(scheme="midpoint_source", pair_probability=mu), *sites(memory_efficiency=0.8))
+    arm = 0.8 * ETA_ARM
+    assert physics.success_probability == pytest.approx(mu * arm**2, rel=3 * mu)
+    assert physics.fidelity == pytest.approx(1.0, abs=mu)
+
+
+def test_midpoint_source_multi_pair_error_grows_with_mu() -> None:
+    """Double pairs degrade the stored pair (Sangouard et al., RMP 83, 33, 2011, Sec. V): F falls with mu."""
+    fids = [link_physics(link(scheme="midpoint_source", pair_probability=mu), *sites()).fidelity
+            for mu in (0.001, 0.01, 0.1)]
+    assert fids[0] > fids[1] > fids[2]
+
+
+def test_direct_transmission() -> None:
+    """p = emission x eta x memory efficiency x detector efficiency over the whole span (derived here)."""
+    physics = link_physics(link(scheme="direct", detector_efficiency=0.9),
+                           *sites(emission_efficiency=0.5, memory_efficiency=0.9))
+    assert physics.success_probability == pytest.approx(0.5 * 10 ** (-0.4) * 0.9 * 0.9, rel=1e-12)
+    assert physics.fidelity == pytest.approx(1.0, abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("scheme", "fraction", "expected_s"),
+    [
+        # Midpoint heralding: one attempt per preparation + L/c_fibre, the light to the station and
+        # the herald back (Sangouard et al., RMP 83, 33, 2011, (memory); common practice).
+        ("single_photon", 0.5, PREP + 20.0 / V),
+        # Barrett-Kok needs two rounds: two preparations (derived here).
+        ("two_photon", 0.5, 2 * PREP + 20.0 / V),
+        # Off-centre station: the far end's round trip 2 (1 - f) L sets the pace (derived here).
+        ("single_photon", 0.25, PREP + 2 * 0.75 * 20.0 / V),
+        # Pair source at the middle: the next photon may reach a memory only after it heard the
+        # far memory's herald (derived here).
+        ("midpoint_source", 0.5, PREP + 20.0 / V),
+        # Emitter to receiver: a full round trip 2 L (derived here).
+        ("direct", 0.5, PREP + 2 * 20.0 / V),
+    ],
+)
+def test_attempt_period_from_signalling_geometry(scheme: str, fraction: float, expected_s: float) -> None:
+    physics = link_physics(link(scheme=scheme, midpoint_fraction=fraction), *sites())
+    assert physics.attempt_period_s == pytest.approx(expected_s, rel=1e-12)
+    assert physics.herald_delay_s >= physics.attempt_period_s - 1e-15
+
+
+def test_attempt_period_is_about_98_us_for_20_km() -> None:
+    # 20 km at ~4.9 us/km (common practice) plus 1 us preparation.
+    physics = link_physics(link(), *sites())
+    assert physics.attempt_period_s == pytest.approx(99e-6, rel=0.01)
+
+
+@pytest.mark.parametrize("modes", [1, 10, 1000])
+def test_multiplexing(modes: int) -> None:
+    """Round success 1 - (1 - p)^M over M independent modes (Collins et al., PRL 98, 060502, 2007)."""
+    physics = link_physics(link(modes=modes, length_km=80.0), *sites())
+    p = physics.success_probability
+    assert physics.round_success_probability == pytest.approx(1 - (1 - p) ** modes, rel=1e-12)
+    assert physics.rate_per_s == pytest.approx(physics.round_success_probability / physics.attempt_period_s)
+
+
+@pytest.mark.parametrize("scheme", ["two_photon", "single_photon", "midpoint_source", "direct"])
+def test_dark_counts_lower_the_fidelity_more_on_longer_links(scheme: str) -> None:
+    """A dark-count herald carries no entanglement (derived here): F falls as length grows."""
+    fids = [link_physics(link(scheme=scheme, length_km=km, dark_count_probability=1e-5), *sites()).fidelity
+            for km in (10.0, 100.0, 200.0)]
+    assert fids[0] > fids[1] > fids[2]
+
+
+def test_two_photon_dark_count_mixture_worked_point() -> None:
+    """Derived in two_photon_herald: F = (p_true + p_false / 4) / (p_true + p_false) with
+    p_true = P^2 / 2 and p_false = 2 P (1 - P) 2d + (1 - P)^2 (2d)^2."""
+    d = 1e-3
+    physics = link_physics(link(scheme="two_photon", dark_count_probability=d), *sites())
+    big_p = ETA_ARM
+    p_true = big_p**2 / 2
+    p_false = 2 * big_p * (1 - big_p) * 2 * d + (1 - big_p) ** 2 * (2 * d) ** 2
+    assert physics.success_probability == pytest.approx(p_true + p_false, rel=1e-12)
+    assert physics.fidelity == pytest.approx((p_true + p_false / 4) / (p_true + p_false), rel=1e-12)
+    assert physics.dark_count_fraction == pytest.approx(p_false / (p_true + p_false), rel=1e-12)
+
+
+def test_qubit_zero_is_at_site_a() -> None:
+    """Reversing the ends swaps the two qubits of the heralded state (convention: qubit 0 at a)."""
+    a, b = sites()
+    lk = link(midpoint_fraction=0.2, bright_state_population=0.2, dark_count_probability=1e-3)
+    forward, backward = link_physics(lk, a, b), link_physics(lk, b, a)
+    swap = np.eye(4)[[0, 2, 1, 3]]
+    np.testing.assert_allclose(backward.state, swap @ forward.state @ swap, atol=1e-12)
+
+
+def test_direct_emitter_is_the_links_a_end_whichever_way_it_is_called() -> None:
+    """The scenario's ``ends = [a, b]`` fixes who emits (site a) and who stores (site b)."""
+    a = Site("Ashgrove", "user", emission_efficiency=0.4, memory_efficiency=0.9)
+    b = Site("Brookend", "user", emission_efficiency=0.1, memory_efficiency=0.5)
+    lk = link(scheme="direct")
+    expected = 0.4 * 10 ** (-0.4) * 0.5
+    assert link_physics(lk, a, b).success_probability == pytest.approx(expected, rel=1e-12)
+    assert link_physics(lk, b, a).success_probability == pytest.approx(expected, rel=1e-12)
+
+
+def test_switched_light_path_equals_one_equivalent_span() -> None:
+    """Through a passive switch lengths add and losses add in dB (common practice)."""
+    a, b = sites()
+    first = link(b="Cutler Switch", length_km=8.0, extra_loss_db=1.0)
+    second = link(index=1, a="Brookend", b="Cutler Switch", length_km=12.0, extra_loss_db=1.5)
+    joined = path_physics(LightPath.join((first, second), a, b))
+    single = link_physics(link(length_km=20.0, extra_loss_db=2.5), a, b)
+    assert joined.length_km == pytest.approx(20.0)
+    assert joined.loss_db == pytest.approx(0.2 * 20 + 2.5)
+    assert joined.success_probability == pytest.approx(single.success_probability, rel=1e-12)
+    assert joined.fidelity == pytest.approx(single.fidelity, rel=1e-12)
+    backward = path_physics(LightPath.join((second, first), b, a))
+    assert backward.success_probability == pytest.approx(joined.success_probability, rel=1e-12)
+
+
+def test_light_path_must_connect() -> None:
+    a, b = sites()
+    stray = link(a="Elsewhere", b="Nowhere")
+    with pytest.raises(ParameterError, match=r"links\[0\] = 'Elsewhere-Nowhere' is not allowed"):
+        LightPath.join((stray,), a, b)
+
+
+def test_unknown_scheme_names_the_link_field() -> None:
+    with pytest.raises(ParameterError, match=r"links\[0\]\.scheme = 'carrier_pigeon' is not allowed"):
+        link_physics(replace(link(), scheme="carrier_pigeon"), *sites())  # type: ignore[arg-type]
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    scheme=st.sampled_from(["two_photon", "single_photon", "midpoint_source", "direct"]),
+    length=st.floats(0.1, 300.0),
+    fraction=st.floats(0.0, 1.0),
+    alpha=st.floats(0.001, 0.5),
+    dark=st.floats(0.0, 0.01),
+    efficiency=st.floats(0.01, 1.0),
+    mu=st.floats(1e-4, 0.2),
+)
+def test_every_scheme_gives_a_valid_state_and_probabilities(
+    scheme: str, length: float, fraction: float, alpha: float, dark: float, efficiency: float, mu: float
+) -> None:
+    """Invariants: a density matrix, probabilities in [0, 1], F = <Phi+|rho|Phi+>."""
+    lk = link(scheme=scheme, length_km=length, midpoint_fraction=fraction, bright_state_population=alpha,
+              dark_count_probability=dark, detector_efficiency=efficiency, pair_probability=mu, modes=3)
+    physics = link_physics(lk, *sites(emission_efficiency=efficiency, memory_efficiency=efficiency))
+    assert_valid_state(physics.state)
+    assert_probability([physics.success_probability, physics.round_success_probability,
+                        physics.fidelity, physics.dark_count_fraction])
+    assert physics.fidelity == pytest.approx(float(np.trace(PHI_PLUS @ physics.state).real), abs=1e-12)
+    assert physics.attempt_period_s > 0
