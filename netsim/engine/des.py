@@ -153,9 +153,9 @@ class _Des:
     """One event-engine run over a group of demands that share memory sites."""
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
-                 rule: StopRule, options: DesOptions) -> None:
+                 rules: list[StopRule], options: DesOptions) -> None:
         self.env = simpy.Environment()
-        self.rule, self.opt = rule, options
+        self.rules, self.opt = rules, options
         self.cutoff = math.inf if options.cutoff_s is None else float(options.cutoff_s)
         self.rounds = int(options.purification_rounds) if options.purification != "none" else 0
         self.purify: Callable[..., Any] | None = (
@@ -312,9 +312,15 @@ class _Des:
         lane.last_delivery_s = t_d
         if lane.cycle_done is not None:
             lane.cycle_done.succeed()
-        if self.rule.time_s is None and not self.finished.triggered and \
-                all(self.rule.done(ln.run, self.env.now) for ln in self.lanes):
+        self.check_finished()
+
+    def check_finished(self) -> None:
+        if not self.finished.triggered and all(r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
             self.finished.succeed()
+
+    def timer(self, t: float) -> Generator[simpy.Event, Any, None]:
+        yield self.env.timeout(t)
+        self.check_finished()
 
     # -- purification -------------------------------------------------------------------------
     def climb(self, lane: _Lane, i: int, raw: _Pair,
@@ -350,13 +356,19 @@ class _Des:
     def run(self) -> list[ChainRun]:
         for lane in self.lanes:
             self.env.process(self.demand(lane))
+        for rule in self.rules:
+            if rule.time_s is not None:
+                self.env.process(self.timer(float(rule.time_s)))
         interrupted = False
         try:
-            self.env.run(until=self.rule.time_s if self.rule.time_s is not None else self.finished)
+            self.env.run(until=self.finished)
         except KeyboardInterrupt:
             interrupted = True
-        now = self.env.now if self.rule.time_s is None or interrupted else float(self.rule.time_s)
-        return [self.finish(lane, now, interrupted) for lane in self.lanes]
+        out = []
+        for rule, lane in zip(self.rules, self.lanes):
+            timed = rule.time_s is not None and not interrupted
+            out.append(self.finish(lane, float(rule.time_s) if timed else self.env.now, interrupted))  # type: ignore[arg-type]
+        return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
         run = lane.run
@@ -378,16 +390,17 @@ class _Des:
         return run
 
 
-def simulate_des(chains: list[Chain], rule: StopRule, rngs: list[np.random.Generator],
+def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
     """Run the event engine on demands that may share memory sites.
 
     Parameters
     ----------
     chains : list of Chain
-    rule : StopRule
-        With ``pairs``, every demand gets at least that many (the run goes on until the last one
-        has them); with ``time_s`` the run covers that much simulated time.
+    rule : StopRule or list of StopRule (one per chain)
+        The run goes on until every demand has met its rule (with ``pairs``, demands that are done
+        keep running and contending until the last one has its pairs); a demand stopped by
+        ``time_s`` reports the pairs delivered by then.
     rngs : list of numpy.random.Generator
         One stream per chain.
     options : DesOptions
@@ -403,7 +416,8 @@ def simulate_des(chains: list[Chain], rule: StopRule, rngs: list[np.random.Gener
     options = options or DesOptions()
     if capacity is None:
         capacity = {s.name: int(s.memory_slots) for c in chains for s in c.sites}
-    sim = _Des(chains, rngs, capacity, rule, options)
+    rules = rule if isinstance(rule, list) else [rule] * len(chains)
+    sim = _Des(chains, rngs, capacity, rules, options)
     _check_capacity(sim, capacity)
     runs = sim.run()
     return runs, [lane.log for lane in sim.lanes]

@@ -1,0 +1,245 @@
+"""Public entry points: :func:`run` on a scenario and :func:`simulate` on built chains.
+
+Demands that share no memory site are independent: each runs alone, with the vectorised engine
+when nothing in it needs the event engine (sure swaps, no cut-off, no purification), else with
+the simpy engine. Demands that share a site run together in one simpy run and contend for slots.
+Randomness: ``numpy.random.SeedSequence(seed).spawn`` gives each demand its own stream (by its
+position in the scenario), so the same seed gives the same numbers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from netsim import qinfo
+from netsim.engine.chain import Chain, HopSpec
+from netsim.engine.des import DesOptions, simulate_des
+from netsim.engine.ensemble import send_ensemble
+from netsim.engine.metrics import Z95, ChainRun, StopRule
+from netsim.engine.result import RunResult
+from netsim.engine.vector import simulate_chain_vector, vector_applicable
+from netsim.errors import ParameterError
+from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
+
+__all__ = ["run", "simulate", "chains_from_scenario", "stop_rule", "demand_row", "Component"]
+
+
+def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:
+    """Check the stop arguments (at most one) and build the rule; None when none is given."""
+    given = [(k, v) for k, v in (("--pairs", pairs), ("--time-s", time_s), ("--precision", precision)) if v is not None]
+    if len(given) > 1:
+        raise ParameterError(given[1][0], given[1][1], f"only one stop rule; {given[0][0]} is already given")
+    if pairs is not None and (isinstance(pairs, bool) or not isinstance(pairs, (int, np.integer)) or pairs < 1):
+        raise ParameterError("--pairs", pairs, "an integer >= 1")
+    if time_s is not None and not (isinstance(time_s, (int, float)) and math.isfinite(time_s) and time_s > 0):
+        raise ParameterError("--time-s", time_s, "a finite time > 0 in seconds")
+    if precision is not None and not (isinstance(precision, (int, float)) and 0 < precision < 1):
+        raise ParameterError("--precision", precision, "a relative half-width in (0, 1), e.g. 0.05")
+    if pairs is not None:
+        return StopRule(pairs=int(pairs))
+    if time_s is not None:
+        return StopRule(time_s=float(time_s))
+    return StopRule(precision=float(precision)) if precision is not None else None
+
+
+def chains_from_scenario(scenario: Scenario) -> list[Chain]:
+    """Route every demand (``protocol.routing``) and build its chain of heralded hops."""
+    from netsim.network import build_graph, find_route, route_hops
+
+    graph = build_graph(scenario)
+    chains = []
+    for d in scenario.demands:
+        route = find_route(graph, d.a, d.b, scenario.protocol.routing)
+        hops = route_hops(graph, route)
+        sites = tuple(graph.nodes[h.a]["site"] for h in hops) + (graph.nodes[hops[-1].b]["site"],)
+        specs = tuple(HopSpec(f"{h.a}-{h.b}", h.physics, tuple(link.name for link in h.links)) for h in hops)
+        chains.append(Chain(d.name, sites, specs, index=d.index, pairs=d.pairs, duration_s=d.duration_s))
+    return chains
+
+
+@dataclass
+class Component:
+    """Demands that share memory sites (run together)."""
+
+    chains: list[Chain]
+
+
+def _components(chains: list[Chain]) -> list[list[Chain]]:
+    groups: list[tuple[set[str], list[Chain]]] = []
+    for c in chains:
+        names = set(c.site_names)
+        joined = [g for g in groups if g[0] & names]
+        merged = (names.union(*[g[0] for g in joined]), [x for g in joined for x in g[1]] + [c])
+        groups = [g for g in groups if not any(g is j for j in joined)] + [merged]
+    return [sorted(g[1], key=lambda c: c.index) for g in groups]
+
+
+def _rule_for(chain: Chain, rule: StopRule | None) -> StopRule:
+    if rule is not None:
+        return rule
+    if chain.duration_s is not None:
+        return StopRule(time_s=float(chain.duration_s))
+    return StopRule(pairs=int(chain.pairs or DEFAULT_DEMAND_PAIRS))
+
+
+def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0,
+             options: DesOptions | None = None) -> list[ChainRun]:
+    """Run built chains (the lower-level entry point tests and benchmarks drive).
+
+    ``rule`` None: each chain's own ``pairs`` / ``duration_s``. Returns one :class:`ChainRun`
+    per chain, in the order given.
+    """
+    options = options or DesOptions()
+    streams = np.random.SeedSequence(seed).spawn(max((c.index for c in chains), default=0) + 1)
+    runs: dict[int, ChainRun] = {}
+    for group in _components(chains):
+        rngs = [np.random.default_rng(streams[c.index]) for c in group]
+        rules = [_rule_for(c, rule) for c in group]
+        rounds = options.purification_rounds if options.purification != "none" else 0
+        if len(group) == 1 and vector_applicable(group[0], options.cutoff_s, rounds) and _slots_ok(group[0]):
+            runs[id(group[0])] = simulate_chain_vector(group[0], rules[0], rngs[0])
+            continue
+        group_runs, _ = simulate_des(group, rules, rngs, options)
+        runs.update({id(c): r for c, r in zip(group, group_runs)})
+    return [runs[id(c)] for c in chains]
+
+
+def _slots_ok(chain: Chain) -> bool:
+    """A lone chain fits the vectorised engine only if its path reservation fits the slots."""
+    need: dict[str, int] = {}
+    for i in range(chain.n_hops):
+        for s in (chain.sites[i], chain.sites[i + 1]):
+            need[s.name] = need.get(s.name, 0) + 1
+    return all(s.memory_slots >= need[s.name] for s in chain.sites)
+
+
+def _rate(run: ChainRun) -> tuple[float, list[float]]:
+    n, t = run.metrics.n, run.simulated_time_s
+    if n == 0 or t <= 0:
+        return 0.0, [0.0, math.nan]
+    rate = n / t
+    rel = run.rate_relative_halfwidth()
+    if not math.isfinite(rel):
+        return rate, [math.nan, math.nan]
+    return rate, [rate / (1.0 + rel), rate / (1.0 - rel) if rel < 1 else math.inf]
+
+
+def demand_row(chain: Chain, run: ChainRun) -> dict[str, Any]:
+    """The per-demand figures of one chain's run (keys listed in :mod:`netsim.engine.result`)."""
+    m = run.metrics
+    rate, rate_ci = _rate(run)
+    fid, fid_ci = m.mean_ci(m.sum_fidelity, m.sum_fidelity_sq)
+    eof, eof_ci = m.mean_ci(m.sum_eof, m.sum_eof_sq)
+    mean_state = m.mean_state()
+    ok = m.n > 0
+    eof_mean_state = float(qinfo.entanglement_of_formation(mean_state)) if ok else math.nan
+    coh_mean_state = float(qinfo.coherent_information(mean_state)) if ok else math.nan
+    key = float(qinfo.key_fraction(mean_state)) if ok else math.nan
+    return {
+        "demand": chain.name, "route": list(chain.site_names), "hops": chain.n_hops, "engine": run.engine,
+        "delivered_pairs": m.n, "simulated_time_s": run.simulated_time_s,
+        "rate_per_s": rate, "rate_ci95": rate_ci,
+        "fidelity_mean": fid, "fidelity_ci95": fid_ci, "eof_mean": eof, "eof_ci95": eof_ci,
+        "eof_of_mean_state": eof_mean_state, "ebits_per_s": rate * eof if ok else 0.0,
+        "coherent_information_mean": m.sum_coherent / m.n if ok else math.nan,
+        "distillable_ebits_per_s": rate * coh_mean_state if ok else 0.0,
+        "key_fraction": key, "key_rate_per_s": rate * key if ok else 0.0,
+        "first_delivery_s": m.first_delivery_s,
+        "interrupted": run.interrupted,
+    }
+
+
+def _link_rows(chains: list[Chain], runs: list[ChainRun], horizon_s: float) -> list[dict[str, Any]]:
+    rows: dict[str, dict[str, Any]] = {}
+    for c, r in zip(chains, runs):
+        for i, hop in enumerate(c.hops):
+            for name in hop.links or (hop.name,):
+                row = rows.setdefault(name, {"link": name, "attempts": 0, "successes": 0, "busy_s": 0.0,
+                                             "discarded": 0, "hops": []})
+                row["attempts"] += int(r.hop_attempts[i])
+                row["successes"] += int(r.hop_successes[i])
+                row["discarded"] += int(r.hop_discards[i])
+                row["busy_s"] += float(r.hop_busy_s[i]) / max(r.simulated_time_s, 1e-300) * horizon_s
+                row["hops"].append(f"{c.name}:{hop.name}")
+    for row in rows.values():
+        row["utilisation"] = row.pop("busy_s") / horizon_s if horizon_s > 0 else math.nan
+    return list(rows.values())
+
+
+def _site_rows(chains: list[Chain], runs: list[ChainRun]) -> list[dict[str, Any]]:
+    rows: dict[str, dict[str, Any]] = {}
+    for c, r in zip(chains, runs):
+        for j, site in enumerate(c.sites):
+            row = rows.setdefault(site.name, {"site": site.name, "memory_slots": site.memory_slots,
+                                              "occupancy_sum": 0.0, "swap_failures": 0})
+            if r.simulated_time_s > 0:
+                row["occupancy_sum"] += float(r.site_qubit_s[j]) / r.simulated_time_s
+            row["swap_failures"] += int(r.swap_failures[j])
+    for row in rows.values():
+        row["memory_occupancy"] = row.pop("occupancy_sum") / max(row["memory_slots"], 1)
+    return list(rows.values())
+
+
+def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
+    index = {s.name: k for k, s in enumerate(scenario.sites)}
+    for c in chains:
+        need: dict[str, int] = {}
+        for i in range(c.n_hops):
+            for s in (c.sites[i], c.sites[i + 1]):
+                need[s.name] = need.get(s.name, 0) + rounds + 1
+        for s in c.sites:
+            if s.memory_slots < need[s.name]:
+                raise ParameterError(f"sites[{index[s.name]}].memory_slots", s.memory_slots,
+                                     f"an integer >= {need[s.name]} for demand {c.name} on this route "
+                                     f"({rounds + 1} per hop end)")
+
+
+def _analytic(scenario: Scenario) -> list[dict[str, Any]]:
+    from netsim.network import budget
+
+    keep = ("expected_rate_per_s", "expected_fidelity", "expected_eof_ebits", "route_bound_bits_per_s",
+            "single_path_bits_per_s", "multipath_bits_per_s")
+    return [{k: row.get(k) for k in keep} for row in budget(scenario).demands]
+
+
+def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
+        precision: float | None = None, seed: int = 0, ensembles: bool = True) -> RunResult:
+    """Simulate every demand of ``scenario`` and return the figures with their intervals.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    pairs, time_s, precision : optional, at most one
+        Stop after ``pairs`` delivered pairs per demand, after ``time_s`` simulated seconds, or
+        once every demand's rate has a relative 95 % half-width <= ``precision``. None of them:
+        each demand's own ``pairs`` or ``duration_s`` from the scenario.
+    seed : int
+        Same seed, same numbers.
+    ensembles : bool
+        Also send the scenario's encoding ensemble along each route (Holevo figures).
+    """
+    rule = stop_rule(pairs, time_s, precision)
+    proto = scenario.protocol
+    rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
+    chains = chains_from_scenario(scenario)
+    _check_slots(scenario, chains, rounds)
+    options = DesOptions(cutoff_s=proto.cutoff_s, purification=proto.purification,
+                         purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy)
+    runs = simulate(chains, rule=rule, seed=seed, options=options)
+    rows = [demand_row(c, r) for c, r in zip(chains, runs)]
+    for row, extra in zip(rows, _analytic(scenario)):
+        row.update(extra)
+    if ensembles:
+        streams = np.random.SeedSequence([seed, 1]).spawn(len(chains))
+        for row, c, ss in zip(rows, chains, streams):
+            ens = send_ensemble(c, scenario.encoding, seed=np.random.default_rng(ss))
+            row.update({f"ensemble_{k}": v for k, v in ens.to_dict().items()})
+    horizon = max((r.simulated_time_s for r in runs), default=0.0)
+    stop = {"pairs": rule.pairs, "time_s": rule.time_s, "precision": rule.precision} if rule else {"per_demand": True}
+    notes = [f"95% intervals: normal approximation (z = {Z95:.3f}); rate interval from inter-delivery times."]
+    return RunResult(scenario.name, scenario.slug, int(seed), stop, rows, _link_rows(chains, runs, horizon),
+                     _site_rows(chains, runs), interrupted=any(r.interrupted for r in runs), notes=notes)

@@ -1,0 +1,137 @@
+"""What a run returns: per-demand figures with intervals, per-link and per-site statistics.
+
+Definitions (all per demand):
+
+- ``rate_per_s`` = delivered pairs / simulated time; ``rate_ci95`` from the spread of the
+  inter-delivery times (normal interval on their mean, inverted).
+- ``fidelity_mean`` to Phi+ with ``fidelity_ci95``; ``eof_mean`` (Wootters, per pair) with
+  ``eof_ci95``; ``eof_of_mean_state`` (of the average delivered state).
+- ``ebits_per_s`` = rate x ``eof_mean`` (entanglement of formation delivered per second);
+  ``coherent_information_mean`` (hashing lower bound on distillable entanglement per pair) and
+  ``distillable_ebits_per_s`` = rate x coherent information of the average state.
+- ``key_fraction`` of the average state (entanglement-based BB84: errors are estimated over the
+  whole stream) and ``key_rate_per_s`` = rate x key fraction.
+- The analytic figures of :func:`netsim.network.budget` sit beside them (``expected_*``,
+  ``*_bound_bits_per_s``).
+
+Per link: attempt rounds, successes (heralded pairs), ``utilisation`` = time spent in attempt
+rounds / simulated time, summed over the demands routed over the link (each demand has its own
+memory slots and modes, so it can exceed 1). Per site: ``memory_occupancy`` = qubit-seconds
+stored / (simulated time x memory slots).
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from netsim.report.table import Column, Table
+
+__all__ = ["RunResult", "DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS"]
+
+DEMAND_COLUMNS: tuple[Column, ...] = (
+    Column("demand", "demand"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),
+    Column("simulated_time_s", "sim. time (s)"), Column("rate_per_s", "rate (1/s)"),
+    Column("rate_ci95", "rate 95% CI (1/s)"), Column("expected_rate_per_s", "expected rate (1/s)"),
+    Column("fidelity_mean", "fidelity"), Column("fidelity_ci95", "fidelity 95% CI"),
+    Column("eof_mean", "EoF (ebit)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
+    Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (bit/s)"),
+    Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),
+)
+LINK_COLUMNS: tuple[Column, ...] = (
+    Column("link", "link"), Column("attempts", "attempt rounds"), Column("successes", "pairs heralded"),
+    Column("utilisation", "utilisation"), Column("discarded", "cut-off discards"),
+)
+SITE_COLUMNS: tuple[Column, ...] = (
+    Column("site", "site"), Column("memory_slots", "slots"), Column("memory_occupancy", "occupancy"),
+    Column("swap_failures", "failed swaps"),
+)
+
+
+def _clean(value: Any) -> Any:
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _clean(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_clean(v) for v in value]
+    if hasattr(value, "item") and callable(value.item):
+        return _clean(value.item())
+    return value
+
+
+@dataclass
+class RunResult:
+    """The outcome of :func:`netsim.engine.run`.
+
+    Attributes
+    ----------
+    scenario : str
+        Scenario name; ``slug`` names the default output directory.
+    seed : int
+    stop : dict
+        The stop rule used (``pairs``, ``time_s`` or ``precision``).
+    demands, links, sites : list of dict
+        Rows as described in the module docstring.
+    interrupted : bool
+        True when Ctrl-C stopped the run; the rows hold what was delivered until then.
+    """
+
+    scenario: str
+    slug: str
+    seed: int
+    stop: dict[str, Any]
+    demands: list[dict[str, Any]]
+    links: list[dict[str, Any]]
+    sites: list[dict[str, Any]]
+    interrupted: bool = False
+    notes: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready (NaN and infinities become ``None``)."""
+        return _clean({"scenario": self.scenario, "seed": self.seed, "stop": self.stop,
+                       "interrupted": self.interrupted, "demands": self.demands,
+                       "links": self.links, "sites": self.sites, "notes": self.notes})
+
+    def demand(self, name: str) -> dict[str, Any]:
+        """The row of the demand called ``name`` (``"A-B"``)."""
+        for row in self.demands:
+            if row["demand"] == name:
+                return row
+        raise KeyError(name)
+
+    def tables(self) -> list[Table]:
+        """Per-demand, per-link and per-site tables (units in the headers)."""
+        flag = " (interrupted: partial results)" if self.interrupted else ""
+        return [Table(f"{self.scenario}: demands{flag}", DEMAND_COLUMNS, list(self.demands), list(self.notes)),
+                Table(f"{self.scenario}: links", LINK_COLUMNS, list(self.links)),
+                Table(f"{self.scenario}: sites", SITE_COLUMNS, list(self.sites))]
+
+    def write(self, directory: str | Path) -> list[Path]:
+        """Write ``run.json`` (everything) and ``run.csv`` (one row per demand) to ``directory``."""
+        out = Path(directory)
+        out.mkdir(parents=True, exist_ok=True)
+        data = self.to_dict()
+        json_path, csv_path = out / "run.json", out / "run.csv"
+        json_path.write_text(json.dumps(data, indent=2) + "\n", encoding="utf-8")
+        keys: list[str] = []
+        for row in data["demands"]:
+            keys += [k for k in row if k not in keys and not isinstance(row[k], dict)]
+        with csv_path.open("w", newline="", encoding="utf-8") as fh:
+            writer = csv.writer(fh, lineterminator="\n")
+            writer.writerow(keys)
+            for row in data["demands"]:
+                writer.writerow([_csv_cell(row.get(k)) for k in keys])
+        return [json_path, csv_path]
+
+
+def _csv_cell(value: Any) -> Any:
+    if value is None:
+        return ""
+    if isinstance(value, list):
+        return json.dumps(value)
+    return value
