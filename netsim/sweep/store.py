@@ -69,7 +69,7 @@ def _guard(path: Path) -> Iterator[None]:
     try:
         yield
     except sqlite3.DatabaseError as exc:
-        text = str(exc)
+        text = " ".join(str(exc).split())
         if "not a database" in text:
             raise StoreError(f"{path}: is not a netsim sweep store (not an SQLite database)") from None
         if "malformed" in text or "corrupt" in text:
@@ -182,8 +182,8 @@ def _connect(path: Path) -> sqlite3.Connection:
             raise
     if check is None or check[0] != "ok":
         db.close()
-        raise StoreError(f"{path}: the store is corrupt ({check[0] if check else 'no answer'}); "
-                         "move it aside and run the sweep again")
+        detail = " ".join(str(check[0] if check else "no answer").replace("***", " ").split())
+        raise StoreError(f"{path}: the store is corrupt ({detail}); move it aside and run the sweep again")
     return db
 
 
