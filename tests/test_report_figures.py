@@ -73,16 +73,19 @@ LINKS = [MapLink("Aldmoor", "Brackwater", 300.0, 0.8), MapLink("Brackwater", "Ci
 
 def test_network_map_colours_and_widths() -> None:
     fig = network_map(_sites(), LINKS)
-    ax, bar = fig.axes
+    ax, key, bar = fig.axes
     links = [c for c in ax.collections if isinstance(c, LineCollection)][0]
     assert np.allclose(links.get_array(), [300.0, 80.0, 150.0, 40.0])
     widths = links.get_linewidths()
     assert widths[0] > widths[1] > widths[2] == widths[3]
     assert links.get_cmap().name == "cividis"
-    assert "ebit/s" in bar.get_ylabel()
+    assert "ebit/s" in bar.get_xlabel()
     assert ax.get_xlabel() == "x (km)" and ax.get_ylabel() == "y (km)"
     assert any("km" in t.get_text() for a in ax.artists for t in a.findobj(lambda o: hasattr(o, "get_text")))
-    assert {t.get_text() for t in ax.get_legend().get_texts()} >= {"user", "repeater", "switch"}
+    assert {t.get_text() for t in key.get_legend().get_texts()} >= {"user", "repeater", "switch"}
+    labels = {t.get_text() for t in ax.texts}
+    assert labels == {"Aldm", "Brac", "Cind", "FC"}            # long names abbreviated ...
+    assert "FC: Fenwick Cross" in key.texts[0].get_text()     # ... and keyed below the map
 
 
 def test_network_map_without_coordinates_is_marked_not_to_scale() -> None:

@@ -45,7 +45,7 @@ def test_sig_for_interval(value: float, interval: list[float] | None, expected: 
 def test_cells_follow_uncertainty() -> None:
     cells = _table().cells()
     assert cells[0][2:4] == ["1235", "[1199, 1270]"]
-    assert cells[1][2:4] == ["0.01235", "[0.0121, 0.0125]"]
+    assert cells[1][2:4] == ["0.01235", "[0.01210, 0.01250]"]  # trailing zeros kept
     assert cells[2][2:4] == ["5.5e-7", "-"]
     assert format_number(float("nan")) == "-"
 

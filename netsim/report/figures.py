@@ -10,7 +10,7 @@ cividis). The network map lives in :mod:`netsim.report.netmap`.
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping
 from pathlib import Path
 from typing import Any, ParamSpec, TypeVar
 
@@ -19,6 +19,7 @@ import numpy as np
 from matplotlib.axes import Axes
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from numpy.typing import ArrayLike
 
 P = ParamSpec("P")
 R = TypeVar("R")
@@ -82,8 +83,8 @@ def _style(i: int) -> dict[str, Any]:
 
 
 @with_style
-def rate_vs_distance(length_km: Sequence[float], rates: Mapping[str, Sequence[float]],
-                     bound: Sequence[float], *, ylabel: str = "entangled pairs per channel use",
+def rate_vs_distance(length_km: ArrayLike, rates: Mapping[str, ArrayLike],
+                     bound: ArrayLike, *, ylabel: str = "entangled pairs per channel use",
                      bound_label: str = r"repeaterless bound $-\log_2(1-\eta)$") -> Figure:
     """Rate against link length for each heralding scheme, with the repeaterless bound (log y).
 
@@ -148,14 +149,15 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
 
 
 @with_style
-def heatmap(x: Sequence[float], y: Sequence[float], z: Any, *, xlabel: str, ylabel: str,
+def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: str,
             zlabel: str, annotate: bool = True) -> Figure:
     """A two-parameter heatmap of a metric (viridis, colour bar with the metric and its unit)."""
     fig, ax = new_figure(height_in=2.8)
     z = np.asarray(z, dtype=float)
     mesh = ax.imshow(z, origin="lower", aspect="auto", cmap="viridis", interpolation="nearest")
-    ax.set_xticks(range(len(x)), [f"{v:g}" for v in x])
-    ax.set_yticks(range(len(y)), [f"{v:g}" for v in y])
+    xs, ys = np.asarray(x, dtype=float), np.asarray(y, dtype=float)
+    ax.set_xticks(range(xs.size), [f"{v:g}" for v in xs])
+    ax.set_yticks(range(ys.size), [f"{v:g}" for v in ys])
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     bar = fig.colorbar(mesh, ax=ax)

@@ -14,14 +14,16 @@ from dataclasses import dataclass
 
 import numpy as np
 from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.collections import LineCollection
 from matplotlib.colors import LogNorm, Normalize
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-from netsim.report.figures import new_figure, with_style
+from netsim.report.figures import COLUMN_WIDTH_IN, with_style
 
-__all__ = ["ROLE_MARKERS", "MapLink", "MapSite", "network_map", "positions", "scale_length_km"]
+__all__ = ["ROLE_MARKERS", "MapLink", "MapSite", "network_map", "positions", "scale_length_km", "short_labels"]
 
 ROLE_MARKERS = {"user": "o", "repeater": "s", "switch": "^"}
 MIN_WIDTH, MAX_WIDTH = 0.8, 4.0
@@ -97,7 +99,24 @@ def _draw_links(ax: Axes, links: Sequence[MapLink], pos: Mapping[str, tuple[floa
     return collection
 
 
-def _draw_sites(ax: Axes, sites: Sequence[MapSite], pos: Mapping[str, tuple[float, float]]) -> None:
+def short_labels(names: Sequence[str], max_length: int = 6) -> dict[str, str]:
+    """Map labels: names up to ``max_length`` characters kept, longer ones as their initials
+    (``"Harrow Quay Exchange"`` -> ``"HQE"``) or, for one word, its first four letters;
+    numbered where two would coincide."""
+    labels: dict[str, str] = {}
+    for name in names:
+        words = [w for w in name.replace("-", " ").split() if w]
+        label = (name if len(name) <= max_length or not words else
+                 words[0][:4] if len(words) == 1 else "".join(w[0].upper() for w in words))
+        base, k = label, 2
+        while label in labels.values():
+            label, k = f"{base}{k}", k + 1
+        labels[name] = label
+    return labels
+
+
+def _draw_sites(ax: Axes, sites: Sequence[MapSite], pos: Mapping[str, tuple[float, float]],
+                labels: Mapping[str, str]) -> None:
     for role, marker in ROLE_MARKERS.items():
         chosen = [s for s in sites if s.role == role]
         if chosen:
@@ -106,7 +125,7 @@ def _draw_sites(ax: Axes, sites: Sequence[MapSite], pos: Mapping[str, tuple[floa
                        edgecolor="black", linewidth=0.9, zorder=3, label=role)
     for s in sites:
         x, y = pos[s.name]
-        ax.annotate(s.name, (x, y), xytext=(3, 3), textcoords="offset points", fontsize=6,
+        ax.annotate(labels[s.name], (x, y), xytext=(3, 3), textcoords="offset points", fontsize=6,
                     zorder=4)
 
 
@@ -122,12 +141,31 @@ def _scale_bar(ax: Axes, pos: Mapping[str, tuple[float, float]]) -> float:
 
 
 def _legend(ax: Axes, sites: Sequence[MapSite]) -> None:
+    """Markers per role and line widths for utilisation, in the (empty) key axes ``ax``."""
     handles = [Line2D([], [], marker=m, linestyle="none", markerfacecolor="white",
                       markeredgecolor="black", label=r) for r, m in ROLE_MARKERS.items()
                if any(s.role == r for s in sites)]
     handles += [Line2D([], [], color="0.3", linewidth=w, label=f"utilisation {u:.0%}")
                 for u, w in ((0.0, MIN_WIDTH), (1.0, MAX_WIDTH))]
-    ax.legend(handles=handles, loc="upper left", frameon=False, fontsize=6)
+    ax.legend(handles=handles, loc="upper center", ncol=3, frameon=False, fontsize=6,
+              borderaxespad=0.0)
+
+
+def _key(ax: Axes, labels: Mapping[str, str]) -> None:
+    """The key of abbreviated site labels, at the bottom of the key axes ``ax``."""
+    pairs = [f"{short}: {name}" for name, short in labels.items() if short != name]
+    if pairs:
+        ax.text(0.5, 0.0, "; ".join(pairs), ha="center", va="bottom", fontsize=5, wrap=True,
+                transform=ax.transAxes)
+
+
+def _map_axes() -> tuple[Figure, Axes, Axes]:
+    """A column-wide figure: the map above, a key panel (legend and labels) below."""
+    fig = Figure(figsize=(COLUMN_WIDTH_IN, 4.6), layout="constrained")
+    FigureCanvasAgg(fig)
+    ax, key = fig.subplots(2, 1, height_ratios=[5.0, 1.0])
+    key.set_axis_off()
+    return fig, ax, key
 
 
 @with_style
@@ -142,10 +180,11 @@ def network_map(sites: Sequence[MapSite], links: Sequence[MapLink], *,
         One map axes (equal aspect, km on both axes when coordinates are known) and one colour
         bar axes labelled ``capacity_label``.
     """
-    fig, ax = new_figure(height_in=3.2)
+    fig, ax, key = _map_axes()
     pos, to_scale = positions(sites, links, seed=seed)
+    labels = short_labels([s.name for s in sites])
     collection = _draw_links(ax, links, pos, cmap)
-    _draw_sites(ax, sites, pos)
+    _draw_sites(ax, sites, pos, labels)
     ax.autoscale_view()
     ax.margins(0.12)
     ax.set_aspect("equal", adjustable="datalim")
@@ -157,7 +196,12 @@ def network_map(sites: Sequence[MapSite], links: Sequence[MapLink], *,
         ax.set_xticks([])
         ax.set_yticks([])
         ax.set_xlabel("layout, not to scale")
-    bar = fig.colorbar(collection, ax=ax, shrink=0.8)
+    bar = fig.colorbar(collection, ax=ax, location="top", shrink=0.8, aspect=30)
     bar.set_label(capacity_label)
-    _legend(ax, sites)
+    if isinstance(collection.norm, LogNorm):
+        bar.ax.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+        bar.ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+        bar.ax.xaxis.set_minor_formatter(NullFormatter())
+    _legend(key, sites)
+    _key(key, labels)
     return fig

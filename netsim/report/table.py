@@ -20,10 +20,12 @@ __all__ = ["FORMATS", "Column", "Table", "format_number", "render", "sig_for_int
 FORMATS = ("table", "csv", "md", "tex", "json")
 
 
-def format_number(value: Any, sig: int = 4) -> str:
+def format_number(value: Any, sig: int = 4, trailing_zeros: bool = False) -> str:
     """Format a cell: numbers to ``sig`` significant figures, intervals as ``[lo, hi]``.
 
-    Integers are printed whole; ``None`` and NaN as an empty cell marker ``-``.
+    Integers are printed whole; ``None`` and NaN as an empty cell marker ``-``. With
+    ``trailing_zeros`` the figures are all shown (``10.0`` at three figures), as they carry
+    meaning when set by an uncertainty.
     """
     if value is None:
         return "-"
@@ -38,13 +40,15 @@ def format_number(value: Any, sig: int = 4) -> str:
             return "inf" if value > 0 else "-inf"
         if value == 0:
             return "0"
-        text = f"{value:.{sig}g}"
+        text = f"{value:#.{sig}g}" if trailing_zeros else f"{value:.{sig}g}"
+        mantissa, _, exponent = text.partition("e")
+        text = mantissa.rstrip(".") + ("e" + exponent if exponent else "")
         if "e" in text:
             mantissa, exponent = text.split("e")
             text = f"{mantissa}e{int(exponent)}"
         return text
     if isinstance(value, (list, tuple)) and len(value) == 2:
-        return f"[{format_number(value[0], sig)}, {format_number(value[1], sig)}]"
+        return f"[{format_number(value[0], sig, trailing_zeros)}, {format_number(value[1], sig, trailing_zeros)}]"
     return str(value)
 
 
@@ -95,8 +99,8 @@ class Column:
         if isinstance(value, (list, tuple)) and len(value) == 2:
             centre = (float(value[0]) + float(value[1])) / 2.0
             sigs = [_bound_sig(v, centre, interval, self.sig) for v in value]
-            return f"[{format_number(value[0], sigs[0])}, {format_number(value[1], sigs[1])}]"
-        return format_number(value, sig_for_interval(value, interval, self.sig))
+            return f"[{format_number(value[0], sigs[0], True)}, {format_number(value[1], sigs[1], True)}]"
+        return format_number(value, sig_for_interval(value, interval, self.sig), True)
 
 
 def _bound_sig(bound: Any, centre: float, interval: Any, default: int) -> int:

@@ -1,0 +1,119 @@
+"""Assemble a report from :class:`~netsim.report.sources.ReportData`: tables, figures, files.
+
+:func:`report_tables` gives the named tables (``links``, ``demands`` and, for a sweep store,
+``pivot-<metric>-<demand>...``); :func:`report_figures` the named figures; :func:`write_report`
+writes both under an output directory and returns the paths.
+"""
+
+from __future__ import annotations
+
+import itertools
+import re
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+from matplotlib.figure import Figure
+
+from netsim.report.capacity import demand_rows, demand_table, link_rows, link_table
+from netsim.report.pivot import pivot_table
+from netsim.report.sources import ReportData, demand_names
+from netsim.report.table import Table, render
+from netsim.report.units import header
+
+__all__ = ["DEFAULT_METRICS", "file_stem", "report_figures", "report_tables", "write_report"]
+
+#: Metrics pivoted for a sweep store by default, with the key of their 95 % interval.
+DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
+_MAX_GROUPS = 12
+_SUFFIX = {"table": ".txt", "csv": ".csv", "md": ".md", "tex": ".tex", "json": ".json"}
+
+
+def file_stem(text: str) -> str:
+    """A safe file name from a table or figure name."""
+    return re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-").lower() or "table"
+
+
+def _simulated_time(data: ReportData) -> float | None:
+    times = [float(d["simulated_time_s"]) for d in data.run_demands if d.get("simulated_time_s")]
+    run_time = data.run.get("simulated_time_s") if data.run else None
+    return float(run_time) if run_time else (max(times) if times else None)
+
+
+def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
+                  params: Sequence[str]) -> dict[str, Table]:
+    tables: dict[str, Table] = {}
+    demands = [r for r in data.records if r.get("kind") == "demand"]
+    rows_p, cols_p, rest = params[0], (params[1] if len(params) > 1 else None), list(params[2:])
+    for metric, ci in metrics.items():
+        for name in demand_names(demands):
+            mine = [r for r in demands if r.get("name") == name and metric in r]
+            if not mine:
+                continue
+            for fixed in _groups(mine, rest)[:_MAX_GROUPS]:
+                chosen = [r for r in mine if all(r.get(k) == v for k, v in fixed.items())]
+                where = "".join(f", {k}={v}" for k, v in fixed.items())
+                title = f"{header(metric)}, demand {name}{where}"
+                key = file_stem(f"pivot-{metric}-{name}{where}")
+                tables[key] = pivot_table(chosen, metric, rows_p, cols_p, ci_key=ci, title=title)
+    return tables
+
+
+def _groups(records: Sequence[Mapping[str, Any]], keys: Sequence[str]) -> list[dict[str, Any]]:
+    values = [sorted({repr(r.get(k)): r.get(k) for r in records}.values(), key=repr) for k in keys]
+    return [dict(zip(keys, combo)) for combo in itertools.product(*values)]
+
+
+def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None = None,
+                  params: Sequence[str] | None = None) -> dict[str, Table]:
+    """The report's tables by file stem.
+
+    Parameters
+    ----------
+    data : ReportData
+    metrics : mapping, optional
+        Sweep metrics to pivot (metric key -> interval key); :data:`DEFAULT_METRICS` if omitted.
+    params : sequence of str, optional
+        Swept parameters to pivot over (rows, then columns, then one table per value of the
+        rest); all swept parameters in sweep order if omitted.
+    """
+    if data.kind == "store":
+        chosen = list(params or data.parameters)
+        if not chosen:
+            return {}
+        return _sweep_tables(data, metrics or DEFAULT_METRICS, chosen)
+    links = link_rows(data.links, data.run_links, _simulated_time(data))
+    demands = demand_rows(data.demands, data.run_demands)
+    return {"links": link_table(links, data.title), "demands": demand_table(demands, data.title)}
+
+
+def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
+                   params: Sequence[str] | None = None) -> dict[str, Figure]:
+    """The report's figures by file stem (see :mod:`netsim.report.plots` for each)."""
+    from netsim.report import plots
+
+    if data.kind == "store":
+        return plots.sweep_figures(data, list(params or data.parameters))
+    tables = tables or report_tables(data)
+    return plots.network_figures(data, tables["links"].rows)
+
+
+def write_report(data: ReportData, out_dir: str | Path, fmt: str = "md", *,
+                 figures: bool = True, metrics: Mapping[str, str | None] | None = None,
+                 params: Sequence[str] | None = None) -> tuple[dict[str, Table], list[Path]]:
+    """Write every table (one file each, in ``fmt``) and figure (PNG and PDF) to ``out_dir``."""
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    tables = report_tables(data, metrics=metrics, params=params)
+    written = []
+    for stem, table in tables.items():
+        path = out / (stem + _SUFFIX[fmt] if fmt in _SUFFIX else stem)
+        path.write_text(render(table, fmt), encoding="utf-8")
+        written.append(path)
+    if figures:
+        from netsim.report.figures import save_figure
+
+        for stem, fig in report_figures(data, tables, params).items():
+            written += save_figure(fig, out / stem)
+    return tables, written
+

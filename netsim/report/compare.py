@@ -1,0 +1,183 @@
+"""Side-by-side comparison of candidate topologies serving the same demands.
+
+Each candidate brings its network graph (edge attribute with link capacities) and its demand
+rows (as built by :func:`netsim.report.capacity.demand_rows`, simulated numbers included).
+Demands are matched by user pair, in either order. The bottleneck of a demand is the minimum
+cut between its users over the links' repeaterless capacities (Pirandola, Commun. Phys. 2, 51,
+2019), found with networkx's ``minimum_cut``.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import networkx as nx
+
+from netsim.report.capacity import pair_key
+from netsim.report.table import Column, Table
+
+__all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "comparison_tables", "winner"]
+
+#: Edge attribute holding a link's repeaterless capacity in ebit/s (parallel fibres summed).
+CAPACITY_ATTRIBUTE = "plob_cut_bits_per_s"
+
+
+@dataclass
+class Candidate:
+    """One topology: a name, its graph and its demand rows (keyed by user pair)."""
+
+    name: str
+    graph: nx.Graph
+    demands: list[dict[str, Any]]
+    min_fidelity: dict[frozenset[str], float] = field(default_factory=dict)
+
+    def demand(self, key: frozenset[str]) -> dict[str, Any] | None:
+        for row in self.demands:
+            if pair_key(row["demand"]) == key:
+                return row
+        return None
+
+
+def _capacity(graph: nx.Graph, attribute: str) -> str:
+    """The capacity attribute to use: ``attribute`` if every edge has it, else per-link PLOB."""
+    if all(attribute in d for _, _, d in graph.edges(data=True)):
+        return attribute
+    return "plob_bits_per_s"
+
+
+def bottleneck(graph: nx.Graph, a: str, b: str,
+               attribute: str = CAPACITY_ATTRIBUTE) -> tuple[float, list[tuple[str, str]]]:
+    """Minimum cut between users ``a`` and ``b``: its capacity (ebit/s) and the links cut.
+
+    References
+    ----------
+    S. Pirandola, "End-to-end capacities of a quantum communication network",
+    Commun. Phys. 2, 51 (2019).
+    """
+    capacity = _capacity(graph, attribute)
+    flow = nx.DiGraph()
+    for u, v, data in graph.edges(data=True):
+        c = float(data[capacity])
+        flow.add_edge(u, v, capacity=c)
+        flow.add_edge(v, u, capacity=c)
+    value, (side_a, _side_b) = nx.minimum_cut(flow, a, b)
+    cut = sorted(tuple(sorted((u, v))) for u, v in graph.edges() if (u in side_a) != (v in side_a))
+    return float(value), cut  # type: ignore[misc]
+
+
+def _interval(row: Mapping[str, Any]) -> tuple[float, float]:
+    ci = row.get("rate_ci95")
+    rate = float(row["rate_per_s"])
+    return (float(ci[0]), float(ci[1])) if ci else (rate, rate)
+
+
+def _eligible(candidate: Candidate, key: frozenset[str]) -> dict[str, Any] | None:
+    row = candidate.demand(key)
+    if row is None or row.get("rate_per_s") is None:
+        return None
+    floor = candidate.min_fidelity.get(key)
+    fidelity = row.get("fidelity_mean")
+    if floor is not None and fidelity is not None and float(fidelity) < floor:
+        return None
+    return row
+
+
+def winner(candidates: Sequence[Candidate], key: frozenset[str]) -> str:
+    """Who serves the demand best: highest delivered rate at or above the minimum fidelity.
+
+    Returns the candidate's name, ``"tie: A, B"`` when the leader's 95 % interval overlaps the
+    runner-up's, or ``"none"`` when no candidate delivers useful pairs.
+    """
+    ranked = sorted(((row, c.name) for c in candidates if (row := _eligible(c, key))),
+                    key=lambda item: float(item[0]["rate_per_s"]), reverse=True)
+    if not ranked:
+        return "none"
+    if len(ranked) > 1 and _interval(ranked[1][0])[1] >= _interval(ranked[0][0])[0]:
+        return "tie: " + ", ".join(name for _, name in ranked[:2])
+    return ranked[0][1]
+
+
+def _all_keys(candidates: Sequence[Candidate]) -> list[frozenset[str]]:
+    keys: list[frozenset[str]] = []
+    for candidate in candidates:
+        for row in candidate.demands:
+            if pair_key(row["demand"]) not in keys:
+                keys.append(pair_key(row["demand"]))
+    return keys
+
+
+def _label(key: frozenset[str], candidates: Sequence[Candidate]) -> str:
+    for c in candidates:
+        if (row := c.demand(key)) is not None:
+            return str(row["demand"])
+    return "-".join(sorted(key))
+
+
+def _side_by_side(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
+    columns = [Column("demand", "demand")]
+    for i, c in enumerate(candidates):
+        columns += [Column(f"r{i}", f"{c.name}: rate (pairs/s)", ci_key=f"r{i}_ci"),
+                    Column(f"r{i}_ci", f"{c.name}: 95% CI", ci_key=f"r{i}_ci"),
+                    Column(f"f{i}", f"{c.name}: fidelity", ci_key=f"f{i}_ci"),
+                    Column(f"b{i}", f"{c.name}: min-cut bound (ebit/s)", 3)]
+    columns.append(Column("winner", "best"))
+    rows = []
+    for key in keys:
+        row: dict[str, Any] = {"demand": _label(key, candidates), "winner": winner(candidates, key)}
+        for i, c in enumerate(candidates):
+            d = c.demand(key) or {}
+            row.update({f"r{i}": d.get("rate_per_s"), f"r{i}_ci": d.get("rate_ci95"),
+                        f"f{i}": d.get("fidelity_mean"), f"f{i}_ci": d.get("fidelity_ci95"),
+                        f"b{i}": d.get("bound_multipath_per_s")})
+        rows.append(row)
+    notes = [("best: highest delivered rate among candidates meeting the demand's minimum "
+             "fidelity; 'tie' when the 95% intervals of the two best overlap.")]
+    return Table("Candidates side by side, per demand", columns, [*rows], notes)
+
+
+def _sum(rows: Sequence[Mapping[str, Any]], key: str) -> float | None:
+    values = [float(r[key]) for r in rows if r.get(key) is not None]
+    return math.fsum(values) if values else None
+
+
+def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
+    columns = [Column("candidate", "candidate"), Column("links", "links"),
+               Column("fibre_km", "fibre (km)", 4), Column("rate_per_s", "total rate (pairs/s)", 4),
+               Column("ebits_per_s", "total ebits/s (ebit/s)", 4),
+               Column("bound", "sum of min-cut bounds (ebit/s)", 4),
+               Column("wins", "demands won"), Column("served", "demands meeting min fidelity")]
+    rows = []
+    for c in candidates:
+        fibre = math.fsum(float(d.get("length_km", 0.0)) for _, _, d in c.graph.edges(data=True))
+        rows.append({"candidate": c.name, "links": c.graph.number_of_edges(), "fibre_km": fibre,
+                     "rate_per_s": _sum(c.demands, "rate_per_s"),
+                     "ebits_per_s": _sum(c.demands, "ebits_per_s"),
+                     "bound": _sum(c.demands, "bound_multipath_per_s"),
+                     "wins": sum(winner(candidates, k) == c.name for k in keys),
+                     "served": sum(_eligible(c, k) is not None for k in keys)})
+    return Table("Candidates: totals", columns, [*rows])
+
+
+def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
+    columns = [Column("candidate", "candidate"), Column("demand", "demand"),
+               Column("cut_bits_per_s", "min cut (ebit/s)", 4), Column("links", "bottleneck links")]
+    rows: list[dict[str, Any]] = []
+    for c in candidates:
+        for key in keys:
+            a, b = sorted(key)
+            if a not in c.graph or b not in c.graph or not nx.has_path(c.graph, a, b):
+                rows.append({"candidate": c.name, "demand": _label(key, candidates)})
+                continue
+            value, cut = bottleneck(c.graph, a, b)
+            rows.append({"candidate": c.name, "demand": _label(key, candidates),
+                         "cut_bits_per_s": value, "links": "; ".join(f"{u}-{v}" for u, v in cut)})
+    return Table("Bottleneck links (minimum cut of repeaterless link capacities)", columns, [*rows])
+
+
+def comparison_tables(candidates: Sequence[Candidate]) -> list[Table]:
+    """Side-by-side per demand, totals, and bottleneck links of every candidate."""
+    keys = _all_keys(candidates)
+    return [_side_by_side(candidates, keys), _totals(candidates, keys), _bottlenecks(candidates, keys)]

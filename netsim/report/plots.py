@@ -1,0 +1,144 @@
+"""The figures of a report, from its data: network map, per-scheme rate curves, sweep plots.
+
+Analytic per-scheme curves come from the hardware layer's published link formulas
+(``netsim.hardware.link_physics``) at a range of lengths; nothing is simulated here.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+from matplotlib.figure import Figure
+from numpy.typing import ArrayLike
+
+from netsim.report.build import file_stem
+from netsim.report.capacity import pair_key
+from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
+from netsim.report.netmap import MapLink, MapSite, network_map
+from netsim.report.pivot import grid, series
+from netsim.report.sources import ReportData, demand_names
+from netsim.report.units import header
+
+__all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "scheme_curves", "sweep_figures"]
+
+SCHEME_LENGTHS_KM = np.linspace(1.0, 120.0, 60)
+
+
+def _utilisation(data: ReportData) -> dict[frozenset[str], float]:
+    out = {}
+    for row in data.run_links:
+        value = row.get("utilisation")
+        ends = row.get("ends") or str(row.get("name", row.get("link", ""))).split("-", 1)
+        if value is not None:
+            out[pair_key(ends)] = float(value)
+    return out
+
+
+def map_links(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) -> list[MapLink]:
+    """Links for the map: capacity = repeaterless bound (ebit/s), width = simulated utilisation."""
+    use = _utilisation(data)
+    links = []
+    for row, link in zip(link_rows, data.scenario.links):
+        capacity = row.get("plob_bits_per_s")
+        links.append(MapLink(link.a, link.b, math.nan if capacity is None else float(capacity),
+                             use.get(pair_key((link.a, link.b)))))
+    return links
+
+
+def _template(scenario: Any) -> tuple[Any, Any, Any] | None:
+    """The first link whose two ends hold memories, with its sites (for per-scheme curves)."""
+    for link in scenario.links:
+        a, b = scenario.site(link.a), scenario.site(link.b)
+        if a.role != "switch" and b.role != "switch":
+            return link, a, b
+    return None
+
+
+def scheme_curves(scenario: Any, lengths_km: ArrayLike = SCHEME_LENGTHS_KM
+                  ) -> tuple[dict[str, np.ndarray], np.ndarray]:
+    """Success probability per mode and attempt of each heralding scheme against length.
+
+    Uses the scenario's first memory-to-memory link (fibre, detectors, sources) and varies only
+    ``length_km`` and ``scheme``. Returns ``(rates by scheme, repeaterless bound -log2(1 - eta))``.
+    """
+    from netsim.hardware import link_physics
+    from netsim.network import plob_bits_per_use
+    from netsim.scenario.model import SCHEMES
+
+    found = _template(scenario)
+    if found is None:
+        return {}, np.array([])
+    link, a, b = found
+    lengths = np.asarray(lengths_km, dtype=float)
+    rates = {s: np.empty(lengths.size) for s in SCHEMES}
+    bound = np.empty(lengths.size)
+    for i, length in enumerate(lengths):
+        for scheme in SCHEMES:
+            physics = link_physics(dataclasses.replace(link, length_km=float(length), scheme=scheme), a, b)
+            rates[scheme][i] = physics.success_probability
+        bound[i] = plob_bits_per_use(physics.transmissivity)
+    return rates, bound
+
+
+def network_figures(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) -> dict[str, Figure]:
+    """The map of the network and the per-scheme rate curves (needs the scenario)."""
+    if data.scenario is None:
+        return {}
+    scenario = data.scenario
+    sites = [MapSite(s.name, s.role, s.x_km, s.y_km) for s in scenario.sites]
+    figures = {"network-map": network_map(sites, map_links(data, link_rows))}
+    rates, bound = scheme_curves(scenario)
+    if rates:
+        figures["rate-vs-distance"] = rate_vs_distance(
+            SCHEME_LENGTHS_KM, rates, bound, ylabel="heralded pairs per attempt and mode")
+    return figures
+
+
+def _fixed(records: list[dict[str, Any]], rest: Sequence[str]) -> tuple[list[dict[str, Any]], str]:
+    """Records at the first value of every parameter beyond the two plotted, and a caption."""
+    fixed = {k: min((r.get(k) for r in records), key=repr) for k in rest}
+    chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
+    return chosen, "".join(f", {k}={v}" for k, v in fixed.items())
+
+
+def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: str | None,
+                    params: Sequence[str]) -> dict[str, Figure]:
+    """Heatmap over the first two parameters and lines against the first, one per second value."""
+    chosen, where = _fixed(records, params[2:])
+    x, y, z = grid(chosen, metric, params[0], params[1])
+    stem = file_stem(f"{metric}-{name}{where}")
+    curves = {f"{params[1]}={v:g}": series([r for r in chosen if r.get(params[1]) == v], metric,
+                                           params[0], ci_key=ci) for v in y}
+    return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=params[0], ylabel=params[1],
+                                       zlabel=f"{header(metric)}, {name}"),
+            f"lines-{stem}": metric_vs_parameter(curves, xlabel=params[0],
+                                                 ylabel=f"{header(metric)}, {name}",
+                                                 logy=metric.endswith("per_s"))}
+
+
+def sweep_figures(data: ReportData, params: Sequence[str],
+                  metrics: Mapping[str, str | None] | None = None) -> dict[str, Figure]:
+    """Each metric against the first swept parameter with 95 % bands (one line per demand);
+    with two or more parameters, per demand a heatmap over the first two and lines against the
+    first (further parameters held at their first value)."""
+    metrics = metrics or {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
+    demands = [r for r in data.records if r.get("kind") == "demand"]
+    if not params or not demands:
+        return {}
+    figures: dict[str, Figure] = {}
+    for metric, ci in metrics.items():
+        curves = {}
+        for name in demand_names(demands):
+            mine = [r for r in demands if r.get("name") == name and r.get(metric) is not None]
+            if mine and len(params) == 1:
+                curves[name] = series(mine, metric, params[0], ci_key=ci)
+            elif mine:
+                figures.update(_demand_figures(mine, name, metric, ci, params))
+        if curves:
+            figures[file_stem(f"{metric}-vs-{params[0]}")] = metric_vs_parameter(
+                curves, xlabel=params[0], ylabel=header(metric), logy=metric.endswith("per_s"))
+    return figures

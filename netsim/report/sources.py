@@ -1,0 +1,238 @@
+"""What a report is made from: a scenario file, a run result (run.json) or a sweep store.
+
+:func:`load_source` recognises the kind by the file's suffix and returns a
+:class:`ReportData` of plain rows. Scenario files get the network budget (analytic numbers and
+bounds) and, if asked, an engine run; run results carry the budget numbers the engine wrote
+beside its own; stores give one flat record per (point, demand or link) for the sweep pivots.
+The report layer never simulates: runs are requested from the engine's public ``run``.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from netsim.errors import NetsimError, ParameterError
+
+__all__ = ["SOURCE_SUFFIXES", "ReportData", "load_source", "source_kind", "store_records"]
+
+SOURCE_SUFFIXES = {".toml": "scenario", ".json": "run", ".sqlite": "store", ".db": "store",
+                   ".sqlite3": "store"}
+
+
+@dataclass
+class ReportData:
+    """Plain rows behind every table and figure of a report.
+
+    Attributes
+    ----------
+    kind : str
+        ``"scenario"``, ``"run"`` or ``"store"``.
+    slug, title : str
+        The scenario's file-system name and display name.
+    links, demands : list of dict
+        Budget rows (analytic), each joined later with ``run_links`` / ``run_demands``.
+    run : dict or None
+        The run result (``RunResult.to_dict()``) when the engine ran.
+    records : list of dict
+        Sweep records (store only): swept parameters, ``kind``, ``name`` and metrics.
+    parameters : list of str
+        The swept parameter paths (store only).
+    scenario : object
+        The loaded Scenario when known (for the network map and per-scheme curves).
+    """
+
+    kind: str
+    slug: str
+    title: str
+    links: list[dict[str, Any]] = field(default_factory=list)
+    demands: list[dict[str, Any]] = field(default_factory=list)
+    run: dict[str, Any] | None = None
+    records: list[dict[str, Any]] = field(default_factory=list)
+    parameters: list[str] = field(default_factory=list)
+    scenario: Any = None
+
+    @property
+    def run_links(self) -> list[dict[str, Any]]:
+        return _entities(self.run.get("links")) if self.run else []
+
+    @property
+    def run_demands(self) -> list[dict[str, Any]]:
+        return _entities(self.run.get("demands")) if self.run else []
+
+
+def _entities(value: Any) -> list[dict[str, Any]]:
+    """Rows from a list of mappings, or from a mapping keyed by name."""
+    if isinstance(value, Mapping):
+        return [{"name": k, **v} for k, v in value.items()]
+    return [dict(v) for v in value or ()]
+
+
+def source_kind(path: Path) -> str:
+    """``scenario``, ``run`` or ``store`` from the suffix; a one-line error otherwise."""
+    kind = SOURCE_SUFFIXES.get(path.suffix.lower())
+    if kind is None:
+        raise ParameterError("SOURCE", str(path), "a scenario (.toml), a run result (.json) or a "
+                             "sweep store (.sqlite)")
+    if not path.is_file():
+        raise ParameterError("SOURCE", str(path), "an existing file")
+    return kind
+
+
+def _budget_rows(scenario: Any) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
+    """The budget's rows, each link row with its analytic key rate added."""
+    from netsim.network.budget import budget
+
+    result = budget(scenario)
+    links = [dict(r) for r in result.links]
+    for row, rate in zip(links, link_key_rates(scenario)):
+        row.setdefault("key_rate_per_s", rate)
+    return links, [dict(r) for r in result.demands]
+
+
+def link_key_rates(scenario: Any) -> list[float | None]:
+    """Analytic secret-key rate of each link heralded on its own: pair rate x key fraction.
+
+    The key fraction is the asymptotic entanglement-based BB84 fraction 1 - h(e_Z) - h(e_X) of
+    the heralded state (``qinfo.key_fraction``; Shor & Preskill, PRL 85, 441, 2000). ``None``
+    for links that end at a passive switch (heralded only as part of a light path).
+    """
+    from netsim import qinfo
+    from netsim.hardware import link_physics
+
+    rates: list[float | None] = []
+    for link in scenario.links:
+        a, b = scenario.site(link.a), scenario.site(link.b)
+        if "switch" in (a.role, b.role):
+            rates.append(None)
+            continue
+        physics = link_physics(link, a, b)
+        rates.append(float(qinfo.key_fraction(physics.state)) * physics.rate_per_s)
+    return rates
+
+
+def _from_scenario(path: Path, simulate: bool, run_options: Mapping[str, Any]) -> ReportData:
+    from netsim.scenario import load
+
+    scenario = load(path)
+    links, demands = _budget_rows(scenario)
+    data = ReportData("scenario", scenario.slug, scenario.name, links, demands, scenario=scenario)
+    if simulate:
+        from netsim import engine
+
+        data.run = engine.run(scenario, **dict(run_options)).to_dict()  # type: ignore[attr-defined]
+    return data
+
+
+def _read_json(path: Path) -> dict[str, Any]:
+    try:
+        value = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
+        raise ParameterError("SOURCE", str(path), f"a readable run result in JSON ({exc})") from None
+    if not isinstance(value, dict) or "demands" not in value:
+        raise ParameterError("SOURCE", str(path), "a run result written by `netsim run` "
+                             "(a JSON object with 'demands')")
+    return value
+
+
+def _scenario_of_run(run: Mapping[str, Any], path: Path) -> Any:
+    """The run's scenario, loaded again from its source file when that file still exists."""
+    from netsim.scenario import load
+
+    info = run.get("scenario")
+    source = info.get("source") if isinstance(info, Mapping) else None
+    if not source:
+        return None
+    candidate = Path(source)
+    candidate = candidate if candidate.is_absolute() or candidate.exists() else path.parent / candidate
+    if not candidate.is_file():
+        return None
+    scenario = load(candidate)
+    expected = info.get("content_hash") if isinstance(info, Mapping) else None
+    return scenario if not expected or expected == scenario.content_hash else None
+
+
+def _from_run(path: Path) -> ReportData:
+    run = _read_json(path)
+    scenario = _scenario_of_run(run, path)
+    raw = run.get("scenario")
+    info: Mapping[str, Any] = raw if isinstance(raw, Mapping) else {}
+    name = str(info.get("name") or (scenario.name if scenario else path.parent.name))
+    slug = scenario.slug if scenario else str(info.get("slug") or path.parent.name)
+    data = ReportData("run", slug, name, run=run, scenario=scenario)
+    budget = run.get("budget")
+    if isinstance(budget, Mapping):
+        data.links, data.demands = _entities(budget.get("links")), _entities(budget.get("demands"))
+    elif scenario is not None:
+        data.links, data.demands = _budget_rows(scenario)
+    else:
+        data.links, data.demands = data.run_links, data.run_demands
+    return data
+
+
+def store_records(store: Any) -> list[dict[str, Any]]:
+    """Flat records, one per (point, kind, name): parameters, ``repeat`` and every metric.
+
+    A ``X_ci95_low`` / ``X_ci95_high`` pair of metrics becomes the interval ``X_ci95``.
+    """
+    grouped: dict[tuple[str, str, str], dict[str, Any]] = {}
+    for m in store.metrics():
+        key = (m["point_id"], m["kind"], m["name"])
+        record = grouped.setdefault(key, {**m["parameters"], "point_id": m["point_id"],
+                                          "repeat": m["repeat"], "kind": m["kind"], "name": m["name"]})
+        record[m["metric"]] = m["value"]
+    for record in grouped.values():
+        for low_key in [k for k in record if k.endswith("_ci95_low")]:
+            high = record.get(low_key[:-4] + "_high")
+            low = record[low_key]
+            record[low_key[:-4]] = None if low is None or high is None else [low, high]
+    return list(grouped.values())
+
+
+def _from_store(path: Path) -> ReportData:
+    from netsim.sweep.store import open_store  # type: ignore[import-not-found]
+
+    with open_store(path) as store:
+        meta = store.meta()
+        records = store_records(store)
+        points = store.points()
+    parameters: list[str] = []
+    for point in points:
+        parameters += [p for p in point["parameters"] if p not in parameters]
+    name = meta.get("scenario_name") or path.stem
+    slug = path.parent.name if path.parent.name else path.stem
+    if not records:
+        raise NetsimError(f"{path}: the store has no finished points yet; run `netsim sweep` first")
+    return ReportData("store", slug, name, records=records, parameters=parameters)
+
+
+def load_source(source: str | Path, *, simulate: bool = False,
+                run_options: Mapping[str, Any] | None = None) -> ReportData:
+    """Load ``source`` (scenario, run result or sweep store) into :class:`ReportData`.
+
+    Parameters
+    ----------
+    source : str or Path
+        ``.toml`` scenario, ``.json`` run result or ``.sqlite`` sweep store.
+    simulate : bool
+        For a scenario: also run the engine (``run_options`` passed to ``engine.run``).
+    """
+    path = Path(source)
+    kind = source_kind(path)
+    if kind == "scenario":
+        return _from_scenario(path, simulate, run_options or {})
+    if kind == "run":
+        return _from_run(path)
+    return _from_store(path)
+
+
+def demand_names(records: Sequence[Mapping[str, Any]], kind: str = "demand") -> list[str]:
+    """Names of the entities of ``kind`` in sweep records, in first-seen order."""
+    names: list[str] = []
+    for r in records:
+        if r.get("kind") == kind and r.get("name") not in names:
+            names.append(str(r.get("name")))
+    return names
