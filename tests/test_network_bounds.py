@@ -1,0 +1,161 @@
+"""Waiting times, chain fidelity and network capacity bounds (netsim.network.bounds)."""
+
+from __future__ import annotations
+
+import itertools
+import math
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from netsim.network.bounds import (
+    chain_fidelity,
+    expected_rounds,
+    expected_wait_s,
+    multipath_capacity,
+    single_path_capacity,
+)
+from netsim.network.routing import widest_path
+
+
+def hand_network() -> nx.Graph:
+    """Capacities in bit/s, worked by hand::
+
+            Ashby --5-- Bexley --3-- Tarn
+              |           |          |
+              4           2          |
+              |           |          |
+            Corvin ------ 6 ---------+
+
+    Edges: Ashby-Bexley 5, Bexley-Tarn 3, Ashby-Corvin 4, Corvin-Tarn 6, Bexley-Corvin 2.
+
+    Widest path Ashby -> Tarn: A-B-T min(5, 3) = 3; A-C-T min(4, 6) = 4; A-B-C-T min(5, 2, 6) = 2;
+    A-C-B-T min(4, 2, 3) = 2. Widest: A-C-T with 4.
+
+    Minimum cut Ashby | Tarn: {A} 5 + 4 = 9; {A, B} 3 + 2 + 4 = 9; {A, C} 5 + 2 + 6 = 13;
+    {A, B, C} 3 + 6 = 9. Minimum 9 (max flow: A-B-T 3, A-C-T 4, A-B-C-T 2).
+    """
+    g = nx.Graph()
+    for u, v, c in [("Ashby", "Bexley", 5.0), ("Bexley", "Tarn", 3.0), ("Ashby", "Corvin", 4.0),
+                    ("Corvin", "Tarn", 6.0), ("Bexley", "Corvin", 2.0)]:
+        g.add_edge(u, v, plob_bits_per_s=c, plob_cut_bits_per_s=c)
+    return g
+
+
+def test_widest_path_by_hand() -> None:
+    """Single-path capacity = widest path (Pirandola, Commun. Phys. 2, 51, 2019); worked above."""
+    g = hand_network()
+    assert widest_path(g, "Ashby", "Tarn") == ["Ashby", "Corvin", "Tarn"]
+    assert single_path_capacity(g, "Ashby", "Tarn") == pytest.approx(4.0)
+
+
+def test_min_cut_by_hand() -> None:
+    """Multipath capacity = minimum cut (Pirandola, Commun. Phys. 2, 51, 2019); worked above."""
+    assert multipath_capacity(hand_network(), "Ashby", "Tarn") == pytest.approx(9.0)
+
+
+def test_bounds_of_a_chain_are_its_weakest_link() -> None:
+    """A chain is limited by its worst link (Pirandola, Commun. Phys. 2, 51, 2019)."""
+    g = nx.path_graph(["Esk", "Fal", "Gwen", "Hale"])
+    for (u, v), c in zip(itertools.pairwise(["Esk", "Fal", "Gwen", "Hale"]), [7.0, 2.5, 9.0]):
+        g.edges[u, v].update(plob_bits_per_s=c, plob_cut_bits_per_s=c)
+    assert single_path_capacity(g, "Esk", "Hale") == multipath_capacity(g, "Esk", "Hale") == pytest.approx(2.5)
+
+
+def test_disconnected_pair_has_zero_capacity() -> None:
+    g = hand_network()
+    g.add_node("Islet")
+    assert single_path_capacity(g, "Ashby", "Islet") == 0.0
+    assert multipath_capacity(g, "Ashby", "Islet") == 0.0
+
+
+@pytest.mark.parametrize("p", [0.9, 0.3, 0.01, 1e-5])
+def test_two_link_waiting_time(p: float) -> None:
+    """E[N] = (3 - 2p) / (p (2 - p)) for two links (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019)."""
+    assert expected_rounds([p, p]) == pytest.approx((3 - 2 * p) / (p * (2 - p)), rel=1e-9)
+
+
+@pytest.mark.parametrize("n", [1, 3, 4, 8])
+def test_equal_links_waiting_time(n: int) -> None:
+    """E[N] = sum_k C(n, k) (-1)^(k+1) / (1 - (1 - p)^k) (Shchukin, Schmidt & van Loock 2019)."""
+    p = 0.2
+    expected = sum(math.comb(n, k) * (-1) ** (k + 1) / (1 - (1 - p) ** k) for k in range(1, n + 1))
+    assert expected_rounds([p] * n) == pytest.approx(expected, rel=1e-10)
+
+
+def test_unequal_links_waiting_time_against_direct_sum() -> None:
+    """Inclusion-exclusion (generalised here) against E[N] = sum_t P(N > t) summed directly."""
+    q = [0.05, 0.2, 0.5]
+    direct = sum(1 - math.prod(1 - (1 - x) ** t for x in q) for t in range(20_000))
+    assert expected_rounds(q) == pytest.approx(direct, rel=1e-12)
+
+
+def test_many_hops_use_the_series() -> None:
+    """Above 16 hops the series replaces inclusion-exclusion; both agree at 16 (same definition)."""
+    from netsim.network import bounds
+
+    q = [0.1 + 0.01 * i for i in range(16)]
+    assert bounds._expected_rounds_series(q) == pytest.approx(expected_rounds(q), rel=1e-9)
+    assert expected_rounds([0.1] * 17) > expected_rounds([0.1] * 16)
+
+
+def test_waiting_time_with_equal_periods_is_period_times_rounds() -> None:
+    assert expected_wait_s([0.3, 0.3], [2e-4, 2e-4]) == pytest.approx(2e-4 * (3 - 0.6) / (0.3 * 1.7))
+
+
+def test_waiting_time_with_unequal_periods_is_bracketed() -> None:
+    """A faster hop helps: between the all-fast and the all-slow equal-period values (derived here)."""
+    slow, fast = expected_wait_s([0.2, 0.2], [1e-3, 1e-3]), expected_wait_s([0.2, 0.2], [1e-4, 1e-4])
+    mixed = expected_wait_s([0.2, 0.2], [1e-3, 1e-4])
+    assert fast < mixed < slow
+    assert mixed >= 1e-3 / 0.2  # never faster than the slow hop alone (its mean 1/p rounds)
+
+
+def _swap_with_qutip(w1: float, w2: float, gate_error: float = 0.0) -> float:
+    """Entanglement swapping of two Werner pairs computed with QuTiP as an independent reference.
+
+    Qubits A B1 | B2 C; a Bell measurement on B1 B2 with outcome-dependent Pauli correction on C
+    (Phi+ I, Phi- Z, Psi+ X, Psi- Y), averaged over outcomes; then depolarizing p on C.
+    Returns the fidelity of the A C pair to Phi+.
+    """
+    qutip = pytest.importorskip("qutip")
+    zero, one = qutip.basis(2, 0), qutip.basis(2, 1)
+    bell = {
+        "phi+": (qutip.tensor(zero, zero) + qutip.tensor(one, one)).unit(),
+        "phi-": (qutip.tensor(zero, zero) - qutip.tensor(one, one)).unit(),
+        "psi+": (qutip.tensor(zero, one) + qutip.tensor(one, zero)).unit(),
+        "psi-": (qutip.tensor(zero, one) - qutip.tensor(one, zero)).unit(),
+    }
+    fix = {"phi+": qutip.qeye(2), "phi-": qutip.sigmaz(), "psi+": qutip.sigmax(), "psi-": qutip.sigmay()}
+    identity4 = qutip.tensor(qutip.qeye(2), qutip.qeye(2)) / 4
+
+    def werner(w: float):  # type: ignore[no-untyped-def]
+        phi = qutip.ket2dm(bell["phi+"])
+        phi.dims = identity4.dims
+        return w * phi + (1 - w) * identity4
+
+    rho = qutip.tensor(werner(w1), werner(w2))
+    out = 0
+    for name, state in bell.items():
+        proj = qutip.tensor(qutip.qeye(2), qutip.ket2dm(state), qutip.qeye(2))
+        corr = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), fix[name])
+        out = out + (corr * proj * rho * proj * corr.dag()).ptrace([0, 3])
+    reduced_a = out.ptrace(0)
+    out = (1 - gate_error) * out + gate_error * qutip.tensor(reduced_a, qutip.qeye(2) / 2)
+    target = bell["phi+"]
+    target.dims = [[2, 2], [1]]
+    return float(qutip.expect(out, target))
+
+
+@pytest.mark.parametrize(("f1", "f2", "gate"), [(0.95, 0.9, 0.0), (0.8, 0.99, 0.0), (0.9, 0.85, 0.05)])
+def test_chain_fidelity_matches_a_qutip_swap(f1: float, f2: float, gate: float) -> None:
+    """Werner swapping multiplies Werner parameters (Sangouard et al., RMP 83, 33, 2011 (memory));
+    checked against an explicit QuTiP Bell measurement with Pauli corrections."""
+    w1, w2 = (4 * f1 - 1) / 3, (4 * f2 - 1) / 3
+    assert chain_fidelity([f1, f2], [gate]) == pytest.approx(_swap_with_qutip(w1, w2, gate), abs=1e-10)
+
+
+def test_chain_fidelity_of_one_hop_is_its_own() -> None:
+    assert chain_fidelity([0.87]) == pytest.approx(0.87)
+    assert np.isclose(chain_fidelity([1.0, 1.0, 1.0]), 1.0)
