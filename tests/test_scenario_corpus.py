@@ -14,6 +14,7 @@ ScenarioError must contain. Outside sources of the rules:
 
 from __future__ import annotations
 
+import importlib.util
 import re
 
 import pytest
@@ -106,8 +107,11 @@ CORPUS: list[tuple[str, str, tuple[str, ...]]] = [
      ("demands[0].min_fidelity: 1.5 is not allowed",)),
     ("t2-above-2t1", edit('role = "repeater"', 'role = "repeater"\nt1_s = 1.0\nt2_s = 3.0'),
      ("sites[1].t2_s: 3 is not allowed; expected t2_s <= 2 * t1_s = 2 s",)),
-    ("t2-above-2t1-from-defaults", BASE + "\n[defaults.site]\nt1_s = 0.4\n",
-     ("sites[0].t2_s: 1 (from defaults) is not allowed", "t1_s = 0.4 (from defaults)")),
+    ("t2-above-2t1-in-defaults", BASE + "\n[defaults.site]\nt1_s = 0.4\n",
+     ("defaults.site.t1_s: t2_s = 1 (built-in default) and t1_s = 0.4 are not allowed together",)),
+    ("t2-above-2t1-site-and-defaults", edit('role = "repeater"', 'role = "repeater"\nt2_s = 3.0')
+     + "\n[defaults.site]\nt1_s = 1.0\n",
+     ("sites[1].t2_s: 3 is not allowed; expected t2_s <= 2 * t1_s = 2 s (T2 <= 2 T1; t1_s = 1 (from defaults))",)),
     ("duplicate-site", edit('name = "Marrow Fen Campus"', 'name = "Quill Street Lab"'),
      ("sites[2].name: 'Quill Street Lab' is not allowed; it is already the name of sites[0]",)),
     ("link-unknown-site", edit('ends = ["Otterby Exchange", "Marrow Fen Campus"]',
@@ -234,3 +238,19 @@ def test_non_utf8_file_is_a_scenario_error(tmp_path) -> None:  # type: ignore[no
     path.write_bytes(BASE.replace("Corpus base", "Caf\u00e9").encode("latin-1"))
     with pytest.raises(ScenarioError, match="not UTF-8"):
         load(path)
+
+
+@pytest.mark.skipif(importlib.util.find_spec("netsim.cli.check_cmd") is None,
+                    reason="the check command is not built yet")
+def test_check_command_prints_each_problem_on_one_line_and_exits_2(tmp_path, capsys) -> None:  # type: ignore[no-untyped-def]
+    """Issue 3, section 2: no traceback, one line per problem, exit code 2."""
+    from netsim.cli import main
+
+    for name, text, _ in CORPUS:
+        path = tmp_path / f"{name}.toml"
+        path.write_text(text, encoding="utf-8")
+        expected = len(_error(text, tmp_path).problems)
+        assert main(["check", str(path)]) == 2, name
+        err = capsys.readouterr().err
+        assert "Traceback" not in err, name
+        assert len(err.splitlines()) == expected, (name, err)

@@ -49,6 +49,7 @@ def parse_sites(value: Any, defaults: Mapping[str, Any],
     sites: list[Site] = []
     roles: dict[str, str] = {}
     first_index: dict[str, int] = {}
+    _default_coherence(defaults, problems)
     tables = table_list(value, "sites", problems)
     for i, table in tables:
         path = f"sites[{i}]"
@@ -88,10 +89,23 @@ def _site_rules(path: str, own: Mapping[str, Any], merged: Mapping[str, Any],
                                 f"allowed at a {role} site; expected an integer >= 1 (0 only at a "
                                 "switch)"))
     t1, t2 = merged.get("t1_s", Site.t1_s), merged.get("t2_s", Site.t2_s)
-    if not invalid & {"t1_s", "t2_s"} and t2 > 2.0 * t1:
+    own_times = {"t1_s", "t2_s"} & set(own)
+    if own_times and not invalid & {"t1_s", "t2_s"} and t2 > 2.0 * t1:
         problems.append(Problem(f"{path}.t2_s", f"{format_value(t2)}{_origin('t2_s', own)} is "
                                 f"not allowed; expected t2_s <= 2 * t1_s = {2.0 * t1:g} s "
                                 f"(T2 <= 2 T1; t1_s = {t1:g}{_origin('t1_s', own)})"))
+
+
+def _default_coherence(defaults: Mapping[str, Any], problems: list[Problem]) -> None:
+    """T2 <= 2 T1 for the defaults alone, reported once at [defaults.site] (sites that set
+    neither time themselves inherit the problem and are not reported again)."""
+    t1, t2 = defaults.get("t1_s", Site.t1_s), defaults.get("t2_s", Site.t2_s)
+    if t2 > 2.0 * t1:
+        key = "t2_s" if "t2_s" in defaults else "t1_s"
+        built_in = {k: "" if k in defaults else " (built-in default)" for k in ("t1_s", "t2_s")}
+        problems.append(Problem(f"defaults.site.{key}", f"t2_s = {t2:g}{built_in['t2_s']} and "
+                                f"t1_s = {t1:g}{built_in['t1_s']} are not allowed together; "
+                                "expected t2_s <= 2 * t1_s (T2 <= 2 T1)"))
 
 
 def parse_links(value: Any, defaults: Mapping[str, Any], roles: Mapping[str, str] | None,
