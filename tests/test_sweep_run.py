@@ -11,6 +11,7 @@ reference library documentation).
 
 from __future__ import annotations
 
+import io
 import os
 import signal
 import subprocess
@@ -90,11 +91,11 @@ def test_one_and_two_workers_match_the_direct_evaluation(plan: SweepPlan, tmp_pa
     for workers in (1, 2):
         store = tmp_path / f"w{workers}.sqlite"
         summary = run_sweep(plan, LocalPool(SyntheticPoint(), workers), store_path=store, quiet=True,
-                            stream=open(os.devnull, "w"))
+                            stream=io.StringIO())
         assert (summary.done, summary.failed, summary.ran) == (30, 0, 30)
         _assert_complete(store, plan, reference)
     again = run_sweep(plan, LocalPool(SyntheticPoint(), 2), store_path=tmp_path / "w2.sqlite", quiet=True,
-                      stream=open(os.devnull, "w"))
+                      stream=io.StringIO())
     assert again.ran == 0 and again.done == 30                  # finished points are skipped
 
 
@@ -102,7 +103,7 @@ def test_dask_local_cluster_matches(plan: SweepPlan, tmp_path: Path) -> None:
     pytest.importorskip("distributed")
     store = tmp_path / "dask.sqlite"
     summary = run_sweep(plan, DaskPool(SyntheticPoint(), "local:2"), store_path=store, quiet=True,
-                        stream=open(os.devnull, "w"))
+                        stream=io.StringIO())
     assert summary.done == 30
     _assert_complete(store, plan, _reference(plan))
 
@@ -143,7 +144,7 @@ def test_failures_are_recorded_and_retried(plan: SweepPlan, tmp_path: Path,
 def test_point_timeout_fails_the_point_and_the_sweep_goes_on(plan: SweepPlan, tmp_path: Path) -> None:
     store = tmp_path / "s.sqlite"
     summary = run_sweep(plan, LocalPool(SyntheticPoint(hang_at_length_km=4.0), 2), store_path=store,
-                        point_timeout_s=0.3, quiet=True, stream=open(os.devnull, "w"))
+                        point_timeout_s=0.3, quiet=True, stream=io.StringIO())
     assert (summary.done, summary.failed) == (28, 2)
     failed = open_store(store).points(status="failed")
     assert all(p["error"] == "PointTimeout: the point ran longer than --point-timeout-s 0.3" for p in failed)
@@ -154,7 +155,7 @@ def test_a_dying_worker_loses_nothing(plan: SweepPlan, tmp_path: Path) -> None:
     store = tmp_path / "s.sqlite"
     marker = tmp_path / "died"
     summary = run_sweep(plan, LocalPool(SyntheticPoint(die_once_marker=str(marker)), 2), store_path=store,
-                        quiet=True, stream=open(os.devnull, "w"))
+                        quiet=True, stream=io.StringIO())
     assert marker.exists()                                        # a worker did die mid-point
     assert (summary.done, summary.failed) == (30, 0)
     _assert_complete(store, plan, _reference(plan))
@@ -211,7 +212,7 @@ def test_ctrl_c_stops_cleanly_and_the_sweep_resumes(plan: SweepPlan, tmp_path: P
     process = _start(CLI_SCRIPT, str(scenario), str(store))
     _wait_for(store, 3, process)
     os.killpg(process.pid, signal.SIGINT)                 # as a terminal's Ctrl-C does
-    out, err = process.communicate(timeout=30)
+    _, err = process.communicate(timeout=30)
     text = err.decode()
     assert process.returncode == 130, text
     assert "interrupted; results written so far are kept" in text and "Traceback" not in text
@@ -221,5 +222,5 @@ def test_ctrl_c_stops_cleanly_and_the_sweep_resumes(plan: SweepPlan, tmp_path: P
     partial = metric_map(store)
     assert partial == {k: v for k, v in reference.items() if k in partial}   # whole points only
     assert len({k[0] for k in partial}) == done
-    run_sweep(plan, LocalPool(SyntheticPoint(), 2), store_path=store, quiet=True, stream=open(os.devnull, "w"))
+    run_sweep(plan, LocalPool(SyntheticPoint(), 2), store_path=store, quiet=True, stream=io.StringIO())
     _assert_complete(store, plan, reference)

@@ -39,6 +39,10 @@ PointFunction = Callable[..., Mapping[str, Any]]
 
 #: Result keys holding per-entity metrics -> the ``kind`` stored for their rows.
 _KINDS = {"demands": "demand", "links": "link", "sites": "site"}
+#: Keys that may hold an entity's name in a result row (the first string found is used).
+_NAME_KEYS = ("name", "demand", "link", "site")
+#: Top-level result keys not stored as metrics (the seed is a column of the points table).
+_SKIPPED = ("seed",)
 
 
 class PointTimeout(Exception):
@@ -106,21 +110,31 @@ def _entities(value: Any) -> list[tuple[str, Any]]:
     if isinstance(value, Mapping):
         return [(str(k), v) for k, v in value.items()]
     if isinstance(value, (list, tuple)):
-        return [(str(v.get("name", i)) if isinstance(v, Mapping) else str(i), v) for i, v in enumerate(value)]
+        return [(_entity_name(v, i), v) for i, v in enumerate(value)]
     return []
+
+
+def _entity_name(entity: Any, index: int) -> str:
+    if isinstance(entity, Mapping):
+        for key in _NAME_KEYS:
+            if isinstance(entity.get(key), str):
+                return str(entity[key])
+    return str(index)
 
 
 def flatten_result(result: Mapping[str, Any]) -> list[tuple[str, str, str, float | None]]:
     """Metric rows ``(kind, name, metric, value)`` from a run result mapping.
 
-    ``demands``/``links``/``sites`` (a list of mappings with ``name``, or a mapping by name) give
-    rows of kind ``demand``/``link``/``site``; other numeric top-level entries give kind ``run``
+    ``demands``/``links``/``sites`` (a list of mappings named by their ``name``, ``demand``,
+    ``link`` or ``site`` string, or a mapping by name) give rows of kind ``demand``/``link``/``site``; other numeric top-level entries give kind ``run``
     with name ``""``. Nested mappings become dotted metric names; a ``..._ci95`` pair becomes
     ``..._ci95_low`` and ``..._ci95_high``; other number lists get ``[i]``. Strings are skipped;
     None, NaN and infinities are stored as NULL; booleans as 0/1.
     """
     rows: list[tuple[str, str, str, float | None]] = []
     for key, value in result.items():
+        if key in _SKIPPED:
+            continue
         if key in _KINDS:
             for name, entity in _entities(value):
                 flat: list[tuple[str, float | None]] = []
