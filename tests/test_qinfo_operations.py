@@ -1,0 +1,127 @@
+"""Entanglement swapping and recurrence purification against published recurrences and an
+independent QuTiP simulation of the circuits."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import qutip
+from conftest import assert_probability, assert_valid_state
+
+from netsim import qinfo
+from netsim.errors import ParameterError
+from netsim.qinfo.states import random_density_matrices
+
+_PAULI = [qutip.qeye(2), qutip.sigmaz(), qutip.sigmax(), qutip.sigmay()]
+_BELL = ["phi+", "phi-", "psi+", "psi-"]
+
+
+def _qutip_swap(rho_1: np.ndarray, rho_2: np.ndarray) -> np.ndarray:
+    """Reference: project (B1, B2) onto each Bell state, correct C, trace out B1 B2, sum outcomes."""
+    dims = [[2, 2], [2, 2]]
+    total = qutip.tensor(qutip.Qobj(rho_1, dims=dims), qutip.Qobj(rho_2, dims=dims))  # A, B1, B2, C
+    out = 0
+    for name, pauli in zip(_BELL, _PAULI):
+        proj = qutip.tensor(qutip.qeye(2), qutip.Qobj(qinfo.bell_state(name), dims=dims), qutip.qeye(2))
+        fix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), pauli)
+        out = out + (fix * proj * total * proj * fix.dag()).ptrace([0, 3])
+    return out.full()
+
+
+def test_swap_matches_qutip_circuit_on_random_states() -> None:
+    # Independent route: explicit 4-qubit projection with QuTiP (Zukowski et al., PRL 71, 4287, 1993).
+    a = random_density_matrices(4, 4, seed=40)
+    b = random_density_matrices(4, 4, seed=41)
+    ours = qinfo.entanglement_swap(a, b)
+    ref = np.stack([_qutip_swap(x, y) for x, y in zip(a, b)])
+    np.testing.assert_allclose(ours, ref, atol=1e-13)
+    assert_valid_state(ours)
+
+
+@pytest.mark.parametrize(("w1", "w2"), [(1.0, 1.0), (0.9, 0.8), (0.5, 0.95), (0.0, 0.7)])
+def test_swap_of_werner_states_multiplies_parameters(w1: float, w2: float) -> None:
+    # Werner swapping: w = w1 w2 (Briegel, Dur, Cirac & Zoller, PRL 81, 5932, 1998; memory).
+    out = qinfo.entanglement_swap(qinfo.werner_state(w1), qinfo.werner_state(w2))
+    np.testing.assert_allclose(out, qinfo.werner_state(w1 * w2), atol=1e-14)
+
+
+def test_swap_gate_error_depolarizes_the_output() -> None:
+    # Two-qubit depolarizing q before the measurement: Werner w1 w2 (1 - q) (common practice).
+    out = qinfo.entanglement_swap(qinfo.werner_state(0.9), qinfo.werner_state(0.8), bsm_depolarizing=0.1)
+    np.testing.assert_allclose(out, qinfo.werner_state(0.9 * 0.8 * 0.9), atol=1e-14)
+    with pytest.raises(ParameterError, match=r"^bsm_depolarizing = 2 is not allowed; expected a number in \[0, 1\]$"):
+        qinfo.entanglement_swap(qinfo.werner_state(0.9), qinfo.werner_state(0.8), bsm_depolarizing=2)
+
+
+def test_swap_broadcasts_batches() -> None:
+    a = random_density_matrices(6, 4, seed=42).reshape(2, 3, 4, 4)
+    out = qinfo.entanglement_swap(a, qinfo.bell_state("phi+"))
+    assert out.shape == (2, 3, 4, 4)
+    # swapping with a perfect Phi+ pair teleports qubit B1 onto C unchanged (Bennett et al., PRL 70, 1895, 1993)
+    np.testing.assert_allclose(out, a, atol=1e-14)
+
+
+def _bbpssw_recurrence(f1: float, f2: float) -> tuple[float, float]:
+    """Bennett et al., PRL 76, 722 (1996): output fidelity and success probability for Werner inputs."""
+    n = f1 * f2 + f1 * (1 - f2) / 3 + (1 - f1) * f2 / 3 + 5 * (1 - f1) * (1 - f2) / 9
+    return (f1 * f2 + (1 - f1) * (1 - f2) / 9) / n, n
+
+
+@pytest.mark.parametrize(("f1", "f2"), [(0.75, 0.75), (0.9, 0.6), (0.55, 0.99), (0.5, 0.5)])
+def test_bbpssw_recurrence(f1: float, f2: float) -> None:
+    # BBPSSW fidelity map F' = (F^2 + ((1-F)/3)^2) / (F^2 + 2F(1-F)/3 + 5((1-F)/3)^2) for equal
+    # inputs (Bennett et al., PRL 76, 722, 1996), in its two-input form (Dur & Briegel, Rep. Prog.
+    # Phys. 70, 1381, 2007; memory).
+    w1, w2 = (4 * f1 - 1) / 3, (4 * f2 - 1) / 3
+    p, out = qinfo.purify_bbpssw(qinfo.werner_state(w1), qinfo.werner_state(w2))
+    f_out, n = _bbpssw_recurrence(f1, f2)
+    assert p == pytest.approx(n, abs=1e-14)
+    assert qinfo.fidelity(out, qinfo.bell_state("phi+")) == pytest.approx(f_out, abs=1e-14)
+    assert_valid_state(out)
+
+
+def test_bbpssw_twirls_non_werner_inputs_by_fidelity() -> None:
+    # Twirling keeps only F (Bennett et al. 1996): any input with fidelity F behaves as Werner(F).
+    rho = random_density_matrices(5, 4, seed=43)
+    f = qinfo.fidelity(rho, qinfo.bell_state("phi+"))
+    p, out = qinfo.purify_bbpssw(rho, rho)
+    expected = np.array([_bbpssw_recurrence(x, x) for x in f])
+    np.testing.assert_allclose(p, expected[:, 1], atol=1e-13)
+    np.testing.assert_allclose(qinfo.fidelity(out, qinfo.bell_state("phi+")), expected[:, 0], atol=1e-13)
+
+
+def _bell_diagonal(coeffs: np.ndarray) -> np.ndarray:
+    """Coefficients on (Phi+, Psi-, Psi+, Phi-), the order used by Deutsch et al. (1996)."""
+    basis = np.stack([qinfo.bell_state(n) for n in ("phi+", "psi-", "psi+", "phi-")])
+    return np.einsum("...k,kij->...ij", coeffs, basis)
+
+
+def test_dejmps_recurrence_on_bell_diagonal_states() -> None:
+    # Deutsch et al., PRL 77, 2818 (1996): A' = (A^2 + B^2)/N, B' = 2CD/N, C' = (C^2 + D^2)/N,
+    # D' = 2AB/N, N = (A + B)^2 + (C + D)^2 (memory of the paper's Eq. for identical pairs).
+    coeffs = np.random.default_rng(44).dirichlet(np.ones(4) * 2, size=50)
+    p, out = qinfo.purify_dejmps(_bell_diagonal(coeffs), _bell_diagonal(coeffs))
+    a, b, c, d = coeffs.T
+    n = (a + b) ** 2 + (c + d) ** 2
+    expected = np.stack([(a**2 + b**2) / n, 2 * c * d / n, (c**2 + d**2) / n, 2 * a * b / n], axis=-1)
+    np.testing.assert_allclose(p, n, atol=1e-14)
+    np.testing.assert_allclose(out, _bell_diagonal(expected), atol=1e-14)
+
+
+def test_dejmps_beats_bbpssw_on_werner_pairs() -> None:
+    # DEJMPS reaches a higher fidelity than BBPSSW per round from the same Werner pairs
+    # (Deutsch et al. 1996; Dur & Briegel 2007; memory).
+    rho = qinfo.werner_state(0.6)
+    phi = qinfo.bell_state("phi+")
+    _, out_d = qinfo.purify_dejmps(rho, rho)
+    _, out_b = qinfo.purify_bbpssw(rho, rho)
+    assert qinfo.fidelity(out_d, phi) > qinfo.fidelity(out_b, phi) > qinfo.fidelity(rho, phi)
+
+
+def test_purification_of_random_states_is_valid() -> None:
+    a = random_density_matrices(20, 4, seed=45)
+    b = random_density_matrices(20, 4, seed=46)
+    for protocol in (qinfo.purify_bbpssw, qinfo.purify_dejmps):
+        p, out = protocol(a, b)
+        assert_probability(p)
+        assert_valid_state(out, atol=1e-12)
