@@ -1,0 +1,88 @@
+"""``netsim check``: summary, planning warnings and one-line errors."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from netsim.cli import main
+
+CHAIN = Path(__file__).resolve().parent.parent / "scenarios" / "chain3.toml"
+
+LONG_LINK = """
+[network]
+name = "Kettleby long haul"
+
+[[sites]]
+name = "Kettleby Lab"
+role = "user"
+
+[[sites]]
+name = "Lowen Lab"
+role = "user"
+
+[[links]]
+ends = ["Kettleby Lab", "Lowen Lab"]
+length_km = {length}
+scheme = "two_photon"
+dark_count_probability = 1e-5
+
+[[demands]]
+users = ["Kettleby Lab", "Lowen Lab"]
+min_fidelity = {min_fidelity}
+"""
+
+
+def write(tmp_path: Path, length: float = 10.0, min_fidelity: float = 0.5) -> Path:
+    path = tmp_path / "kettleby.toml"
+    path.write_text(LONG_LINK.format(length=length, min_fidelity=min_fidelity))
+    return path
+
+
+def test_summary_of_a_bundled_scenario(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["check", str(CHAIN)]) == 0
+    out = capsys.readouterr().out
+    assert "valid scenario 'Chain of three'" in out
+    assert "sites: 3 (2 user, 1 repeater, 0 switch)" in out
+    assert "links: 2 (22 km of fibre)" in out
+    assert "demands: 1" in out
+    assert "warnings: none" in out
+
+
+def test_a_link_beyond_its_scheme_is_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """300 km at 0.25 dB/km is 76 dB: two-photon heralding gives far below 1e-3 pairs/s."""
+    path = write(tmp_path, length=300.0)
+    assert main(["check", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "links[0] (Kettleby Lab-Lowen Lab)" in out
+    assert "below 0.001 pairs/s" in out and "two_photon heralding" in out
+    assert "dark counts" in out  # at this loss dark counts swamp the true heralds
+    assert main(["check", "--strict", str(path)]) == 1
+
+
+def test_route_fidelity_below_min_fidelity_is_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = write(tmp_path, length=150.0, min_fidelity=0.999)
+    main(["check", str(path)])
+    assert "below min_fidelity 0.999" in capsys.readouterr().out
+
+
+def test_json_output(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["check", "--format", "json", str(write(tmp_path))]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["valid"] is True and data["sites"] == 2 and data["users"] == 2 and data["warnings"] == []
+
+
+def test_invalid_file_exits_2_with_one_line_per_problem(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = write(tmp_path, length=-5.0)
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert "links[0].length_km" in err and "-5" in err
+    assert "Traceback" not in err
+    assert all(line.startswith("netsim check: error:") for line in err.strip().splitlines())
+
+
+def test_missing_file_exits_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["check", str(tmp_path / "absent.toml")]) == 2
+    assert "cannot read the file" in capsys.readouterr().err
