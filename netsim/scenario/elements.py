@@ -52,28 +52,32 @@ def parse_sites(value: Any, defaults: Mapping[str, Any],
     _default_coherence(defaults, problems)
     tables = table_list(value, "sites", problems)
     for i, table in tables:
-        path = f"sites[{i}]"
         count = len(problems)
-        own = check_table(table, path, SITE_FIELDS, problems)
-        for key in ("name", "role"):
-            if key not in table:
-                problems.append(_missing(path, key, SITE_FIELDS[key]))
-        name = own.get("name")
-        if name is not None and name in first_index:
-            problems.append(Problem(f"{path}.name", f"{name!r} is not allowed; it is already the "
-                                    f"name of sites[{first_index[name]}]; site names must be unique"))
-        elif name is not None:
-            first_index[name] = i
-            roles[name] = own.get("role", "")
+        own = check_table(table, f"sites[{i}]", SITE_FIELDS, problems)
+        _register(i, table, own, first_index, roles, problems)
         merged = {**defaults, **own}
-        invalid = {k for k in table if k not in own}
-        _site_rules(path, own, merged, invalid, problems)
+        _site_rules(f"sites[{i}]", own, merged, {k for k in table if k not in own}, problems)
         if len(problems) == count:
             sites.append(Site(**merged))
-    if isinstance(value, (list, tuple)) and len(tables) < 2 and len(value) == len(tables):
+    if len(tables) < 2 and len(value) == len(tables):
         problems.append(Problem("sites", f"{len(tables)} site(s) is not allowed; expected at "
                                          "least two [[sites]] tables"))
     return sites, roles
+
+
+def _register(i: int, table: Mapping[str, Any], own: Mapping[str, Any], first_index: dict[str, int],
+              roles: dict[str, str], problems: list[Problem]) -> None:
+    """Report a missing name or role or a duplicate name; record the role of a new name."""
+    for key in ("name", "role"):
+        if key not in table:
+            problems.append(_missing(f"sites[{i}]", key, SITE_FIELDS[key]))
+    name = own.get("name")
+    if name is not None and name in first_index:
+        problems.append(Problem(f"sites[{i}].name", f"{name!r} is not allowed; it is already the "
+                                f"name of sites[{first_index[name]}]; site names must be unique"))
+    elif name is not None:
+        first_index[name] = i
+        roles[name] = own.get("role", "")  # "": the role is missing or invalid (reported)
 
 
 def _site_rules(path: str, own: Mapping[str, Any], merged: Mapping[str, Any],

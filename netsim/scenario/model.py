@@ -65,6 +65,8 @@ class Site:
 
     ``role``: ``user`` (an end user holding memories), ``repeater`` (memories that swap) or
     ``switch`` (a passive optical switch: no memory; its links' losses add up along a light path).
+    ``memory_slots`` is >= 1 at users and repeaters (0 is allowed only at a switch) and
+    ``t2_s <= 2 * t1_s`` holds on every loaded site.
     """
 
     name: str
@@ -83,7 +85,11 @@ class Site:
 
 @dataclass(frozen=True)
 class Link:
-    """A fibre link between sites ``a`` and ``b`` (``ends = [a, b]`` in the file)."""
+    """A fibre link between sites ``a`` and ``b`` (``ends = [a, b]`` in the file).
+
+    ``index`` is the link's zero-based position among the file's ``[[links]]`` tables. At most
+    one link joins a pair of sites (parallel fibres are modelled with ``modes``).
+    """
 
     index: int
     a: str
@@ -106,7 +112,12 @@ class Link:
 
 @dataclass(frozen=True)
 class Demand:
-    """Two end users who want Bell pairs: ``pairs`` of them, or for ``duration_s`` seconds."""
+    """Two end users who want Bell pairs: ``pairs`` of them, or for ``duration_s`` seconds.
+
+    The loader fills in ``pairs = DEFAULT_DEMAND_PAIRS`` when the file gives neither, so exactly
+    one of ``pairs`` and ``duration_s`` is set on a loaded demand. ``index`` is the demand's
+    zero-based position among the ``[[demands]]`` tables.
+    """
 
     index: int
     a: str
@@ -122,7 +133,11 @@ class Demand:
 
 @dataclass(frozen=True)
 class Encoding:
-    """The ensemble {p_i, rho_i} used for direct qubit transmission, as Bloch vectors."""
+    """The ensemble {p_i, rho_i} used for direct qubit transmission, as Bloch vectors.
+
+    ``name`` is ``"binary"``, ``"bb84"`` or ``"custom"`` (a list of Bloch vectors in the file);
+    rho_i = (I + x X + y Y + z Z)/2; the probabilities sum to 1.
+    """
 
     name: str
     probabilities: tuple[float, ...]
