@@ -13,6 +13,7 @@ purification outcomes) travel at c / 1.468 along the hops (:func:`netsim.hardwar
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -24,7 +25,7 @@ from netsim.hardware.fibre import propagation_delay_s
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Site
 
-__all__ = ["HopSpec", "Chain", "synthetic_physics"]
+__all__ = ["HopSpec", "Chain", "line_chain", "synthetic_physics"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -149,3 +150,22 @@ def synthetic_physics(p: float, period_s: float, state: NDArray[np.complex128] |
                        attempt_period_s=period_s,
                        herald_delay_s=period_s if herald_s is None else herald_s,
                        state=np.asarray(state, dtype=complex), fidelity=fid)
+
+
+def line_chain(n_hops: int, p: float, period_s: float, state: NDArray[np.complex128] | None = None, *,
+               herald_s: float | None = None, length_km: float = 0.0, t1_s: float = math.inf,
+               t2_s: float = math.inf, bsm_success_probability: float = 1.0, gate_error: float = 0.0,
+               memory_slots: int | None = None, name: str = "line", index: int = 0,
+               site_prefix: str = "N") -> Chain:
+    """A chain of ``n_hops`` identical hops with identical memories (tests and benchmarks).
+
+    Sites are named ``f"{site_prefix}{k}"``; the ends are users, the inner sites repeaters.
+    """
+    sites = tuple(
+        Site(f"{site_prefix}{k}", "user" if k in (0, n_hops) else "repeater", t1_s=t1_s, t2_s=t2_s,
+             bsm_success_probability=bsm_success_probability, gate_error=gate_error,
+             memory_slots=memory_slots if memory_slots is not None else (1 if k in (0, n_hops) else 2))
+        for k in range(n_hops + 1))
+    physics = synthetic_physics(p, period_s, state, herald_s=herald_s, length_km=length_km)
+    hops = tuple(HopSpec(f"{sites[k].name}-{sites[k + 1].name}", physics) for k in range(n_hops))
+    return Chain(name, sites, hops, index=index)

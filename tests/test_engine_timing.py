@@ -1,0 +1,113 @@
+"""Timing of the engines against closed forms: link rates, swap-ASAP waiting times, failed swaps.
+
+Tolerances are 4.5 standard errors of the estimate (fixed seeds, so the tests are deterministic;
+4.5 sigma keeps a correct engine far from the edge).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from netsim.engine import DesOptions, StopRule, simulate_chain_vector, simulate_des
+from netsim.engine.chain import line_chain
+from netsim.engine.vector import cycle_timeline
+
+Z = 4.5
+
+
+def shchukin_expected_max(n: int, p: float) -> float:
+    """E[max of n iid Geometric(p) on {1, 2, ...}] = sum_k C(n,k) (-1)^(k+1) / (1 - (1-p)^k).
+
+    Shchukin, Schmidt & van Loock, Phys. Rev. A 100, 032322 (2019): mean waiting time of a
+    swap-as-soon-as-possible chain of n links kept once made, in attempt periods.
+    """
+    return sum(math.comb(n, k) * (-1) ** (k + 1) / (1.0 - (1.0 - p) ** k) for k in range(1, n + 1))
+
+
+def test_shchukin_two_link_closed_form() -> None:
+    # n = 2: (3 - 2p) / (p (2 - p)) (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019)
+    for p in (0.01, 0.3, 0.9):
+        assert shchukin_expected_max(2, p) == pytest.approx((3 - 2 * p) / (p * (2 - p)), rel=1e-12)
+
+
+@pytest.mark.parametrize("engine", ["vector", "des"])
+def test_one_link_rate_is_round_success_over_period(engine: str) -> None:
+    # One link: rate = p_round / T (common practice; the renewal-reward theorem). With a herald
+    # delay shorter than the period the next round still starts one period later.
+    p, period = 0.05, 1e-3
+    chain = line_chain(1, p, period, herald_s=0.4 * period, length_km=30.0)
+    pairs = 40_000 if engine == "vector" else 8_000
+    rng = np.random.default_rng(11)
+    if engine == "vector":
+        run = simulate_chain_vector(chain, StopRule(pairs=pairs), rng)
+    else:
+        run = simulate_des([chain], StopRule(pairs=pairs), [rng])[0][0]
+    rate = run.metrics.n / run.simulated_time_s
+    expected = p / period
+    # relative s.e. of n / t_n for geometric cycles: sqrt(1 - p) / sqrt(n)
+    assert rate == pytest.approx(expected, rel=Z * math.sqrt(1 - p) / math.sqrt(pairs))
+    assert run.hop_attempts[0] / pairs == pytest.approx(1 / p, rel=Z * math.sqrt(1 - p) / math.sqrt(pairs))
+
+
+@pytest.mark.parametrize("n", [2, 3, 4])
+def test_time_to_first_pair_matches_shchukin(n: int) -> None:
+    # Deterministic swaps, no cut-off, no classical delay, herald at the end of the round: the
+    # first end-to-end pair arrives after max_i K_i periods. Expected value: Shchukin, Schmidt &
+    # van Loock, PRA 100, 032322 (2019).
+    p, period, samples = 0.2, 1e-3, 200_000
+    chain = line_chain(n, p, period)
+    k = np.random.default_rng(5 + n).geometric(p, size=(samples, n)).astype(float)
+    first = cycle_timeline(chain, k, np.zeros_like(k))["delivered"]
+    expected = shchukin_expected_max(n, p) * period
+    se = first.std(ddof=1) / math.sqrt(samples)
+    assert abs(first.mean() - expected) < Z * se
+
+
+@pytest.mark.parametrize("n", [2, 3, 4])
+def test_event_engine_cycle_time_matches_shchukin(n: int) -> None:
+    # The simpy engine with sure swaps and zero message delays restarts every hop at the
+    # delivery, so every cycle is a fresh "first pair": mean cycle = Shchukin et al. (2019).
+    p, period, pairs = 0.2, 1e-3, 3_000
+    chain = line_chain(n, p, period)
+    (run,), _ = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(20 + n)])
+    mean_cycle = run.simulated_time_s / run.metrics.n
+    sd = math.sqrt(max(run.intervals_sum_sq_s / run.intervals_n - mean_cycle**2, 0.0))
+    expected = shchukin_expected_max(n, p) * period
+    assert abs(mean_cycle - expected) < Z * sd / math.sqrt(pairs)
+
+
+def test_failed_swaps_slow_delivery_by_the_success_probability() -> None:
+    # Two hops that always succeed in their first round (p = 1), one swap with success q: each
+    # try takes one period and succeeds with q, so the rate is q / T (geometric number of tries;
+    # common practice). A failed swap frees both pairs.
+    q, period, pairs = 0.5, 1e-3, 6_000
+    chain = line_chain(2, 1.0, period, bsm_success_probability=q)
+    (run,), _ = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(3)])
+    rate = run.metrics.n / run.simulated_time_s
+    assert rate == pytest.approx(q / period, rel=Z * math.sqrt(1 - q) / math.sqrt(pairs))
+    assert run.swap_failures[1] / (run.swap_failures[1] + pairs) == pytest.approx(1 - q, abs=Z * 0.5 / math.sqrt(2 * pairs))
+
+
+def test_classical_delays_add_to_delivery() -> None:
+    # Three hops of 20 km, p = 1: every hop heralds after one period T; the swap outcomes of
+    # the inner sites must still reach the far user: 40 km at c / 1.468 (common practice,
+    # 4.9 us/km). Delivery = T + 40 km * 1.468 / c.
+    period = 1e-3
+    chain = line_chain(3, 1.0, period, length_km=20.0)
+    run = simulate_chain_vector(chain, StopRule(pairs=10), np.random.default_rng(0))
+    expected = period + 40.0 * 1.468 / 299_792.458
+    assert run.metrics.first_delivery_s == pytest.approx(expected, rel=1e-12)
+    (des,), _ = simulate_des([chain], StopRule(pairs=10), [np.random.default_rng(0)])
+    assert des.metrics.first_delivery_s == pytest.approx(expected, rel=1e-12)
+
+
+def test_time_stop_rule_reports_the_requested_time() -> None:
+    chain = line_chain(2, 0.1, 1e-3)
+    run = simulate_chain_vector(chain, StopRule(time_s=2.0), np.random.default_rng(1))
+    assert run.simulated_time_s == 2.0
+    (des,), _ = simulate_des([chain], StopRule(time_s=0.5), [np.random.default_rng(1)], DesOptions())
+    assert des.simulated_time_s == 0.5
+    assert des.metrics.n > 0
