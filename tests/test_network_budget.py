@@ -116,3 +116,27 @@ def test_every_bundled_scenario_loads_and_budgets(path: Path) -> None:
     for table in result.tables():
         for fmt in ("table", "csv", "md", "tex", "json"):
             assert render(table, fmt)
+
+
+def test_route_bound_counts_a_switched_light_path_as_one_channel() -> None:
+    """Quillby Lab -(4 km)- Orrin Switch -(6 km)- Pell Relay: one channel of 4 dB (1 + 0.5 + 1.5 + 1),
+    whose repeaterless bound -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017) is below
+    that of either fibre alone."""
+    scenario = load_data({
+        "network": {"name": "Quillby switched"},
+        "sites": [{"name": "Quillby Lab", "role": "user"}, {"name": "Orrin Switch", "role": "switch"},
+                  {"name": "Pell Relay", "role": "repeater"}, {"name": "Rook Lab", "role": "user"}],
+        "links": [{"ends": ["Quillby Lab", "Orrin Switch"], "length_km": 4.0, "extra_loss_db": 0.5},
+                  {"ends": ["Orrin Switch", "Pell Relay"], "length_km": 6.0},
+                  {"ends": ["Pell Relay", "Rook Lab"], "length_km": 2.0}],
+        "demands": [{"users": ["Quillby Lab", "Rook Lab"]}],
+    })
+    graph = build_graph(scenario)
+    hops = route_hops(graph, find_route(graph, "Quillby Lab", "Rook Lab"))
+    first = hops[0].physics
+    assert first.loss_db == pytest.approx(4.0)
+    expected = -math.log2(1 - 10 ** -0.4) * first.modes / first.attempt_period_s
+    row = budget(scenario).demands[0]
+    assert row["hops"] == 2
+    assert row["route_bound_bits_per_s"] == pytest.approx(expected, rel=1e-12)
+    assert row["route_bound_bits_per_s"] < graph.edges["Quillby Lab", "Orrin Switch"]["plob_bits_per_s"]

@@ -24,7 +24,7 @@ from netsim.network.bounds import (
     single_path_capacity,
 )
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
-from netsim.network.graph import build_graph
+from netsim.network.graph import build_graph, plob_bits_per_use
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.report.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
@@ -39,7 +39,7 @@ LINK_COLUMNS: tuple[Column, ...] = (
     Column("success_probability", "success per mode"), Column("pair_rate_per_s", "pair rate (1/s)"),
     Column("fidelity", "fidelity"), Column("eof_ebits", "EoF (ebit)"),
     Column("plob_bits_per_use", "PLOB (bit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
-    Column("plob_bits_per_s", "PLOB at mode rate (bit/s)"),
+    Column("plob_bits_per_s", "PLOB at modes/period (bit/s)"),
     Column("holevo_bits", "Holevo chi (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
 )
 
@@ -65,9 +65,9 @@ DEMAND_NOTES = (
     ("Expected rate and fidelity: swap as soon as possible, unlimited memory time, memory decay "
     "ignored, hop pairs twirled to Werner states (waiting time after Shchukin, Schmidt & van "
     "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities)."),
-    ("Route bound: weakest link on the route; single-path: widest path; multipath: minimum cut "
-    "(Pirandola, Commun. Phys. 2, 51, 2019). Bounds use link PLOB capacities per second; other "
-    "end users never relay."),
+    ("Route bound: weakest hop of the route (a light path through passive switches counts as one "
+    "channel); single-path: widest path; multipath: minimum cut over link PLOB capacities per "
+    "second (Pirandola, Commun. Phys. 2, 51, 2019); other end users never relay."),
 )
 
 
@@ -173,6 +173,12 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
     return row, warning
 
 
+def _hop_bound_bits_per_s(hop: Hop) -> float:
+    """PLOB of a hop's whole light path (switches are passive) at its mode rate."""
+    physics = hop.physics
+    return plob_bits_per_use(physics.transmissivity) * physics.modes / physics.attempt_period_s
+
+
 def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[str, Any]:
     from netsim.network.channel import werner_eof_ebits
 
@@ -187,5 +193,5 @@ def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[s
         "length_km": sum(e["length_km"] for e in edges), "loss_db": sum(e["loss_db"] for e in edges),
         "expected_rate_per_s": bsm / wait if wait > 0 and math.isfinite(wait) else 0.0,
         "expected_fidelity": fidelity, "expected_eof_ebits": werner_eof_ebits(fidelity),
-        "route_bound_bits_per_s": min(e["plob_bits_per_s"] for e in edges),
+        "route_bound_bits_per_s": min(_hop_bound_bits_per_s(h) for h in hops),
     }
