@@ -54,7 +54,7 @@ PURIFICATION_PROTOCOLS: tuple[str, ...] = ("none", "bbpssw", "dejmps")
 #: Swapping orders the engine offers (a plug-in family; add a name here when adding a plug-in).
 SWAP_POLICIES: tuple[str, ...] = ("asap",)
 #: Memory-slot scheduling between demands (a plug-in family; add names with new plug-ins).
-SCHEDULING_POLICIES: tuple[str, ...] = ("fair",)
+SCHEDULING_POLICIES: tuple[str, ...] = ("fair", "demand_order")
 #: Pairs asked for by a demand that gives neither ``pairs`` nor ``duration_s``.
 DEFAULT_DEMAND_PAIRS: int = 100
 
