@@ -66,7 +66,7 @@ def test_single_photon_success_and_fidelity_exact() -> None:
 @pytest.mark.parametrize("alpha", [0.02, 0.1, 0.3])
 def test_single_photon_matches_published_approximation_at_low_efficiency(alpha: float) -> None:
     """p ~ 2 alpha eta and F ~ 1 - alpha when alpha eta << 1 (Cabrillo et al., PRA 59, 1025, 1999;
-    Humphreys et al., Nature 558, 268, 2018 (memory)). 100 km at 0.2 dB/km: eta_arm = 1e-1... 1e-2."""
+    Humphreys et al., Nature 558, 268, 2018 (memory)). 100 km at 0.2 dB/km: 10 dB per arm, eta = 0.1."""
     physics = link_physics(link(length_km=100.0, bright_state_population=alpha), *sites())
     eta = 10 ** (-1.0)  # 50 km per arm at 0.2 dB/km = 10 dB
     assert physics.success_probability == pytest.approx(2 * alpha * eta, rel=alpha * eta)

@@ -17,6 +17,7 @@ from typing import Any
 import networkx as nx
 
 from netsim.errors import ParameterError
+from netsim.hardware.fibre import loss_db
 from netsim.network.bounds import (
     chain_fidelity,
     expected_wait_s,
@@ -64,7 +65,8 @@ LINK_NOTES = (
 DEMAND_NOTES = (
     ("Expected rate and fidelity: swap as soon as possible, unlimited memory time, memory decay "
     "ignored, hop pairs twirled to Werner states (waiting time after Shchukin, Schmidt & van "
-    "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities)."),
+    "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities); the time "
+    "to signal swap outcomes is not counted."),
     ("Route bound: weakest hop of the route (a light path through passive switches counts as one "
     "channel); single-path: widest path; multipath: minimum cut over link PLOB capacities per "
     "second (Pirandola, Commun. Phys. 2, 51, 2019); other end users never relay."),
@@ -129,7 +131,7 @@ def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, 
     eta = edge["transmissivity"]
     row: dict[str, Any] = {
         "link": link.name, "scheme": link.scheme, "length_km": link.length_km,
-        "fibre_loss_db": link.attenuation_db_per_km * link.length_km,
+        "fibre_loss_db": loss_db(link.length_km, link.attenuation_db_per_km),
         "extra_loss_db": link.extra_loss_db, "loss_db": edge["loss_db"], "transmissivity": eta,
         "modes": link.modes, "plob_bits_per_use": edge["plob_bits_per_use"],
         "mode_rate_per_s": edge["mode_rate_per_s"], "plob_bits_per_s": edge["plob_bits_per_s"],
