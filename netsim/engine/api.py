@@ -68,14 +68,35 @@ class Component:
     chains: list[Chain]
 
 
-def _components(chains: list[Chain]) -> list[list[Chain]]:
-    groups: list[tuple[set[str], list[Chain]]] = []
-    for c in chains:
-        names = set(c.site_names)
-        joined = [g for g in groups if g[0] & names]
-        merged = (names.union(*[g[0] for g in joined]), [x for g in joined for x in g[1]] + [c])
-        groups = [g for g in groups if not any(g is j for j in joined)] + [merged]
-    return [sorted(g[1], key=lambda c: c.index) for g in groups]
+def _need(chain: Chain, per_end: int) -> dict[str, int]:
+    need: dict[str, int] = {}
+    for i in range(chain.n_hops):
+        for s in (chain.sites[i], chain.sites[i + 1]):
+            need[s.name] = need.get(s.name, 0) + per_end
+    return need
+
+
+def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
+    """Group demands that contend: they share a site whose slots cannot hold all their
+    reservations at once. Demands on sites with room for everyone run independently."""
+    needs = [_need(c, per_end) for c in chains]
+    capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
+    parent = list(range(len(chains)))
+
+    def root(k: int) -> int:
+        while parent[k] != k:
+            k = parent[k]
+        return k
+
+    for site, slots in capacity.items():
+        users = [k for k, need in enumerate(needs) if site in need]
+        if sum(needs[k][site] for k in users) > slots:
+            for k in users[1:]:
+                parent[root(k)] = root(users[0])
+    groups: dict[int, list[Chain]] = {}
+    for k, c in enumerate(chains):
+        groups.setdefault(root(k), []).append(c)
+    return [sorted(g, key=lambda c: c.index) for g in groups.values()]
 
 
 def _rule_for(chain: Chain, rule: StopRule | None) -> StopRule:
@@ -96,10 +117,10 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
     options = options or DesOptions()
     streams = np.random.SeedSequence(seed).spawn(max((c.index for c in chains), default=0) + 1)
     runs: dict[int, ChainRun] = {}
-    for group in _components(chains):
+    rounds = options.purification_rounds if options.purification != "none" else 0
+    for group in _components(chains, rounds + 1):
         rngs = [np.random.default_rng(streams[c.index]) for c in group]
         rules = [_rule_for(c, rule) for c in group]
-        rounds = options.purification_rounds if options.purification != "none" else 0
         if len(group) == 1 and vector_applicable(group[0], options.cutoff_s, rounds) and _slots_ok(group[0]):
             runs[id(group[0])] = simulate_chain_vector(group[0], rules[0], rngs[0])
             continue
@@ -110,10 +131,7 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
 
 def _slots_ok(chain: Chain) -> bool:
     """A lone chain fits the vectorised engine only if its path reservation fits the slots."""
-    need: dict[str, int] = {}
-    for i in range(chain.n_hops):
-        for s in (chain.sites[i], chain.sites[i + 1]):
-            need[s.name] = need.get(s.name, 0) + 1
+    need = _need(chain, 1)
     return all(s.memory_slots >= need[s.name] for s in chain.sites)
 
 
@@ -187,10 +205,7 @@ def _site_rows(chains: list[Chain], runs: list[ChainRun]) -> list[dict[str, Any]
 def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
     index = {s.name: k for k, s in enumerate(scenario.sites)}
     for c in chains:
-        need: dict[str, int] = {}
-        for i in range(c.n_hops):
-            for s in (c.sites[i], c.sites[i + 1]):
-                need[s.name] = need.get(s.name, 0) + rounds + 1
+        need = _need(c, rounds + 1)
         for s in c.sites:
             if s.memory_slots < need[s.name]:
                 raise ParameterError(f"sites[{index[s.name]}].memory_slots", s.memory_slots,
