@@ -18,6 +18,7 @@ name = "Kettleby long haul"
 [[sites]]
 name = "Kettleby Lab"
 role = "user"
+t2_s = {t2}
 
 [[sites]]
 name = "Lowen Lab"
@@ -26,7 +27,8 @@ role = "user"
 [[links]]
 ends = ["Kettleby Lab", "Lowen Lab"]
 length_km = {length}
-scheme = "two_photon"
+scheme = "{scheme}"
+bright_state_population = 0.6
 dark_count_probability = 1e-5
 
 [[demands]]
@@ -35,9 +37,10 @@ min_fidelity = {min_fidelity}
 """
 
 
-def write(tmp_path: Path, length: float = 10.0, min_fidelity: float = 0.5) -> Path:
+def write(tmp_path: Path, length: float = 10.0, min_fidelity: float = 0.5, t2: float = 1.0,
+          scheme: str = "two_photon") -> Path:
     path = tmp_path / "kettleby.toml"
-    path.write_text(LONG_LINK.format(length=length, min_fidelity=min_fidelity))
+    path.write_text(LONG_LINK.format(length=length, min_fidelity=min_fidelity, t2=t2, scheme=scheme))
     return path
 
 
@@ -66,6 +69,20 @@ def test_route_fidelity_below_min_fidelity_is_flagged(tmp_path: Path, capsys: py
     path = write(tmp_path, length=150.0, min_fidelity=0.999)
     main(["check", str(path)])
     assert "below min_fidelity 0.999" in capsys.readouterr().out
+
+
+def test_memory_shorter_than_the_wait_is_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """100 km two-photon: pairs take ~1 s to herald, far longer than t2_s = 1 ms."""
+    main(["check", str(write(tmp_path, length=100.0, t2=1e-3))])
+    out = capsys.readouterr().out
+    assert "longer than t2_s = 0.001 s at Kettleby Lab" in out
+
+
+def test_unentangled_heralds_are_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """Single-photon heralding with alpha = 0.6: F ~ 1 - alpha = 0.4 (Humphreys et al., Nature 558,
+    268, 2018 (memory)), no better than a classical mixture."""
+    main(["check", str(write(tmp_path, scheme="single_photon"))])
+    assert "is not above 1/2" in capsys.readouterr().out
 
 
 def test_json_output(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -45,7 +45,7 @@ def audit(scenario: Scenario, result: Budget | None = None) -> list[str]:
     result = result if result is not None else budget(scenario)
     graph = build_graph(scenario)
     warnings = _link_warnings(scenario, graph) + _path_warnings(scenario, graph)
-    warnings += _isolated_sites(scenario, graph)
+    warnings += _isolated_sites(scenario, graph) + _memory_warnings(scenario, result)
     return warnings + list(result.warnings)
 
 
@@ -64,6 +64,9 @@ def _physics_warnings(label: str, scheme: str, physics: Any) -> list[str]:
     if physics.rate_per_s < MIN_RATE_PER_S:
         out.append(f"{label}: {physics.rate_per_s:.3g} pairs/s at {physics.loss_db:.3g} dB is below "
                    f"{MIN_RATE_PER_S:g} pairs/s; the link is far beyond what {scheme} heralding can bridge")
+    if physics.fidelity <= 0.5:
+        out.append(f"{label}: heralded fidelity {physics.fidelity:.3g} is not above 1/2; the pairs "
+                   "carry no distillable entanglement of the Werner kind")
     if physics.dark_count_fraction > MAX_DARK_COUNT_FRACTION:
         out.append(f"{label}: {physics.dark_count_fraction:.2%} of heralds come from dark counts "
                    f"(more than {MAX_DARK_COUNT_FRACTION:.0%}); fidelity {physics.fidelity:.3g}")
@@ -104,3 +107,19 @@ def _mixed_settings(label: str, links: tuple[Link, ...]) -> list[str]:
 def _isolated_sites(scenario: Scenario, graph: nx.Graph) -> list[str]:
     return [f"sites[{i}] ({s.name}): no link reaches this site"
             for i, s in enumerate(scenario.sites) if graph.degree(s.name) == 0]
+
+
+def _memory_warnings(scenario: Scenario, result: Budget) -> list[str]:
+    """Demands whose hops take longer to be ready than the memories on the route stay coherent."""
+    out = []
+    for demand, row in zip(scenario.demands, result.demands):
+        if not row.get("route"):
+            continue
+        memories = [scenario.site(n) for n in row["route_sites"]]
+        shortest = min((s for s in memories if s.role != "switch"), key=lambda s: s.t2_s)
+        if row["expected_wait_s"] > shortest.t2_s:
+            out.append(f"demands[{demand.index}] ({demand.name}): all hops are ready after "
+                       f"{row['expected_wait_s']:.3g} s on average, longer than t2_s = "
+                       f"{shortest.t2_s:g} s at {shortest.name}; memory decay (ignored by the "
+                       "budget) will dominate")
+    return out

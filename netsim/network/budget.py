@@ -47,7 +47,8 @@ LINK_COLUMNS: tuple[Column, ...] = (
 DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("demand", "demand"), Column("route", "route"), Column("hops", "hops"),
     Column("length_km", "length (km)"), Column("loss_db", "route loss (dB)"),
-    Column("expected_rate_per_s", "expected rate (1/s)"), Column("expected_fidelity", "expected fidelity"),
+    Column("expected_wait_s", "all hops ready (s)"), Column("expected_rate_per_s", "expected rate (1/s)"),
+    Column("expected_fidelity", "expected fidelity"),
     Column("expected_eof_ebits", "expected EoF (ebit)"), Column("min_fidelity", "min fidelity"),
     Column("route_bound_bits_per_s", "route bound (bit/s)"),
     Column("single_path_bits_per_s", "single-path bound (bit/s)"),
@@ -191,8 +192,9 @@ def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[s
     fidelity = chain_fidelity([h.physics.fidelity for h in hops], [s.gate_error for s in inner])
     edges = [graph.edges[u, v] for u, v in itertools.pairwise(route)]
     return {
-        "route": " > ".join(route), "hops": len(hops),
+        "route": " > ".join(route), "route_sites": list(route), "hops": len(hops),
         "length_km": sum(e["length_km"] for e in edges), "loss_db": sum(e["loss_db"] for e in edges),
+        "expected_wait_s": wait,
         "expected_rate_per_s": bsm / wait if wait > 0 and math.isfinite(wait) else 0.0,
         "expected_fidelity": fidelity, "expected_eof_ebits": werner_eof_ebits(fidelity),
         "route_bound_bits_per_s": min(_hop_bound_bits_per_s(h) for h in hops),
