@@ -8,7 +8,15 @@ import numpy as np
 import pytest
 
 from netsim import qinfo
-from netsim.engine import Chain, DesOptions, HopSpec, StopRule, send_ensemble, simulate_chain_vector, simulate_des
+from netsim.engine import (
+    Chain,
+    DesOptions,
+    HopSpec,
+    StopRule,
+    send_ensemble,
+    simulate_chain_vector,
+    simulate_des,
+)
 from netsim.engine.chain import line_chain, synthetic_physics
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Encoding, Site
@@ -123,7 +131,7 @@ def _ensemble_chain(etas: tuple[float, ...], prep: float, t1: float, t2: float, 
     sites = tuple(Site(f"Pell{k}", "user" if k in (0, n) else "repeater", t1_s=t1, t2_s=t2,
                        memory_efficiency=eff, attempt_prep_time_s=prep) for k in range(n + 1))
     hops = tuple(HopSpec(f"Pell{k}-Pell{k + 1}", _physics(eta, 1e-4)) for k, eta in enumerate(etas))
-    return Chain("Pell0-Pell%d" % n, sites, hops)
+    return Chain(f"Pell0-Pell{n}", sites, hops)
 
 
 def test_ensemble_with_fixed_waits_equals_composed_channel() -> None:

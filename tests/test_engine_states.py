@@ -8,7 +8,14 @@ import numpy as np
 import pytest
 
 from netsim import qinfo
-from netsim.engine import DesOptions, History, StopRule, pair_states, simulate_chain_vector, simulate_des
+from netsim.engine import (
+    DesOptions,
+    History,
+    StopRule,
+    pair_states,
+    simulate_chain_vector,
+    simulate_des,
+)
 from netsim.engine.chain import Chain, HopSpec, line_chain, synthetic_physics
 from netsim.engine.metrics import phi_plus_fidelity
 from netsim.scenario.model import Site

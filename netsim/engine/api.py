@@ -25,7 +25,7 @@ from netsim.engine.vector import simulate_chain_vector, vector_applicable
 from netsim.errors import ParameterError
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
 
-__all__ = ["run", "simulate", "chains_from_scenario", "stop_rule", "demand_row", "Component"]
+__all__ = ["Component", "chains_from_scenario", "demand_row", "run", "simulate", "stop_rule"]
 
 
 def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:

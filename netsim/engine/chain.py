@@ -25,7 +25,7 @@ from netsim.hardware.fibre import propagation_delay_s
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Site
 
-__all__ = ["HopSpec", "Chain", "line_chain", "synthetic_physics"]
+__all__ = ["Chain", "HopSpec", "line_chain", "synthetic_physics"]
 
 
 @dataclass(frozen=True, eq=False)

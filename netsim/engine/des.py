@@ -46,7 +46,13 @@ from netsim import qinfo
 from netsim.engine.chain import Chain
 from netsim.engine.history import History, pair_states
 from netsim.engine.metrics import ChainRun, StopRule
-from netsim.engine.policies import Request, SchedulingPolicy, SwapPolicy, scheduling_policy, swap_policy
+from netsim.engine.policies import (
+    Request,
+    SchedulingPolicy,
+    SwapPolicy,
+    scheduling_policy,
+    swap_policy,
+)
 
 __all__ = ["DesOptions", "SlotBroker", "simulate_des"]
 
@@ -180,7 +186,7 @@ class _Des:
     def hop(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, None]:
         """Generate (and purify) until hop ``i`` hands a pair to the chain."""
         lane.attempting[i] = True
-        stack: dict[int, _Pair] = {}
+        stack: dict[int, tuple[_Pair, NDArray[np.complex128]]] = {}
         pair: _Pair | None = None
         while pair is None:
             raw = yield from self.attempt(lane, i)

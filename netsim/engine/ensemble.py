@@ -30,7 +30,7 @@ from netsim.errors import ParameterError
 from netsim.hardware.fibre import qubit_channel
 from netsim.scenario.model import Encoding
 
-__all__ = ["EnsembleResult", "encoding_states", "send_ensemble", "WAIT_MODELS"]
+__all__ = ["WAIT_MODELS", "EnsembleResult", "encoding_states", "send_ensemble"]
 
 WAIT_MODELS = ("uniform", "fixed")
 
@@ -54,8 +54,10 @@ class EnsembleResult:
 def encoding_states(encoding: Encoding) -> tuple[NDArray[np.float64], NDArray[np.complex128]]:
     """Probabilities (n,) and density matrices (n, 2, 2) from Bloch vectors: (I + r.sigma)/2."""
     r = np.asarray(encoding.bloch_vectors, dtype=float)
-    rho = 0.5 * np.stack([[1 + r[:, 2], r[:, 0] - 1j * r[:, 1]], [r[:, 0] + 1j * r[:, 1], 1 - r[:, 2]]])
-    return np.asarray(encoding.probabilities, dtype=float), np.moveaxis(rho, (0, 1), (-2, -1))
+    rho = np.empty((len(r), 2, 2), dtype=complex)
+    rho[:, 0, 0], rho[:, 1, 1] = (1 + r[:, 2]) / 2, (1 - r[:, 2]) / 2
+    rho[:, 0, 1], rho[:, 1, 0] = (r[:, 0] - 1j * r[:, 1]) / 2, (r[:, 0] + 1j * r[:, 1]) / 2
+    return np.asarray(encoding.probabilities, dtype=float), rho
 
 
 def _fibre(rho: NDArray[np.complex128], eta: float) -> tuple[NDArray[np.complex128], float]:

@@ -32,7 +32,7 @@ from numpy.typing import NDArray
 from netsim import qinfo
 from netsim.engine.chain import Chain
 
-__all__ = ["History", "pair_states", "concat_histories"]
+__all__ = ["History", "concat_histories", "pair_states"]
 
 
 @dataclass

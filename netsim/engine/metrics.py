@@ -15,7 +15,7 @@ from numpy.typing import NDArray
 
 from netsim import qinfo
 
-__all__ = ["PairMetrics", "ChainRun", "StopRule", "Z95", "phi_plus_fidelity"]
+__all__ = ["Z95", "ChainRun", "PairMetrics", "StopRule", "phi_plus_fidelity"]
 
 #: Two-sided 95 % quantile of the standard normal distribution (common practice).
 Z95 = 1.959963984540054

@@ -29,8 +29,17 @@ from typing import Protocol
 
 from netsim.errors import ParameterError
 
-__all__ = ["Request", "SchedulingPolicy", "SwapPolicy", "SCHEDULING", "SWAPPING",
-           "scheduling_policy", "swap_policy", "register_scheduling", "register_swap"]
+__all__ = [
+    "SCHEDULING",
+    "SWAPPING",
+    "Request",
+    "SchedulingPolicy",
+    "SwapPolicy",
+    "register_scheduling",
+    "register_swap",
+    "scheduling_policy",
+    "swap_policy",
+]
 
 
 @dataclass
@@ -46,7 +55,8 @@ class Request:
 class SchedulingPolicy(Protocol):
     """Orders waiting requests; the broker grants them in this order when their slots are free."""
 
-    name: str
+    @property
+    def name(self) -> str: ...
 
     def order(self, requests: list[Request]) -> list[Request]: ...
 
@@ -54,7 +64,8 @@ class SchedulingPolicy(Protocol):
 class SwapPolicy(Protocol):
     """Delay (s) an inner site waits, holding both qubits, before its Bell measurement."""
 
-    name: str
+    @property
+    def name(self) -> str: ...
 
     def swap_delay_s(self, site_index: int, n_hops: int, now_s: float) -> float: ...
 

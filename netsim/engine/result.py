@@ -31,7 +31,7 @@ from typing import Any
 
 from netsim.report.table import Column, Table
 
-__all__ = ["RunResult", "DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS"]
+__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS", "RunResult"]
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("demand", "demand"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),

@@ -29,7 +29,7 @@ from netsim.engine.chain import Chain
 from netsim.engine.history import History, pair_states
 from netsim.engine.metrics import ChainRun, StopRule
 
-__all__ = ["simulate_chain_vector", "cycle_timeline", "vector_applicable"]
+__all__ = ["cycle_timeline", "simulate_chain_vector", "vector_applicable"]
 
 CHUNK = 20_000
 
