@@ -159,3 +159,35 @@ def test_chain_fidelity_matches_a_qutip_swap(f1: float, f2: float, gate: float) 
 def test_chain_fidelity_of_one_hop_is_its_own() -> None:
     assert chain_fidelity([0.87]) == pytest.approx(0.87)
     assert np.isclose(chain_fidelity([1.0, 1.0, 1.0]), 1.0)
+
+
+def _random_network(seed: int, n: int) -> nx.Graph:
+    rng = np.random.default_rng(seed)
+    g = nx.gnp_random_graph(n, 0.5, seed=seed)
+    for u, v in g.edges:
+        c = float(rng.uniform(0.1, 10.0))
+        g.edges[u, v].update(plob_bits_per_s=c, plob_cut_bits_per_s=c)
+    return g
+
+
+@pytest.mark.parametrize("seed", range(12))
+def test_bounds_against_brute_force(seed: int) -> None:
+    """Widest path against the maximum over every simple path of its weakest edge, and the minimum
+    cut against the minimum over every vertex bipartition (definitions in Pirandola, Commun. Phys. 2,
+    51, 2019); small random graphs with fixed seeds."""
+    g = _random_network(seed, 6)
+    a, b = 0, 5
+    if not nx.has_path(g, a, b):
+        assert single_path_capacity(g, a, b) == multipath_capacity(g, a, b) == 0.0
+        return
+    widest = max(min(g.edges[u, v]["plob_bits_per_s"] for u, v in itertools.pairwise(p))
+                 for p in nx.all_simple_paths(g, a, b))
+    others = [n for n in g if n not in (a, b)]
+    cuts = []
+    for k in range(len(others) + 1):
+        for side in itertools.combinations(others, k):
+            s = {a, *side}
+            cuts.append(sum(d["plob_cut_bits_per_s"] for u, v, d in g.edges(data=True) if (u in s) != (v in s)))
+    assert single_path_capacity(g, a, b) == pytest.approx(widest, rel=1e-12)
+    assert multipath_capacity(g, a, b) == pytest.approx(min(cuts), rel=1e-9)
+    assert single_path_capacity(g, a, b) <= multipath_capacity(g, a, b) + 1e-12
