@@ -235,3 +235,60 @@ def test_every_scheme_gives_a_valid_state_and_probabilities(
                         physics.fidelity, physics.dark_count_fraction])
     assert physics.fidelity == pytest.approx(float(np.trace(PHI_PLUS @ physics.state).real), abs=1e-12)
     assert physics.attempt_period_s > 0
+
+
+def _single_photon_with_qutip(alpha: float, pa: float, pb: float) -> tuple[float, float]:
+    """Single-photon heralding computed with QuTiP from first principles (independent reference).
+
+    Spins a, b and photon modes a, b (Fock space up to 2 photons). Each memory emits
+    sqrt(1 - alpha)|0>|vac> + sqrt(alpha)|1>|1 photon>; each photon meets a pure-loss channel of
+    transmissivity P_x; a 50:50 beam splitter mixes the modes; a herald is a click (threshold
+    detector) in exactly one output port. Returns (herald probability over both ports, fidelity of
+    the heralded spin pair to the Psi state of the clicked port, i.e. Phi+ after correction).
+    """
+    qutip = pytest.importorskip("qutip")
+    n = 3
+    spin0, spin1 = qutip.basis(2, 0), qutip.basis(2, 1)
+    vac, one = qutip.basis(n, 0), qutip.basis(n, 1)
+    emitter = math.sqrt(1 - alpha) * qutip.tensor(spin0, vac) + math.sqrt(alpha) * qutip.tensor(spin1, one)
+    psi = qutip.tensor(emitter, emitter).permute([0, 2, 1, 3])       # order: spin a, spin b, mode a, mode b
+    rho = qutip.ket2dm(psi)
+    eye2, eye_n = qutip.qeye(2), qutip.qeye(n)
+
+    def loss(p: float, slot: int):  # type: ignore[no-untyped-def]
+        """Pure loss: A_k = sum_m sqrt(C(m, k)) p^((m - k)/2) (1 - p)^(k/2) |m - k><m| (k photons lost)."""
+        ops = []
+        for k in range(n):
+            kraus = sum(math.sqrt(math.comb(m, k) * p ** (m - k) * (1 - p) ** k)
+                        * qutip.basis(n, m - k) * qutip.basis(n, m).dag() for m in range(k, n))
+            parts = [eye2, eye2, eye_n, eye_n]
+            parts[slot] = kraus
+            ops.append(qutip.tensor(*parts))
+        return ops
+
+    for slot, p in ((2, pa), (3, pb)):
+        ops = loss(p, slot)
+        rho = sum(k * rho * k.dag() for k in ops)
+    a_mode = qutip.tensor(eye2, eye2, qutip.destroy(n), eye_n)
+    b_mode = qutip.tensor(eye2, eye2, eye_n, qutip.destroy(n))
+    bs = (math.pi / 4 * (a_mode.dag() * b_mode - a_mode * b_mode.dag())).expm()
+    rho = bs * rho * bs.dag()
+    click = qutip.tensor(eye2, eye2, eye_n - qutip.fock_dm(n, 0), qutip.fock_dm(n, 0))
+    heralded = click * rho * click
+    prob = float(heralded.tr().real)
+    spins = heralded.ptrace([0, 1]) / prob
+    psi_plus = (qutip.tensor(spin0, spin1) + qutip.tensor(spin1, spin0)).unit()
+    psi_minus = (qutip.tensor(spin0, spin1) - qutip.tensor(spin1, spin0)).unit()
+    fid = max(float(qutip.expect(spins, psi_plus)), float(qutip.expect(spins, psi_minus)))
+    return 2 * prob, fid
+
+
+@pytest.mark.parametrize(("alpha", "fraction"), [(0.1, 0.5), (0.3, 0.5), (0.2, 0.2)])
+def test_single_photon_against_a_qutip_model(alpha: float, fraction: float) -> None:
+    """The derived closed form against the first-principles QuTiP model above."""
+    physics = link_physics(link(bright_state_population=alpha, midpoint_fraction=fraction, length_km=10.0),
+                           *sites())
+    pa, pb = 10 ** (-0.2 * 10 * fraction / 10), 10 ** (-0.2 * 10 * (1 - fraction) / 10)
+    prob, fid = _single_photon_with_qutip(alpha, pa, pb)
+    assert physics.success_probability == pytest.approx(prob, rel=1e-9)
+    assert physics.fidelity == pytest.approx(fid, abs=1e-9)
