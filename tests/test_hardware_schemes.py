@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 from netsim.errors import ParameterError
 from netsim.hardware import LightPath, link_physics, path_physics
 from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S
-from netsim.hardware.schemes import PHI_PLUS
+from netsim.hardware.schemes import PHI_PLUS, single_photon_herald
 from netsim.scenario.model import Link, Site
 
 V = FIBRE_SPEED_KM_PER_S
@@ -244,7 +244,8 @@ def _single_photon_with_qutip(alpha: float, pa: float, pb: float) -> tuple[float
     sqrt(1 - alpha)|0>|vac> + sqrt(alpha)|1>|1 photon>; each photon meets a pure-loss channel of
     transmissivity P_x; a 50:50 beam splitter mixes the modes; a herald is a click (threshold
     detector) in exactly one output port. Returns (herald probability over both ports, fidelity of
-    the heralded spin pair to the Psi state of the clicked port, i.e. Phi+ after correction).
+    the heralded spin pair to the Psi state of the clicked port, i.e. Phi+ after correction, and the
+    spin state when neither detector clicks).
     """
     qutip = pytest.importorskip("qutip")
     n = 3
@@ -280,7 +281,9 @@ def _single_photon_with_qutip(alpha: float, pa: float, pb: float) -> tuple[float
     psi_plus = (qutip.tensor(spin0, spin1) + qutip.tensor(spin1, spin0)).unit()
     psi_minus = (qutip.tensor(spin0, spin1) - qutip.tensor(spin1, spin0)).unit()
     fid = max(float(qutip.expect(spins, psi_plus)), float(qutip.expect(spins, psi_minus)))
-    return 2 * prob, fid
+    dark = qutip.tensor(eye2, eye2, qutip.fock_dm(n, 0), qutip.fock_dm(n, 0))
+    no_click = (dark * rho * dark).ptrace([0, 1])
+    return 2 * prob, fid, (no_click / no_click.tr()).full()
 
 
 @pytest.mark.parametrize(("alpha", "fraction"), [(0.1, 0.5), (0.3, 0.5), (0.2, 0.2)])
@@ -289,6 +292,11 @@ def test_single_photon_against_a_qutip_model(alpha: float, fraction: float) -> N
     physics = link_physics(link(bright_state_population=alpha, midpoint_fraction=fraction, length_km=10.0),
                            *sites())
     pa, pb = 10 ** (-0.2 * 10 * fraction / 10), 10 ** (-0.2 * 10 * (1 - fraction) / 10)
-    prob, fid = _single_photon_with_qutip(alpha, pa, pb)
+    prob, fid, no_click = _single_photon_with_qutip(alpha, pa, pb)
     assert physics.success_probability == pytest.approx(prob, rel=1e-9)
     assert physics.fidelity == pytest.approx(fid, abs=1e-9)
+    # A dark click leaves the spins in the no-click state (then corrected by X on qubit 1).
+    herald = single_photon_herald(LightPath.join((link(bright_state_population=alpha, midpoint_fraction=fraction,
+                                                      length_km=10.0),), *sites()))
+    x_on_b = np.kron(np.eye(2), [[0, 1], [1, 0]])
+    np.testing.assert_allclose(herald.rho_false, x_on_b @ no_click @ x_on_b, atol=1e-9)
