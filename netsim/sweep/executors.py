@@ -1,13 +1,15 @@
 """Executors: run point tasks somewhere and yield their records as they finish.
 
 Both executors have one method, ``run(tasks) -> Iterator[PointRecord]``, and keep a bounded
-number of points in flight (one per local worker; twice the Dask worker threads), so a long
-sweep never floods memory and a dying local worker can only have held the points in flight.
+number of points in flight (one per local worker plus one queued; twice the Dask worker
+threads), so a long sweep never floods memory and a dying local worker can only have held the
+points in flight.
 
 - :class:`LocalPool`: a ``concurrent.futures.ProcessPoolExecutor`` (``forkserver`` start on
   Linux). Workers ignore SIGINT; the coordinator handles Ctrl-C by dropping the points in flight
-  whole. If a worker process dies, the pool is rebuilt and the points it held run again; a point
-  that has lost its worker :data:`MAX_ATTEMPTS` times is recorded as failed.
+  whole. If a worker process dies, the pool is rebuilt and the points in flight run again (the
+  pool cannot tell which worker held which point, so every point in flight is charged); a point
+  charged :data:`MAX_ATTEMPTS` times is recorded as failed.
 - :class:`DaskPool`: a Dask distributed scheduler (``--cluster ADDRESS``) or a LocalCluster
   (``--cluster local:N``). Dask itself reruns a point whose worker died, up to its
   ``allowed-failures`` setting; after that the point is recorded as failed. Dask is the optional
@@ -63,8 +65,12 @@ class LocalPool:
     def __init__(self, function: PointFunction, workers: int | None = None) -> None:
         self.function = function
         self.workers = workers or default_workers()
-        method = "forkserver" if sys.platform.startswith("linux") else "spawn"
-        self._context = multiprocessing.get_context(method)
+        if sys.platform.startswith("linux"):
+            self._context = multiprocessing.get_context("forkserver")
+            # Workers fork from a server that has already imported the worker code and numpy.
+            self._context.set_forkserver_preload(["netsim.sweep.worker", "numpy"])
+        else:
+            self._context = multiprocessing.get_context("spawn")
 
     def run(self, tasks: Iterable[PointTask]) -> Generator[PointRecord, None, None]:
         """Yield one record per task, in completion order."""
@@ -84,7 +90,7 @@ class LocalPool:
                deaths: dict[str, int]) -> Generator[PointRecord, None, bool]:
         in_flight: dict[Future[PointRecord], PointTask] = {}
         while True:
-            while len(in_flight) < self.workers:
+            while len(in_flight) < self.workers + 1:
                 task = queue.popleft() if queue else next(source, None)
                 if task is None:
                     break

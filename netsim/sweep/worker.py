@@ -74,7 +74,12 @@ def engine_point(data: dict[str, Any], *, source: str | None, seed: int,
     from netsim.scenario import load_data
 
     scenario = load_data(data, source)
-    return engine.run(scenario, seed=seed, **dict(stop)).to_dict()  # type: ignore[attr-defined]
+    pairs = stop.get("pairs")
+    time_s, precision = stop.get("time_s"), stop.get("precision")
+    result = engine.run(scenario, pairs=None if pairs is None else int(pairs),
+                        time_s=None if time_s is None else float(time_s),
+                        precision=None if precision is None else float(precision), seed=seed)
+    return result.to_dict()
 
 
 def _as_value(value: Any) -> float | None:
