@@ -6,6 +6,8 @@ Conventions: qubit 0 (A) is the left factor of ``numpy.kron``; entropies in bits
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
@@ -21,8 +23,8 @@ __all__ = [
     "is_xstate",
 ]
 
-#: sigma_y (x) sigma_y, real: the spin flip of Wootters (1998).
-_YY = np.array([[0, 0, 0, -1], [0, 0, 1, 0], [0, 1, 0, 0], [-1, 0, 0, 0]], dtype=float)
+#: sigma_y (x) sigma_y = anti-diagonal with these signs: (Y x Y) A = _YY_SIGN[:, None] * A[::-1].
+_YY_SIGN = np.array([-1.0, 1.0, 1.0, -1.0])
 #: Entries that vanish in an X-shaped state (nonzero only on the diagonal and anti-diagonal).
 _OFF_X = np.array([[0, 1, 1, 0], [1, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]], dtype=bool)
 
@@ -30,7 +32,8 @@ _OFF_X = np.array([[0, 1, 1, 0], [1, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]], dtyp
 def is_xstate(rho: ArrayLike) -> NDArray[np.bool_]:
     """True where every entry off the diagonal and anti-diagonal is exactly zero (batched)."""
     r = as_states(rho, "rho", 4)
-    return ~np.any(r[..., _OFF_X] != 0, axis=-1)
+    nonzero = [r[..., i, j] != 0 for i, j in zip(*np.nonzero(_OFF_X))]
+    return ~np.logical_or.reduce(nonzero)
 
 
 def concurrence_xstate(rho: ArrayLike) -> NDArray[np.float64]:
@@ -50,13 +53,102 @@ def concurrence_xstate(rho: ArrayLike) -> NDArray[np.float64]:
     return np.clip(2.0 * np.maximum(a, b), 0.0, 1.0)
 
 
+def _cholesky4(rt: NDArray[np.complex128], tol: float = 1e-14) -> tuple[list[list[Any]], NDArray[np.bool_]]:
+    """Vectorised Cholesky factor of states stored component-wise, ``rt[i, j]`` of shape (n,).
+
+    Returns the lower factor as nested lists ``low[i][j]`` (i >= j) of (n,) arrays and ``ok``,
+    False where a pivot is <= ``tol`` (rank-deficient or nearly so; those entries are junk).
+    """
+    low: list[list[Any]] = [[None] * 4 for _ in range(4)]
+    ok = np.ones(rt.shape[-1], dtype=bool)
+    for j in range(4):
+        pivot = rt[j, j].real - sum((low[j][k].real ** 2 + low[j][k].imag ** 2 for k in range(j)), 0.0)
+        ok &= pivot > tol
+        diag = np.sqrt(np.where(pivot > tol, pivot, 1.0))
+        low[j][j] = diag
+        for i in range(j + 1, 4):
+            num = rt[i, j] - sum((low[i][k] * np.conj(low[j][k]) for k in range(j)), 0.0)
+            low[i][j] = num / diag
+    return low, ok
+
+
+def _flip_gram_triangular(low: list[list[Any]]) -> NDArray[np.complex128]:
+    """H = M^dagger M with M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array.
+
+    M[j, k] = sum_i s_i L[i, j] L[3 - i, k] with s = (-1, 1, 1, -1): only i in [j, 3 - k]
+    contributes, so M is complex symmetric and vanishes below the anti-diagonal, and
+    H[j, k] = sum_i conj(M[i, j]) M[i, k] has few terms. Written out to avoid batched matmuls.
+    """
+    m: dict[tuple[int, int], Any] = {}
+    for j in range(4):
+        for k in range(j, 4 - j):
+            m[j, k] = m[k, j] = sum(_YY_SIGN[i] * low[i][j] * low[3 - i][k] for i in range(j, 4 - k))
+    n = low[0][0].shape[0]
+    h = np.empty((4, 4, n), dtype=complex)
+    for j in range(4):
+        for k in range(j, 4):
+            h[j, k] = sum(np.conj(m[i, j]) * m[i, k] for i in range(4 - max(j, k)))
+            h[k, j] = np.conj(h[j, k])
+    return np.moveaxis(h, -1, 0)
+
+
+def _flip_gram(r: NDArray[np.complex128]) -> tuple[NDArray[np.complex128], NDArray[np.bool_], NDArray[np.complex128]]:
+    """H = M^dagger M with M = A^T (Y x Y) A and rho = A A^dagger, for (n, 4, 4) states.
+
+    Returns (H, fallback mask, M of the fallback rows): rows where the Cholesky factor does
+    not exist use A = V sqrt(D) from the eigen-decomposition instead.
+    """
+    low, ok = _cholesky4(r.transpose(1, 2, 0))
+    h = _flip_gram_triangular(low)
+    bad = ~ok
+    m_bad = np.zeros((0, 4, 4), dtype=complex)
+    if np.any(bad):
+        vals, vecs = np.linalg.eigh(r[bad])
+        a = vecs * np.sqrt(np.clip(vals, 0.0, None))[..., None, :]
+        m_bad = np.swapaxes(a, -1, -2) @ (_YY_SIGN[:, None] * a[:, ::-1, :])
+        h[bad] = np.conj(m_bad) @ m_bad
+    return h, bad, m_bad
+
+
+def _wootters_lambdas(r: NDArray[np.complex128]) -> NDArray[np.float64]:
+    """The decreasing l_i of Wootters (1998) for (n, 4, 4) states: singular values of M.
+
+    Square roots of the eigenvalues of H = M^dagger M (fast). Where the smallest eigenvalue
+    is below 1e-10 the square root would lose accuracy, so those rows use an SVD of M.
+    """
+    h, bad, m_bad = _flip_gram(r)
+    mu = np.linalg.eigvalsh(h)[:, ::-1]
+    lam = np.sqrt(np.clip(mu, 0.0, None))
+    small = mu[:, -1] < 1e-10
+    if np.any(small):
+        m = np.zeros((r.shape[0], 4, 4), dtype=complex)
+        m[bad] = m_bad
+        rows = small & ~bad
+        if np.any(rows):
+            low, _ = _cholesky4(r[rows].transpose(1, 2, 0))
+            m[rows] = _flip_matrix_triangular(low)
+        lam[small] = np.linalg.svd(m[small], compute_uv=False)
+    return lam
+
+
+def _flip_matrix_triangular(low: list[list[Any]]) -> NDArray[np.complex128]:
+    """M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array (see above)."""
+    n = low[0][0].shape[0]
+    m = np.zeros((n, 4, 4), dtype=complex)
+    for j in range(4):
+        for k in range(j, 4 - j):
+            m[:, j, k] = m[:, k, j] = sum(_YY_SIGN[i] * low[i][j] * low[3 - i][k] for i in range(j, 4 - k))
+    return m
+
+
 def concurrence_general(rho: ArrayLike) -> NDArray[np.float64]:
     """Wootters concurrence of any two-qubit state, C = max(0, l1 - l2 - l3 - l4).
 
     The l_i are the square roots of the eigenvalues of rho (Y x Y) rho* (Y x Y) in decreasing
-    order. They are computed as the singular values of A^T (Y x Y) A with rho = A A^dagger
-    (A = V sqrt(D) from the eigen-decomposition), which keeps small l_i accurate to rounding
-    instead of to the square root of rounding.
+    order. They are computed as the singular values of M = A^T (Y x Y) A with rho = A A^dagger
+    (A a Cholesky factor, or V sqrt(D) from the eigen-decomposition for rank-deficient states):
+    M^dagger M is similar to rho (Y x Y) rho* (Y x Y). Small l_i are taken from an SVD of M, so
+    they are accurate to rounding, not to the square root of rounding.
 
     References
     ----------
@@ -64,11 +156,10 @@ def concurrence_general(rho: ArrayLike) -> NDArray[np.float64]:
     Phys. Rev. Lett. 80, 2245 (1998).
     """
     r = as_states(rho, "rho", 4)
-    vals, vecs = np.linalg.eigh(r)
-    a = vecs * np.sqrt(np.clip(vals, 0.0, None))[..., None, :]
-    m = np.swapaxes(a, -1, -2) @ _YY @ a
-    lam = np.linalg.svd(m, compute_uv=False)
-    return np.clip(lam[..., 0] - lam[..., 1] - lam[..., 2] - lam[..., 3], 0.0, 1.0)
+    flat = r.reshape(-1, 4, 4)
+    lam = _wootters_lambdas(flat)
+    c = lam[:, 0] - lam[:, 1] - lam[:, 2] - lam[:, 3]
+    return np.clip(c, 0.0, 1.0).reshape(r.shape[:-2])
 
 
 def concurrence(rho: ArrayLike) -> NDArray[np.float64]:
