@@ -108,6 +108,27 @@ def test_dask_local_cluster_matches(plan: SweepPlan, tmp_path: Path) -> None:
     _assert_complete(store, plan, _reference(plan))
 
 
+def test_dask_scheduler_address_and_a_dying_dask_worker(plan: SweepPlan, tmp_path: Path) -> None:
+    distributed = pytest.importorskip("distributed")
+    store, marker = tmp_path / "dask-address.sqlite", tmp_path / "died"
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None, silence_logs=40) as cluster:
+        function = SyntheticPoint(die_once_marker=str(marker))
+        summary = run_sweep(plan, DaskPool(function, cluster.scheduler_address), store_path=store,
+                            quiet=True, stream=io.StringIO())
+    assert marker.exists()                                        # a Dask worker died mid-point
+    assert (summary.done, summary.failed) == (30, 0)
+    _assert_complete(store, plan, _reference(plan))
+
+
+def test_progress_bar_counts_points_and_failures(plan: SweepPlan, tmp_path: Path) -> None:
+    stream = io.StringIO()
+    run_sweep(plan, LocalPool(SyntheticPoint(fail_at_length_km=10.0), 2), store_path=tmp_path / "s.sqlite",
+              stream=stream)
+    text = stream.getvalue()
+    assert "30/30" in text and "failed=2" in text
+
+
 def test_missing_dask_is_a_clear_error(monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setitem(sys.modules, "distributed", None)
     with pytest.raises(ParameterError, match=r"--cluster = '\(Dask not installed\)' is not allowed; "
