@@ -18,6 +18,7 @@ from netsim.engine import (
     simulate_des,
 )
 from netsim.engine.chain import line_chain, synthetic_physics
+from netsim.engine.policies import SCHEDULING
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Encoding, Site
 
@@ -76,14 +77,17 @@ def _star(slots: int) -> tuple[Chain, Chain]:
     return a, b
 
 
-def test_contention_rates_sum_to_at_most_the_single_demand_rate() -> None:
+@pytest.mark.parametrize("policy", sorted(SCHEDULING))
+def test_contention_rates_sum_to_at_most_the_single_demand_rate(policy: str) -> None:
     # Two demands through one repeater with room for one demand's pair of slots: they take
     # turns, so their rates sum to at most the rate of one demand alone (common practice: a
-    # shared resource cannot serve more than its capacity). The fair policy splits it evenly.
+    # shared resource cannot serve more than its capacity). With two demands every policy
+    # alternates (a finished demand queues behind the waiting one), splitting it evenly.
     pairs = 2000
     a, b = _star(slots=2)
-    (single,), _ = simulate_des([a], StopRule(pairs=pairs), [np.random.default_rng(1)])
-    both, _ = simulate_des([a, b], StopRule(pairs=pairs), [np.random.default_rng(2), np.random.default_rng(3)])
+    opts = DesOptions(scheduling=policy)
+    (single,), _ = simulate_des([a], StopRule(pairs=pairs), [np.random.default_rng(1)], opts)
+    both, _ = simulate_des([a, b], StopRule(pairs=pairs), [np.random.default_rng(2), np.random.default_rng(3)], opts)
     r_single = single.metrics.n / single.simulated_time_s
     rates = [r.metrics.n / r.simulated_time_s for r in both]
     rel = Z * 1.0 / math.sqrt(pairs)
@@ -163,3 +167,39 @@ def test_ensemble_published_values_without_noise() -> None:
     assert h == pytest.approx(0.6009, abs=1e-4)
     bb84 = Encoding("bb84", (0.25,) * 4, ((0, 0, 1), (0, 0, -1), (1, 0, 0), (-1, 0, 0)))
     assert send_ensemble(chain, bb84, waits="uniform", realisations=50).chi_bits_per_qubit == pytest.approx(1.0, abs=1e-10)
+
+
+def test_three_demands_on_one_slot_pair_share_it() -> None:
+    # Three demands, room for one at a time: fair scheduling gives each about a third of the
+    # lone rate; the sum never exceeds it (common practice).
+    a, b = _star(slots=2)
+    hub, far = a.sites[1], Site("Elsworth", "user", memory_slots=1, t1_s=math.inf, t2_s=math.inf)
+    c = Chain("Elsworth-Cawdor", (far, hub, a.sites[2]),
+              (_hop("Elsworth-Quillon Hub", 0.1, 1e-3), _hop("Quillon Hub-Cawdor", 0.1, 1e-3)), index=2)
+    pairs = 1000
+    (single,), _ = simulate_des([a], StopRule(pairs=3 * pairs), [np.random.default_rng(1)])
+    runs, _ = simulate_des([a, b, c], StopRule(pairs=pairs), [np.random.default_rng(k) for k in (4, 5, 6)])
+    rates = [r.metrics.n / r.simulated_time_s for r in runs]
+    r_single = single.metrics.n / single.simulated_time_s
+    assert sum(rates) <= r_single * (1 + Z / math.sqrt(3 * pairs))
+    for r in rates:
+        assert r == pytest.approx(r_single / 3, rel=2 * Z / math.sqrt(pairs))
+
+
+def test_interrupt_keeps_what_was_delivered(monkeypatch: pytest.MonkeyPatch) -> None:
+    # Ctrl-C during a run: the pairs delivered so far are kept and the run says so.
+    from netsim.engine import vector
+
+    calls = {"n": 0}
+    original = vector._solve_offsets
+
+    def interrupting(*args: object) -> object:
+        calls["n"] += 1
+        if calls["n"] == 3:
+            raise KeyboardInterrupt
+        return original(*args)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(vector, "_solve_offsets", interrupting)
+    run = simulate_chain_vector(line_chain(2, 0.1, 1e-3), StopRule(pairs=100_000), np.random.default_rng(0))
+    assert run.interrupted and 0 < run.metrics.n < 100_000
+    assert run.simulated_time_s > 0

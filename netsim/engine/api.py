@@ -119,6 +119,9 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
     runs: dict[int, ChainRun] = {}
     rounds = options.purification_rounds if options.purification != "none" else 0
     for group in _components(chains, rounds + 1):
+        if any(r.interrupted for r in runs.values()):  # Ctrl-C: keep what we have, run no more
+            runs.update({id(c): _interrupted(c) for c in group})
+            continue
         rngs = [np.random.default_rng(streams[c.index]) for c in group]
         rules = [_rule_for(c, rule) for c in group]
         if len(group) == 1 and vector_applicable(group[0], options.cutoff_s, rounds) and _slots_ok(group[0]):
@@ -127,6 +130,12 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
         group_runs, _ = simulate_des(group, rules, rngs, options)
         runs.update({id(c): r for c, r in zip(group, group_runs)})
     return [runs[id(c)] for c in chains]
+
+
+def _interrupted(chain: Chain) -> ChainRun:
+    run = ChainRun.zeros(chain.n_hops, engine="none")
+    run.interrupted = True
+    return run
 
 
 def _slots_ok(chain: Chain) -> bool:
