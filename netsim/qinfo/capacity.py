@@ -16,7 +16,7 @@ from __future__ import annotations
 from functools import lru_cache
 
 import numpy as np
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 from scipy.optimize import minimize
 
 from netsim.errors import ParameterError
@@ -72,7 +72,7 @@ def _bloch_map(basis: NDArray[np.complex128]) -> tuple[float, NDArray[np.float64
     return 1.0 - eps, bloch[:, 1:], bloch[:, 0]
 
 
-def _h_bloch(a: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+def _h_bloch(a: ArrayLike) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Entropy of a qubit with Bloch length a, and its derivative (finite: a capped below 1)."""
     a = np.clip(a, 0.0, 1.0 - 1e-13)
     hi, lo = (1.0 + a) / 2.0, (1.0 - a) / 2.0

@@ -149,7 +149,7 @@ def depolarizing(p: float) -> Channel:
     """
     p = _probability("p", p)
     kraus = np.stack([math.sqrt(1 - 3 * p / 4) * _I, math.sqrt(p / 4) * _X,
-                      math.sqrt(p / 4) * _Y, math.sqrt(p / 4) * _Z])
+                      math.sqrt(p / 4) * _Y, math.sqrt(p / 4) * _Z]).astype(complex)
     return Channel(f"depolarizing(p={p:g})", kraus, {"p": p})
 
 
@@ -160,7 +160,7 @@ def dephasing(p: float) -> Channel:
     sqrt(1 - p/2) I and sqrt(p/2) Z (a phase flip with probability p/2).
     """
     p = _probability("p", p)
-    kraus = np.stack([math.sqrt(1 - p / 2) * _I, math.sqrt(p / 2) * _Z])
+    kraus = np.stack([math.sqrt(1 - p / 2) * _I, math.sqrt(p / 2) * _Z]).astype(complex)
     return Channel(f"dephasing(p={p:g})", kraus, {"p": p})
 
 

@@ -6,6 +6,8 @@ rank-deficient states give exact results with no NaN and no negative noise.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
@@ -15,7 +17,7 @@ from netsim.qinfo.states import as_states
 __all__ = ["binary_entropy", "holevo_information", "shannon_entropy", "von_neumann_entropy"]
 
 
-def _xlog2x(x: NDArray[np.float64]) -> NDArray[np.float64]:
+def _xlog2x(x: NDArray[Any]) -> NDArray[np.float64]:
     """x log2 x with 0 log 0 = 0 (x clipped at 0)."""
     x = np.clip(x, 0.0, None)
     safe = np.where(x > 0.0, x, 1.0)
