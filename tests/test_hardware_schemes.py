@@ -6,6 +6,7 @@ published (or here-derived) formula evaluated by hand in the test.
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import replace
 
@@ -154,17 +155,19 @@ def test_dark_counts_lower_the_fidelity_more_on_longer_links(scheme: str) -> Non
     assert fids[0] > fids[1] > fids[2]
 
 
-def test_two_photon_dark_count_mixture_worked_point() -> None:
-    """Derived in two_photon_herald: F = (p_true + p_false / 4) / (p_true + p_false) with
-    p_true = P^2 / 2 and p_false = 2 P (1 - P) 2d + (1 - P)^2 (2d)^2."""
+def test_two_photon_dark_count_worked_point() -> None:
+    """Derived in two_photon_herald (leading order in d): p_true = P^2/2 (1 - 2d);
+    p_false = 2d [P (1 - P) + (1 - (1 - P)^2) / 2] + (2d)^2 (1 - P)^2 with fidelities 1/2, 0, 1/4."""
     d = 1e-3
     physics = link_physics(link(scheme="two_photon", dark_count_probability=d), *sites())
     big_p = ETA_ARM
-    p_true = big_p**2 / 2
-    p_false = 2 * big_p * (1 - big_p) * 2 * d + (1 - big_p) ** 2 * (2 * d) ** 2
-    assert physics.success_probability == pytest.approx(p_true + p_false, rel=1e-12)
-    assert physics.fidelity == pytest.approx((p_true + p_false / 4) / (p_true + p_false), rel=1e-12)
-    assert physics.dark_count_fraction == pytest.approx(p_false / (p_true + p_false), rel=1e-12)
+    p_true = big_p**2 / 2 * (1 - 2 * d)
+    w_anti, w_corr = 2 * d * big_p * (1 - big_p), 2 * d * (1 - (1 - big_p) ** 2) / 2
+    w_none = (2 * d) ** 2 * (1 - big_p) ** 2
+    total = p_true + w_anti + w_corr + w_none
+    assert physics.success_probability == pytest.approx(total, rel=1e-12)
+    assert physics.fidelity == pytest.approx((p_true + w_anti / 2 + w_none / 4) / total, rel=1e-12)
+    assert physics.dark_count_fraction == pytest.approx((w_anti + w_corr + w_none) / total, rel=1e-12)
 
 
 def test_qubit_zero_is_at_site_a() -> None:
@@ -237,13 +240,15 @@ def test_every_scheme_gives_a_valid_state_and_probabilities(
     assert physics.attempt_period_s > 0
 
 
-def _single_photon_with_qutip(alpha: float, pa: float, pb: float) -> tuple[float, float]:
+def _single_photon_with_qutip(alpha: float, pa: float, pb: float, d: float = 0.0
+                              ) -> tuple[float, float, np.ndarray]:
     """Single-photon heralding computed with QuTiP from first principles (independent reference).
 
     Spins a, b and photon modes a, b (Fock space up to 2 photons). Each memory emits
     sqrt(1 - alpha)|0>|vac> + sqrt(alpha)|1>|1 photon>; each photon meets a pure-loss channel of
     transmissivity P_x; a 50:50 beam splitter mixes the modes; a herald is a click (threshold
-    detector) in exactly one output port. Returns (herald probability over both ports, fidelity of
+    detector with dark-count probability d: no click (1 - d)|0><0|) in exactly one output port.
+    Returns (herald probability over both ports, fidelity of
     the heralded spin pair to the Psi state of the clicked port, i.e. Phi+ after correction, and the
     spin state when neither detector clicks).
     """
@@ -274,15 +279,16 @@ def _single_photon_with_qutip(alpha: float, pa: float, pb: float) -> tuple[float
     b_mode = qutip.tensor(eye2, eye2, eye_n, qutip.destroy(n))
     bs = (math.pi / 4 * (a_mode.dag() * b_mode - a_mode * b_mode.dag())).expm()
     rho = bs * rho * bs.dag()
-    click = qutip.tensor(eye2, eye2, eye_n - qutip.fock_dm(n, 0), qutip.fock_dm(n, 0))
-    heralded = click * rho * click
+    silent = (1 - d) * qutip.fock_dm(n, 0)
+    click = qutip.tensor(eye2, eye2, eye_n - silent, silent)
+    heralded = (click * rho).ptrace([0, 1])
     prob = float(heralded.tr().real)
-    spins = heralded.ptrace([0, 1]) / prob
+    spins = heralded / prob
     psi_plus = (qutip.tensor(spin0, spin1) + qutip.tensor(spin1, spin0)).unit()
     psi_minus = (qutip.tensor(spin0, spin1) - qutip.tensor(spin1, spin0)).unit()
     fid = max(float(qutip.expect(spins, psi_plus)), float(qutip.expect(spins, psi_minus)))
-    dark = qutip.tensor(eye2, eye2, qutip.fock_dm(n, 0), qutip.fock_dm(n, 0))
-    no_click = (dark * rho * dark).ptrace([0, 1])
+    vacuum = qutip.tensor(eye2, eye2, qutip.fock_dm(n, 0), qutip.fock_dm(n, 0))
+    no_click = (vacuum * rho).ptrace([0, 1])
     return 2 * prob, fid, (no_click / no_click.tr()).full()
 
 
@@ -300,3 +306,77 @@ def test_single_photon_against_a_qutip_model(alpha: float, fraction: float) -> N
                                                       length_km=10.0),), *sites()))
     x_on_b = np.kron(np.eye(2), [[0, 1], [1, 0]])
     np.testing.assert_allclose(herald.rho_false, x_on_b @ no_click @ x_on_b, atol=1e-9)
+
+
+def test_single_photon_dark_counts_against_the_qutip_model() -> None:
+    """With dark counts d = 1e-3 on a 60 km link (where dark heralds matter): the leading-order
+    closed form agrees with the QuTiP model to O(d^2)."""
+    d, alpha = 1e-3, 0.1
+    physics = link_physics(link(bright_state_population=alpha, length_km=60.0, dark_count_probability=d), *sites())
+    arm = 10 ** (-0.6)
+    prob, fid, _ = _single_photon_with_qutip(alpha, arm, arm, d)
+    assert physics.success_probability == pytest.approx(prob, rel=10 * d * d / prob)
+    assert physics.fidelity == pytest.approx(fid, abs=10 * d * d / prob)
+
+
+def _barrett_kok_with_qutip(pa: float, pb: float, d: float) -> tuple[float, float]:
+    """Barrett-Kok heralding computed with QuTiP from first principles (independent reference).
+
+    Spins start in |+>; in each of two rounds a spin in |1> emits one photon into its arm, with a
+    spin flip (X) between the rounds; every photon meets pure loss P_x; per round a 50:50 beam
+    splitter and two threshold detectors with dark-count probability d. A herald is exactly one
+    click in each round; the heralded pair is compared with Psi+ or Psi- (whichever the pattern
+    announces). Returns (herald probability, fidelity).
+    """
+    qutip = pytest.importorskip("qutip")
+    n = 3
+    eye2, eye_n = qutip.qeye(2), qutip.qeye(n)
+    up, down = qutip.basis(2, 1), qutip.basis(2, 0)
+
+    def op(slot: int, o):  # type: ignore[no-untyped-def]
+        parts = [eye2, eye2, eye_n, eye_n, eye_n, eye_n]   # spin a, spin b, a1, b1, a2, b2
+        parts[slot] = o
+        return qutip.tensor(*parts)
+
+    def emit(spin: int, mode: int):  # type: ignore[no-untyped-def]
+        parts = [eye2, eye2, eye_n, eye_n, eye_n, eye_n]
+        parts[spin], parts[mode] = qutip.ket2dm(up), qutip.create(n)
+        return qutip.tensor(*parts) + op(spin, qutip.ket2dm(down))
+
+    vac, plus = qutip.basis(n, 0), (up + down).unit()
+    psi = emit(1, 3) * emit(0, 2) * qutip.tensor(plus, plus, vac, vac, vac, vac)
+    psi = emit(1, 5) * emit(0, 4) * op(0, qutip.sigmax()) * op(1, qutip.sigmax()) * psi
+    rho = qutip.ket2dm(psi)
+    for slot, p in ((2, pa), (3, pb), (4, pa), (5, pb)):
+        kraus = [op(slot, sum(math.sqrt(math.comb(m, k) * p ** (m - k) * (1 - p) ** k)
+                              * qutip.basis(n, m - k) * qutip.basis(n, m).dag() for m in range(k, n)))
+                 for k in range(n)]
+        rho = sum(k * rho * k.dag() for k in kraus)
+    for s1, s2 in ((2, 3), (4, 5)):
+        a, b = op(s1, qutip.destroy(n)), op(s2, qutip.destroy(n))
+        bs = (math.pi / 4 * (a.dag() * b - a * b.dag())).expm()
+        rho = bs * rho * bs.dag()
+    silent = (1 - d) * qutip.fock_dm(n, 0)
+    click = eye_n - silent
+    psi_plus = (qutip.tensor(up, down) + qutip.tensor(down, up)).unit()
+    psi_minus = (qutip.tensor(up, down) - qutip.tensor(down, up)).unit()
+    total = weighted = 0.0
+    for r1, r2 in itertools.product(((click, silent), (silent, click)), repeat=2):
+        spins = (qutip.tensor(eye2, eye2, *r1, *r2) * rho).ptrace([0, 1])
+        prob = float(spins.tr().real)
+        total += prob
+        weighted += max(float(qutip.expect(spins, psi_plus)), float(qutip.expect(spins, psi_minus)))
+    return total, weighted / total
+
+
+@pytest.mark.parametrize(("fraction", "d"), [(0.5, 0.0), (0.2, 0.0), (0.5, 1e-3)])
+def test_two_photon_against_a_qutip_model(fraction: float, d: float) -> None:
+    """p = P_a P_b / 2 and F = 1 (Barrett & Kok, PRA 71, 060310(R), 2005 (memory)) and the dark-count
+    terms derived in two_photon_herald, against the QuTiP model (agreement to O(d^2))."""
+    physics = link_physics(link(scheme="two_photon", midpoint_fraction=fraction, length_km=10.0,
+                                dark_count_probability=d), *sites())
+    pa, pb = 10 ** (-0.2 * 10 * fraction / 10), 10 ** (-0.2 * 10 * (1 - fraction) / 10)
+    prob, fid = _barrett_kok_with_qutip(pa, pb, d)
+    tol = 1e-9 + 10 * d * d
+    assert physics.success_probability == pytest.approx(prob, rel=tol)
+    assert physics.fidelity == pytest.approx(fid, abs=tol)

@@ -111,17 +111,33 @@ def two_photon_herald(path: LightPath) -> Herald:
     (Barrett & Kok: eta^2 / 2 for equal arms), with the heralded state a Bell state (Phi+ after
     correction) for indistinguishable photons.
 
-    Dark counts (derived here, leading order in d): if only one photon is detected (probability
-    P_a (1 - P_b) + P_b (1 - P_a)) its click falls in one round; a dark click in either detector
-    of the other round (2 d) completes the pattern; with no photon detected two dark clicks are
-    needed ((2 d)^2). The memories are then left uncorrelated: rho_false = I/4 (approximation).
-    Two preparations per attempt (one per round).
+    Dark counts (derived here, to leading order in d; checked against a first-principles QuTiP
+    model in the tests). Each spin emits in round 1 or round 2 with probability 1/2.
+
+    - A true herald is lost when the idle detector of either round fires too (both detectors
+      of a round click): p_true = P_a P_b / 2 x (1 - 2d).
+    - Photons in different rounds, only one detected (1/2 [P_a (1 - P_b) + P_b (1 - P_a)]): a
+      dark click in the empty round (2 d) completes the pattern; the lost photon revealed its
+      spin, leaving anti-correlated spins ((|01><01| + |10><10|)/2 before the correction),
+      F = 1/2.
+    - Photons in the same round, at least one detected (1/2 [1 - (1 - P_a)(1 - P_b)]; two
+      photons bunch into one detector): a dark click in the other round (2 d) heralds the
+      correlated spins ((|00><00| + |11><11|)/2 before the correction), F = 0.
+    - Nothing detected ((1 - P_a)(1 - P_b)): two dark clicks ((2 d)^2) herald I/4.
+
+    States are written after the Psi -> Phi+ correction. Two preparations per attempt (one per
+    round).
     """
     pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
     d2 = 2.0 * path.first.dark_count_probability
-    p_false = (pa * (1 - pb) + pb * (1 - pa)) * d2 + (1 - pa) * (1 - pb) * d2 ** 2
+    w_anti = d2 * (pa * (1 - pb) + pb * (1 - pa)) / 2.0
+    w_corr = d2 * (1 - (1 - pa) * (1 - pb)) / 2.0
+    w_none = d2 ** 2 * (1 - pa) * (1 - pb)
+    raw_false = (w_anti * np.diag([0.5, 0.0, 0.0, 0.5]) + w_corr * np.diag([0.0, 0.5, 0.5, 0.0])
+                 + w_none * MIXED)
     period = _station_timing(path, preparations=2)
-    return Herald(pa * pb / 2.0, PHI_PLUS, p_false, MIXED, period, period)
+    return Herald(pa * pb / 2.0 * (1 - d2), PHI_PLUS, w_anti + w_corr + w_none, _normalised(raw_false),
+                  period, period)
 
 
 def single_photon_herald(path: LightPath) -> Herald:
@@ -139,7 +155,9 @@ def single_photon_herald(path: LightPath) -> Herald:
     F = (1 - alpha) / (1 - alpha P / 2) ~ 1 - alpha (Humphreys et al. 2018: p ~ 2 alpha eta,
     F ~ 1 - alpha). Optical phase drift between the arms is not modelled.
 
-    Dark counts: two detectors watch one window, p_false = 2 d (1 - p_true); the memories are
+    Dark counts: a true herald is rejected when the other detector fires too (factor 1 - d);
+    with no photon detected, one of the two detectors fires dark, p_false = 2 d (1 - p_true)
+    (leading order in d); the memories are
     then in the no-click state, diagonal with weights (1 - alpha)^2 |00>,
     alpha (1 - alpha)(1 - P_a) |10>, alpha (1 - alpha)(1 - P_b) |01>,
     alpha^2 (1 - P_a)(1 - P_b) |11> (derived here).
@@ -154,9 +172,10 @@ def single_photon_herald(path: LightPath) -> Herald:
     raw_true = w_one * np.outer(psi, psi) + w_two * np.diag([0.0, 0.0, 0.0, 1.0])
     no_click = np.diag([(1 - alpha) ** 2, alpha * (1 - alpha) * (1 - pb),
                         alpha * (1 - alpha) * (1 - pa), alpha ** 2 * (1 - pa) * (1 - pb)])
-    p_false = 2.0 * path.first.dark_count_probability * (1 - p_true)
+    d = path.first.dark_count_probability
     period = _station_timing(path)
-    return Herald(p_true, _flip_b(_normalised(raw_true)), p_false, _flip_b(_normalised(no_click)),
+    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * (1 - p_true),
+                  _flip_b(_normalised(no_click)),
                   period, period)
 
 
