@@ -20,7 +20,7 @@ from netsim.errors import ParameterError
 from netsim.hardware import LightPath, link_physics, path_physics
 from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S
 from netsim.hardware.schemes import PHI_PLUS, single_photon_herald
-from netsim.scenario.model import Link, Site
+from netsim.scenario.model import SCHEMES, Link, Site
 
 V = FIBRE_SPEED_KM_PER_S
 PREP = 1e-6
@@ -147,7 +147,7 @@ def test_multiplexing(modes: int) -> None:
     assert physics.rate_per_s == pytest.approx(physics.round_success_probability / physics.attempt_period_s)
 
 
-@pytest.mark.parametrize("scheme", ["two_photon", "single_photon", "midpoint_source", "direct"])
+@pytest.mark.parametrize("scheme", SCHEMES)
 def test_dark_counts_lower_the_fidelity_more_on_longer_links(scheme: str) -> None:
     """A dark-count herald carries no entanglement (derived here): F falls as length grows."""
     fids = [link_physics(link(scheme=scheme, length_km=km, dark_count_probability=1e-5), *sites()).fidelity
@@ -218,7 +218,7 @@ def test_unknown_scheme_names_the_link_field() -> None:
 
 @settings(max_examples=60, deadline=None)
 @given(
-    scheme=st.sampled_from(["two_photon", "single_photon", "midpoint_source", "direct"]),
+    scheme=st.sampled_from(SCHEMES),
     length=st.floats(0.1, 300.0),
     fraction=st.floats(0.0, 1.0),
     alpha=st.floats(0.001, 0.5),
