@@ -103,3 +103,43 @@ def test_invalid_file_exits_2_with_one_line_per_problem(tmp_path: Path, capsys: 
 def test_missing_file_exits_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["check", str(tmp_path / "absent.toml")]) == 2
     assert "cannot read the file" in capsys.readouterr().err
+
+
+SWITCHED = """
+[network]
+name = "Marsden switched"
+
+[[sites]]
+name = "Marsden Lab"
+role = "user"
+
+[[sites]]
+name = "Nab Switch"
+role = "switch"
+
+[[sites]]
+name = "Oxley Lab"
+role = "user"
+
+[[links]]
+ends = ["Marsden Lab", "Nab Switch"]
+length_km = 5.0
+scheme = "single_photon"
+
+[[links]]
+ends = ["Nab Switch", "Oxley Lab"]
+length_km = 7.0
+scheme = "two_photon"
+
+[[demands]]
+users = ["Marsden Lab", "Oxley Lab"]
+"""
+
+
+def test_mixed_settings_along_a_light_path_are_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "marsden.toml"
+    path.write_text(SWITCHED)
+    assert main(["check", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "light path links[0] + links[1] (Marsden Lab to Oxley Lab): links disagree on scheme" in out
+    assert "sites: 3 (2 user, 0 repeater, 1 switch)" in out

@@ -11,6 +11,7 @@ from typing import Any
 
 import networkx as nx
 
+from netsim.hardware.lightpath import LightPath
 from netsim.network.budget import Budget, budget
 from netsim.network.graph import build_graph
 from netsim.network.routing import find_route
@@ -65,8 +66,8 @@ def _physics_warnings(label: str, scheme: str, physics: Any) -> list[str]:
         out.append(f"{label}: {physics.rate_per_s:.3g} pairs/s at {physics.loss_db:.3g} dB is below "
                    f"{MIN_RATE_PER_S:g} pairs/s; the link is far beyond what {scheme} heralding can bridge")
     if physics.fidelity <= 0.5:
-        out.append(f"{label}: heralded fidelity {physics.fidelity:.3g} is not above 1/2; the pairs "
-                   "carry no distillable entanglement of the Werner kind")
+        out.append(f"{label}: heralded fidelity {physics.fidelity:.3g} is not above 1/2; twirled to a Werner "
+                   "state the pairs are separable (no entanglement)")
     if physics.dark_count_fraction > MAX_DARK_COUNT_FRACTION:
         out.append(f"{label}: {physics.dark_count_fraction:.2%} of heralds come from dark counts "
                    f"(more than {MAX_DARK_COUNT_FRACTION:.0%}); fidelity {physics.fidelity:.3g}")
@@ -91,12 +92,14 @@ def _path_warnings(scenario: Scenario, graph: nx.Graph) -> list[str]:
             seen.add(key)
             label = "light path " + " + ".join(f"links[{i}]" for i in key) + f" ({hop.a} to {hop.b})"
             out += _physics_warnings(label, hop.physics.scheme, hop.physics)
-            out += _mixed_settings(label, hop.links)
+            path = LightPath.join(hop.links, scenario.site(hop.a), scenario.site(hop.b))
+            used = path.first if path.is_canonical else path.links[-1]
+            out += _mixed_settings(label, hop.links, used)
     return out
 
 
-def _mixed_settings(label: str, links: tuple[Link, ...]) -> list[str]:
-    first = links[0]
+def _mixed_settings(label: str, links: tuple[Link, ...], first: Link) -> list[str]:
+    """Heralding settings on which the links of a light path disagree (``first``'s apply)."""
     names = {f.name for f in fields(first)}
     differ = [k for k in _HERALD_KEYS if k in names and any(getattr(x, k) != getattr(first, k) for x in links)]
     if not differ:
