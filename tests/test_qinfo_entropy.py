@@ -99,3 +99,14 @@ def test_holevo_information_below_entropy_of_average(seed: int, n: int, d: int) 
     chi = qinfo.holevo_information(p, states)
     avg = np.einsum("i,ijk->jk", p, states)
     assert 0.0 <= chi <= qinfo.von_neumann_entropy(avg) + 1e-12
+
+
+def test_xstate_entropy_fast_path_agrees_with_eigvalsh() -> None:
+    # Closed-form eigenvalues of the two 2 x 2 blocks of X states vs QuTiP entropy_vn (reference library).
+    from test_qinfo_entanglement import _random_xstates
+
+    rho = np.concatenate([_random_xstates(300, seed=60), random_density_matrices(5, 4, seed=61),
+                          qinfo.werner_state(np.array([0.0, 0.5, 1.0]))])
+    ref = np.array([qutip.entropy_vn(qutip.Qobj(r), base=2) for r in rho])
+    np.testing.assert_allclose(qinfo.von_neumann_entropy(rho), ref, atol=1e-10)
+    assert 0.0 <= qinfo.von_neumann_entropy(qinfo.bell_state("phi-")) <= 1e-12

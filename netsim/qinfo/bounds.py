@@ -31,6 +31,11 @@ def plob_bound(eta: ArrayLike) -> NDArray[np.float64]:
     ParameterError
         If eta is outside [0, 1] or NaN.
 
+    Examples
+    --------
+    >>> float(plob_bound(0.5))
+    1.0
+
     References
     ----------
     S. Pirandola, R. Laurenza, C. Ottaviani and L. Banchi, "Fundamental limits of repeaterless

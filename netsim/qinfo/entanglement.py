@@ -12,7 +12,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from netsim.qinfo.entropy import binary_entropy, von_neumann_entropy
-from netsim.qinfo.states import as_states, partial_trace
+from netsim.qinfo.states import as_states, is_xstate, partial_trace
 
 __all__ = [
     "coherent_information",
@@ -25,15 +25,6 @@ __all__ = [
 
 #: sigma_y (x) sigma_y = anti-diagonal with these signs: (Y x Y) A = _YY_SIGN[:, None] * A[::-1].
 _YY_SIGN = np.array([-1.0, 1.0, 1.0, -1.0])
-#: Entries that vanish in an X-shaped state (nonzero only on the diagonal and anti-diagonal).
-_OFF_X = np.array([[0, 1, 1, 0], [1, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]], dtype=bool)
-
-
-def is_xstate(rho: ArrayLike) -> NDArray[np.bool_]:
-    """True where every entry off the diagonal and anti-diagonal is exactly zero (batched)."""
-    r = as_states(rho, "rho", 4)
-    nonzero = [r[..., i, j] != 0 for i, j in zip(*np.nonzero(_OFF_X))]
-    return ~np.logical_or.reduce(nonzero)
 
 
 def concurrence_xstate(rho: ArrayLike) -> NDArray[np.float64]:
@@ -178,6 +169,12 @@ def concurrence(rho: ArrayLike) -> NDArray[np.float64]:
     -------
     numpy.ndarray
         Shape (...).
+
+    Examples
+    --------
+    >>> from netsim.qinfo import werner_state
+    >>> [round(float(c), 12) for c in concurrence(werner_state([0.2, 0.6, 1.0]))]
+    [0.0, 0.4, 1.0]
 
     References
     ----------

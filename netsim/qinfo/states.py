@@ -25,6 +25,7 @@ __all__ = [
     "bell_state",
     "bell_vector",
     "fidelity",
+    "is_xstate",
     "partial_trace",
     "random_density_matrices",
     "werner_state",
@@ -84,8 +85,8 @@ def bell_state(name: str = "phi+") -> NDArray[np.complex128]:
     >>> float(bell_state("phi+")[0, 3].real)
     0.5
     """
-    v = bell_vector(name)
-    return np.outer(v, v.conj())
+    v = np.round(bell_vector(name) * np.sqrt(2.0))  # entries 0, +-1: exact halves below
+    return (np.outer(v, v.conj()) / 2.0).astype(complex)
 
 
 def werner_state(w: ArrayLike) -> NDArray[np.complex128]:
@@ -102,6 +103,11 @@ def werner_state(w: ArrayLike) -> NDArray[np.complex128]:
     numpy.ndarray
         Shape ``w.shape + (4, 4)``.
 
+    Examples
+    --------
+    >>> round(float(fidelity(werner_state(0.6), bell_state("phi+"))), 12)
+    0.7
+
     References
     ----------
     R. F. Werner, "Quantum states with Einstein-Podolsky-Rosen correlations admitting a
@@ -113,6 +119,17 @@ def werner_state(w: ArrayLike) -> NDArray[np.complex128]:
         raise ParameterError("w", float(bad), "a Werner parameter in [-1/3, 1]")
     phi = bell_state("phi+")
     return wa[..., None, None] * phi + (1.0 - wa)[..., None, None] * np.eye(4) / 4.0
+
+
+#: Entries that vanish in an X-shaped state (nonzero only on the diagonal and anti-diagonal).
+_OFF_X = np.array([[0, 1, 1, 0], [1, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]], dtype=bool)
+
+
+def is_xstate(rho: ArrayLike) -> NDArray[np.bool_]:
+    """True where every entry of a 4 x 4 state off the diagonal and anti-diagonal is exactly 0."""
+    r = as_states(rho, "rho", 4)
+    nonzero = [r[..., i, j] != 0 for i, j in zip(*np.nonzero(_OFF_X))]
+    return ~np.logical_or.reduce(nonzero)
 
 
 def _is_pure(rho: NDArray[np.complex128], tol: float = 1e-12) -> NDArray[np.bool_]:
