@@ -91,3 +91,14 @@ def test_capacity_rejects_non_qubit_input() -> None:
     bad = qinfo.Channel("qutrit", np.eye(3)[None].astype(complex))
     with pytest.raises(ParameterError, match=r"^channel = 'qutrit' is not allowed; expected a channel with a qubit input$"):
         qinfo.holevo_capacity(bad)
+
+
+def test_general_output_path_is_invariant_under_an_output_isometry() -> None:
+    # Capacity is unchanged by an isometry on the output (common practice): embedding the
+    # damping channel's output in a rotated qutrit takes the general (non-Bloch) optimiser path,
+    # which must still reach Giovannetti & Fazio (2005).
+    v = unitary_group.rvs(3, random_state=7)[:, :2]  # isometry C^2 -> C^3
+    damping = qinfo.amplitude_damping(0.4)
+    embedded = qinfo.Channel("embedded damping", np.einsum("xy,kyi->kxi", v, damping.kraus))
+    value, _ = qinfo.holevo_capacity(embedded)
+    assert value == pytest.approx(_gf_classical(0.6), abs=TOL_BITS)

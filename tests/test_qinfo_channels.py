@@ -164,3 +164,10 @@ def test_every_channel_is_trace_preserving_and_positive(name: str, u: float, see
     rho = random_density_matrices(2, 2**n, seed=seed, rank=min(rank, 2**n))
     qubit = seed % n
     assert_valid_state(channel.apply(rho, qubit=qubit), atol=1e-12)
+
+
+def test_channel_rejects_non_trace_preserving_kraus() -> None:
+    with pytest.raises(ParameterError, match=r"^kraus = 'operators with \|sum K\^dagger K - I\| = 0\.5' is not allowed; expected a trace-preserving set"):
+        Channel("half", np.array([[[1, 0], [0, math.sqrt(0.5)]]], dtype=complex))
+    with pytest.raises(ParameterError, match=r"^kraus = 'array of shape \(2, 2\)' is not allowed"):
+        Channel("flat", np.eye(2, dtype=complex))

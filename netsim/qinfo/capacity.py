@@ -9,6 +9,8 @@ tetrahedron, two seeded random ensembles). The search stops once two starts reac
 maximum within 1e-10 bits; the best value is kept. Accuracy: within 1e-6 bits of the closed
 forms for the depolarizing, dephasing, amplitude-damping and erasure channels (see
 ``tests/test_qinfo_capacity.py``). Results are cached by the bytes of the Kraus operators.
+Speed: about 0.01-0.05 s per channel whose output is a qubit, or a qubit plus a constant
+erasure flag; any other output structure takes a slower numerical-gradient path (about 1 s).
 """
 
 from __future__ import annotations

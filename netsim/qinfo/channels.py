@@ -68,6 +68,16 @@ class Channel:
     kraus: NDArray[np.complex128]
     params: dict[str, Any] = field(default_factory=dict)
 
+    def __post_init__(self) -> None:
+        kraus = np.asarray(self.kraus, dtype=complex)
+        if kraus.ndim != 3 or kraus.shape[-1] < 1:
+            raise ParameterError("kraus", f"array of shape {kraus.shape}", "an array of shape (k, d_out, d_in)")
+        defect = np.abs(np.einsum("kji,kjl->il", kraus.conj(), kraus) - np.eye(kraus.shape[-1])).max()
+        if defect > 1e-9:
+            raise ParameterError("kraus", f"operators with |sum K^dagger K - I| = {defect:.3g}",
+                                 "a trace-preserving set (sum K^dagger K = I within 1e-9)")
+        object.__setattr__(self, "kraus", kraus)
+
     @property
     def d_in(self) -> int:
         """Input dimension."""
