@@ -19,7 +19,6 @@ from functools import lru_cache
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
-from scipy.optimize import minimize
 
 from netsim.errors import ParameterError
 from netsim.qinfo.channels import Channel
@@ -124,6 +123,8 @@ def _starts(tmat: NDArray[np.float64]) -> list[NDArray[np.float64]]:
 
 def _maximise(objective, starts: list[NDArray[np.float64]], jac: bool) -> tuple[float, NDArray[np.float64]]:  # type: ignore[no-untyped-def]
     """Best of the local maxima from ``starts``; stops once two starts agree within 1e-10 bits."""
+    from scipy.optimize import minimize  # lazy: importing scipy.optimize costs about 0.5 s
+
     found: list[float] = []
     best_val, best_x = -np.inf, starts[0]
     for x0 in starts:
