@@ -15,7 +15,9 @@ erasure flag; any other output structure takes a slower numerical-gradient path 
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from functools import lru_cache
+from typing import Any
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -121,9 +123,12 @@ def _starts(tmat: NDArray[np.float64]) -> list[NDArray[np.float64]]:
     return starts
 
 
-def _maximise(objective, starts: list[NDArray[np.float64]], jac: bool) -> tuple[float, NDArray[np.float64]]:  # type: ignore[no-untyped-def]
+def _maximise(objective: Callable[[NDArray[np.float64]], Any], starts: list[NDArray[np.float64]],
+              jac: bool) -> tuple[float, NDArray[np.float64]]:
     """Best of the local maxima from ``starts``; stops once two starts agree within 1e-10 bits."""
-    from scipy.optimize import minimize  # lazy: importing scipy.optimize costs about 0.5 s
+    from scipy.optimize import (
+        minimize,  # lazy: importing scipy.optimize costs about 0.5 s
+    )
 
     found: list[float] = []
     best_val, best_x = -np.inf, starts[0]
