@@ -14,20 +14,7 @@ from hypothesis import strategies as st
 from netsim import qinfo
 from netsim.errors import ParameterError
 from netsim.qinfo.entanglement import concurrence_general, concurrence_xstate, is_xstate
-from netsim.qinfo.states import partial_trace, random_density_matrices
-
-
-def _random_xstates(n: int, seed: int) -> np.ndarray:
-    """Random full-rank X-shaped states: diagonal plus anti-diagonal, made positive by construction."""
-    rng = np.random.default_rng(seed)
-    d = rng.dirichlet(np.ones(4), size=n)
-    rho = np.zeros((n, 4, 4), dtype=complex)
-    rho[:, range(4), range(4)] = d
-    z03 = np.sqrt(d[:, 0] * d[:, 3]) * rng.uniform(0, 1, n) * np.exp(1j * rng.uniform(0, 2 * np.pi, n))
-    z12 = np.sqrt(d[:, 1] * d[:, 2]) * rng.uniform(0, 1, n) * np.exp(1j * rng.uniform(0, 2 * np.pi, n))
-    rho[:, 0, 3], rho[:, 3, 0] = z03, z03.conj()
-    rho[:, 1, 2], rho[:, 2, 1] = z12, z12.conj()
-    return rho
+from netsim.qinfo.states import partial_trace, random_density_matrices, random_xstates
 
 
 @pytest.mark.parametrize("rank", [None, 3, 2, 1])
@@ -75,13 +62,13 @@ def test_pure_state_concurrence_closed_form() -> None:
 
 def test_xstate_fast_path_agrees_with_general_path() -> None:
     # Yu & Eberly, Quantum Inf. Comput. 7, 459 (2007) closed form vs Wootters (1998) general form.
-    rho = _random_xstates(2000, seed=30)
+    rho = random_xstates(2000, seed=30)
     assert np.all(is_xstate(rho))
     np.testing.assert_allclose(concurrence_xstate(rho), concurrence_general(rho), atol=1e-10)
 
 
 def test_mixed_batch_dispatches_each_element() -> None:
-    rho = np.concatenate([_random_xstates(5, seed=31), random_density_matrices(5, 4, seed=32)])[::-1]
+    rho = np.concatenate([random_xstates(5, seed=31), random_density_matrices(5, 4, seed=32)])[::-1]
     mask = is_xstate(rho)
     assert mask.sum() == 5
     np.testing.assert_allclose(qinfo.concurrence(rho), concurrence_general(rho), atol=1e-10)

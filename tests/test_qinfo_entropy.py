@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 
 from netsim import qinfo
 from netsim.errors import ParameterError
-from netsim.qinfo.states import random_density_matrices
+from netsim.qinfo.states import random_density_matrices, random_xstates
 
 
 @pytest.mark.parametrize(("d", "rank"), [(2, None), (2, 1), (4, None), (4, 2), (4, 1), (8, 3)])
@@ -103,9 +103,7 @@ def test_holevo_information_below_entropy_of_average(seed: int, n: int, d: int) 
 
 def test_xstate_entropy_fast_path_agrees_with_eigvalsh() -> None:
     # Closed-form eigenvalues of the two 2 x 2 blocks of X states vs QuTiP entropy_vn (reference library).
-    from test_qinfo_entanglement import _random_xstates
-
-    rho = np.concatenate([_random_xstates(300, seed=60), random_density_matrices(5, 4, seed=61),
+    rho = np.concatenate([random_xstates(300, seed=60), random_density_matrices(5, 4, seed=61),
                           qinfo.werner_state(np.array([0.0, 0.5, 1.0]))])
     ref = np.array([qutip.entropy_vn(qutip.Qobj(r), base=2) for r in rho])
     np.testing.assert_allclose(qinfo.von_neumann_entropy(rho), ref, atol=1e-10)

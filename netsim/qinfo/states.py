@@ -28,6 +28,7 @@ __all__ = [
     "is_xstate",
     "partial_trace",
     "random_density_matrices",
+    "random_xstates",
     "werner_state",
 ]
 
@@ -227,3 +228,20 @@ def random_density_matrices(n: int, d: int = 4, seed: Any = 0, rank: int | None 
     g = rng.normal(size=(n, d, k)) + 1j * rng.normal(size=(n, d, k))
     rho = g @ np.conj(np.swapaxes(g, -1, -2))
     return rho / np.trace(rho, axis1=-2, axis2=-1).real[:, None, None]
+
+
+def random_xstates(n: int, seed: Any = 0) -> NDArray[np.complex128]:
+    """``n`` random full-rank X-shaped two-qubit states (diagonal plus anti-diagonal).
+
+    Populations are Dirichlet(1, 1, 1, 1); each anti-diagonal coherence has a uniform phase and
+    a modulus uniform in [0, sqrt(rho_ii rho_jj)), which keeps the state positive. Used by tests
+    and benchmarks.
+    """
+    rng = np.random.default_rng(seed)
+    d = rng.dirichlet(np.ones(4), size=n)
+    rho = np.zeros((n, 4, 4), dtype=complex)
+    rho[:, range(4), range(4)] = d
+    for i, j in ((0, 3), (1, 2)):
+        z = np.sqrt(d[:, i] * d[:, j]) * rng.uniform(0, 1, n) * np.exp(1j * rng.uniform(0, 2 * np.pi, n))
+        rho[:, i, j], rho[:, j, i] = z, z.conj()
+    return rho

@@ -17,7 +17,7 @@ import scipy.linalg
 from netsim import qinfo
 from netsim.qinfo import capacity
 from netsim.qinfo.entanglement import concurrence_general
-from netsim.qinfo.states import random_density_matrices
+from netsim.qinfo.states import random_density_matrices, random_xstates
 
 N_STATES = 100_000
 N_REFERENCE = 2_000
@@ -42,18 +42,6 @@ def _reference_eof(rho: np.ndarray) -> float:
     return 0.0 if x >= 1 else float(-x * np.log2(x) - (1 - x) * np.log2(1 - x))
 
 
-def _random_xstates(n: int, seed: int) -> np.ndarray:
-    rng = np.random.default_rng(seed)
-    d = rng.dirichlet(np.ones(4), size=n)
-    rho = np.zeros((n, 4, 4), dtype=complex)
-    rho[:, range(4), range(4)] = d
-    z03 = np.sqrt(d[:, 0] * d[:, 3]) * rng.uniform(0, 1, n) * np.exp(1j * rng.uniform(0, 2 * np.pi, n))
-    z12 = np.sqrt(d[:, 1] * d[:, 2]) * rng.uniform(0, 1, n) * np.exp(1j * rng.uniform(0, 2 * np.pi, n))
-    rho[:, 0, 3], rho[:, 3, 0] = z03, z03.conj()
-    rho[:, 1, 2], rho[:, 2, 1] = z12, z12.conj()
-    return rho
-
-
 def eof_general() -> list[dict[str, Any]]:
     """Entanglement of formation of 10^5 random full-rank two-qubit states (no X structure)."""
     rho = random_density_matrices(N_STATES, 4, seed=1)
@@ -66,7 +54,7 @@ def eof_general() -> list[dict[str, Any]]:
 
 def eof_xstate() -> list[dict[str, Any]]:
     """Entanglement of formation of 10^5 X-shaped states (closed-form path, detected per state)."""
-    rho = _random_xstates(N_STATES, seed=2)
+    rho = random_xstates(N_STATES, seed=2)
     rate = N_STATES / _best_time(lambda: qinfo.entanglement_of_formation(rho))
     general_rate = N_STATES / _best_time(lambda: concurrence_general(rho), repeats=1)
     return [{"name": "eof_xstate_states_per_s", "value": rate, "unit": "states/s", "target": 2_000_000.0,
@@ -87,7 +75,7 @@ def entropy() -> list[dict[str, Any]]:
             float(-(lam * np.log2(lam)).sum())
 
     ref_rate = N_REFERENCE / _best_time(loop, repeats=1)
-    xs = _random_xstates(N_STATES, seed=4)
+    xs = random_xstates(N_STATES, seed=4)
     x_rate = N_STATES / _best_time(lambda: qinfo.von_neumann_entropy(xs))
     return [{"name": "entropy_states_per_s", "value": rate, "unit": "states/s", "target": None,
              "higher_is_better": True, "baseline": "per-state scipy eigvalsh loop", "ratio": rate / ref_rate},
