@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import csv
+import io
 import json
 import math
 import subprocess
@@ -68,13 +70,21 @@ def test_depolarizing_alone_gives_king_capacity(capsys: pytest.CaptureFixture[st
     assert row["plob_bits_per_use"] is None  # infinite at eta = 1; JSON has no infinity
 
 
-@pytest.mark.parametrize("fmt", ["table", "csv", "md", "tex"])
-def test_every_format_lists_each_length(capsys: pytest.CaptureFixture[str], fmt: str) -> None:
+def test_csv_has_one_row_per_length(capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["link", "--length-km", "3", "7", "--format", "csv"]) == 0
+    rows = list(csv.reader(io.StringIO(capsys.readouterr().out)))
+    assert rows[0][:3] == ["length (km)", "loss (dB)", "eta"]
+    # 0.2 dB/km (default): 3 km -> 0.6 dB, 7 km -> 1.4 dB
+    assert [(float(r[0]), round(float(r[1]), 12)) for r in rows[1:]] == [(3.0, 0.6), (7.0, 1.4)]
+
+
+@pytest.mark.parametrize("fmt", ["table", "md", "tex"])
+def test_text_formats_list_each_length(capsys: pytest.CaptureFixture[str], fmt: str) -> None:
     assert main(["link", "--length-km", "3", "7", "--format", fmt]) == 0
-    out = capsys.readouterr().out
-    assert "length (km)" in out and "PLOB (bits/use)" in out
-    assert out.count("0.6") >= 1  # 3 km at 0.2 dB/km: loss 0.6 dB
-    assert "1.4" in out  # 7 km: loss 1.4 dB
+    lines = capsys.readouterr().out.splitlines()
+    assert any("length (km)" in line and "PLOB (bits/use)" in line for line in lines)
+    assert sum(1 for line in lines if "0.6" in line and "0.871" in line) == 1  # 3 km: eta = 10^-0.06
+    assert sum(1 for line in lines if "1.4" in line and "0.7244" in line) == 1  # 7 km: eta = 10^-0.14
 
 
 @pytest.mark.parametrize(

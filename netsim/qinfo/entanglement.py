@@ -63,19 +63,27 @@ def _cholesky4(rt: NDArray[np.complex128], tol: float = 1e-14) -> tuple[list[lis
     return low, ok
 
 
-def _flip_gram_triangular(low: list[list[Any]]) -> NDArray[np.complex128]:
-    """H = M^dagger M with M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array.
+def _flip_entries(low: list[list[Any]]) -> dict[tuple[int, int], Any]:
+    """Nonzero entries of M = L^T (Y x Y) L (both triangles) for lower-triangular L.
 
     M[j, k] = sum_i s_i L[i, j] L[3 - i, k] with s = (-1, 1, 1, -1): only i in [j, 3 - k]
-    contributes, so M is complex symmetric and vanishes below the anti-diagonal, and
-    H[j, k] = sum_i conj(M[i, j]) M[i, k] has few terms. Written out to avoid batched matmuls.
+    contributes, so M is complex symmetric and vanishes below the anti-diagonal (j + k > 3).
     """
     m: dict[tuple[int, int], Any] = {}
     for j in range(4):
         for k in range(j, 4 - j):
             m[j, k] = m[k, j] = sum(_YY_SIGN[i] * low[i][j] * low[3 - i][k] for i in range(j, 4 - k))
-    n = low[0][0].shape[0]
-    h = np.empty((4, 4, n), dtype=complex)
+    return m
+
+
+def _flip_gram_triangular(low: list[list[Any]]) -> NDArray[np.complex128]:
+    """H = M^dagger M with M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array.
+
+    With M zero below the anti-diagonal, H[j, k] = sum_i conj(M[i, j]) M[i, k] runs over
+    i <= 3 - max(j, k) only. Written out to avoid batched matmuls of tiny matrices.
+    """
+    m = _flip_entries(low)
+    h = np.empty((4, 4, low[0][0].shape[0]), dtype=complex)
     for j in range(4):
         for k in range(j, 4):
             h[j, k] = sum(np.conj(m[i, j]) * m[i, k] for i in range(4 - max(j, k)))
@@ -123,12 +131,10 @@ def _wootters_lambdas(r: NDArray[np.complex128]) -> NDArray[np.float64]:
 
 
 def _flip_matrix_triangular(low: list[list[Any]]) -> NDArray[np.complex128]:
-    """M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array (see above)."""
-    n = low[0][0].shape[0]
-    m = np.zeros((n, 4, 4), dtype=complex)
-    for j in range(4):
-        for k in range(j, 4 - j):
-            m[:, j, k] = m[:, k, j] = sum(_YY_SIGN[i] * low[i][j] * low[3 - i][k] for i in range(j, 4 - k))
+    """M = L^T (Y x Y) L for lower-triangular L, as an (n, 4, 4) array."""
+    m = np.zeros((low[0][0].shape[0], 4, 4), dtype=complex)
+    for (j, k), value in _flip_entries(low).items():
+        m[:, j, k] = value
     return m
 
 
