@@ -39,7 +39,8 @@ def _swap_tensor() -> NDArray[np.complex128]:
     return np.einsum("kbm,knp,kcx,kCy->bmnpcxCy", beta.conj(), beta, _PAULI, _PAULI.conj())
 
 
-_SWAP = _swap_tensor()
+#: G as a (16, 16) matrix, rows (b, n, c, C) and columns (m, x, p, y) (see entanglement_swap).
+_SWAP_MATRIX = np.ascontiguousarray(_swap_tensor().transpose(0, 2, 4, 6, 1, 5, 3, 7).reshape(16, 16))
 
 
 def entanglement_swap(rho_1: ArrayLike, rho_2: ArrayLike, bsm_depolarizing: float = 0.0) -> NDArray[np.complex128]:
@@ -72,8 +73,12 @@ def entanglement_swap(rho_1: ArrayLike, rho_2: ArrayLike, bsm_depolarizing: floa
     r2 = as_states(rho_2, "rho_2", 4)
     batch = np.broadcast_shapes(r1.shape[:-2], r2.shape[:-2])
     t1 = np.broadcast_to(r1, batch + (4, 4)).reshape(batch + (2, 2, 2, 2))
-    t2 = np.broadcast_to(r2, batch + (4, 4)).reshape(batch + (2, 2, 2, 2))
-    out = np.einsum("bmnpcxCy,...abAn,...mxpy->...acAC", _SWAP, t1, t2, optimize=True).reshape(batch + (4, 4))
+    t2 = np.broadcast_to(r2, batch + (4, 4)).reshape(batch + (16,))
+    # out[a, c, A, C] = sum G[b, m, n, p, c, x, C, y] r1[a, b, A, n] r2[m, x, p, y], as two products
+    t = (t2 @ _SWAP_MATRIX.T).reshape(batch + (4, 4))  # [(b, n), (c, C)]
+    r1_mat = np.swapaxes(t1, -3, -2).reshape(batch + (4, 4))  # [(a, A), (b, n)]
+    out = (r1_mat @ t).reshape(batch + (2, 2, 2, 2))  # [a, A, c, C]
+    out = np.swapaxes(out, -3, -2).reshape(batch + (4, 4))
     if q > 0.0:
         rho_a = np.trace(t1, axis1=-3, axis2=-1)
         mixed = np.einsum("...aA,cC->...acAC", rho_a, np.eye(2) / 2).reshape(batch + (4, 4))
