@@ -117,13 +117,21 @@ class SlotBroker:
         self._grant()
 
     def _grant(self) -> None:
+        """Grant in policy order. A request that cannot be served earmarks what it needs, so
+        later requests may use only slots it does not need (no demand starves: the slots it
+        waits for can only accumulate)."""
         events = {id(r): e for r, e in self.waiting}
+        spare = dict(self.free)
         for req in self.policy.order([r for r, _ in self.waiting]):
-            if all(self.free[s] >= k for s, k in req.need.items()):
+            if all(spare[s] >= k for s, k in req.need.items()):
                 for s, k in req.need.items():
                     self.free[s] -= k
+                    spare[s] -= k
                 self.waiting = [(r, e) for r, e in self.waiting if r is not req]
                 events[id(req)].succeed()
+            else:
+                for s, k in req.need.items():
+                    spare[s] = max(0, spare[s] - k)
 
 
 class _Lane:

@@ -8,7 +8,10 @@ slot per hop end at every site of its route (two at a repeater, one at each end 
 losses inside the reservation until one end-to-end pair is delivered; then the reservation is
 returned and the demand queues again. Reserving a whole path at once cannot deadlock (no demand
 ever holds part of what it needs while waiting for the rest). A :class:`SchedulingPolicy` orders
-the waiting requests; the broker grants, in that order, every request whose slots are free.
+the waiting requests; the broker grants, in that order, every request whose slots are free, and
+a request it cannot serve earmarks the slots it needs so that requests later in the order cannot
+take them (backfilling only onto slots nobody earlier is waiting for). Without the earmark a
+demand whose route overlaps several busy demands could wait for ever.
 
 - ``fair`` (default): first come, first served by request time, ties by demand order. A demand
   that just finished queues behind every demand already waiting, so demands sharing a site take
