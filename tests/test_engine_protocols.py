@@ -203,3 +203,25 @@ def test_interrupt_keeps_what_was_delivered(monkeypatch: pytest.MonkeyPatch) -> 
     run = simulate_chain_vector(line_chain(2, 0.1, 1e-3), StopRule(pairs=100_000), np.random.default_rng(0))
     assert run.interrupted and 0 < run.metrics.n < 100_000
     assert run.simulated_time_s > 0
+
+
+def test_no_demand_starves_between_two_busy_neighbours() -> None:
+    # Demand X crosses repeaters R1 and R2; demand Y uses only R1, demand Z only R2; each
+    # repeater has room for one demand. Y and Z alternate their reservations; a broker that lets
+    # them take turns past X's older request would starve X for ever. With earmarking X gets a
+    # fair share: at least a fifth of its lone rate (a generous bound; common practice).
+    def site(name: str, role: str) -> Site:
+        return Site(name, role, memory_slots=2 if role == "repeater" else 1, t1_s=math.inf, t2_s=math.inf)
+
+    r1, r2 = site("Rook One", "repeater"), site("Rook Two", "repeater")
+    u = {n: site(n, "user") for n in ("Ulla", "Vane", "Yarrow", "Yew", "Zephyr", "Zinnia")}
+    x = Chain("Ulla-Vane", (u["Ulla"], r1, r2, u["Vane"]),
+              (_hop("Ulla-Rook One", 0.1, 1e-3), _hop("Rook One-Rook Two", 0.1, 1e-3), _hop("Rook Two-Vane", 0.1, 1e-3)), index=0)
+    y = Chain("Yarrow-Yew", (u["Yarrow"], r1, u["Yew"]),
+              (_hop("Yarrow-Rook One", 0.1, 1e-3), _hop("Rook One-Yew", 0.1, 1e-3)), index=1)
+    z = Chain("Zephyr-Zinnia", (u["Zephyr"], r2, u["Zinnia"]),
+              (_hop("Zephyr-Rook Two", 0.1, 1e-3), _hop("Rook Two-Zinnia", 0.1, 1e-3)), index=2)
+    (alone,), _ = simulate_des([x], StopRule(pairs=300), [np.random.default_rng(1)])
+    runs, _ = simulate_des([x, y, z], StopRule(pairs=300), [np.random.default_rng(k) for k in (2, 3, 4)])
+    rate_x = runs[0].metrics.n / runs[0].simulated_time_s
+    assert rate_x >= 0.2 * alone.metrics.n / alone.simulated_time_s
