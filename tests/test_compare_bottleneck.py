@@ -5,8 +5,8 @@ from __future__ import annotations
 import networkx as nx
 import pytest
 
-from netsim.report.compare import Candidate, bottleneck, comparison_tables, winner
 from netsim.report.capacity import pair_key
+from netsim.report.compare import Candidate, bottleneck, comparison_tables, winner
 
 
 def _diamond() -> nx.Graph:

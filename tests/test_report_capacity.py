@@ -96,3 +96,23 @@ def test_rendered_demand_table_shows_value_and_interval() -> None:
     assert "| 10.0 | [9.0, 11.0] | 0.800 | [0.790, 0.810] |" in text
     assert "delivered rate (pairs/s)" in text and "multipath bound (ebit/s)" in text
     assert len(link_table(link_rows(data.links), data.title).rows) == 14
+
+
+def test_clopper_pearson_interval() -> None:
+    # Exact binomial limits (Clopper & Pearson, Biometrika 26, 404, 1934): for 0 of n the upper
+    # limit solves (1 - p)^n = 0.025, i.e. 1 - 0.025^(1/n) (derived here); for 5 of 10 the
+    # tabulated interval is [0.187, 0.813] (memory).
+    from netsim.report.units import binomial_ci95
+
+    assert binomial_ci95(0, 10) == (0.0, pytest.approx(1 - 0.025 ** 0.1, rel=1e-9))
+    low, high = binomial_ci95(5, 10)
+    assert low == pytest.approx(0.187, abs=1e-3) and high == pytest.approx(0.813, abs=1e-3)
+
+
+def test_simulated_link_rate_uses_success_fraction_per_attempt() -> None:
+    # Elementary-pair rate = per-round success probability / attempt period (engine contract).
+    rows = link_rows([{"link": "Aldmoor-Brackwater", "attempt_period_s": 1e-4}],
+                     [{"link": "Aldmoor-Brackwater", "attempts": 1000, "successes": 50}])
+    assert rows[0]["rate_sim_per_s"] == pytest.approx(0.05 / 1e-4)
+    low, high = rows[0]["rate_sim_ci95"]
+    assert low < 500.0 < high

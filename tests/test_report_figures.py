@@ -6,8 +6,13 @@ import numpy as np
 import pytest
 from matplotlib.collections import LineCollection, PolyCollection
 
-from netsim.report.figures import (COLUMN_WIDTH_IN, heatmap, metric_vs_parameter,
-                                   rate_vs_distance, save_figure)
+from netsim.report.figures import (
+    COLUMN_WIDTH_IN,
+    heatmap,
+    metric_vs_parameter,
+    rate_vs_distance,
+    save_figure,
+)
 from netsim.report.netmap import MapLink, MapSite, network_map, scale_length_km
 
 LENGTHS = np.linspace(1.0, 100.0, 25)
@@ -74,7 +79,7 @@ LINKS = [MapLink("Aldmoor", "Brackwater", 300.0, 0.8), MapLink("Brackwater", "Ci
 def test_network_map_colours_and_widths() -> None:
     fig = network_map(_sites(), LINKS)
     ax, key, bar = fig.axes
-    links = [c for c in ax.collections if isinstance(c, LineCollection)][0]
+    links = next(c for c in ax.collections if isinstance(c, LineCollection))
     assert np.allclose(links.get_array(), [300.0, 80.0, 150.0, 40.0])
     widths = links.get_linewidths()
     assert widths[0] > widths[1] > widths[2] == widths[3]

@@ -59,7 +59,7 @@ def test_series_and_grid_arrays() -> None:
     x, y, low, high = series([r for r in _records() if r[T2] == 0.1], "rate_per_s", ALPHA,
                              ci_key="rate_ci95")
     assert np.allclose(x, [0.2, 0.25, 0.3]) and np.all(low < y) and np.all(y < high)
-    gx, gy, z = grid(_records(), "rate_per_s", ALPHA, T2)
+    _gx, _gy, z = grid(_records(), "rate_per_s", ALPHA, T2)
     assert z.shape == (2, 3) and z[1, 0] == pytest.approx(1000 * 10 ** (-0.4))
 
 

@@ -127,7 +127,7 @@ def test_poisson_interval_matches_published_values() -> None:
 def test_mean_interval_uses_student_t() -> None:
     # t_{0.975, 4} = 2.776 (standard t table, e.g. NIST/SEMATECH e-Handbook, memory).
     values = [1.0, 2.0, 3.0, 4.0, 5.0]
-    mean, low, high = mean_ci95(values)
+    mean, _low, high = mean_ci95(values)
     assert mean == 3.0
     assert high - mean == pytest.approx(2.776 * math.sqrt(2.5) / math.sqrt(5), rel=1e-3)
     assert math.isnan(mean_ci95([1.0])[1])

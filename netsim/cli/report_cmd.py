@@ -24,6 +24,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--format", default="md", help="table format: " + ", ".join(_FORMATS) + " (default md)")
     parser.add_argument("--out", default=None, help="output directory (default results/<scenario>/report)")
     parser.add_argument("--simulate", action="store_true", help="scenario only: also run the engine")
+    parser.add_argument("--scenario", default=None,
+                        help="run result only: the scenario file it was made from (default: "
+                             "scenarios/<name>.toml when its name matches)")
     parser.add_argument("--pairs", type=int, default=None, help="with --simulate: pairs per demand (default 1000)")
     parser.add_argument("--time-s", type=float, default=None, help="with --simulate: simulated seconds instead")
     parser.add_argument("--seed", type=int, default=0, help="with --simulate: random seed (default 0)")
@@ -65,7 +68,8 @@ def run(args: argparse.Namespace) -> int:
     started = time.perf_counter()
     options = {"seed": args.seed}
     options.update({"time_s": args.time_s} if args.time_s is not None else {"pairs": args.pairs or 1000})
-    data = load_source(args.source, simulate=args.simulate, run_options=options)
+    data = load_source(args.source, simulate=args.simulate, run_options=options,
+                       scenario_path=args.scenario)
     out = Path(args.out) if args.out else Path("results") / data.slug / "report"
     tables, written = write_report(data, out, args.format, figures=not args.no_figures,
                                    metrics=_metrics(args.metric), params=args.param)

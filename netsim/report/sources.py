@@ -123,7 +123,7 @@ def _from_scenario(path: Path, simulate: bool, run_options: Mapping[str, Any]) -
     if simulate:
         from netsim import engine
 
-        data.run = engine.run(scenario, **dict(run_options)).to_dict()  # type: ignore[attr-defined]
+        data.run = engine.run(scenario, **dict(run_options)).to_dict()
     return data
 
 
@@ -138,35 +138,48 @@ def _read_json(path: Path) -> dict[str, Any]:
     return value
 
 
-def _scenario_of_run(run: Mapping[str, Any], path: Path) -> Any:
-    """The run's scenario, loaded again from its source file when that file still exists."""
+def _run_name(run: Mapping[str, Any]) -> str | None:
+    info = run.get("scenario")
+    if isinstance(info, Mapping):
+        return str(info.get("name")) if info.get("name") else None
+    return str(info) if info else None
+
+
+def _candidate_scenarios(path: Path) -> list[Path]:
+    """Where the scenario of ``results/<slug>/run.json`` is usually found: ``<slug>.toml`` in
+    ``scenarios/`` under the working directory or above the results directory."""
+    slug = path.resolve().parent.name
+    roots = [Path.cwd(), *path.resolve().parents[1:4]]
+    return [root / folder / f"{slug}.toml" for root in roots for folder in ("scenarios", ".")]
+
+
+def _scenario_of_run(run: Mapping[str, Any], path: Path, scenario_path: str | Path | None) -> Any:
+    """The scenario a run was made from: ``scenario_path`` if given (its name must match the
+    run's), else a file found next to the results whose name matches; ``None`` if none is."""
     from netsim.scenario import load
 
-    info = run.get("scenario")
-    source = info.get("source") if isinstance(info, Mapping) else None
-    if not source:
-        return None
-    candidate = Path(source)
-    candidate = candidate if candidate.is_absolute() or candidate.exists() else path.parent / candidate
-    if not candidate.is_file():
-        return None
-    scenario = load(candidate)
-    expected = info.get("content_hash") if isinstance(info, Mapping) else None
-    return scenario if not expected or expected == scenario.content_hash else None
+    name = _run_name(run)
+    if scenario_path is not None:
+        scenario = load(scenario_path)
+        if name is not None and scenario.name != name:
+            raise ParameterError("--scenario", str(scenario_path),
+                                 f"the scenario the run was made from (named {name!r})")
+        return scenario
+    for candidate in _candidate_scenarios(path):
+        if candidate.is_file():
+            scenario = load(candidate)
+            if scenario.name == name:
+                return scenario
+    return None
 
 
-def _from_run(path: Path) -> ReportData:
+def _from_run(path: Path, scenario_path: str | Path | None = None) -> ReportData:
     run = _read_json(path)
-    scenario = _scenario_of_run(run, path)
-    raw = run.get("scenario")
-    info: Mapping[str, Any] = raw if isinstance(raw, Mapping) else {}
-    name = str(info.get("name") or (scenario.name if scenario else path.parent.name))
-    slug = scenario.slug if scenario else str(info.get("slug") or path.parent.name)
+    scenario = _scenario_of_run(run, path, scenario_path)
+    name = _run_name(run) or (scenario.name if scenario else path.parent.name)
+    slug = scenario.slug if scenario else path.resolve().parent.name
     data = ReportData("run", slug, name, run=run, scenario=scenario)
-    budget = run.get("budget")
-    if isinstance(budget, Mapping):
-        data.links, data.demands = _entities(budget.get("links")), _entities(budget.get("demands"))
-    elif scenario is not None:
+    if scenario is not None:
         data.links, data.demands = _budget_rows(scenario)
     else:
         data.links, data.demands = data.run_links, data.run_demands
@@ -210,7 +223,8 @@ def _from_store(path: Path) -> ReportData:
 
 
 def load_source(source: str | Path, *, simulate: bool = False,
-                run_options: Mapping[str, Any] | None = None) -> ReportData:
+                run_options: Mapping[str, Any] | None = None,
+                scenario_path: str | Path | None = None) -> ReportData:
     """Load ``source`` (scenario, run result or sweep store) into :class:`ReportData`.
 
     Parameters
@@ -219,13 +233,15 @@ def load_source(source: str | Path, *, simulate: bool = False,
         ``.toml`` scenario, ``.json`` run result or ``.sqlite`` sweep store.
     simulate : bool
         For a scenario: also run the engine (``run_options`` passed to ``engine.run``).
+    scenario_path : str or Path, optional
+        For a run result: the scenario it was made from (else looked for beside the results).
     """
     path = Path(source)
     kind = source_kind(path)
     if kind == "scenario":
         return _from_scenario(path, simulate, run_options or {})
     if kind == "run":
-        return _from_run(path)
+        return _from_run(path, scenario_path)
     return _from_store(path)
 
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-__all__ = ["HEADERS", "header", "mean_ci95", "poisson_rate_ci95"]
+__all__ = ["HEADERS", "binomial_ci95", "header", "mean_ci95", "poisson_rate_ci95"]
 
 HEADERS: dict[str, str] = {
     "rate_per_s": "delivered rate (pairs/s)",
@@ -58,6 +58,24 @@ def poisson_rate_ci95(count: int, time_s: float) -> tuple[float, float]:
         return (math.nan, math.nan)
     low = 0.0 if count == 0 else float(chi2.ppf(0.025, 2 * count)) / (2 * time_s)
     return (low, float(chi2.ppf(0.975, 2 * count + 2)) / (2 * time_s))
+
+
+def binomial_ci95(successes: int, trials: int) -> tuple[float, float]:
+    """Exact (Clopper-Pearson) 95 % interval for a success probability from ``successes`` of
+    ``trials``: ``beta.ppf(0.025, k, n - k + 1)`` and ``beta.ppf(0.975, k + 1, n - k)``.
+
+    References
+    ----------
+    C. J. Clopper and E. S. Pearson, "The use of confidence or fiducial limits illustrated in the
+    case of the binomial", Biometrika 26, 404 (1934).
+    """
+    from scipy.stats import beta
+
+    if trials <= 0 or not 0 <= successes <= trials:
+        return (math.nan, math.nan)
+    low = 0.0 if successes == 0 else float(beta.ppf(0.025, successes, trials - successes + 1))
+    high = 1.0 if successes == trials else float(beta.ppf(0.975, successes + 1, trials - successes))
+    return (low, high)
 
 
 def mean_ci95(values: Sequence[float]) -> tuple[float, float, float]:
