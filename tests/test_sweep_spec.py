@@ -230,3 +230,17 @@ def test_dry_run_lists_points_and_estimates(tmp_path: Path, capsys: pytest.Captu
     assert seconds >= 0.05 and "on 2 workers" in out[7]
     assert not store.exists()  # a dry run writes nothing
     assert math.isfinite(seconds)
+
+
+def test_dry_run_calibration_is_bounded(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    from netsim.cli import build_parser
+    from netsim.cli.sweep_cmd import run_command
+    from netsim.sweep.synthetic import SyntheticPoint
+
+    path = write_scenario(tmp_path)
+    args = build_parser().parse_args(["sweep", str(path), "--vary", "links[0].length_km=10,20", "--workers", "1",
+                                      "--point-timeout-s", "0.3", "--dry-run", "--store", str(tmp_path / "s.sqlite")])
+    assert run_command(args, point_function=SyntheticPoint(hang_at_length_km=10.0)) == 0
+    last = capsys.readouterr().out.splitlines()[-1]
+    assert last.startswith("calibration point #0 did not finish within 0.3 s; "
+                           "estimated run time for 2 points on 1 worker: more than")

@@ -115,8 +115,7 @@ def _store_statuses(path: Path, plan: Any) -> dict[str, str]:
 
 
 def _dry_run(args: argparse.Namespace, plan: Any, point_function: Any, store: Path) -> int:
-    from netsim.sweep.executors import default_workers
-    from netsim.sweep.runner import calibrate, describe_point, estimate_s
+    from netsim.sweep.runner import describe_point
 
     statuses = _store_statuses(store, plan)
     wanted = "failed" if args.retry_failed else "pending"
@@ -125,15 +124,27 @@ def _dry_run(args: argparse.Namespace, plan: Any, point_function: Any, store: Pa
         print(describe_point(point, statuses.get(point.point_id)))
     print(f"{len(plan.points)} points, {len(todo)} to run; store {store}"
           f"{'' if statuses else ' (not created yet)'}")
-    seconds, record = calibrate(plan, point_function, args.point_timeout_s)
-    if record.status != "done":
-        print(f"calibration point #0 failed after {seconds:.2f} s: {record.error}")
-        return 1
+    return _print_estimate(args, plan, point_function, len(todo))
+
+
+def _print_estimate(args: argparse.Namespace, plan: Any, point_function: Any, count: int) -> int:
+    from netsim.sweep.executors import default_workers
+    from netsim.sweep.runner import CALIBRATION_LIMIT_S, calibrate, estimate_s
+
+    limit = min(CALIBRATION_LIMIT_S, args.point_timeout_s or CALIBRATION_LIMIT_S)
+    seconds, record = calibrate(plan, point_function, limit)
     workers = args.workers or (_cluster_workers(args.cluster) if args.cluster else default_workers())
-    where = f"{workers} workers" if workers else "the cluster's workers"
-    print(f"calibration point #0 took {seconds:.2f} s; estimated run time for {len(todo)} points on "
-          f"{where}: {_duration(estimate_s(seconds, len(todo), workers or 1))}")
-    return 0
+    where = f"{workers} worker{'s' if workers != 1 else ''}" if workers else "the cluster's workers"
+    total = _duration(estimate_s(seconds, count, workers or 1))
+    if record.status == "done":
+        print(f"calibration point #0 took {seconds:.2f} s; estimated run time for {count} points on {where}: {total}")
+        return 0
+    if (record.error or "").startswith("PointTimeout"):
+        print(f"calibration point #0 did not finish within {limit:g} s; estimated run time for {count} points "
+              f"on {where}: more than {total}")
+        return 0
+    print(f"calibration point #0 failed after {seconds:.2f} s: {record.error}")
+    return 1
 
 
 def _cluster_workers(cluster: str) -> int | None:

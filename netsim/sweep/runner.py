@@ -156,11 +156,19 @@ def describe_point(point: Point, status: str | None = None) -> str:
 
 
 
-def calibrate(plan: SweepPlan, function: Any, point_timeout_s: float | None = None) -> tuple[float, PointRecord]:
-    """Run the plan's first point once in this process (not stored); its wall time and record."""
+#: A dry run's calibration point stops after this many seconds (or --point-timeout-s if smaller).
+CALIBRATION_LIMIT_S = 60.0
+
+
+def calibrate(plan: SweepPlan, function: Any, limit_s: float = CALIBRATION_LIMIT_S) -> tuple[float, PointRecord]:
+    """Run the plan's first point once in this process (not stored), stopped after ``limit_s``.
+
+    Returns its wall time and record; a record failed with ``PointTimeout`` means "longer than
+    ``limit_s``".
+    """
     from netsim.sweep.worker import execute
 
-    task = next(tasks_for(plan, plan.points[:1], point_timeout_s))
+    task = next(tasks_for(plan, plan.points[:1], limit_s))
     clock = time.perf_counter()
     record = execute(function, task)
     return time.perf_counter() - clock, record
