@@ -138,3 +138,13 @@ def test_eof_of_one_over_root_two_concurrence() -> None:
     f = (1 + c) / 2  # Werner fidelity with C = 2F - 1
     rho = qinfo.werner_state((4 * f - 1) / 3)
     assert qinfo.entanglement_of_formation(rho) == pytest.approx(float(qinfo.binary_entropy((2 + math.sqrt(2)) / 4)), abs=1e-12)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("rank", [4, 3, 2, 1])
+def test_concurrence_matches_qutip_on_many_states(rank: int) -> None:
+    # Reference library: QuTiP qutip.concurrence on 3000 random states per rank (fixed seed);
+    # the same agreement as the quick test, over a much larger sample.
+    rho = random_density_matrices(3000, 4, seed=900 + rank, rank=rank)
+    ref = np.array([qutip.concurrence(qutip.Qobj(r, dims=[[2, 2], [2, 2]])) for r in rho])
+    np.testing.assert_allclose(qinfo.concurrence(rho), ref, atol=1e-7)
