@@ -19,7 +19,8 @@ import networkx as nx
 from netsim.report.capacity import pair_key
 from netsim.report.table import Column, Table
 
-__all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "comparison_tables", "winner"]
+__all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "candidate_from_scenario", "comparison_tables",
+           "run_candidates", "winner"]
 
 #: Edge attribute holding a link's repeaterless capacity in ebit/s (parallel fibres summed).
 CAPACITY_ATTRIBUTE = "plob_cut_bits_per_s"
@@ -161,6 +162,16 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
     return Table("Candidates: totals", columns, [*rows])
 
 
+def _relays(graph: nx.Graph, a: str, b: str) -> nx.Graph:
+    """The graph the demand may use: other end users never relay (as routing and the budget
+    assume) when the nodes carry their ``site``; the whole graph otherwise."""
+    if all("site" in data for _, data in graph.nodes(data=True)):
+        from netsim.network.routing import relay_graph
+
+        return relay_graph(graph, a, b)
+    return graph
+
+
 def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
     columns = [Column("candidate", "candidate"), Column("demand", "demand"),
                Column("cut_bits_per_s", "min cut (ebit/s)", 4), Column("links", "bottleneck links")]
@@ -168,16 +179,51 @@ def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) ->
     for c in candidates:
         for key in keys:
             a, b = sorted(key)
-            if a not in c.graph or b not in c.graph or not nx.has_path(c.graph, a, b):
+            graph = _relays(c.graph, a, b) if a in c.graph and b in c.graph else None
+            if graph is None or not nx.has_path(graph, a, b):
                 rows.append({"candidate": c.name, "demand": _label(key, candidates)})
                 continue
-            value, cut = bottleneck(c.graph, a, b)
+            value, cut = bottleneck(graph, a, b)
             rows.append({"candidate": c.name, "demand": _label(key, candidates),
                          "cut_bits_per_s": value, "links": "; ".join(f"{u}-{v}" for u, v in cut)})
-    return Table("Bottleneck links (minimum cut of repeaterless link capacities)", columns, [*rows])
+    notes = ["Other end users never relay; parallel fibres add their capacities."]
+    return Table("Bottleneck links (minimum cut of repeaterless link capacities)", columns, [*rows], notes)
 
 
 def comparison_tables(candidates: Sequence[Candidate]) -> list[Table]:
     """Side-by-side per demand, totals, and bottleneck links of every candidate."""
     keys = _all_keys(candidates)
     return [_side_by_side(candidates, keys), _totals(candidates, keys), _bottlenecks(candidates, keys)]
+
+
+def candidate_from_scenario(scenario: Any, run: Mapping[str, Any] | None,
+                            name: str | None = None) -> Candidate:
+    """A candidate from a loaded scenario and its run result (``RunResult.to_dict()``)."""
+    from netsim.network import build_graph
+    from netsim.network.budget import budget
+    from netsim.report.capacity import demand_rows
+
+    rows = demand_rows(budget(scenario).demands, (run or {}).get("demands"))
+    floors = {pair_key((d.a, d.b)): float(d.min_fidelity) for d in scenario.demands}
+    return Candidate(name or scenario.slug, build_graph(scenario), rows, floors)
+
+
+def run_candidates(paths: Sequence[str], *, pairs: int | None = 200, time_s: float | None = None,
+                   seed: int = 0, simulate: bool = True) -> list[Candidate]:
+    """Load each scenario file and run the engine on it with the same stop rule and seed."""
+    from netsim import engine
+    from netsim.scenario import load
+
+    candidates = []
+    for path in paths:
+        scenario = load(path)
+        run = None
+        if simulate:
+            stop = {"time_s": time_s} if time_s is not None else {"pairs": pairs}
+            run = engine.run(scenario, seed=seed, ensembles=False, **stop).to_dict()
+        candidates.append(candidate_from_scenario(scenario, run))
+    names = [c.name for c in candidates]
+    for i, c in enumerate(candidates):
+        if names.count(c.name) > 1:
+            c.name = f"{c.name}#{i + 1}"
+    return candidates
