@@ -4,6 +4,8 @@ For each length the command prints the loss in dB, the transmissivity eta, the r
 bound -log2(1 - eta) (Pirandola et al. 2017), the Holevo information of the chosen encoding
 ensemble through the span's qubit channel, that channel's Holevo capacity, and the coherent
 information of a Bell pair whose second qubit crosses the span (hashing bound, ebits per pair).
+The repeaterless bound limits entanglement and secret-key rates, not classical information: at
+high loss the classical Holevo figures of a qubit may exceed it.
 
 The span's qubit channel is :func:`netsim.hardware.fibre.qubit_channel`: depolarizing with
 parameter p at the sender (rho -> (1 - p) rho + p I/2), then the loss of the fibre with
@@ -134,7 +136,8 @@ def link_table(args: argparse.Namespace) -> Any:
     loss = "amplitude damping gamma = 1 - eta" if args.loss_model == "damping" else "erasure eps = 1 - eta"
     notes = [(f"attenuation {args.attenuation_db_per_km:g} dB/km, extra loss {args.extra_loss_db:g} dB; "
               f"channel: depolarizing p = {args.depolarizing:g} at the sender, then {loss}."),
-             "PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017)."]
+             "PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
+             "entanglement and secret key without repeaters; it does not bound classical capacity."]
     return Table("Single fibre span", columns, rows, notes)
 
 
