@@ -225,3 +225,21 @@ def test_no_demand_starves_between_two_busy_neighbours() -> None:
     runs, _ = simulate_des([x, y, z], StopRule(pairs=300), [np.random.default_rng(k) for k in (2, 3, 4)])
     rate_x = runs[0].metrics.n / runs[0].simulated_time_s
     assert rate_x >= 0.2 * alone.metrics.n / alone.simulated_time_s
+
+
+def test_batched_flushing_does_not_change_results(monkeypatch: pytest.MonkeyPatch) -> None:
+    # The event engine turns histories into states in batches to bound memory; the batch size
+    # must not change any figure (same seed, same numbers).
+    from netsim.engine import des
+
+    chain = line_chain(2, 0.2, 1e-3, qinfo.werner_state(0.9), t1_s=0.5, t2_s=0.2, length_km=5.0)
+
+    def figures() -> tuple[float, ...]:
+        (run,), _ = simulate_des([chain], StopRule(pairs=300), [np.random.default_rng(3)],
+                                 DesOptions(cutoff_s=5e-3))
+        m = run.metrics
+        return (m.n, m.sum_fidelity, m.sum_eof, run.simulated_time_s, *run.site_qubit_s)
+
+    whole = figures()
+    monkeypatch.setattr(des, "FLUSH_ROWS", 7)
+    np.testing.assert_allclose(figures(), whole, rtol=1e-12)

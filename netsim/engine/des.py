@@ -57,6 +57,8 @@ from netsim.engine.policies import (
 __all__ = ["DesOptions", "SlotBroker", "simulate_des"]
 
 LEFT, RIGHT = 0, 1
+#: Recorded histories are turned into states in batches of this many (bounded memory).
+FLUSH_ROWS = 20_000
 
 
 @dataclass(frozen=True)
@@ -321,9 +323,11 @@ class _Des:
 
     def _close_cycle(self, lane: _Lane, t_d: float) -> Generator[simpy.Event, Any, None]:
         yield self.env.timeout(t_d - self.env.now)
-        lane.run.metrics.n += 1  # provisional count for the stop rule; recomputed in finish()
         lane.run.add_intervals(np.array([t_d]), lane.last_delivery_s)
         lane.last_delivery_s = t_d
+        if len(lane.rows) >= FLUSH_ROWS:
+            limit = self.rules[self.lanes.index(lane)].time_s
+            self.flush(lane, min(self.env.now, math.inf if limit is None else float(limit)))
         if lane.cycle_done is not None:
             lane.cycle_done.succeed()
         self.check_finished()
@@ -385,23 +389,24 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
-        run = lane.run
-        run.metrics.n = 0
-        rows = [r for r in lane.rows if r[0] <= now]
-        n = lane.chain.n_hops
-        if rows:
-            hist = History(np.array([r[0] for r in rows]), np.array([r[1] for r in rows]),
-                           np.array([r[2] for r in rows]), np.array([r[3] for r in rows], dtype=np.int64),
+        self.flush(lane, now)
+        lane.run.simulated_time_s = now
+        lane.run.interrupted = interrupted
+        return lane.run
+
+    def flush(self, lane: _Lane, upto: float) -> None:
+        """Turn the recorded histories delivered by ``upto`` into states and figures."""
+        ready = sorted(r for r in lane.rows if r[0] <= upto)
+        lane.rows = [r for r in lane.rows if r[0] > upto]
+        n, run = lane.chain.n_hops, lane.run
+        for lo in range(0, len(ready), 20_000):
+            part = ready[lo:lo + 20_000]
+            hist = History(np.array([r[0] for r in part]), np.array([r[1] for r in part]),
+                           np.array([r[2] for r in part]), np.array([r[3] for r in part], dtype=np.int64),
                            lane.extra)
-            for lo in range(0, len(rows), 20_000):
-                part = History(hist.delivered_s[lo:lo + 20_000], hist.store_left_s[lo:lo + 20_000],
-                               hist.store_right_s[lo:lo + 20_000], hist.state_id[lo:lo + 20_000], lane.extra)
-                run.metrics.add(pair_states(lane.chain, part), part.delivered_s)
+            run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
             run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
-        run.simulated_time_s = now
-        run.interrupted = interrupted
-        return run
 
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],

@@ -146,10 +146,11 @@ class StopRule:
 
     def done(self, run: ChainRun, now_s: float) -> bool:
         """Whether ``run`` (at simulated time ``now_s``) has met this rule."""
+        delivered = run.intervals_n  # one interval per delivered pair, kept in delivery order
         if self.pairs is not None:
-            return run.metrics.n >= self.pairs
+            return delivered >= self.pairs
         if self.time_s is not None:
             return now_s >= self.time_s
-        if run.metrics.n >= self.max_pairs:
+        if delivered >= self.max_pairs:
             return True
-        return run.metrics.n >= 20 and run.rate_relative_halfwidth() <= float(self.precision or 0.0)
+        return delivered >= 20 and run.rate_relative_halfwidth() <= float(self.precision or 0.0)
