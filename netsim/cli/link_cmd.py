@@ -136,8 +136,8 @@ def link_table(args: argparse.Namespace) -> Any:
     loss = "amplitude damping gamma = 1 - eta" if args.loss_model == "damping" else "erasure eps = 1 - eta"
     notes = [(f"attenuation {args.attenuation_db_per_km:g} dB/km, extra loss {args.extra_loss_db:g} dB; "
               f"channel: depolarizing p = {args.depolarizing:g} at the sender, then {loss}."),
-             "PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
-             "entanglement and secret key without repeaters; it does not bound classical capacity."]
+             ("PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
+              "entanglement and secret key without repeaters; it does not bound classical capacity.")]
     return Table("Single fibre span", columns, rows, notes)
 
 
