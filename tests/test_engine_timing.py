@@ -111,3 +111,16 @@ def test_time_stop_rule_reports_the_requested_time() -> None:
     (des,), _ = simulate_des([chain], StopRule(time_s=0.5), [np.random.default_rng(1)], DesOptions())
     assert des.simulated_time_s == 0.5
     assert des.metrics.n > 0
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("p", [0.05, 0.5])
+def test_event_engine_cycle_time_matches_shchukin_large_sample(p: float) -> None:
+    # As above with 20,000 cycles of a 4-link chain, at a low and a high success probability
+    # (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019).
+    period, pairs = 1e-3, 20_000
+    chain = line_chain(4, p, period)
+    (run,), _ = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(99)])
+    mean_cycle = run.simulated_time_s / run.metrics.n
+    sd = math.sqrt(max(run.intervals_sum_sq_s / run.intervals_n - mean_cycle**2, 0.0))
+    assert abs(mean_cycle - shchukin_expected_max(4, p) * period) < Z * sd / math.sqrt(pairs)
