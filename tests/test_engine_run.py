@@ -81,6 +81,7 @@ def test_write_produces_json_and_csv(tmp_path: Path) -> None:
     ({"time_s": -1.0}, "--time-s = -1 is not allowed"),
     ({"precision": 1.5}, "--precision = 1.5 is not allowed"),
     ({"pairs": 5, "time_s": 1.0}, "only one stop rule"),
+    ({"pairs": 5, "seed": -3}, "seed = -3 is not allowed; expected an integer >= 0"),
 ])
 def test_bad_stop_rules_are_one_line_errors(kwargs: dict[str, Any], fragment: str) -> None:
     with pytest.raises(ParameterError, match=fragment.replace("(", r"\(")):

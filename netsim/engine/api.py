@@ -247,6 +247,8 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
         Also send the scenario's encoding ensemble along each route (Holevo figures).
     """
     rule = stop_rule(pairs, time_s, precision)
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise ParameterError("seed", seed, "an integer >= 0")
     proto = scenario.protocol
     rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
     chains = chains_from_scenario(scenario)
