@@ -144,3 +144,25 @@ def _toml(data: dict[str, Any]) -> str:
         for table in data[key]:
             out += [f"[[{key}]]"] + [f"{k} = {value(v)}" for k, v in table.items()]
     return "\n".join(out) + "\n"
+
+
+def test_cli_ctrl_c_writes_what_was_delivered(tmp_path: Path) -> None:
+    # A very long run interrupted with SIGINT: exit code 130, a message saying the files hold
+    # the pairs delivered so far, and run.json flagged as interrupted.
+    import signal
+    import time
+
+    data = _data()
+    data["demands"] = data["demands"][:1]
+    toml = tmp_path / "orrin.toml"
+    toml.write_text(_toml(data), encoding="utf-8")
+    proc = subprocess.Popen([sys.executable, "-m", "netsim", "run", str(toml), "--time-s", "1e9"],
+                            cwd=tmp_path, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    time.sleep(6.0)
+    proc.send_signal(signal.SIGINT)
+    _out, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130, err
+    assert "interrupted" in err
+    data_out = json.loads((tmp_path / "results" / "orrin" / "run.json").read_text())
+    assert data_out["interrupted"] is True
+    assert data_out["demands"][0]["delivered_pairs"] > 0

@@ -22,6 +22,8 @@ offsets couple consecutive cycles; they are found by fixed-point iteration over 
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -136,5 +138,7 @@ def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator
             now = float(delivered[-1])
     except KeyboardInterrupt:
         run.interrupted = True
+        last = run.metrics.last_delivery_s
+        now = max(now, last) if math.isfinite(last) else now
     run.simulated_time_s = rule.time_s if (rule.time_s is not None and not run.interrupted) else now
     return run
