@@ -119,7 +119,8 @@ def rate_vs_distance(length_km: ArrayLike, rates: Mapping[str, ArrayLike],
 
 @with_style
 def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlabel: str,
-                        ylabel: str, logx: bool = False, logy: bool = False) -> Figure:
+                        ylabel: str, logx: bool = False, logy: bool = False,
+                        title: str | None = None) -> Figure:
     """A metric against one swept parameter, one line per series with its 95 % band.
 
     Parameters
@@ -143,6 +144,8 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.grid(True, linewidth=0.3, color="0.85")
+    if title:
+        ax.set_title(title, fontsize=7)
     if len(curves) > 1 or next(iter(curves), ""):
         ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7)
     return fig
@@ -150,7 +153,7 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
 
 @with_style
 def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: str,
-            zlabel: str, annotate: bool = True) -> Figure:
+            zlabel: str, annotate: bool = True, title: str | None = None) -> Figure:
     """A two-parameter heatmap of a metric (viridis, colour bar with the metric and its unit)."""
     fig, ax = new_figure(height_in=2.8)
     z = np.asarray(z, dtype=float)
@@ -162,6 +165,8 @@ def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: st
     ax.set_ylabel(ylabel)
     bar = fig.colorbar(mesh, ax=ax)
     bar.set_label(zlabel)
+    if title:
+        ax.set_title(title, fontsize=7)
     if annotate and z.size <= 64:
         _annotate(ax, z)
     return fig

@@ -20,7 +20,7 @@ from netsim.errors import ParameterError
 from netsim.report.table import Column, Table
 from netsim.report.units import header, mean_ci95
 
-__all__ = ["Cell", "aggregate", "grid", "pivot_table", "series", "swept_parameters"]
+__all__ = ["Cell", "aggregate", "grid", "pivot_table", "series", "short_name", "swept_parameters"]
 
 
 @dataclass(frozen=True)
@@ -85,6 +85,11 @@ def swept_parameters(records: Sequence[Mapping[str, Any]], candidates: Iterable[
     return [k for k in candidates if len({repr(r.get(k)) for r in records}) > 1]
 
 
+def short_name(path: str) -> str:
+    """The last key of a parameter path: ``"sites[role=repeater].t2_s"`` -> ``"t2_s"``."""
+    return path.rsplit(".", 1)[-1]
+
+
 def _one_parameter(cells: dict[tuple[Any, ...], Cell], metric: str, param: str) -> Table:
     ci = f"{metric}_ci95"
     columns = [Column(param, param), Column(metric, header(metric), ci_key=ci),
@@ -97,7 +102,8 @@ def _two_parameters(cells: dict[tuple[Any, ...], Cell], metric: str, rp: str, cp
     col_values = sorted({k[1] for k in cells}, key=lambda v: _sort_key((v,)))
     columns = [Column(rp, f"{rp} \\ {cp}")]
     for j, v in enumerate(col_values):
-        columns += [Column(f"c{j}", f"{cp}={v}", ci_key=f"c{j}_ci"),
+        columns += [Column(f"c{j}", f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
+                           else f"{short_name(cp)}={v}", ci_key=f"c{j}_ci"),
                     Column(f"c{j}_ci", "95% CI", ci_key=f"c{j}_ci")]
     rows: dict[Any, dict[str, Any]] = {}
     for (r, c), cell in cells.items():

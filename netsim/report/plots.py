@@ -19,9 +19,9 @@ from netsim.report.build import file_stem
 from netsim.report.capacity import pair_key
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
-from netsim.report.pivot import grid, series
+from netsim.report.pivot import grid, series, short_name
 from netsim.report.sources import ReportData, demand_names
-from netsim.report.units import header
+from netsim.report.units import header, param_label
 
 __all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "scheme_curves", "sweep_figures"]
 
@@ -111,12 +111,14 @@ def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: s
     chosen, where = _fixed(records, params[2:])
     x, y, z = grid(chosen, metric, params[0], params[1])
     stem = file_stem(f"{metric}-{name}{where}")
-    curves = {f"{params[1]}={v:g}": series([r for r in chosen if r.get(params[1]) == v], metric,
-                                           params[0], ci_key=ci) for v in y}
-    return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=params[0], ylabel=params[1],
-                                       zlabel=f"{header(metric)}, {name}"),
-            f"lines-{stem}": metric_vs_parameter(curves, xlabel=params[0],
-                                                 ylabel=f"{header(metric)}, {name}",
+    curves = {f"{short_name(params[1])} = {v:g}": series(
+        [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
+    title = f"demand {name}{where}"
+    return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=param_label(params[0]),
+                                       ylabel=param_label(params[1]), zlabel=header(metric),
+                                       title=title),
+            f"lines-{stem}": metric_vs_parameter(curves, xlabel=param_label(params[0]),
+                                                 ylabel=header(metric), title=title,
                                                  logy=metric.endswith("per_s"))}
 
 
@@ -140,5 +142,6 @@ def sweep_figures(data: ReportData, params: Sequence[str],
                 figures.update(_demand_figures(mine, name, metric, ci, params))
         if curves:
             figures[file_stem(f"{metric}-vs-{params[0]}")] = metric_vs_parameter(
-                curves, xlabel=params[0], ylabel=header(metric), logy=metric.endswith("per_s"))
+                curves, xlabel=param_label(params[0]), ylabel=header(metric),
+                logy=metric.endswith("per_s"))
     return figures

@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-__all__ = ["HEADERS", "binomial_ci95", "header", "mean_ci95", "poisson_rate_ci95"]
+__all__ = ["HEADERS", "binomial_ci95", "header", "mean_ci95", "param_label", "poisson_rate_ci95"]
 
 HEADERS: dict[str, str] = {
     "rate_per_s": "delivered rate (pairs/s)",
@@ -36,6 +36,24 @@ HEADERS: dict[str, str] = {
     "bound_multipath_per_s": "multipath bound (ebit/s)",
     "rate_to_bound": "rate / bound",
 }
+
+
+#: Unit suffixes of key names and how an axis shows them (longest suffix first).
+_UNIT_SUFFIXES = (("_db_per_km", "dB/km"), ("_per_s", "1/s"), ("_km", "km"), ("_db", "dB"),
+                  ("_s", "s"))
+
+
+def param_label(path: str) -> str:
+    """An axis label for a swept key path, unit in brackets and scope after a comma:
+    ``"sites[role=repeater].t2_s"`` -> ``"t2 (s), sites[role=repeater]"``."""
+    scope, _, key = path.rpartition(".")
+    name, unit = key, ""
+    for suffix, shown in _UNIT_SUFFIXES:
+        if key.endswith(suffix):
+            name, unit = key[: -len(suffix)], f" ({shown})"
+            break
+    text = name.replace("_", " ") + unit
+    return f"{text}, {scope}" if scope and scope not in ("defaults.link", "defaults.site") else text
 
 
 def header(key: str) -> str:
