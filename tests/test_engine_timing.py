@@ -12,8 +12,9 @@ import numpy as np
 import pytest
 
 from netsim.engine import DesOptions, StopRule, simulate_chain_vector, simulate_des
-from netsim.engine.chain import line_chain
+from netsim.engine.chain import Chain, HopSpec, line_chain, synthetic_physics
 from netsim.engine.vector import cycle_timeline
+from netsim.scenario.model import Site
 
 Z = 4.5
 
@@ -124,3 +125,23 @@ def test_event_engine_cycle_time_matches_shchukin_large_sample(p: float) -> None
     mean_cycle = run.simulated_time_s / run.metrics.n
     sd = math.sqrt(max(run.intervals_sum_sq_s / run.intervals_n - mean_cycle**2, 0.0))
     assert abs(mean_cycle - shchukin_expected_max(4, p) * period) < Z * sd / math.sqrt(pairs)
+
+
+def test_swap_outcomes_reach_both_users_in_any_swap_order() -> None:
+    # Four hops of 30 km (message time d each), p = 1, heralds: hops 2 and 3 at a, hops 0 and 1
+    # at a + d/2. Swaps: site 3 at a, sites 1 and 2 at a + d/2. The last user hears site 1's
+    # outcome after 3 d: delivery at a + 3.5 d (worked by hand from the delivery rule).
+    length = 30.0
+    d = length * 1.468 / 299_792.458
+    a = 1e-3
+    heralds = (a + d / 2, a + d / 2, a, a)
+    sites = tuple(Site(f"Kell{k}", "user" if k in (0, 4) else "repeater", memory_slots=1 if k in (0, 4) else 2,
+                       t1_s=math.inf, t2_s=math.inf) for k in range(5))
+    hops = tuple(HopSpec(f"Kell{k}-Kell{k + 1}", synthetic_physics(1.0, 1e-2, herald_s=h, length_km=length))
+                 for k, h in enumerate(heralds))
+    chain = Chain("Kell0-Kell4", sites, hops)
+    expected = a + 3.5 * d
+    vec = simulate_chain_vector(chain, StopRule(pairs=1), np.random.default_rng(0))
+    (des,), _ = simulate_des([chain], StopRule(pairs=1), [np.random.default_rng(0)])
+    assert vec.metrics.first_delivery_s == pytest.approx(expected, rel=1e-12)
+    assert des.metrics.first_delivery_s == pytest.approx(expected, rel=1e-12)

@@ -20,8 +20,8 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
   (c / 1.468). Sites decide on what they know at the moment (a site does not swap a segment whose
   failure message is still travelling to it; documented simplification).
 - **Delivery.** A segment spanning both users is delivered when both know every herald and swap
-  outcome: max over its swaps of (swap time + message time to each user). Users consume on
-  delivery; their qubits decohere until then.
+  outcome: max over its swaps of (swap time + message time to each user), messages relayed along
+  the chain. Users consume on delivery; their qubits decohere until then.
 - **Cut-off.** A segment whose oldest link pair started more than ``cutoff_s`` ago, and that is not
   yet complete, is discarded; each site runs the same timer, so its slots free at that moment.
 - **Purification.** With ``rounds`` r >= 1 a hop keeps one stored pair per level (binary
@@ -253,9 +253,12 @@ class _Des:
         self.free_slot(lane, j, LEFT, now)
         if success:
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
+            # outcomes known at j (this swap, and what j learnt of each side) travel on to the
+            # far ends: the joined pair's ends know everything at these times
+            to_lo, to_hi = c.delay_s(j, left.lo), c.delay_s(j, right.hi)
             joined = _Seg(left.lo, right.hi, left.pairs + right.pairs,
-                          max(left.info_lo, now + c.delay_s(j, left.lo)),
-                          max(right.info_hi, now + c.delay_s(j, right.hi)),
+                          max(left.info_lo, now + to_lo, right.info_lo + to_lo),
+                          max(right.info_hi, now + to_hi, left.info_hi + to_hi),
                           min(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
