@@ -30,6 +30,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Protocol
 
+import simpy
+
 from netsim.errors import ParameterError
 
 __all__ = [
@@ -123,3 +125,41 @@ def swap_policy(name: str | SwapPolicy) -> SwapPolicy:
     if name not in SWAPPING:
         raise ParameterError("protocol.swap_policy", name, "one of " + ", ".join(SWAPPING))
     return SWAPPING[name]
+
+
+class SlotBroker:
+    """Grants path reservations of memory slots in the order a scheduling policy gives."""
+
+    def __init__(self, env: simpy.Environment, capacity: dict[str, int], policy: SchedulingPolicy) -> None:
+        self.env, self.free, self.policy = env, dict(capacity), policy
+        self.waiting: list[tuple[Request, simpy.Event]] = []
+        self._sequence = 0
+
+    def request(self, demand_index: int, need: dict[str, int]) -> simpy.Event:
+        event = self.env.event()
+        self._sequence += 1
+        self.waiting.append((Request(demand_index, self.env.now, self._sequence, need), event))
+        self._grant()
+        return event
+
+    def release(self, need: dict[str, int]) -> None:
+        for site, k in need.items():
+            self.free[site] += k
+        self._grant()
+
+    def _grant(self) -> None:
+        """Grant in policy order. A request that cannot be served earmarks what it needs, so
+        later requests may use only slots it does not need (no demand starves: the slots it
+        waits for can only accumulate)."""
+        events = {id(r): e for r, e in self.waiting}
+        spare = dict(self.free)
+        for req in self.policy.order([r for r, _ in self.waiting]):
+            if all(spare[s] >= k for s, k in req.need.items()):
+                for s, k in req.need.items():
+                    self.free[s] -= k
+                    spare[s] -= k
+                self.waiting = [(r, e) for r, e in self.waiting if r is not req]
+                events[id(req)].succeed()
+            else:
+                for s, k in req.need.items():
+                    spare[s] = max(0, spare[s] - k)
