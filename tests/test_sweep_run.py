@@ -172,6 +172,19 @@ def test_point_timeout_fails_the_point_and_the_sweep_goes_on(plan: SweepPlan, tm
     assert all(0.3 <= p["duration_s"] < 5.0 for p in failed)
 
 
+def test_point_blocked_outside_python_is_stopped_by_the_pool(plan: SweepPlan, tmp_path: Path) -> None:
+    store = tmp_path / "s.sqlite"
+    summary = run_sweep(plan, LocalPool(SyntheticPoint(block_at_length_km=4.0), 2), store_path=store,
+                        point_timeout_s=0.3, quiet=True, stream=io.StringIO())
+    assert (summary.done, summary.failed) == (28, 2)
+    failed = open_store(store).points(status="failed")
+    assert {p["parameters"]["links[*].length_km"] for p in failed} == {4.0}
+    assert all(p["error"].endswith("did not respond; its worker was stopped") for p in failed)
+    reference = _reference(plan)
+    done = {k: v for k, v in reference.items() if point_map(store)[k[0]]["status"] == "done"}
+    assert metric_map(store) == done
+
+
 def test_a_dying_worker_loses_nothing(plan: SweepPlan, tmp_path: Path) -> None:
     store = tmp_path / "s.sqlite"
     marker = tmp_path / "died"
@@ -180,6 +193,19 @@ def test_a_dying_worker_loses_nothing(plan: SweepPlan, tmp_path: Path) -> None:
     assert marker.exists()                                        # a worker did die mid-point
     assert (summary.done, summary.failed) == (30, 0)
     _assert_complete(store, plan, _reference(plan))
+
+
+def test_a_point_that_always_kills_its_worker_fails_alone(plan: SweepPlan, tmp_path: Path) -> None:
+    store = tmp_path / "s.sqlite"
+    summary = run_sweep(plan, LocalPool(SyntheticPoint(die_at_length_km=6.0), 2), store_path=store,
+                        quiet=True, stream=io.StringIO())
+    assert (summary.done, summary.failed) == (28, 2)
+    points = point_map(store)
+    failed = [p for p in points.values() if p["status"] == "failed"]
+    assert {p["parameters"]["links[*].length_km"] for p in failed} == {6.0}
+    assert all(p["error"] == "WorkerDied: the worker process died 3 times while running this point" for p in failed)
+    reference = _reference(plan)
+    assert metric_map(store) == {k: v for k, v in reference.items() if points[k[0]]["status"] == "done"}
 
 
 def _start(script: str, *args: str) -> subprocess.Popen[bytes]:

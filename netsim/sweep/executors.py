@@ -7,12 +7,17 @@ points in flight.
 
 - :class:`LocalPool`: a ``concurrent.futures.ProcessPoolExecutor`` (``forkserver`` start on
   Linux). Workers ignore SIGINT; the coordinator handles Ctrl-C by dropping the points in flight
-  whole. If a worker process dies, the pool is rebuilt and the points in flight run again (the
-  pool cannot tell which worker held which point, so every point in flight is charged); a point
-  charged :data:`MAX_ATTEMPTS` times is recorded as failed.
+  whole. Workers report each point's start on a queue. If a worker process dies, the pool is
+  rebuilt and the points in flight run again. The pool cannot tell which running point killed
+  its worker, so when several were running they run again one at a time; a point whose worker
+  dies while it runs alone is charged, and after :data:`MAX_ATTEMPTS` charges it is recorded as
+  failed. A point blocked outside Python (where the in-worker time-out cannot reach
+  it) is failed once it has run ``--point-timeout-s`` plus :data:`HARD_TIMEOUT_GRACE_S`, and the
+  pool is restarted.
 - :class:`DaskPool`: a Dask distributed scheduler (``--cluster ADDRESS``) or a LocalCluster
   (``--cluster local:N``). Dask itself reruns a point whose worker died, up to its
-  ``allowed-failures`` setting; after that the point is recorded as failed. Dask is the optional
+  ``allowed-failures`` setting; after that the point is recorded as failed. Only the in-worker
+  time-out applies (a Dask worker thread cannot be stopped from outside). Dask is the optional
   ``cluster`` extra and is imported only here, lazily.
 
 Every point runs :func:`netsim.sweep.worker.execute`, which never raises for the point's own
@@ -25,6 +30,7 @@ import multiprocessing
 import os
 import signal
 import sys
+import time
 import uuid
 from collections import deque
 from collections.abc import Generator, Iterable, Iterator
@@ -40,6 +46,10 @@ __all__ = ["MAX_ATTEMPTS", "DaskPool", "LocalPool", "default_workers", "make_exe
 
 #: A point whose worker dies this many times is recorded as failed.
 MAX_ATTEMPTS = 3
+#: A local point still running this long after its time-out is stuck outside Python (where the
+#: in-worker time-out cannot reach it): it is failed and its pool restarted.
+HARD_TIMEOUT_GRACE_S = 2.0
+_POLL_S = 0.5
 
 
 def default_workers() -> int:
@@ -50,13 +60,31 @@ def default_workers() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def _ignore_sigint() -> None:
+#: In a worker process: where it reports "point X started at time T" (None elsewhere).
+_STARTED: Any = None
+
+
+def _init_worker(started: Any) -> None:
+    """Worker initializer: leave Ctrl-C to the coordinator; remember the start-report queue."""
+    global _STARTED
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _STARTED = started
+
+
+def _run_point(function: PointFunction, task: PointTask) -> PointRecord:
+    """In a worker: report the start (synchronously, so a crash cannot lose it), then run."""
+    if _STARTED is not None:
+        _STARTED.put((task.point_id, time.time()))
+    return execute(function, task)
 
 
 def _lost(task: PointTask, why: str) -> PointRecord:
     now = utc_now()
     return PointRecord(task.point_id, "failed", now, now, 0.0, why)
+
+
+def _finished(future: Future[PointRecord]) -> bool:
+    return future.done() and not future.cancelled() and future.exception() is None
 
 
 class LocalPool:
@@ -74,54 +102,142 @@ class LocalPool:
 
     def run(self, tasks: Iterable[PointTask]) -> Generator[PointRecord, None, None]:
         """Yield one record per task, in completion order."""
-        queue: deque[PointTask] = deque()
-        source = iter(tasks)
-        deaths: dict[str, int] = {}
+        backlog = _Backlog(iter(tasks))
         while True:
-            pool = ProcessPoolExecutor(self.workers, mp_context=self._context, initializer=_ignore_sigint)
+            started = self._context.SimpleQueue()
+            pool = ProcessPoolExecutor(self.workers, mp_context=self._context, initializer=_init_worker,
+                                       initargs=(started,))
             try:
-                finished = yield from self._drive(pool, queue, source, deaths)
+                finished = yield from _PoolRound(self, pool, started, backlog).drive()
             finally:
                 _stop(pool)
+                started.close()
             if finished:
                 return
 
-    def _drive(self, pool: ProcessPoolExecutor, queue: deque[PointTask], source: Iterator[PointTask],
-               deaths: dict[str, int]) -> Generator[PointRecord, None, bool]:
-        in_flight: dict[Future[PointRecord], PointTask] = {}
+
+class _Backlog:
+    """Points still to run, across pool restarts.
+
+    ``suspects`` were running when a worker died together with other started points; they run
+    one at a time (nothing else in flight) until each either finishes or kills its worker alone,
+    which is the only death charged to a point.
+    """
+
+    def __init__(self, source: Iterator[PointTask]) -> None:
+        self.source = source
+        self.queue: deque[PointTask] = deque()
+        self.suspects: deque[PointTask] = deque()
+        self.deaths: dict[str, int] = {}
+
+    def next_task(self, isolate: bool) -> PointTask | None:
+        if self.suspects:
+            return self.suspects.popleft() if not isolate else None
+        return self.queue.popleft() if self.queue else next(self.source, None)
+
+    def give_back(self, task: PointTask, suspect: bool) -> None:
+        (self.suspects if suspect else self.queue).appendleft(task)
+
+
+class _PoolRound:
+    """One pool's life: it ends when the tasks run out, a worker dies, or a point is stuck."""
+
+    def __init__(self, owner: LocalPool, pool: ProcessPoolExecutor, started: Any, backlog: _Backlog) -> None:
+        self.owner, self.pool, self.started_queue, self.backlog = owner, pool, started, backlog
+        self.in_flight: dict[Future[PointRecord], PointTask] = {}
+        self.started: dict[str, float] = {}
+        self.isolating = False
+
+    def drive(self) -> Generator[PointRecord, None, bool]:
+        """Yield records; return True when every task is done, False to restart the pool."""
         while True:
-            while len(in_flight) < self.workers + 1:
-                task = queue.popleft() if queue else next(source, None)
-                if task is None:
-                    break
-                in_flight[pool.submit(execute, self.function, task)] = task
-            if not in_flight:
+            if not self._fill():
+                yield from self._salvage()
+                return False
+            if not self.in_flight:
                 return True
-            done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
+            done, _ = wait(self.in_flight, timeout=_POLL_S, return_when=FIRST_COMPLETED)
             for future in done:
-                task = in_flight.pop(future)
+                task = self.in_flight.pop(future)
                 try:
                     record = future.result()
                 except BrokenProcessPool:
-                    in_flight[future] = task
-                    yield from _salvage(in_flight, queue, deaths)
+                    self.in_flight[future] = task
+                    yield from self._salvage()
                     return False
                 yield record
+            self._drain()
+            stuck = [f for f, t in self.in_flight.items() if self._overdue(t)]
+            if stuck:
+                yield from self._abandon(stuck)
+                return False
 
+    def _fill(self) -> bool:
+        """Submit points up to the limit (a suspect only alone); False if the pool broke meanwhile."""
+        while len(self.in_flight) < self.owner.workers + 1:
+            if self.isolating and self.in_flight:
+                return True
+            self.isolating = bool(self.backlog.suspects)
+            task = self.backlog.next_task(isolate=self.isolating and bool(self.in_flight))
+            if task is None:
+                return True
+            try:
+                self.in_flight[self.pool.submit(_run_point, self.owner.function, task)] = task
+            except BrokenProcessPool:
+                self.backlog.give_back(task, self.isolating)
+                return False
+        return True
 
-def _salvage(in_flight: dict[Future[PointRecord], PointTask], queue: deque[PointTask],
-             deaths: dict[str, int]) -> Iterator[PointRecord]:
-    """After a worker died: keep finished results; run the other points again (or fail them
-    after MAX_ATTEMPTS deaths)."""
-    for future, task in list(in_flight.items()):
-        if future.done() and not future.cancelled() and future.exception() is None:
-            yield future.result()
-            continue
+    def _drain(self) -> None:
+        while not self.started_queue.empty():
+            point_id, when = self.started_queue.get()
+            self.started[point_id] = when
+
+    def _overdue(self, task: PointTask) -> bool:
+        """Started, and still running well past its time-out (blocked outside Python)."""
+        began = self.started.get(task.point_id)
+        if task.timeout_s is None or began is None:
+            return False
+        return time.time() - began > task.timeout_s + HARD_TIMEOUT_GRACE_S
+
+    def _abandon(self, stuck: list[Future[PointRecord]]) -> Iterator[PointRecord]:
+        """Fail the stuck points (the pool is then stopped); keep finished results; requeue the rest."""
+        for future, task in list(self.in_flight.items()):
+            if future in stuck:
+                yield _lost(task, f"PointTimeout: the point ran longer than --point-timeout-s {task.timeout_s:g} "
+                                  "and did not respond; its worker was stopped")
+            elif _finished(future):
+                yield future.result()
+            else:
+                self.backlog.queue.append(task)
+
+    def _salvage(self) -> Iterator[PointRecord]:
+        """After a worker died: keep finished results and run the other points again. A point that
+        was the only one running is charged the death (failed after MAX_ATTEMPTS); several
+        running points become suspects, run alone next."""
+        self._drain()
+        unfinished = []
+        for future, task in self.in_flight.items():
+            if _finished(future):
+                yield future.result()
+            else:
+                unfinished.append(task)
+        running = [t for t in unfinished if t.point_id in self.started]
+        for task in unfinished:
+            if task not in running:
+                self.backlog.queue.appendleft(task)
+        if len(running) == 1:
+            yield from self._charge(running[0])
+        else:
+            self.backlog.suspects.extend(running)
+
+    def _charge(self, task: PointTask) -> Iterator[PointRecord]:
+        deaths = self.backlog.deaths
         deaths[task.point_id] = deaths.get(task.point_id, 0) + 1
         if deaths[task.point_id] >= MAX_ATTEMPTS:
-            yield _lost(task, f"WorkerDied: the worker process died {MAX_ATTEMPTS} times while holding this point")
+            yield _lost(task, f"WorkerDied: the worker process died {MAX_ATTEMPTS} times while running this point")
         else:
-            queue.append(task)
+            self.backlog.suspects.append(task)
 
 
 def _stop(pool: ProcessPoolExecutor) -> None:

@@ -33,7 +33,12 @@ class SyntheticPoint:
     busy_s : float
         CPU time to burn in a pure-Python loop (for parallel-efficiency measurements).
     fail_at_length_km, hang_at_length_km : float, optional
-        Raise ``RuntimeError`` / wait forever when the first link's ``length_km`` equals this.
+        Raise ``RuntimeError`` / wait forever (in short Python steps) when the first link's
+        ``length_km`` equals this.
+    block_at_length_km : float, optional
+        Block in one long C call (``time.sleep(3600)``), which no in-thread time-out interrupts.
+    die_at_length_km : float, optional
+        Kill the worker process (``os._exit``) every time the first link's ``length_km`` equals this.
     die_once_marker : str, optional
         Kill the worker process (``os._exit``) the first time a point runs, creating this file
         so that the second attempt succeeds.
@@ -43,6 +48,8 @@ class SyntheticPoint:
     busy_s: float = 0.0
     fail_at_length_km: float | None = None
     hang_at_length_km: float | None = None
+    block_at_length_km: float | None = None
+    die_at_length_km: float | None = None
     die_once_marker: str | None = None
 
     def __call__(self, data: dict[str, Any], *, source: str | None, seed: int,
@@ -60,10 +67,14 @@ class SyntheticPoint:
             if not marker.exists():
                 marker.write_text("died once\n")
                 os._exit(3)
+        if self.die_at_length_km is not None and first_km == self.die_at_length_km:
+            os._exit(4)
         if self.fail_at_length_km is not None and first_km == self.fail_at_length_km:
             raise RuntimeError(f"synthetic failure at length_km = {first_km:g}")
         while self.hang_at_length_km is not None and first_km == self.hang_at_length_km:
             time.sleep(0.01)
+        if self.block_at_length_km is not None and first_km == self.block_at_length_km:
+            time.sleep(3600.0)
 
     def _work(self) -> None:
         end = time.perf_counter() + self.sleep_s
