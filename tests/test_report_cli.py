@@ -132,3 +132,20 @@ def test_corrupt_store_is_refused_in_one_line(tmp_path: Path, capsys) -> None:
     assert main(["report", str(bad)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "not a netsim sweep store" in err[0]
+
+
+def test_store_report_adds_base_scenario_tables_when_found(tmp_path: Path, monkeypatch) -> None:
+    # A real (tiny) sweep of the learning scenario, then the report of its store: pivots plus the
+    # base scenario's capacity tables and map, found as scenarios/<slug>.toml by content hash.
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "scenarios").mkdir()
+    (tmp_path / "scenarios" / "chain3.toml").write_text(CHAIN3.read_text())
+    assert main(["sweep", "scenarios/chain3.toml", "--vary", "links[*].length_km=8,12",
+                 "--pairs", "20", "--workers", "1", "--quiet"]) == 0
+    assert main(["report", "results/chain3/sweep.sqlite", "--quiet", "--no-figures"]) == 0
+    out = tmp_path / "results" / "chain3" / "report"
+    names = {p.name for p in out.iterdir()}
+    assert {"links.md", "demands.md", "pivot-rate_per_s-alder-row-lab-cindermoss-campus.md"} <= names
+    (tmp_path / "scenarios" / "chain3.toml").write_text(CHAIN3.read_text().replace("= 10.0", "= 11.0", 1))
+    data = load_source(tmp_path / "results" / "chain3" / "sweep.sqlite")
+    assert data.scenario is None and not data.links          # edited scenario: hash differs

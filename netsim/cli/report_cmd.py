@@ -23,10 +23,11 @@ def register(subparsers: Any) -> None:
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
     parser.add_argument("--format", default="md", help="table format: " + ", ".join(_FORMATS) + " (default md)")
     parser.add_argument("--out", default=None, help="output directory (default results/<scenario>/report)")
-    parser.add_argument("--simulate", action="store_true", help="scenario only: also run the engine")
+    parser.add_argument("--simulate", action="store_true",
+                        help="scenario (or a store's base scenario): also run the engine")
     parser.add_argument("--scenario", default=None,
-                        help="run result only: the scenario file it was made from (default: "
-                             "scenarios/<name>.toml when its name matches)")
+                        help="run result or store: the scenario file it was made from (default: "
+                             "scenarios/<name>.toml when its name or content hash matches)")
     parser.add_argument("--pairs", type=int, default=None, help="with --simulate: pairs per demand (default 1000)")
     parser.add_argument("--time-s", type=float, default=None, help="with --simulate: simulated seconds instead")
     parser.add_argument("--seed", type=int, default=0, help="with --simulate: random seed (default 0)")
@@ -74,7 +75,8 @@ def run(args: argparse.Namespace) -> int:
     tables, written = write_report(data, out, args.format, figures=not args.no_figures,
                                    metrics=_metrics(args.metric), params=args.param)
     if not args.quiet:
-        summary = tables.get("demands") or next(iter(tables.values()), None)
+        first = next(iter(tables.values()), None)
+        summary = first if data.kind == "store" else tables.get("demands", first)
         if summary is not None:
             print(render(summary, "table"))
     print(f"wrote {len(written)} files to {out} in {time.perf_counter() - started:.1f} s:")

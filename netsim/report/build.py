@@ -77,14 +77,17 @@ def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None 
         Swept parameters to pivot over (rows, then columns, then one table per value of the
         rest); all swept parameters in sweep order if omitted.
     """
+    tables: dict[str, Table] = {}
     if data.kind == "store":
         chosen = list(params or data.parameters)
-        if not chosen:
-            return {}
-        return _sweep_tables(data, metrics or DEFAULT_METRICS, chosen)
+        if chosen:
+            tables.update(_sweep_tables(data, metrics or DEFAULT_METRICS, chosen))
+        if not data.links:
+            return tables
     links = link_rows(data.links, data.run_links, _simulated_time(data))
     demands = demand_rows(data.demands, data.run_demands)
-    return {"links": link_table(links, data.title), "demands": demand_table(demands, data.title)}
+    tables.update(links=link_table(links, data.title), demands=demand_table(demands, data.title))
+    return tables
 
 
 def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
@@ -92,10 +95,13 @@ def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
     """The report's figures by file stem (see :mod:`netsim.report.plots` for each)."""
     from netsim.report import plots
 
+    figures: dict[str, Figure] = {}
     if data.kind == "store":
-        return plots.sweep_figures(data, list(params or data.parameters))
-    tables = tables or report_tables(data)
-    return plots.network_figures(data, tables["links"].rows)
+        figures.update(plots.sweep_figures(data, list(params or data.parameters)))
+    tables = tables or report_tables(data, params=params)
+    if "links" in tables:
+        figures.update(plots.network_figures(data, tables["links"].rows))
+    return figures
 
 
 def write_report(data: ReportData, out_dir: str | Path, fmt: str = "md", *,

@@ -192,7 +192,7 @@ def _demand_row(budget: Mapping[str, Any], run: Mapping[str, Any]) -> dict[str, 
     for key in ("demand", "bound_single_path_per_s", "bound_multipath_per_s",
                 "expected_rate_per_s", "expected_fidelity"):
         row[key] = pick(budget, key) if pick(budget, key) is not None else row[key]
-    row["route"] = _route_text(pick(run, "route") or pick(budget, "route"))
+    row["route"] = _route_text(pick(budget, "route") or pick(run, "route"))  # switches shown
     row["hops"] = _hops(budget, run)
     row["rate_to_bound"] = _ratio(row["rate_per_s"], row["bound_single_path_per_s"])
     return row

@@ -129,6 +129,8 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
         Series name -> arrays; ``low``/``high`` may hold NaN where no interval is known.
     xlabel, ylabel : str
         Axis labels, units included.
+    logx, logy : bool
+        Logarithmic axes; ``logy`` only takes effect when the values span a decade or more.
     """
     fig, ax = new_figure()
     for i, (name, (x, y, low, high)) in enumerate(curves.items()):
@@ -140,7 +142,7 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
                             np.asarray(high, float)[ok], color=style["color"], alpha=0.2,
                             linewidth=0, label=None)
     ax.set_xscale("log" if logx else "linear")
-    ax.set_yscale("log" if logy else "linear")
+    ax.set_yscale("log" if logy and _decades(curves) >= 1.0 else "linear")
     ax.set_xlabel(xlabel)
     ax.set_ylabel(ylabel)
     ax.grid(True, linewidth=0.3, color="0.85")
@@ -149,6 +151,14 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
     if len(curves) > 1 or next(iter(curves), ""):
         ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7)
     return fig
+
+
+def _decades(curves: Mapping[str, tuple[Any, Any, Any, Any]]) -> float:
+    """How many decades the positive y values span (log axes only pay off beyond one)."""
+    parts = [np.asarray(c[1], dtype=float).ravel() for c in curves.values()]
+    values = np.concatenate(parts) if parts else np.zeros(0)
+    positive = values[np.isfinite(values) & (values > 0)]
+    return float(np.log10(positive.max() / positive.min())) if positive.size else 0.0
 
 
 @with_style

@@ -205,7 +205,35 @@ def store_records(store: Any) -> list[dict[str, Any]]:
     return list(grouped.values())
 
 
-def _from_store(path: Path) -> ReportData:
+def _sweep_base_hash(scenario: Any) -> str:
+    """The hash a sweep store records for its base scenario (its data without the sweep table)."""
+    from netsim.scenario import content_hash
+
+    return content_hash({k: v for k, v in scenario.data.items() if k != "sweep"})
+
+
+def _scenario_of_store(meta: Mapping[str, str], path: Path,
+                       scenario_path: str | Path | None) -> Any:
+    """The store's base scenario: ``scenario_path`` (checked against the stored hash), else
+    ``scenarios/<slug>.toml`` near the results when its hash matches; ``None`` otherwise."""
+    from netsim.scenario import load
+
+    if scenario_path is not None:
+        scenario = load(scenario_path)
+        if meta.get("scenario_hash") != _sweep_base_hash(scenario):
+            raise ParameterError("--scenario", str(scenario_path),
+                                 f"the scenario this store was swept from ({meta.get('scenario_name')!r})")
+        return scenario
+    for candidate in _candidate_scenarios(path):
+        if candidate.is_file():
+            scenario = load(candidate)
+            if meta.get("scenario_hash") == _sweep_base_hash(scenario):
+                return scenario
+    return None
+
+
+def _from_store(path: Path, scenario_path: str | Path | None = None, simulate: bool = False,
+                run_options: Mapping[str, Any] | None = None) -> ReportData:
     from netsim.sweep.store import open_store  # type: ignore[import-not-found]
 
     with open_store(path) as store:
@@ -219,7 +247,15 @@ def _from_store(path: Path) -> ReportData:
     slug = path.parent.name if path.parent.name else path.stem
     if not records:
         raise NetsimError(f"{path}: the store has no finished points yet; run `netsim sweep` first")
-    return ReportData("store", slug, name, records=records, parameters=parameters)
+    data = ReportData("store", slug, name, records=records, parameters=parameters)
+    data.scenario = _scenario_of_store(meta, path, scenario_path)
+    if data.scenario is not None:
+        data.links, data.demands = _budget_rows(data.scenario)
+        if simulate:
+            from netsim import engine
+
+            data.run = engine.run(data.scenario, **dict(run_options or {})).to_dict()
+    return data
 
 
 def load_source(source: str | Path, *, simulate: bool = False,
@@ -232,9 +268,11 @@ def load_source(source: str | Path, *, simulate: bool = False,
     source : str or Path
         ``.toml`` scenario, ``.json`` run result or ``.sqlite`` sweep store.
     simulate : bool
-        For a scenario: also run the engine (``run_options`` passed to ``engine.run``).
+        For a scenario (or a store's base scenario, when found): also run the engine
+        (``run_options`` passed to ``engine.run``).
     scenario_path : str or Path, optional
-        For a run result: the scenario it was made from (else looked for beside the results).
+        For a run result or a store: the scenario it was made from (else looked for as
+        ``scenarios/<slug>.toml`` and used when its name or content hash matches).
     """
     path = Path(source)
     kind = source_kind(path)
@@ -242,7 +280,7 @@ def load_source(source: str | Path, *, simulate: bool = False,
         return _from_scenario(path, simulate, run_options or {})
     if kind == "run":
         return _from_run(path, scenario_path)
-    return _from_store(path)
+    return _from_store(path, scenario_path, simulate, run_options)
 
 
 def demand_names(records: Sequence[Mapping[str, Any]], kind: str = "demand") -> list[str]:
