@@ -254,6 +254,29 @@ def test_sigkill_at_random_moments_then_resume(plan: SweepPlan, tmp_path: Path) 
     _assert_complete(store, plan, _reference(plan))
 
 
+def _group_alive(pgid: int) -> bool:
+    try:
+        os.killpg(pgid, 0)
+    except ProcessLookupError:
+        return False
+    return True
+
+
+def test_killed_coordinator_leaves_no_working_orphans(plan: SweepPlan, tmp_path: Path) -> None:
+    scenario, store = Path(str(plan.scenario.source)), tmp_path / "orphans.sqlite"
+    process = _start(RUN_SCRIPT, str(scenario), str(store), "0.3")
+    _wait_for(store, 2, process)
+    os.kill(process.pid, signal.SIGKILL)                  # the coordinator only, not its workers
+    process.wait(timeout=30)
+    end = time.monotonic() + 15.0
+    while _group_alive(process.pid) and time.monotonic() < end:
+        time.sleep(0.1)
+    alive = _group_alive(process.pid)
+    if alive:
+        os.killpg(process.pid, signal.SIGKILL)
+    assert not alive, "workers kept running after their coordinator was killed"
+
+
 def test_ctrl_c_stops_cleanly_and_the_sweep_resumes(plan: SweepPlan, tmp_path: Path) -> None:
     scenario, store = Path(str(plan.scenario.source)), tmp_path / "interrupted.sqlite"
     process = _start(CLI_SCRIPT, str(scenario), str(store))

@@ -30,6 +30,7 @@ import multiprocessing
 import os
 import signal
 import sys
+import threading
 import time
 import uuid
 from collections import deque
@@ -64,11 +65,24 @@ def default_workers() -> int:
 _STARTED: Any = None
 
 
-def _init_worker(started: Any) -> None:
-    """Worker initializer: leave Ctrl-C to the coordinator; remember the start-report queue."""
+def _init_worker(started: Any, coordinator_pid: int) -> None:
+    """Worker initializer: leave Ctrl-C to the coordinator; remember the start-report queue;
+    exit when the coordinator is gone (killed), so no orphan keeps computing."""
     global _STARTED
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     _STARTED = started
+    threading.Thread(target=_watch, args=(coordinator_pid,), daemon=True, name="netsim-watch").start()
+
+
+def _watch(pid: int) -> None:
+    while True:
+        time.sleep(_POLL_S)
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            os._exit(0)
+        except PermissionError:  # the pid now belongs to another user's process
+            os._exit(0)
 
 
 def _run_point(function: PointFunction, task: PointTask) -> PointRecord:
@@ -106,7 +120,7 @@ class LocalPool:
         while True:
             started = self._context.SimpleQueue()
             pool = ProcessPoolExecutor(self.workers, mp_context=self._context, initializer=_init_worker,
-                                       initargs=(started,))
+                                       initargs=(started, os.getpid()))
             try:
                 finished = yield from _PoolRound(self, pool, started, backlog).drive()
             finally:
