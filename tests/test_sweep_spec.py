@@ -139,7 +139,7 @@ def test_integer_keys_take_whole_numbers(scenario) -> None:
     (["links[*].scheme=1,2"], ["--vary links[*].scheme", "'scheme' is not a numeric key of links", "length_km"]),
     (["nodes[*].t1_s=1"], ["--vary nodes[*].t1_s", "is not a sweep key; expected"]),
     (["links.length_km=1"], ["--vary links.length_km", "needs a selector"]),
-    (["links[*].length_km"], ["--vary links[*].length_km", "expected KEY=VALUES"]),
+    (["links[*].length_km"], ["--vary: 'links[*].length_km' is not allowed; expected KEY=VALUES"]),
     (["links[*].length_km=lin:1:5"], ["--vary links[*].length_km", "'lin:1:5' is not allowed; expected"]),
     (["links[*].modes=1.5,2"], ["--vary links[*].modes", "[1.5, 2.0] is not allowed; modes takes whole numbers"]),
     (["links[*].length_km=5,5"], ["--vary links[*].length_km", "expected distinct values"]),
@@ -170,6 +170,17 @@ def test_bad_table_reports_every_problem(tmp_path: Path) -> None:
     assert "sweep.repeats: 0 is not allowed; expected an integer >= 1" in text
     assert "sweep.combine: 'cross' is not allowed; expected 'grid' or 'zip'" in text
     assert "pairs, time_s given together; expected at most one stop rule" in text
+
+
+def test_sweep_table_of_the_wrong_shape() -> None:
+    from netsim.sweep.spec import build_spec
+
+    with pytest.raises(ScenarioError, match=r"^sweep: 3 is not allowed; expected a table$"):
+        build_spec(3)  # type: ignore[arg-type]
+    with pytest.raises(ScenarioError, match=r"^sweep\.vary: \[1, 2\] is not allowed; expected a table of KEY = VALUES$"):
+        build_spec({"vary": [1, 2]})
+    with pytest.raises(ScenarioError, match=r"^sweep\.vary: no axes; expected at least one KEY = VALUES"):
+        build_spec({})
 
 
 def test_zip_needs_equal_lengths(scenario) -> None:

@@ -195,7 +195,7 @@ def _check_choice(problems: list[Problem], where: str, value: Any, ok: bool, all
 def _table_axes(table: Mapping[str, Any], problems: list[Problem]) -> list[Axis]:
     vary = table.get("vary", {})
     if not isinstance(vary, Mapping):
-        problems.append(Problem("sweep.vary", "is not allowed here as a value; expected a table KEY = VALUES"))
+        problems.append(Problem("sweep.vary", f"{format_value(vary)} is not allowed; expected a table of KEY = VALUES"))
         return []
     axes = []
     for key_text, raw in vary.items():
@@ -223,7 +223,7 @@ def _cli_axes(vary: Sequence[str], problems: list[Problem]) -> list[Axis]:
         key_text, sep, raw = _split_vary(item)
         where = f"--vary {key_text.strip()}"
         if not sep:
-            problems.append(Problem(f"--vary {item}", "is not allowed; expected KEY=VALUES"))
+            problems.append(Problem("--vary", f"{format_value(item)} is not allowed; expected KEY=VALUES"))
             continue
         try:
             axes.append(_make_axis(key_text, raw, where))
@@ -280,7 +280,7 @@ def build_spec(table: Mapping[str, Any] | None, vary: Sequence[str] = (),
     problems: list[Problem] = []
     table = table if table is not None else {}
     if not isinstance(table, Mapping):
-        raise ScenarioError([Problem("sweep", "is not allowed as a value; expected a table")])
+        raise ScenarioError([Problem("sweep", f"{format_value(table)} is not allowed; expected a table")])
     for key in table:
         if key not in _TABLE_KEYS:
             problems.append(Problem(f"sweep.{key}", f"unknown key; expected one of {', '.join(_TABLE_KEYS)}"))
