@@ -13,6 +13,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 from test_sweep_support import write_scenario
 
 from netsim.cli import main
@@ -255,3 +257,24 @@ def test_dry_run_calibration_is_bounded(tmp_path: Path, capsys: pytest.CaptureFi
     last = capsys.readouterr().out.splitlines()[-1]
     assert last.startswith("calibration point #0 did not finish within 0.3 s; "
                            "estimated run time for 2 points on 1 worker: more than")
+
+
+_KEYS = ["links[*].length_km", "links[1].modes", "sites[role=repeater].t2_s", "sites[name=Hobb Quay].t1_s",
+         "defaults.link.attenuation_db_per_km", "protocol.cutoff_s", "demands[0].pairs", "links[9].length_km",
+         "sites[*].role", "links[x].length_km", "defaults.site.x_km", "links[*].len\ngth_km", "\n"]
+_VALUES = ["1,2", "lin:1:5:3", "log:0.1:10:3", "-1,5", "0", "1e400", "lin:5:1:2", "log:1:1:2", "x", ""]
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(items=st.lists(st.tuples(st.sampled_from(_KEYS) | st.text(max_size=12),
+                                st.sampled_from(_VALUES) | st.text(max_size=8)), min_size=1, max_size=3),
+       combine=st.sampled_from([None, "grid", "zip"]))
+def test_any_vary_loads_or_fails_with_one_line_problems(scenario, items: list[tuple[str, str]],
+                                                         combine: str | None) -> None:
+    """Robustness (common practice): any --vary text gives a plan or a ScenarioError, nothing else."""
+    try:
+        plan = make_plan(scenario, [f"{k}={v}" for k, v in items], combine=combine)
+    except ScenarioError as exc:
+        assert exc.problems and all("\n" not in str(p) for p in exc.problems)
+    else:
+        assert 1 <= len(plan.points) <= 27

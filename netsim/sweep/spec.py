@@ -199,7 +199,7 @@ def _table_axes(table: Mapping[str, Any], problems: list[Problem]) -> list[Axis]
         return []
     axes = []
     for key_text, raw in vary.items():
-        where = f'sweep.vary."{key_text}"'
+        where = f'sweep.vary."{key_text}"' if str(key_text).isprintable() else f"sweep.vary.{key_text!r}"
         try:
             axes.append(_make_axis(key_text, raw, where))
         except ValueError as exc:
@@ -221,7 +221,8 @@ def _cli_axes(vary: Sequence[str], problems: list[Problem]) -> list[Axis]:
     axes = []
     for item in vary:
         key_text, sep, raw = _split_vary(item)
-        where = f"--vary {key_text.strip()}"
+        shown = key_text.strip()
+        where = f"--vary {shown if shown.isprintable() else repr(shown)}"
         if not sep:
             problems.append(Problem("--vary", f"{format_value(item)} is not allowed; expected KEY=VALUES"))
             continue
