@@ -120,6 +120,7 @@ def test_cli_prints_and_writes_tables(files: list[str], tmp_path: Path, capsys) 
     printed = capsys.readouterr().out
     assert "chain: rate (pairs/s)" in printed and "direct: rate (pairs/s)" in printed
     assert sorted(p.name for p in out.iterdir()) == ["compare-bottlenecks.csv", "compare-demands.csv",
+                                                      "compare-rates.pdf", "compare-rates.png",
                                                       "compare-totals.csv"]
 
 
@@ -137,3 +138,18 @@ def test_cli_bad_options_are_one_line_errors(files: list[str], capsys, argv: lis
 def test_cli_needs_two_candidates(files: list[str], capsys) -> None:
     assert main(["compare", files[0]]) == 2
     assert "two or more scenario files" in capsys.readouterr().err
+
+
+def test_comparison_figure_has_a_bar_per_candidate_and_demand(files: list[str]) -> None:
+    from matplotlib.patches import Rectangle
+
+    from netsim.report.compare import comparison_figure
+
+    candidates = run_candidates(files, pairs=30, seed=2)
+    ax = comparison_figure(candidates).axes[0]
+    bars = [p for p in ax.patches if isinstance(p, Rectangle)]
+    assert len(bars) == 2
+    assert sorted(b.get_width() for b in bars) == sorted(c.demands[0]["rate_per_s"] for c in candidates)
+    assert ax.get_xlabel() == "delivered rate (pairs/s)"
+    assert [t.get_text() for t in ax.get_yticklabels()] == ["AL-CC"]
+    assert {t.get_text() for t in ax.get_legend().get_texts()} == {"chain", "direct"}

@@ -102,3 +102,40 @@ def test_network_map_without_coordinates_is_marked_not_to_scale() -> None:
 @pytest.mark.parametrize(("span", "expected"), [(25.0, 5.0), (100.0, 20.0), (3.0, 0.5), (60.0, 10.0)])
 def test_scale_bar_length_is_round(span: float, expected: float) -> None:
     assert scale_length_km(span) == expected
+
+
+def test_report_map_widths_follow_the_runs_utilisation() -> None:
+    from pathlib import Path
+
+    from netsim.report.build import report_figures
+    from netsim.report.netmap import MAX_WIDTH, MIN_WIDTH
+    from netsim.report.sources import load_source
+
+    data = load_source(Path(__file__).resolve().parents[1] / "scenarios" / "chain3.toml")
+    data.run = {"demands": [], "links": [{"link": "Alder Row Lab-Brackwater Relay", "utilisation": 0.5}]}
+    figures = report_figures(data)
+    assert set(figures) == {"network-map", "rate-vs-distance"}
+    ax = figures["network-map"].axes[0]
+    links = next(c for c in ax.collections if isinstance(c, LineCollection))
+    assert np.allclose(links.get_linewidths(), [(MIN_WIDTH + MAX_WIDTH) / 2, MIN_WIDTH])
+    assert np.allclose(links.get_array(), [r["plob_bits_per_s"] for r in data.links])
+    curves = figures["rate-vs-distance"].axes[0].get_lines()
+    assert [c.get_label() for c in curves[1:]] == ["two photon", "single photon", "midpoint source", "direct"]
+
+
+def test_scheme_curves_scale_as_published() -> None:
+    # Two-photon heralding succeeds with ~eta_a eta_b / 2, i.e. proportional to the whole link's
+    # transmissivity (Barrett & Kok, PRA 71, 060310(R), 2005); single-photon heralding with
+    # ~2 alpha eta_arm, i.e. proportional to its square root (Cabrillo et al., PRA 59, 1025,
+    # 1999). Between 10 and 30 km (dark counts negligible) the log-log slopes are 1 and 1/2.
+    from pathlib import Path
+
+    from netsim.report.plots import scheme_curves
+    from netsim.scenario import load
+
+    scenario = load(Path(__file__).resolve().parents[1] / "scenarios" / "chain3.toml")
+    rates, bound = scheme_curves(scenario, [10.0, 30.0])
+    eta = 1 - 2.0 ** (-bound)                       # invert the bound -log2(1 - eta)
+    slope = {s: np.log(r[1] / r[0]) / np.log(eta[1] / eta[0]) for s, r in rates.items()}
+    assert slope["two_photon"] == pytest.approx(1.0, abs=0.02)
+    assert slope["single_photon"] == pytest.approx(0.5, abs=0.02)

@@ -28,7 +28,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--seed", type=int, default=0, help="the seed every candidate runs with (default 0)")
     parser.add_argument("--no-simulate", action="store_true", help="bounds and bottlenecks only")
     parser.add_argument("--format", default="table", help="one of " + ", ".join(_FORMATS) + " (default table)")
-    parser.add_argument("--out", default=None, help="also write each table to this directory")
+    parser.add_argument("--out", default=None,
+                        help="also write each table, and a figure of the rates (PNG, PDF), here")
     parser.set_defaults(func=run)
 
 
@@ -62,7 +63,13 @@ def run(args: argparse.Namespace) -> int:
         out.mkdir(parents=True, exist_ok=True)
         for stem, table in zip(_STEMS, tables):
             (out / (stem + _SUFFIX[args.format])).write_text(render(table, args.format), encoding="utf-8")
-        print(f"wrote {len(tables)} tables to {out}")
+        written = len(tables)
+        if not args.no_simulate:
+            from netsim.report.compare import comparison_figure
+            from netsim.report.figures import save_figure
+
+            written += len(save_figure(comparison_figure(candidates), out / "compare-rates"))
+        print(f"wrote {written} files to {out}")
     print(f"compared {len(candidates)} candidates in {time.perf_counter() - started:.1f} s "
           f"(seed {args.seed})")
     return 0

@@ -19,7 +19,7 @@ import networkx as nx
 from netsim.report.capacity import pair_key
 from netsim.report.table import Column, Table
 
-__all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "candidate_from_scenario", "comparison_tables",
+__all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "candidate_from_scenario", "comparison_figure", "comparison_tables",
            "run_candidates", "winner"]
 
 #: Edge attribute holding a link's repeaterless capacity in ebit/s (parallel fibres summed).
@@ -227,3 +227,33 @@ def run_candidates(paths: Sequence[str], *, pairs: int | None = 200, time_s: flo
         if names.count(c.name) > 1:
             c.name = f"{c.name}#{i + 1}"
     return candidates
+
+
+def comparison_figure(candidates: Sequence[Candidate]) -> Any:
+    """Delivered rate per demand for each candidate (bars with 95 % error bars).
+
+    Site names are abbreviated as on the network map; the figure's key panel is not drawn, so
+    labels are initials joined by a dash (the tables give the full names).
+    """
+    from netsim.report.figures import grouped_bars
+    from netsim.report.netmap import short_labels
+
+    keys = _all_keys(candidates)
+    sites = sorted({s for k in keys for s in k})
+    short = short_labels(sites)
+    labels = []
+    for key in keys:
+        text = _label(key, candidates)
+        a, b = text.split("-", 1) if text.count("-") == 1 else sorted(key)
+        labels.append(f"{short.get(a, a)}-{short.get(b, b)}")
+    series = {}
+    for c in candidates:
+        rows = [c.demand(k) or {} for k in keys]
+        values = [_number(r.get("rate_per_s")) for r in rows]
+        cis = [r.get("rate_ci95") or [math.nan, math.nan] for r in rows]
+        series[c.name] = (values, [_number(ci[0]) for ci in cis], [_number(ci[1]) for ci in cis])
+    return grouped_bars(labels, series, xlabel="delivered rate (pairs/s)")
+
+
+def _number(value: Any) -> float:
+    return math.nan if value is None else float(value)

@@ -10,7 +10,7 @@ cividis). The network map lives in :mod:`netsim.report.netmap`.
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any, ParamSpec, TypeVar
 
@@ -29,6 +29,7 @@ __all__ = [
     "LINE_STYLES",
     "MARKERS",
     "STYLE",
+    "grouped_bars",
     "heatmap",
     "metric_vs_parameter",
     "new_figure",
@@ -189,3 +190,41 @@ def _annotate(ax: Axes, z: np.ndarray) -> None:
         if np.isfinite(value):
             ax.text(j, i, f"{value:.3g}", ha="center", va="center", fontsize=6,
                     color="white" if value < middle else "black")
+
+
+HATCHES = ("", "///", "...", "xxx", "\\\\\\", "ooo")
+
+
+@with_style
+def grouped_bars(groups: Sequence[str], series: Mapping[str, tuple[Any, Any, Any]], *,
+                 xlabel: str, logx: bool = False) -> Figure:
+    """Horizontal bars, one group per label and one bar per series, with 95 % error bars.
+
+    Parameters
+    ----------
+    groups : sequence of str
+        Group labels (e.g. demands), top to bottom.
+    series : mapping of str to (values, low, high)
+        Series name (e.g. candidate) -> arrays over the groups; NaN where a series has no value.
+    xlabel : str
+        Axis label with unit.
+    logx : bool
+        Logarithmic value axis (bars then start at the axis edge, not at zero).
+    """
+    fig, ax = new_figure(height_in=0.9 + 0.35 * len(groups) * max(1, len(series)) ** 0.5)
+    n = max(len(series), 1)
+    height = 0.8 / n
+    y = np.arange(len(groups))[::-1].astype(float)
+    for i, (name, (values, low, high)) in enumerate(series.items()):
+        v = np.asarray(values, dtype=float)
+        err = np.abs(np.vstack([v - np.asarray(low, float), np.asarray(high, float) - v]))
+        ax.barh(y + (n / 2 - i - 0.5) * height, np.nan_to_num(v), height=height, label=name,
+                color=COLOURS[i % len(COLOURS)], hatch=HATCHES[i % len(HATCHES)], edgecolor="white",
+                linewidth=0.3, xerr=np.nan_to_num(err), error_kw={"elinewidth": 0.8, "capsize": 2})
+    ax.set_yticks(y, list(groups))
+    ax.set_xscale("log" if logx else "linear")
+    ax.set_xlabel(xlabel)
+    ax.grid(True, axis="x", linewidth=0.3, color="0.85")
+    ax.legend(frameon=False, loc="lower center", bbox_to_anchor=(0.5, 1.0), ncol=min(n, 3),
+              title="error bars: 95% interval", title_fontsize=6)
+    return fig

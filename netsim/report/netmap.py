@@ -146,7 +146,7 @@ def _legend(ax: Axes, sites: Sequence[MapSite]) -> None:
                       markeredgecolor="black", label=r) for r, m in ROLE_MARKERS.items()
                if any(s.role == r for s in sites)]
     handles += [Line2D([], [], color="0.3", linewidth=w, label=f"utilisation {u:.0%}")
-                for u, w in ((0.0, MIN_WIDTH), (1.0, MAX_WIDTH))]
+                for u, w in ((0.0, MIN_WIDTH), (0.5, (MIN_WIDTH + MAX_WIDTH) / 2), (1.0, MAX_WIDTH))]
     ax.legend(handles=handles, loc="upper center", ncol=3, frameon=False, fontsize=6,
               borderaxespad=0.0)
 

@@ -16,7 +16,6 @@ from matplotlib.figure import Figure
 from numpy.typing import ArrayLike
 
 from netsim.report.build import file_stem
-from netsim.report.capacity import pair_key
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
 from netsim.report.pivot import grid, series, short_name
@@ -28,13 +27,13 @@ __all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "scheme_curves",
 SCHEME_LENGTHS_KM = np.linspace(1.0, 120.0, 60)
 
 
-def _utilisation(data: ReportData) -> dict[frozenset[str], float]:
+def _utilisation(data: ReportData) -> dict[str, float]:
+    """Simulated utilisation by link name (``a-b`` as the engine writes it)."""
     out = {}
     for row in data.run_links:
-        value = row.get("utilisation")
-        ends = row.get("ends") or str(row.get("name", row.get("link", ""))).split("-", 1)
-        if value is not None:
-            out[pair_key(ends)] = float(value)
+        value, name = row.get("utilisation"), row.get("link", row.get("name"))
+        if value is not None and name is not None:
+            out[str(name)] = float(value)
     return out
 
 
@@ -44,8 +43,8 @@ def map_links(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) -> list[
     links = []
     for row, link in zip(link_rows, data.scenario.links):
         capacity = row.get("plob_bits_per_s")
-        links.append(MapLink(link.a, link.b, math.nan if capacity is None else float(capacity),
-                             use.get(pair_key((link.a, link.b)))))
+        used = use.get(link.name, use.get(f"{link.b}-{link.a}"))
+        links.append(MapLink(link.a, link.b, math.nan if capacity is None else float(capacity), used))
     return links
 
 
