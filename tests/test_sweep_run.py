@@ -127,6 +127,7 @@ def test_progress_bar_counts_points_and_failures(plan: SweepPlan, tmp_path: Path
               stream=stream)
     text = stream.getvalue()
     assert "30/30" in text and "failed=2" in text
+    assert text.count("RuntimeError: synthetic failure at length_km = 10") == 2
 
 
 def test_missing_dask_is_a_clear_error(monkeypatch: pytest.MonkeyPatch) -> None:

@@ -70,7 +70,8 @@ def tasks_for(plan: SweepPlan, points: Sequence[Point], timeout_s: float | None)
 
 
 class _Progress:
-    """A tqdm bar (done of total, failures, elapsed, ETA) or one line per finished point."""
+    """A tqdm bar (done of total, failures, elapsed, ETA; failed points also get a line above it)
+    or, when quiet, one line per finished point."""
 
     def __init__(self, total: int, done: int, failed: int, quiet: bool, stream: TextIO) -> None:
         self.total, self.finished, self.failed = total, done + failed, failed
@@ -85,14 +86,16 @@ class _Progress:
     def update(self, point: Point, record: PointRecord) -> None:
         self.finished += 1
         self.failed += record.status == "failed"
-        if self.bar is not None:
-            self.bar.set_postfix(failed=self.failed, refresh=False)
-            self.bar.update(1)
-            return
         detail = record.error if record.status == "failed" else f"{record.duration_s or 0.0:.2f} s"
-        print(f"point {self.finished}/{self.total} {record.status} #{point.ordinal} "
-              f"{describe_parameters(point.parameters)} repeat={point.repeat} seed={point.seed}: {detail}",
-              file=self.stream, flush=True)
+        line = (f"point {self.finished}/{self.total} {record.status} #{point.ordinal} "
+                f"{describe_parameters(point.parameters)} repeat={point.repeat} seed={point.seed}: {detail}")
+        if self.bar is None:
+            print(line, file=self.stream, flush=True)
+            return
+        if record.status == "failed":
+            self.bar.write(line, file=self.stream)   # failures stay visible above the bar
+        self.bar.set_postfix(failed=self.failed, refresh=False)
+        self.bar.update(1)
 
     def close(self) -> None:
         if self.bar is not None:
@@ -153,7 +156,6 @@ def describe_point(point: Point, status: str | None = None) -> str:
     state = f" [{status}]" if status else ""
     return (f"#{point.ordinal:<5d} {point.point_id[:12]} repeat={point.repeat} seed={point.seed}{state}  "
             f"{describe_parameters(point.parameters)}")
-
 
 
 #: A dry run's calibration point stops after this many seconds (or --point-timeout-s if smaller).
