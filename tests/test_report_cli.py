@@ -152,3 +152,25 @@ def test_store_report_adds_base_scenario_tables_when_found(tmp_path: Path, monke
     (tmp_path / "scenarios" / "chain3.toml").write_text(CHAIN3.read_text().replace("= 10.0", "= 11.0", 1))
     data = load_source(tmp_path / "results" / "chain3" / "sweep.sqlite")
     assert data.scenario is None and not data.links          # edited scenario: hash differs
+
+
+def test_run_json_without_its_scenario_says_so(tmp_path: Path, monkeypatch) -> None:
+    monkeypatch.chdir(tmp_path)
+    result = engine.run(load(CHAIN3), pairs=20, seed=1, ensembles=False)
+    result.write(tmp_path / "elsewhere")
+    from netsim.report.build import report_tables
+
+    tables = report_tables(load_source(tmp_path / "elsewhere" / "run.json"))
+    assert any("--scenario" in note for note in tables["links"].notes)
+    assert tables["demands"].rows[0]["rate_per_s"] == result.to_dict()["demands"][0]["rate_per_s"]
+
+
+def test_report_frames_for_python_users() -> None:
+    pytest.importorskip("pandas")
+    from netsim.report import report_frames
+
+    frames = report_frames(CHAIN3)
+    assert set(frames) == {"links", "demands"}
+    links = frames["links"]
+    assert list(links["length_km"]) == [10.0, 12.0]
+    assert links.attrs["headers"]["plob_bits_per_s"] == "repeaterless bound (ebit/s)"

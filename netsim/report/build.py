@@ -87,6 +87,9 @@ def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None 
     links = link_rows(data.links, data.run_links, _simulated_time(data))
     demands = demand_rows(data.demands, data.run_demands)
     tables.update(links=link_table(links, data.title), demands=demand_table(demands, data.title))
+    if data.kind == "run" and data.scenario is None:
+        tables["links"].notes.append("The run's scenario file was not found, so the analytic "
+                                     "columns are empty: pass --scenario FILE.")
     return tables
 
 
