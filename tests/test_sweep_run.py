@@ -11,6 +11,7 @@ reference library documentation).
 
 from __future__ import annotations
 
+import importlib.util
 import io
 import os
 import signal
@@ -295,3 +296,29 @@ def test_ctrl_c_stops_cleanly_and_the_sweep_resumes(plan: SweepPlan, tmp_path: P
     assert len({k[0] for k in partial}) == done
     run_sweep(plan, LocalPool(SyntheticPoint(), 2), store_path=store, quiet=True, stream=io.StringIO())
     _assert_complete(store, plan, reference)
+
+
+def _cli(scenario: Path, *options: str):
+    from netsim.cli import build_parser
+
+    return build_parser().parse_args(["sweep", str(scenario), "--quiet", *options])
+
+
+def test_cli_exit_codes_retry_failed_and_cluster(plan: SweepPlan, tmp_path: Path,
+                                                 capsys: pytest.CaptureFixture[str]) -> None:
+    from netsim.cli.sweep_cmd import run_command
+
+    scenario, store = Path(str(plan.scenario.source)), tmp_path / "cli.sqlite"
+    args = _cli(scenario, "--store", str(store), "--workers", "2")
+    assert run_command(args, point_function=SyntheticPoint(fail_at_length_km=10.0)) == 1
+    last = capsys.readouterr().out.splitlines()[-1]
+    assert last.startswith("28 of 30 points done, 2 failed, 0 pending (30 run now in")
+    assert last.endswith("rerun with --retry-failed to run the failed points again")
+    assert run_command(_cli(scenario, "--store", str(store), "--retry-failed"), point_function=SyntheticPoint()) == 0
+    assert "30 of 30 points done, 0 failed, 0 pending (2 run now" in capsys.readouterr().out
+    assert metric_map(store) == _reference(plan)
+    if importlib.util.find_spec("distributed") is not None:
+        dask_store = tmp_path / "cli-dask.sqlite"
+        assert run_command(_cli(scenario, "--store", str(dask_store), "--cluster", "local:1"),
+                           point_function=SyntheticPoint()) == 0
+        assert metric_map(dask_store) == metric_map(store)
