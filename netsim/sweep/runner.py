@@ -5,7 +5,7 @@ from __future__ import annotations
 import json
 import sys
 import time
-from collections.abc import Iterator, Sequence
+from collections.abc import Generator, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
@@ -129,7 +129,7 @@ def run_sweep(plan: SweepPlan, executor: LocalPool | DaskPool, *, store_path: st
         by_id = {p.point_id: p for p in todo}
         failed_before = counts["failed"] - (len(todo) if retry_failed else 0)
         progress = _Progress(len(plan.points), counts["done"], failed_before, quiet, stream)
-        records = executor.run(tasks_for(plan, todo, point_timeout_s))
+        records = executor.run(tasks_for(plan, todo, point_timeout_s)) if todo else iter_nothing()
         try:
             for record in records:
                 store.record(record)
@@ -140,6 +140,11 @@ def run_sweep(plan: SweepPlan, executor: LocalPool | DaskPool, *, store_path: st
         counts = store.counts()
     return SweepSummary(path, len(plan.points), len(todo), counts["done"], counts["failed"],
                         counts["pending"], time.perf_counter() - clock)
+
+
+def iter_nothing() -> Generator[PointRecord, None, None]:
+    """An empty record stream (no executor is started when nothing is left to run)."""
+    yield from ()
 
 
 def summary_line(summary: SweepSummary) -> str:
