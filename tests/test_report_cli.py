@@ -174,3 +174,18 @@ def test_report_frames_for_python_users() -> None:
     links = frames["links"]
     assert list(links["length_km"]) == [10.0, 12.0]
     assert links.attrs["headers"]["plob_bits_per_s"] == "repeaterless bound (ebit/s)"
+
+
+def test_param_order_and_no_averaging_across_swept_values(tmp_path: Path) -> None:
+    from netsim.report.build import report_tables
+
+    data = load_source(_store(tmp_path))
+    tables = report_tables(data, params=["sites[*].t2_s"], metrics={"rate_per_s": "rate_ci95"})
+    table = tables["pivot-rate_per_s-aldmoor-cinderfold"]
+    assert table.columns[0].key == "sites[*].t2_s"          # rows: t2; columns: attenuation
+    assert {(r["sites[*].t2_s"], r["c0"], r["c1"]) for r in table.rows} == {(0.1, 100.0, 120.0),
+                                                                          (1.0, 110.0, 130.0)}
+    from netsim.errors import ParameterError
+
+    with pytest.raises(ParameterError, match=r"--param = 'links\[\*\]\.t1_s' is not allowed; expected a swept parameter"):
+        report_tables(data, params=["links[*].t1_s"])

@@ -34,7 +34,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--metric", action="append", default=None,
                         help="store only: metric to pivot (repeatable; default rate_per_s and fidelity_mean)")
     parser.add_argument("--param", action="append", default=None,
-                        help="store only: swept parameter for rows, then columns (repeatable; default all)")
+                        help="store only: swept parameter for rows, then columns (repeatable); the "
+                             "others get one table per value (default: sweep order)")
     parser.add_argument("--no-figures", action="store_true", help="write tables only")
     parser.add_argument("--quiet", action="store_true", help="print only the list of files written")
     parser.set_defaults(func=run)

@@ -21,12 +21,19 @@ from netsim.report.sources import ReportData, demand_names
 from netsim.report.table import Table, render
 from netsim.report.units import header
 
-__all__ = ["DEFAULT_METRICS", "file_stem", "report_figures", "report_tables", "write_report"]
+__all__ = ["DEFAULT_METRICS", "file_stem", "ordered_parameters", "report_figures", "report_tables", "write_report"]
 
 #: Metrics pivoted for a sweep store by default, with the key of their 95 % interval.
 DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
 _MAX_GROUPS = 12
 _SUFFIX = {"table": ".txt", "csv": ".csv", "md": ".md", "tex": ".tex", "json": ".json"}
+
+
+def value_order(value: Any) -> tuple[int, float, str]:
+    """Numbers in numeric order before anything else in text order."""
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        return (0, float(value), "")
+    return (1, 0.0, str(value))
 
 
 def file_stem(text: str) -> str:
@@ -59,8 +66,20 @@ def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
     return tables
 
 
+def ordered_parameters(data: ReportData, params: Sequence[str] | None) -> list[str]:
+    """The swept parameters with ``params`` first (rows, columns) and the others after them
+    (held at each of their values in turn), so that no two swept values are ever averaged."""
+    from netsim.errors import ParameterError
+
+    chosen = list(params or [])
+    for p in chosen:
+        if p not in data.parameters:
+            raise ParameterError("--param", p, "a swept parameter: " + ", ".join(data.parameters))
+    return chosen + [p for p in data.parameters if p not in chosen]
+
+
 def _groups(records: Sequence[Mapping[str, Any]], keys: Sequence[str]) -> list[dict[str, Any]]:
-    values = [sorted({repr(r.get(k)): r.get(k) for r in records}.values(), key=repr) for k in keys]
+    values = [sorted({repr(r.get(k)): r.get(k) for r in records}.values(), key=value_order) for k in keys]
     return [dict(zip(keys, combo)) for combo in itertools.product(*values)]
 
 
@@ -79,7 +98,7 @@ def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None 
     """
     tables: dict[str, Table] = {}
     if data.kind == "store":
-        chosen = list(params or data.parameters)
+        chosen = ordered_parameters(data, params)
         if chosen:
             tables.update(_sweep_tables(data, metrics or DEFAULT_METRICS, chosen))
         if not data.links:
@@ -100,7 +119,7 @@ def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
 
     figures: dict[str, Figure] = {}
     if data.kind == "store":
-        figures.update(plots.sweep_figures(data, list(params or data.parameters)))
+        figures.update(plots.sweep_figures(data, ordered_parameters(data, params)))
     tables = tables or report_tables(data, params=params)
     if "links" in tables:
         figures.update(plots.network_figures(data, tables["links"].rows))

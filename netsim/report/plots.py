@@ -15,7 +15,7 @@ import numpy as np
 from matplotlib.figure import Figure
 from numpy.typing import ArrayLike
 
-from netsim.report.build import file_stem
+from netsim.report.build import file_stem, value_order
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
 from netsim.report.pivot import grid, series, short_name
@@ -99,7 +99,7 @@ def network_figures(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) ->
 
 def _fixed(records: list[dict[str, Any]], rest: Sequence[str]) -> tuple[list[dict[str, Any]], str]:
     """Records at the first value of every parameter beyond the two plotted, and a caption."""
-    fixed = {k: min((r.get(k) for r in records), key=repr) for k in rest}
+    fixed = {k: min((r.get(k) for r in records), key=value_order) for k in rest}
     chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
     return chosen, "".join(f", {k}={v}" for k, v in fixed.items())
 
