@@ -189,3 +189,17 @@ def test_param_order_and_no_averaging_across_swept_values(tmp_path: Path) -> Non
 
     with pytest.raises(ParameterError, match=r"--param = 'links\[\*\]\.t1_s' is not allowed; expected a swept parameter"):
         report_tables(data, params=["links[*].t1_s"])
+
+
+def test_any_stored_metric_can_be_pivoted(tmp_path: Path, capsys) -> None:
+    from netsim.report.build import report_tables
+
+    data = load_source(_store(tmp_path))
+    tables = report_tables(data, metrics={"attempts": None})          # a link metric
+    table = tables["pivot-attempts-aldmoor-brackmere"]
+    assert table.title.startswith("attempts, link Aldmoor-Brackmere")
+    assert {r["c0"] for r in table.rows} == {1000.0}
+    assert main(["report", str(_store(tmp_path / "b")), "--metric", "rate", "--no-figures"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--metric = 'rate' is not allowed; expected a stored demand" in err[0]
+    assert "rate_per_s" in err[0]

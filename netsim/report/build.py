@@ -21,7 +21,7 @@ from netsim.report.sources import ReportData, demand_names
 from netsim.report.table import Table, render
 from netsim.report.units import header
 
-__all__ = ["DEFAULT_METRICS", "file_stem", "ordered_parameters", "report_figures", "report_tables", "write_report"]
+__all__ = ["DEFAULT_METRICS", "file_stem", "metric_kind", "ordered_parameters", "report_figures", "report_tables", "write_report"]
 
 #: Metrics pivoted for a sweep store by default, with the key of their 95 % interval.
 DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
@@ -47,20 +47,33 @@ def _simulated_time(data: ReportData) -> float | None:
     return float(run_time) if run_time else (max(times) if times else None)
 
 
+def metric_kind(records: Sequence[Mapping[str, Any]], metric: str) -> str:
+    """The kind of entity (``demand``, ``link``, ``site``, ``run``) whose records carry
+    ``metric`` (demands first); a one-line error naming the stored metrics otherwise."""
+    from netsim.errors import ParameterError
+
+    for kind in ("demand", "link", "site", "run"):
+        if any(r.get("kind") == kind and metric in r for r in records):
+            return kind
+    stored = sorted({k for r in records if r.get("kind") == "demand" for k in r
+                     if k not in ("point_id", "repeat", "kind", "name") and "[" not in k})
+    raise ParameterError("--metric", metric, "a stored demand, link or site metric, e.g. "
+                         + ", ".join(stored[:12]))
+
+
 def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
                   params: Sequence[str]) -> dict[str, Table]:
     tables: dict[str, Table] = {}
-    demands = [r for r in data.records if r.get("kind") == "demand"]
     rows_p, cols_p, rest = params[0], (params[1] if len(params) > 1 else None), list(params[2:])
     for metric, ci in metrics.items():
-        for name in demand_names(demands):
-            mine = [r for r in demands if r.get("name") == name and metric in r]
-            if not mine:
-                continue
+        kind = metric_kind(data.records, metric)
+        records = [r for r in data.records if r.get("kind") == kind and metric in r]
+        for name in demand_names(records, kind):
+            mine = [r for r in records if r.get("name") == name]
             for fixed in _groups(mine, rest)[:_MAX_GROUPS]:
                 chosen = [r for r in mine if all(r.get(k) == v for k, v in fixed.items())]
                 where = "".join(f", {k}={v}" for k, v in fixed.items())
-                title = f"{header(metric)}, demand {name}{where}"
+                title = f"{header(metric)}, {kind} {name}{where}".replace(f"{kind} , ", "")
                 key = file_stem(f"pivot-{metric}-{name}{where}")
                 tables[key] = pivot_table(chosen, metric, rows_p, cols_p, ci_key=ci, title=title)
     return tables
