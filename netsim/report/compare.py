@@ -135,7 +135,8 @@ def _side_by_side(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -
                         f"b{i}": d.get("bound_multipath_per_s")})
         rows.append(row)
     notes = [("best: highest delivered rate among candidates meeting the demand's minimum "
-             "fidelity; 'tie' when the 95% intervals of the two best overlap.")]
+             "fidelity; 'tie' when the 95% intervals of the two best overlap."),
+             "'-': the candidate has no such demand, or it was not simulated."]
     return Table("Candidates side by side, per demand", columns, [*rows], notes)
 
 
