@@ -25,7 +25,8 @@ def _json_rows(capsys: pytest.CaptureFixture[str], *argv: str) -> list[dict[str,
 
 
 def test_damping_span_matches_closed_forms(capsys: pytest.CaptureFixture[str]) -> None:
-    rows = _json_rows(capsys, "--length-km", "10", "50", "--attenuation-db-per-km", "0.2", "--extra-loss-db", "1")
+    rows = _json_rows(capsys, "--length-km", "10", "50", "--attenuation-db-per-km", "0.2", "--extra-loss-db", "1",
+                      "--loss-model", "damping")
     for row, length in zip(rows, (10, 50)):
         loss = 0.2 * length + 1.0
         eta = 10 ** (-loss / 10)
@@ -45,7 +46,7 @@ def test_damping_span_matches_closed_forms(capsys: pytest.CaptureFixture[str]) -
 def test_capacity_column_matches_giovannetti_fazio(capsys: pytest.CaptureFixture[str]) -> None:
     # 0.2 dB/km x 11.09 km -> eta about 0.6; product-state capacity of amplitude damping
     # (Giovannetti & Fazio 2005), maximised here on a fine grid in the excited population p.
-    row = _json_rows(capsys, "--length-km", "11.09")[0]
+    row = _json_rows(capsys, "--length-km", "11.09", "--loss-model", "damping")[0]
     eta = row["transmissivity"]
     grid = [i / 20000 for i in range(20001)]
     best = max(_h(eta * p) - _h((1 + math.sqrt((1 - 2 * eta * p) ** 2 + 4 * eta * p * (1 - p))) / 2) for p in grid)

@@ -9,10 +9,10 @@ high loss the classical Holevo figures of a qubit may exceed it.
 
 The span's qubit channel is :func:`netsim.hardware.fibre.qubit_channel`: depolarizing with
 parameter p at the sender (rho -> (1 - p) rho + p I/2), then the loss of the fibre with
-eta = 10^(-(alpha L + extra)/10), modelled either as amplitude damping with gamma = 1 - eta
-(``--loss-model damping``, the default: a single-rail qubit, |1> one photon, |0> vacuum, so a
-lost photon looks like |0>) or as an erasure with eps = 1 - eta (``--loss-model erasure``:
-the loss is noticed, e.g. polarisation qubits).
+eta = 10^(-(alpha L + extra)/10), modelled either as an erasure with eps = 1 - eta (``--loss-model erasure``, the default and
+the model budgets and the engine use: a polarisation or time-bin qubit whose loss is noticed)
+or as amplitude damping with gamma = 1 - eta (``--loss-model damping``: a single-rail qubit,
+|1> one photon, |0> vacuum, so a lost photon looks like |0>).
 """
 
 from __future__ import annotations
@@ -38,7 +38,8 @@ the span's qubit channel (bits per sent qubit), the Holevo capacity of that chan
 use, optimised over input ensembles) and the coherent information of a Bell pair sent through
 it (ebits per pair, clipped at 0). Channel model: depolarizing p at the sender
 (rho -> (1 - p) rho + p I/2), then fibre loss with eta = 10^(-(alpha L + extra)/10) as
-amplitude damping gamma = 1 - eta (single-rail qubit; default) or as an erasure eps = 1 - eta.
+an erasure eps = 1 - eta (polarisation or time-bin qubit; default, as in budgets) or as
+amplitude damping gamma = 1 - eta (single-rail qubit).
 Units: km, dB, dB/km, bits."""
 
 
@@ -57,9 +58,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--encoding", default="binary",
                         help="encoding ensemble: binary ({|0>, |1>}) or bb84 ({|0>, |1>, |+>, |->}); "
                              "equal priors (default binary)")
-    parser.add_argument("--loss-model", default="damping",
+    parser.add_argument("--loss-model", default="erasure",
                         help="what loss does to the qubit: damping (gamma = 1 - eta) or erasure "
-                             "(eps = 1 - eta) (default damping)")
+                             "(eps = 1 - eta) (default erasure)")
     parser.add_argument("--format", default="table", help="output: " + ", ".join(_FORMATS) + " (default table)")
     parser.set_defaults(func=run)
 
@@ -99,7 +100,7 @@ def encoding_states(name: str) -> tuple[np.ndarray, np.ndarray]:
 
 
 def link_rows(lengths_km: list[float], attenuation_db_per_km: float, extra_loss_db: float = 0.0,
-              depolarizing: float = 0.0, encoding: str = "binary", loss_model: str = "damping") -> list[dict[str, Any]]:
+              depolarizing: float = 0.0, encoding: str = "binary", loss_model: str = "erasure") -> list[dict[str, Any]]:
     """One row per length with the figures of the ``link`` table (see the module docstring)."""
     from netsim import qinfo
     from netsim.hardware import fibre
