@@ -114,7 +114,7 @@ def rate_vs_distance(length_km: ArrayLike, rates: Mapping[str, ArrayLike],
     ax.set_xlabel("link length (km)")
     ax.set_ylabel(ylabel)
     ax.grid(True, which="major", linewidth=0.3, color="0.85")
-    ax.legend(frameon=False, loc="lower left")
+    ax.legend(frameon=False, loc="upper right")
     return fig
 
 

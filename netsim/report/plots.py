@@ -18,9 +18,9 @@ from numpy.typing import ArrayLike
 from netsim.report.build import file_stem, value_order
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
-from netsim.report.pivot import grid, series, short_name
+from netsim.report.pivot import grid, series
 from netsim.report.sources import ReportData, demand_names
-from netsim.report.units import header, param_label
+from netsim.report.units import header, param_label, param_value_label
 
 __all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "scheme_curves", "sweep_figures"]
 
@@ -110,7 +110,7 @@ def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: s
     chosen, where = _fixed(records, params[2:])
     x, y, z = grid(chosen, metric, params[0], params[1])
     stem = file_stem(f"{metric}-{name}{where}")
-    curves = {f"{short_name(params[1])} = {v:g}": series(
+    curves = {param_value_label(params[1], v): series(
         [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
     title = f"demand {name}{where}"
     return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=param_label(params[0]),

@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
-__all__ = ["HEADERS", "binomial_ci95", "header", "mean_ci95", "param_label", "poisson_rate_ci95"]
+__all__ = ["HEADERS", "binomial_ci95", "header", "mean_ci95", "param_label", "param_value_label", "poisson_rate_ci95"]
 
 HEADERS: dict[str, str] = {
     "rate_per_s": "delivered rate (pairs/s)",
@@ -47,13 +47,23 @@ def param_label(path: str) -> str:
     """An axis label for a swept key path, unit in brackets and scope after a comma:
     ``"sites[role=repeater].t2_s"`` -> ``"t2 (s), sites[role=repeater]"``."""
     scope, _, key = path.rpartition(".")
-    name, unit = key, ""
+    name, unit = _split_unit(key)
+    text = name.replace("_", " ") + (f" ({unit})" if unit else "")
+    return f"{text}, {scope}" if scope and scope not in ("defaults.link", "defaults.site") else text
+
+
+def _split_unit(key: str) -> tuple[str, str]:
     for suffix, shown in _UNIT_SUFFIXES:
         if key.endswith(suffix):
-            name, unit = key[: -len(suffix)], f" ({shown})"
-            break
-    text = name.replace("_", " ") + unit
-    return f"{text}, {scope}" if scope and scope not in ("defaults.link", "defaults.site") else text
+            return key[: -len(suffix)], shown
+    return key, ""
+
+
+def param_value_label(path: str, value: float) -> str:
+    """A legend entry for one value of a swept key path, unit after the value:
+    ``("sites[role=repeater].t2_s", 0.1)`` -> ``"t2 = 0.1 s"``."""
+    name, unit = _split_unit(path.rpartition(".")[2])
+    return f"{name.replace('_', ' ')} = {value:g}" + (f" {unit}" if unit else "")
 
 
 def header(key: str) -> str:
