@@ -7,6 +7,7 @@ allowed. The command line prints that line and exits with code 2, without a trac
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -27,7 +28,7 @@ class NetsimError(Exception):
 def format_value(value: Any) -> str:
     """Render a received value compactly for an error message."""
     if isinstance(value, float):
-        return repr(value) if value != value or value in (float("inf"), float("-inf")) else f"{value:g}"
+        return repr(value) if not math.isfinite(value) else f"{value:g}"
     if isinstance(value, str):
         return repr(value)
     text = repr(value)

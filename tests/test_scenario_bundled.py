@@ -1,4 +1,4 @@
-"""The bundled scenarios load, have the promised shape, and scenarios/REFERENCE.md is true.
+"""The bundled scenarios load, have the promised shape, and the README's scenario reference is true.
 
 Outside sources for the ranges checked here: metro fibre spans of a few km to a few tens of km
 (Rabbie, Chakraborty, Avis & Wehner, npj Quantum Inf. 8, 5 (2022): repeater placement on real
@@ -129,7 +129,17 @@ def test_bundled_link_rates_are_quick_to_simulate() -> None:
             assert 1.0 <= rate <= 1000.0, f"{path.name} {link.name}: {rate:.3g} pairs/s"
 
 
-# --- scenarios/REFERENCE.md agrees with the code ----------------------------------------------
+# --- the README's scenario reference agrees with the code -----------------------------------
+
+README = ROOT.parent / "README.md"
+
+
+def _reference_text() -> str:
+    """The README's "Scenario reference" section (up to the next second-level heading)."""
+    text = README.read_text(encoding="utf-8")
+    start = text.index("\n## Scenario reference")
+    end = text.find("\n## ", start + 1)
+    return text[start:end if end > 0 else None]
 
 SECTIONS = {"[network]": (F.NETWORK_FIELDS, None), "[[sites]]": (F.SITE_FIELDS, M.Site),
             "[[links]]": (F.LINK_FIELDS, M.Link), "[[demands]]": (F.DEMAND_FIELDS, M.Demand),
@@ -137,12 +147,12 @@ SECTIONS = {"[network]": (F.NETWORK_FIELDS, None), "[[sites]]": (F.SITE_FIELDS, 
 
 
 def _reference_rows() -> dict[str, dict[str, list[str]]]:
-    """Key rows of every section table of REFERENCE.md: {section: {key: cells}}."""
+    """Key rows of every section table of the reference: {section: {key: cells}}."""
     rows: dict[str, dict[str, list[str]]] = {}
     section = ""
-    for line in (ROOT / "REFERENCE.md").read_text(encoding="utf-8").splitlines():
-        if line.startswith("## "):
-            section = line[3:].strip()
+    for line in _reference_text().splitlines():
+        if line.startswith("### "):
+            section = line[4:].strip()
             rows[section] = {}
         elif line.startswith("| `") and section:
             cells = [c.strip() for c in line.strip("|").split(" | ")]
@@ -176,7 +186,7 @@ def test_reference_lists_every_key_with_its_default_and_range(section: str) -> N
 def test_reference_mentions_every_top_level_table_and_decision() -> None:
     from netsim.scenario import TOP_LEVEL_KEYS
 
-    text = (ROOT / "REFERENCE.md").read_text(encoding="utf-8")
+    text = _reference_text()
     for key in TOP_LEVEL_KEYS:
         assert f"`[{key}]`" in text or f"`[[{key}]]`" in text or f"`[{key}.site]`" in text, key
     assert f"**{M.DEFAULT_DEMAND_PAIRS} pairs**" in text

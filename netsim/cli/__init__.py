@@ -19,7 +19,7 @@ from typing import NoReturn
 from netsim import __version__
 from netsim.errors import NetsimError
 
-__all__ = ["main", "build_parser", "OneLineParser"]
+__all__ = ["OneLineParser", "build_parser", "main"]
 
 #: Subcommand modules, in the order ``netsim --help`` lists them.
 COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare")

@@ -2,7 +2,7 @@
 
 Every problem of a file is collected and raised at once as one
 :class:`~netsim.errors.ScenarioError`, one line per problem, ``key.path: message`` with
-zero-based indices (``links[3].length_km``). The rules are listed in scenarios/REFERENCE.md.
+zero-based indices (``links[3].length_km``). The rules are listed in the README's scenario reference.
 """
 
 from __future__ import annotations
@@ -98,7 +98,7 @@ def load_data(data: Mapping[str, Any], source: str | None = None) -> Scenario:
     problems: list[Problem] = []
     if not plain:
         problems.append(Problem("", "the file is empty; a scenario needs a [network] table with "
-                                    "a name, [[sites]] and [[links]] (see scenarios/REFERENCE.md)"))
+                                    "a name, [[sites]] and [[links]] (see the README's scenario reference)"))
         raise ScenarioError(problems, source=source)
     scenario = _build(plain, problems, source)
     if problems or scenario is None:

@@ -16,7 +16,7 @@ Scenario file layout (TOML)::
     [[demands]]        users = [site, site], pairs or duration_s, min_fidelity
     [sweep]            kept untouched in Scenario.data for the sweep layer
 
-The full reference (every key, unit, default and allowed range) is scenarios/REFERENCE.md.
+The full reference (every key, unit, default and allowed range) is the README's scenario reference.
 """
 
 from __future__ import annotations
