@@ -9,10 +9,14 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from collections.abc import Callable
 from typing import Any
 
 __all__ = [
     "NetsimError",
+    "checked_number",
+    "nonnegative",
+    "probability",
     "ParameterError",
     "Problem",
     "ScenarioError",
@@ -81,3 +85,27 @@ class ScenarioError(NetsimError):
 
 class StoreError(NetsimError):
     """A result store that cannot be used (corrupt, foreign, or from another scenario)."""
+
+
+def checked_number(name: str, value: Any, allowed: str, test: Callable[[float], bool]) -> float:
+    """``float(value)`` when ``test`` holds for it, else a :class:`ParameterError` naming ``name``.
+
+    NaN fails every comparison, so a ``test`` written as a comparison also rejects NaN.
+    """
+    try:
+        x = float(value)
+    except (TypeError, ValueError):
+        raise ParameterError(name, value, allowed) from None
+    if not test(x):
+        raise ParameterError(name, value, allowed)
+    return x
+
+
+def probability(name: str, value: Any) -> float:
+    """``value`` as a float in [0, 1], or a ParameterError naming ``name``."""
+    return checked_number(name, value, "a number in [0, 1]", lambda x: 0.0 <= x <= 1.0)
+
+
+def nonnegative(name: str, value: Any) -> float:
+    """``value`` as a finite float >= 0, or a ParameterError naming ``name``."""
+    return checked_number(name, value, "a finite number >= 0", lambda x: math.isfinite(x) and x >= 0)

@@ -65,23 +65,15 @@ def register(subparsers: Any) -> None:
     parser.set_defaults(func=run)
 
 
-def _nonnegative(flag: str, value: float) -> float:
-    from netsim.errors import ParameterError
-
-    if not (math.isfinite(value) and value >= 0):
-        raise ParameterError(flag, value, "a finite number >= 0")
-    return value
-
 
 def _check(args: argparse.Namespace) -> None:
-    from netsim.errors import ParameterError
+    from netsim.errors import ParameterError, nonnegative, probability
 
     for length in args.length_km:
-        _nonnegative("--length-km", length)
-    _nonnegative("--attenuation-db-per-km", args.attenuation_db_per_km)
-    _nonnegative("--extra-loss-db", args.extra_loss_db)
-    if not 0.0 <= args.depolarizing <= 1.0:
-        raise ParameterError("--depolarizing", args.depolarizing, "a number in [0, 1]")
+        nonnegative("--length-km", length)
+    nonnegative("--attenuation-db-per-km", args.attenuation_db_per_km)
+    nonnegative("--extra-loss-db", args.extra_loss_db)
+    probability("--depolarizing", args.depolarizing)
     for flag, value, allowed in (("--encoding", args.encoding, ENCODINGS),
                                  ("--loss-model", args.loss_model, LOSS_MODELS),
                                  ("--format", args.format, _FORMATS)):

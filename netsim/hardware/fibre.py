@@ -11,10 +11,9 @@ Conventions (shared by every layer, see DEVELOPERS.md):
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
-from netsim.errors import ParameterError
+from netsim.errors import ParameterError, nonnegative, probability
 
 __all__ = [
     "FIBRE_SPEED_KM_PER_S",
@@ -37,24 +36,6 @@ FIBRE_SPEED_KM_PER_S: float = SPEED_OF_LIGHT_KM_PER_S / GROUP_INDEX
 LOSS_MODELS: tuple[str, ...] = ("erasure", "damping")
 
 
-def _finite_nonnegative(name: str, value: float) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(name, value, "a finite number >= 0") from None
-    if not math.isfinite(x) or x < 0:
-        raise ParameterError(name, value, "a finite number >= 0")
-    return x
-
-
-def _probability(name: str, value: float) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(name, value, "a number in [0, 1]") from None
-    if not (0.0 <= x <= 1.0):  # also rejects NaN
-        raise ParameterError(name, value, "a number in [0, 1]")
-    return x
 
 
 def loss_db(length_km: float, attenuation_db_per_km: float, extra_loss_db: float = 0.0) -> float:
@@ -79,9 +60,9 @@ def loss_db(length_km: float, attenuation_db_per_km: float, extra_loss_db: float
     ParameterError
         If any argument is negative, NaN or infinite.
     """
-    length = _finite_nonnegative("length_km", length_km)
-    alpha = _finite_nonnegative("attenuation_db_per_km", attenuation_db_per_km)
-    extra = _finite_nonnegative("extra_loss_db", extra_loss_db)
+    length = nonnegative("length_km", length_km)
+    alpha = nonnegative("attenuation_db_per_km", attenuation_db_per_km)
+    extra = nonnegative("extra_loss_db", extra_loss_db)
     return alpha * length + extra
 
 
@@ -95,7 +76,7 @@ def transmissivity(length_km: float, attenuation_db_per_km: float, extra_loss_db
 
 def propagation_delay_s(length_km: float) -> float:
     """Time for light to cross ``length_km`` of fibre: L n_g / c (about 4.9 us/km)."""
-    return _finite_nonnegative("length_km", length_km) / FIBRE_SPEED_KM_PER_S
+    return nonnegative("length_km", length_km) / FIBRE_SPEED_KM_PER_S
 
 
 def qubit_channel(transmissivity: float, depolarizing: float = 0.0, loss_model: str = "erasure") -> Any:
@@ -134,8 +115,8 @@ def qubit_channel(transmissivity: float, depolarizing: float = 0.0, loss_model: 
     # lazy: the math layer is imported only when a channel is needed
     from netsim import qinfo
 
-    eta = _probability("transmissivity", transmissivity)
-    p = _probability("depolarizing", depolarizing)
+    eta = probability("transmissivity", transmissivity)
+    p = probability("depolarizing", depolarizing)
     if loss_model == "erasure":
         loss = qinfo.erasure(1.0 - eta)
     elif loss_model == "damping":

@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from netsim.errors import ParameterError
+from netsim.errors import ParameterError, checked_number, probability
 from netsim.qinfo.states import as_states
 
 __all__ = [
@@ -137,16 +137,6 @@ def _dims_of(d: int, dims: tuple[int, ...] | None) -> tuple[int, ...]:
     return (2,) * n
 
 
-def _probability(name: str, value: Any) -> float:
-    """``value`` as a float in [0, 1], or a ParameterError naming ``name``."""
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(name, value, "a number in [0, 1]") from None
-    if not (0.0 <= x <= 1.0):  # also rejects NaN
-        raise ParameterError(name, value, "a number in [0, 1]")
-    return x
-
 
 def depolarizing(p: float) -> Channel:
     """Depolarizing channel rho -> (1 - p) rho + p I/2, p in [0, 1].
@@ -157,7 +147,7 @@ def depolarizing(p: float) -> Channel:
     ----------
     M. A. Nielsen and I. L. Chuang, Quantum Computation and Quantum Information (2010), Sec. 8.3.4.
     """
-    p = _probability("p", p)
+    p = probability("p", p)
     kraus = np.stack([math.sqrt(1 - 3 * p / 4) * _I, math.sqrt(p / 4) * _X,
                       math.sqrt(p / 4) * _Y, math.sqrt(p / 4) * _Z]).astype(complex)
     return Channel(f"depolarizing(p={p:g})", kraus, {"p": p})
@@ -169,7 +159,7 @@ def dephasing(p: float) -> Channel:
     Off-diagonal elements are multiplied by 1 - p; p = 1 fully dephases. Kraus operators
     sqrt(1 - p/2) I and sqrt(p/2) Z (a phase flip with probability p/2).
     """
-    p = _probability("p", p)
+    p = probability("p", p)
     kraus = np.stack([math.sqrt(1 - p / 2) * _I, math.sqrt(p / 2) * _Z]).astype(complex)
     return Channel(f"dephasing(p={p:g})", kraus, {"p": p})
 
@@ -184,7 +174,7 @@ def amplitude_damping(gamma: float) -> Channel:
     ----------
     M. A. Nielsen and I. L. Chuang, Quantum Computation and Quantum Information (2010), Sec. 8.3.5.
     """
-    g = _probability("gamma", gamma)
+    g = probability("gamma", gamma)
     kraus = np.array([[[1, 0], [0, math.sqrt(1 - g)]], [[0, math.sqrt(g)], [0, 0]]], dtype=complex)
     return Channel(f"amplitude_damping(gamma={g:g})", kraus, {"gamma": g})
 
@@ -200,7 +190,7 @@ def erasure(eps: float) -> Channel:
     C. H. Bennett, D. P. DiVincenzo and J. A. Smolin, "Capacities of quantum erasure channels",
     Phys. Rev. Lett. 78, 3217 (1997).
     """
-    e = _probability("eps", eps)
+    e = probability("eps", eps)
     kraus = np.zeros((3, 3, 2), dtype=complex)
     kraus[0, 0, 0] = kraus[0, 1, 1] = math.sqrt(1 - e)
     kraus[1, 2, 0] = kraus[2, 2, 1] = math.sqrt(e)
@@ -251,15 +241,6 @@ def _memory_factors(t_s: ArrayLike, t1_s: float, t2_s: float) -> tuple[NDArray[n
     coherence = np.exp(-t / t2)
     return gamma, coherence
 
-
-def _positive_time(name: str, value: Any) -> float:
-    try:
-        x = float(value)
-    except (TypeError, ValueError):
-        raise ParameterError(name, value, "a time > 0 in seconds (inf allowed)") from None
-    if not x > 0:
-        raise ParameterError(name, value, "a time > 0 in seconds (inf allowed)")
-    return x
 
 
 def memory_decoherence(t_s: float, t1_s: float, t2_s: float) -> Channel:
@@ -325,3 +306,7 @@ def decohere(rho: ArrayLike, t_s: ArrayLike, t1_s: float, t2_s: float, qubit: in
     out[..., 0, :, :, 1, :] = c * t[..., 0, :, :, 1, :]
     out[..., 1, :, :, 0, :] = c * t[..., 1, :, :, 0, :]
     return out.reshape(batch + r.shape[-2:])
+
+
+def _positive_time(name: str, value: Any) -> float:
+    return checked_number(name, value, "a time > 0 in seconds (inf allowed)", lambda x: x > 0)
