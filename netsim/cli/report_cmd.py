@@ -17,7 +17,7 @@ def register(subparsers: Any) -> None:
     parser = subparsers.add_parser(
         "report", help="capacity tables and figures for a proposal",
         description="Write the per-link capacity table, the per-demand table (simulated numbers "
-                    "with 95%% intervals beside their bounds) and figures for a scenario (.toml), "
+                    "with 95% intervals beside their bounds) and figures for a scenario (.toml), "
                     "a run result (run.json) or a sweep store (.sqlite, pivot tables over the "
                     "swept parameters). Tables go to one file each; figures as PNG and PDF.")
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
