@@ -243,3 +243,21 @@ def test_batched_flushing_does_not_change_results(monkeypatch: pytest.MonkeyPatc
     whole = figures()
     monkeypatch.setattr(des, "FLUSH_ROWS", 7)
     np.testing.assert_allclose(figures(), whole, rtol=1e-12)
+
+
+def test_demands_sharing_a_fibre_share_its_attempts() -> None:
+    # Two demands between the same two users over the same single fibre, with memory for both:
+    # the fibre carries one attempt sequence at a time, so together they cannot exceed the one-link
+    # rate p_round / T (the heralding law of the single-link test; geometric number of rounds,
+    # common practice), and split it about evenly under first-come-first-served. Without the
+    # shared-fibre rule each would get the full rate.
+    p, period, pairs = 0.02, 1e-3, 3000
+    sites = tuple(Site(n, "user", memory_slots=2, t1_s=math.inf, t2_s=math.inf) for n in ("Quillan", "Ravensey"))
+    hop = HopSpec("Quillan-Ravensey", synthetic_physics(p, period), links=("Quillan-Ravensey",))
+    a, b = Chain("first", sites, (hop,), index=0), Chain("second", sites, (hop,), index=1)
+    runs, _ = simulate_des([a, b], StopRule(pairs=pairs), [np.random.default_rng(11), np.random.default_rng(12)])
+    rates = [r.metrics.n / r.simulated_time_s for r in runs]
+    single = p / period
+    rel = Z / math.sqrt(pairs)
+    assert sum(rates) == pytest.approx(single, rel=rel)
+    assert rates[0] == pytest.approx(rates[1], rel=2 * rel)

@@ -9,6 +9,10 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
   number of rounds K ~ Geometric(p_round) (p_round = 1 - (1 - p)^M) and the clock jumps to the
   herald: its successful round starts at b = start + (K - 1) T and both ends know at b + h. Its
   next round may not start before b + T. One event per success, none per failed attempt.
+- **Shared fibre.** A fibre link carries one attempt sequence at a time (all of its modes serve
+  that sequence): a hop whose light path uses a link another demand is attempting on starts once
+  that sequence has heralded, first come, first served. A link's busy time therefore never
+  exceeds the simulated time.
 - **Storage.** A qubit's storage time runs from the start of its successful round (the memory
   holds it while the herald travels) until it is Bell-measured or delivered. Decoherence is
   lazy: only the times are recorded and states are computed once, in
@@ -141,6 +145,7 @@ class _Des:
         self.swapping = swap_policy(options.swap_policy)
         self.broker = SlotBroker(self.env, capacity, scheduling_policy(options.scheduling))
         self.lanes = [_Lane(c, r, self.rounds + 1) for c, r in zip(chains, rngs)]
+        self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
 
     # -- cycles -----------------------------------------------------------------------------
@@ -171,9 +176,12 @@ class _Des:
 
     def attempt(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, _Pair]:
         c = lane.chain
-        start = max(self.env.now, float(lane.next_round[i]))
+        links = c.hops[i].links
+        start = max(self.env.now, float(lane.next_round[i]), *(self.link_free_s.get(name, 0.0) for name in links))
         k = int(lane.rng.geometric(c.p[i]))
         born = start + (k - 1) * float(c.period_s[i])
+        for name in links:
+            self.link_free_s[name] = born + float(c.period_s[i])
         yield self.env.timeout(born + float(c.herald_s[i]) - self.env.now)
         lane.next_round[i] = born + float(c.period_s[i])
         lane.run.hop_attempts[i] += k
