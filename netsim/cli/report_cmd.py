@@ -11,6 +11,12 @@ __all__ = ["register", "run"]
 
 _FORMATS = ("md", "csv", "tex", "json", "table")
 
+#: Columns of the printed summary by default (``--wide``: all; the files always hold every column).
+COMPACT = {
+    "demand": ("hops", "rate_per_s", "rate_ci95", "fidelity_mean", "fidelity_ci95", "ebits_per_s",
+               "bound_single_path_per_s"),
+}
+
 
 def register(subparsers: Any) -> None:
     """Add the ``report`` subcommand."""
@@ -38,6 +44,9 @@ def register(subparsers: Any) -> None:
                              "others get one table per value (default: sweep order)")
     parser.add_argument("--no-figures", action="store_true", help="write tables only")
     parser.add_argument("--quiet", action="store_true", help="print only the list of files written")
+    parser.add_argument("--wide", action="store_true",
+                        help="print every column of the summary table (default: a compact set; the "
+                             "files always hold every column)")
     parser.set_defaults(func=run)
 
 
@@ -62,6 +71,7 @@ def _metrics(names: list[str] | None) -> dict[str, str | None] | None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from netsim.cli.columns import choose_columns
     from netsim.report.build import write_report
     from netsim.report.sources import load_source
     from netsim.report.table import render
@@ -79,7 +89,7 @@ def run(args: argparse.Namespace) -> int:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)
         if summary is not None:
-            print(render(summary, "table"))
+            print(render(choose_columns(summary, "table", args, COMPACT, None), "table"))
     print(f"wrote {len(written)} files to {out} in {time.perf_counter() - started:.1f} s:")
     for path in written:
         print(f"  {path}")

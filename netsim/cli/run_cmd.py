@@ -12,9 +12,17 @@ __all__ = ["register", "run"]
 
 _FORMATS = ("table", "csv", "md", "json")
 
+#: Columns the text format prints by default (``--wide``: all), by the table's first column key.
+COMPACT = {
+    "demand": ("delivered_pairs", "rate_per_s", "rate_ci95", "fidelity_mean", "fidelity_ci95", "eof_mean",
+               "key_rate_per_s"),
+}
+
 
 def register(subparsers: Any) -> None:
     """Add the ``run`` subcommand."""
+    from netsim.cli.columns import add_column_options
+
     parser = subparsers.add_parser(
         "run", help="simulate Bell-pair delivery and qubit ensembles for every demand",
         description="Event simulation of every demand: heralded links, memories, swaps, cut-offs, "
@@ -29,6 +37,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--seed", metavar="S", default="0", help="random seed (default 0); same seed, same numbers")
     parser.add_argument("--out", metavar="DIR", default=None, help="output directory (default results/<scenario>/)")
     parser.add_argument("--format", default="table", help="printed format: " + ", ".join(_FORMATS) + " (default table)")
+    add_column_options(parser)
     parser.set_defaults(func=run)
 
 
@@ -47,6 +56,7 @@ def _number(name: str, text: str | None, kind: type, allowed: str) -> Any:
 
 
 def run(args: argparse.Namespace) -> int:
+    from netsim.cli.columns import select_tables
     from netsim.engine import run as simulate
     from netsim.errors import ParameterError
     from netsim.report.table import render
@@ -64,12 +74,13 @@ def run(args: argparse.Namespace) -> int:
     result = simulate(scenario, pairs=pairs, time_s=time_s, precision=precision, seed=seed)
     out = Path(args.out) if args.out else Path("results") / scenario.slug
     written = result.write(out)
+    chosen = select_tables(result.tables(), args.format, args, COMPACT)
     if args.format == "json":
         import json
 
         print(json.dumps(result.to_dict(), indent=2))
     else:
-        print("\n".join(render(t, args.format) for t in result.tables()), end="")
+        print("\n".join(render(t, args.format) for t in chosen), end="")
     print("wrote " + ", ".join(str(p) for p in written), file=sys.stderr)
     if result.interrupted:
         print("netsim run: interrupted; the files hold the pairs delivered so far", file=sys.stderr)

@@ -11,6 +11,7 @@ import csv
 import io
 import json
 import math
+import textwrap
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -18,6 +19,9 @@ from typing import Any
 __all__ = ["FORMATS", "Column", "Table", "format_number", "render", "sig_for_interval", "tex_escape"]
 
 FORMATS = ("table", "csv", "md", "tex", "json")
+
+#: Width at which the text format wraps a table's notes (the rows themselves are never wrapped).
+NOTE_WIDTH = 100
 
 
 def format_number(value: Any, sig: int = 4, trailing_zeros: bool = False) -> str:
@@ -153,8 +157,14 @@ def _text(table: Table) -> str:
 
     out = [table.title, line(headers), "  ".join("-" * w for w in widths)]
     out += [line(r) for r in body]
-    out += table.notes
+    out += [wrapped for note in table.notes for wrapped in _wrap_note(note)]
     return "\n".join(out) + "\n"
+
+
+def _wrap_note(note: str) -> list[str]:
+    """A note as lines of at most :data:`NOTE_WIDTH` characters, continuations indented."""
+    return textwrap.wrap(note, NOTE_WIDTH, subsequent_indent="  ", break_long_words=False,
+                         break_on_hyphens=False) or [""]
 
 
 def _looks_numeric(text: str) -> bool:
