@@ -202,4 +202,5 @@ def test_any_stored_metric_can_be_pivoted(tmp_path: Path, capsys) -> None:
     assert main(["report", str(_store(tmp_path / "b")), "--metric", "rate", "--no-figures"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--metric = 'rate' is not allowed; expected a stored demand" in err[0]
-    assert "rate_per_s" in err[0]
+    assert "did you mean 'rate_per_s'" in err[0]
+    assert "attenuation_db_per_km" not in err[0] and "_ci95" not in err[0]  # parameters, bounds: not metrics

@@ -7,6 +7,7 @@ writes both under an output directory and returns the paths.
 
 from __future__ import annotations
 
+import difflib
 import itertools
 import re
 from collections.abc import Mapping, Sequence
@@ -55,10 +56,20 @@ def metric_kind(records: Sequence[Mapping[str, Any]], metric: str) -> str:
     for kind in ("demand", "link", "site", "run"):
         if any(r.get("kind") == kind and metric in r for r in records):
             return kind
-    stored = sorted({k for r in records if r.get("kind") == "demand" for k in r
-                     if k not in ("point_id", "repeat", "kind", "name") and "[" not in k})
-    raise ParameterError("--metric", metric, "a stored demand, link or site metric, e.g. "
-                         + ", ".join(stored[:12]))
+    stored = _metric_names(records)
+    close = sorted((n for n in stored if metric.lower() in n), key=lambda n: (not n.startswith(metric), n))
+    close = close or difflib.get_close_matches(metric, stored, n=3)
+    hint = f"; did you mean {', '.join(repr(n) for n in close[:4])}?" if close else ""
+    raise ParameterError("--metric", metric, f"a stored demand, link or site metric{hint} (stored: "
+                         + ", ".join(stored) + ")")
+
+
+def _metric_names(records: Sequence[Mapping[str, Any]]) -> list[str]:
+    """Stored metric names, without the swept parameters and the interval bounds."""
+    skip = ("point_id", "repeat", "kind", "name")
+    names = {k for r in records for k in r
+             if k not in skip and "[" not in k and "." not in k and not re.search(r"_ci95(_low|_high)?$", k)}
+    return sorted(names)
 
 
 def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],

@@ -225,4 +225,7 @@ def demand_table(rows: list[dict[str, Any]], scenario_name: str) -> Table:
              "multipath = minimum cut of link capacities."),
              ("Delivered rate / single-path bound compares pairs/s with ebit/s; above 1 only "
              "for pairs too noisy to count as ebits.")]
+    if rows and all(r.get("rate_per_s") is None for r in rows):
+        notes.append("Not simulated, so the delivered columns are empty ('-'): report the scenario "
+                     "with --simulate, or a run.json from netsim run, to fill them.")
     return Table(f"Demands: {scenario_name}", DEMAND_COLUMNS, [*rows], notes)
