@@ -213,7 +213,8 @@ def test_cli_prints_one_line_and_exits_2(tmp_path: Path, capsys: pytest.CaptureF
     err = capsys.readouterr().err
     assert code == 2
     assert err.count("\n") == 1 and "Traceback" not in err
-    assert "--vary links[*].length_km: a log range needs FROM > 0 and TO > 0" in err
+    assert ("--vary links[*].length_km: from = -1, to = 10 is not allowed; expected FROM > 0 and TO > 0 "
+            "for a log range") in err
 
 
 def test_cli_rejects_bad_numbers(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -124,7 +124,8 @@ def _range(start: float, stop: float, n: Any, scale: str) -> tuple[float, ...]:
         raise _Detail(f"points = {format_value(n)} is not allowed; expected an integer in [2, {MAX_POINTS}]")
     if scale == "log":
         if start <= 0 or stop <= 0:
-            raise _Detail("a log range needs FROM > 0 and TO > 0")
+            raise _Detail(f"from = {format_value(start)}, to = {format_value(stop)} is not allowed; "
+                          "expected FROM > 0 and TO > 0 for a log range")
         return tuple(_tidy(v) for v in np.geomspace(start, stop, n))
     if scale != "linear":
         raise _Detail(f"scale = {format_value(scale)} is not allowed; expected 'linear' or 'log'")
