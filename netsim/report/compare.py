@@ -173,6 +173,12 @@ def _relays(graph: nx.Graph, a: str, b: str) -> nx.Graph:
     return graph
 
 
+def _link_name(graph: nx.Graph, u: str, v: str) -> str:
+    """The link's name as the scenario and the budget table write it (its ends in file order)."""
+    link = graph.edges[u, v].get("link")
+    return str(link.name) if link is not None else f"{u}-{v}"
+
+
 def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
     columns = [Column("candidate", "candidate"), Column("demand", "demand"),
                Column("cut_bits_per_s", "min cut (ebit/s)", 4), Column("links", "bottleneck links")]
@@ -186,7 +192,7 @@ def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) ->
                 continue
             value, cut = bottleneck(graph, a, b)
             rows.append({"candidate": c.name, "demand": _label(key, candidates),
-                         "cut_bits_per_s": value, "links": "; ".join(f"{u}-{v}" for u, v in cut)})
+                         "cut_bits_per_s": value, "links": "; ".join(_link_name(graph, u, v) for u, v in cut)})
     notes = ["Other end users never relay; parallel fibres add their capacities."]
     return Table("Bottleneck links (minimum cut of repeaterless link capacities)", columns, [*rows], notes)
 

@@ -114,7 +114,8 @@ def rate_vs_distance(length_km: ArrayLike, rates: Mapping[str, ArrayLike],
     ax.set_xlabel("link length (km)")
     ax.set_ylabel(ylabel)
     ax.grid(True, which="major", linewidth=0.3, color="0.85")
-    ax.legend(frameon=False, loc="upper right")
+    # above the axes: inside, the legend hid the curves that run through the upper right
+    ax.legend(frameon=False, loc="lower center", bbox_to_anchor=(0.5, 1.0), ncol=2)
     return fig
 
 
