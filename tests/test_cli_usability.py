@@ -69,3 +69,49 @@ def test_rate_vs_distance_legend_sits_clear_of_the_curves() -> None:
     ax = fig.axes[0]
     legend = ax.get_legend().get_window_extent()
     assert legend.y0 >= ax.get_window_extent().y1 - 1.0
+
+
+def _inside(inner, outer, slack: float = 1.0) -> bool:
+    return (inner.x0 >= outer.x0 - slack and inner.x1 <= outer.x1 + slack
+            and inner.y0 >= outer.y0 - slack and inner.y1 <= outer.y1 + slack)
+
+
+def test_sweep_figure_labels_fit_and_legend_clears_the_bands() -> None:
+    """A swept link named by its ends makes a long axis label: it is broken onto two lines and
+    stays inside the figure; the legend and the title sit above the axes, apart."""
+    import numpy as np
+
+    from netsim.report.figures import metric_vs_parameter
+    from netsim.report.units import param_label
+
+    label = param_label("links[name=Harlowmere Relay-Pennick Vale Archive].length_km")
+    assert label == "length (km),\nlinks[name=Harlowmere Relay-Pennick Vale Archive]"
+    assert param_label("sites[role=repeater].t2_s") == "t2 (s), sites[role=repeater]"
+    x = np.array([5.0, 10.0, 20.0])
+    curves = {name: (x, y, y - 2, y + 2) for name, y in
+              (("Harlowmere Lab-Pennick Vale Archive", 40 - x / 5), ("Ostrey Court-Pennick Vale Archive", 20 + 0 * x))}
+    fig = metric_vs_parameter(curves, xlabel=label, ylabel="delivered rate (pairs/s)", title="demand Ostrey")
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    whole = fig.bbox
+    assert _inside(ax.xaxis.label.get_window_extent(renderer), whole)
+    legend = ax.get_legend().get_window_extent(renderer)
+    title = fig.get_suptitle()
+    assert title == "demand Ostrey"
+    assert legend.y0 >= ax.get_window_extent(renderer).y1 - 1.0 and _inside(legend, whole)
+    assert fig._suptitle.get_window_extent(renderer).y0 >= legend.y1 - 1.0
+
+
+def test_figure_named_after_a_key_path_keeps_the_whole_key(tmp_path: Path) -> None:
+    """'rate_per_s-vs-links[*].length_km' was saved as 'rate_per_s-vs-links-.png' (the key lost)."""
+    from matplotlib.figure import Figure
+
+    from netsim.report.build import file_stem
+    from netsim.report.figures import save_figure
+
+    stem = file_stem("rate_per_s-vs-links[*].length_km")
+    assert stem == "rate_per_s-vs-links.length_km"
+    paths = save_figure(Figure(), tmp_path / stem)
+    assert [p.name for p in paths] == ["rate_per_s-vs-links.length_km.png", "rate_per_s-vs-links.length_km.pdf"]
+    assert all(p.is_file() for p in paths)

@@ -39,7 +39,8 @@ def value_order(value: Any) -> tuple[int, float, str]:
 
 def file_stem(text: str) -> str:
     """A safe file name from a table or figure name."""
-    return re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-").lower() or "table"
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-").lower()
+    return re.sub(r"-+\.", ".", stem) or "table"
 
 
 def _simulated_time(data: ReportData) -> float | None:

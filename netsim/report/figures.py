@@ -10,7 +10,7 @@ cividis). The network map lives in :mod:`netsim.report.netmap`.
 from __future__ import annotations
 
 import functools
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any, ParamSpec, TypeVar
 
@@ -72,7 +72,8 @@ def save_figure(fig: Figure, stem: str | Path) -> list[Path]:
     """Write ``stem.png`` (300 dpi) and ``stem.pdf``; return both paths."""
     stem = Path(stem)
     stem.parent.mkdir(parents=True, exist_ok=True)
-    paths = [stem.with_suffix(".png"), stem.with_suffix(".pdf")]
+    # not with_suffix: a stem naming a key path ("...links-.length_km") would lose its last part
+    paths = [stem.with_name(stem.name + ".png"), stem.with_name(stem.name + ".pdf")]
     fig.savefig(paths[0], dpi=300)
     fig.savefig(paths[1])
     return paths
@@ -149,10 +150,19 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
     ax.set_ylabel(ylabel)
     ax.grid(True, linewidth=0.3, color="0.85")
     if title:
-        ax.set_title(title, fontsize=7)
+        fig.suptitle(title, fontsize=7)  # above the legend, which sits above the axes
     if len(curves) > 1 or next(iter(curves), ""):
-        ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7)
+        # above the axes: inside, it covered curves and their 95 % bands
+        ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7, loc="lower center",
+                  bbox_to_anchor=(0.5, 1.0), ncol=_legend_columns(curves))
     return fig
+
+
+def _legend_columns(names: Iterable[str]) -> int:
+    """Legend columns that fit a column-wide figure: three short entries a row, long ones alone."""
+    names = list(names)
+    longest = max(map(len, names), default=0)
+    return min(len(names), 3) if longest <= 14 else (2 if longest <= 24 else 1)
 
 
 def _decades(curves: Mapping[str, tuple[Any, Any, Any, Any]]) -> float:

@@ -43,13 +43,20 @@ _UNIT_SUFFIXES = (("_db_per_km", "dB/km"), ("_per_s", "1/s"), ("_km", "km"), ("_
                   ("_s", "s"))
 
 
+#: Longest axis label kept on one line (characters; a column-wide figure at 8 pt holds about 55).
+LABEL_WIDTH = 40
+
+
 def param_label(path: str) -> str:
     """An axis label for a swept key path, unit in brackets and scope after a comma:
     ``"sites[role=repeater].t2_s"`` -> ``"t2 (s), sites[role=repeater]"``."""
     scope, _, key = path.rpartition(".")
     name, unit = _split_unit(key)
     text = name.replace("_", " ") + (f" ({unit})" if unit else "")
-    return f"{text}, {scope}" if scope and scope not in ("defaults.link", "defaults.site") else text
+    if not scope or scope in ("defaults.link", "defaults.site"):
+        return text
+    # a long scope (links[name=A-B]) goes on its own line, or it runs off a column-wide figure
+    return f"{text}, {scope}" if len(text) + len(scope) <= LABEL_WIDTH else f"{text},\n{scope}"
 
 
 def _split_unit(key: str) -> tuple[str, str]:
