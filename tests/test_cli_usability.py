@@ -115,3 +115,22 @@ def test_figure_named_after_a_key_path_keeps_the_whole_key(tmp_path: Path) -> No
     paths = save_figure(Figure(), tmp_path / stem)
     assert [p.name for p in paths] == ["rate_per_s-vs-links.length_km.png", "rate_per_s-vs-links.length_km.pdf"]
     assert all(p.is_file() for p in paths)
+
+
+def test_map_key_shows_utilisation_only_when_simulated() -> None:
+    """A scenario report draws every fibre at its thinnest: a key reading 'utilisation 0%' would
+    tell the reader the fibres are idle, when nothing was simulated."""
+    from netsim.report.netmap import MapLink, MapSite, network_map
+
+    sites = [MapSite("Orrin Quay", "user", 0.0, 0.0), MapSite("Velt Relay", "repeater", 8.0, 1.0),
+             MapSite("Sorrow Fen", "user", 15.0, 4.0)]
+    plain = [MapLink("Orrin Quay", "Velt Relay", 2e4), MapLink("Velt Relay", "Sorrow Fen", 1e4)]
+    used = [MapLink("Orrin Quay", "Velt Relay", 2e4, 0.3), MapLink("Velt Relay", "Sorrow Fen", 1e4, 0.9)]
+
+    def key_texts(links: list[MapLink]) -> set[str]:
+        key = network_map(sites, links).axes[1]
+        return {t.get_text() for t in key.get_legend().get_texts()}
+
+    assert "fibre (not simulated)" in key_texts(plain)
+    assert not any("utilisation" in t for t in key_texts(plain))
+    assert {"utilisation 0%", "utilisation 100%"} <= key_texts(used)

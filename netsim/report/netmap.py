@@ -140,13 +140,16 @@ def _scale_bar(ax: Axes, pos: Mapping[str, tuple[float, float]]) -> float:
     return length
 
 
-def _legend(ax: Axes, sites: Sequence[MapSite]) -> None:
-    """Markers per role and line widths for utilisation, in the (empty) key axes ``ax``."""
+def _legend(ax: Axes, sites: Sequence[MapSite], simulated: bool) -> None:
+    """Markers per role and line widths for utilisation (when simulated), in the key axes ``ax``."""
     handles = [Line2D([], [], marker=m, linestyle="none", markerfacecolor="white",
                       markeredgecolor="black", label=r) for r, m in ROLE_MARKERS.items()
                if any(s.role == r for s in sites)]
-    handles += [Line2D([], [], color="0.3", linewidth=w, label=f"utilisation {u:.0%}")
-                for u, w in ((0.0, MIN_WIDTH), (0.5, (MIN_WIDTH + MAX_WIDTH) / 2), (1.0, MAX_WIDTH))]
+    if simulated:
+        handles += [Line2D([], [], color="0.3", linewidth=w, label=f"utilisation {u:.0%}")
+                    for u, w in ((0.0, MIN_WIDTH), (0.5, (MIN_WIDTH + MAX_WIDTH) / 2), (1.0, MAX_WIDTH))]
+    else:  # widths would all read "0 %": say instead that nothing was simulated
+        handles.append(Line2D([], [], color="0.3", linewidth=MIN_WIDTH, label="fibre (not simulated)"))
     ax.legend(handles=handles, loc="upper center", ncol=3, frameon=False, fontsize=6,
               borderaxespad=0.0)
 
@@ -202,6 +205,6 @@ def network_map(sites: Sequence[MapSite], links: Sequence[MapLink], *,
         bar.ax.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
         bar.ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
         bar.ax.xaxis.set_minor_formatter(NullFormatter())
-    _legend(key, sites)
+    _legend(key, sites, simulated=any(link.utilisation is not None for link in links))
     _key(key, labels)
     return fig
