@@ -156,7 +156,14 @@ def _rate(run: ChainRun) -> tuple[float, list[float]]:
 
 
 def demand_row(chain: Chain, run: ChainRun) -> dict[str, Any]:
-    """The per-demand figures of one chain's run (keys listed in :mod:`netsim.engine.result`)."""
+    """The per-demand figures of one chain's run (keys listed in :mod:`netsim.engine.result`).
+
+    The key fraction is that of the averaged state: the QBERs are linear in the state, so error
+    rates estimated over the whole stream are the averaged state's, and by the concavity of h this
+    is never more than the mean of per-pair fractions (which would need pairs sorted by storage
+    time). ``ebits_per_s`` uses the mean per-pair EoF (at least the EoF of the averaged state, E_F
+    being convex); ``distillable_ebits_per_s`` uses the averaged state (hashing on the stream).
+    """
     m = run.metrics
     rate, rate_ci = _rate(run)
     fid, fid_ci = m.mean_ci(m.sum_fidelity, m.sum_fidelity_sq)

@@ -31,6 +31,12 @@ __all__ = ["build_graph", "is_memory_site", "plob_bits_per_use"]
 def plob_bits_per_use(eta: float) -> float:
     """Repeaterless (PLOB) bound -log2(1 - eta) in bits per channel use.
 
+    For a link heralded at a midpoint station (or fed by a midpoint source) this whole-fibre
+    figure does not bound what the link delivers: the station is a node between two channels,
+    so the bound is the worse arm's, and single-photon heralding (yield ~ sqrt(eta)) exceeds the
+    whole-fibre figure on long links, as twin-field QKD does (Lucamarini et al., Nature 557, 400,
+    2018; see ``tests/test_audit_physics.py``).
+
     References
     ----------
     S. Pirandola, R. Laurenza, C. Ottaviani and L. Banchi, "Fundamental limits of repeaterless
