@@ -223,8 +223,9 @@ def demand_table(rows: list[dict[str, Any]], scenario_name: str) -> Table:
     """The per-demand table (columns :data:`DEMAND_COLUMNS`)."""
     notes = [("Bounds after Pirandola, Commun. Phys. 2, 51 (2019): single path = widest path, "
              "multipath = minimum cut of link capacities."),
-             ("Delivered rate / single-path bound compares pairs/s with ebit/s; above 1 only "
-             "for pairs too noisy to count as ebits.")]
+             ("Delivered rate / single-path bound compares pairs/s with ebit/s; above 1 for "
+             "pairs too noisy to count as ebits, or on long links heralded at a midpoint "
+             "station, which the whole-fibre bound treats as one channel.")]
     if rows and all(r.get("rate_per_s") is None for r in rows):
         notes.append("Not simulated, so the delivered columns are empty ('-'): report the scenario "
                      "with --simulate, or a run.json from netsim run, to fill them.")
