@@ -134,3 +134,30 @@ def test_map_key_shows_utilisation_only_when_simulated() -> None:
     assert "fibre (not simulated)" in key_texts(plain)
     assert not any("utilisation" in t for t in key_texts(plain))
     assert {"utilisation 0%", "utilisation 100%"} <= key_texts(used)
+
+
+def test_comparison_figure_keys_its_abbreviations(tmp_path: Path) -> None:
+    """Bars are labelled 'YL-AC'; the figure itself says what the initials stand for."""
+    from netsim.report.compare import comparison_figure, run_candidates
+
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    twin = tmp_path / "spur-b.toml"
+    twin.write_text(CHAIN.replace("length_km = 6.0", "length_km = 5.0"))
+    fig = comparison_figure(run_candidates([str(path), str(twin)], pairs=20, seed=1))
+    assert [t.get_text() for t in fig.axes[0].get_yticklabels()] == ["YL-AC"]
+    key = fig.get_supxlabel()
+    assert "YL: Yarrowby Lab" in key and "AC: Ashwick Campus" in key
+
+
+def test_compare_lists_every_file_it_wrote(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    twin = tmp_path / "spur-b.toml"
+    twin.write_text(CHAIN.replace("length_km = 6.0", "length_km = 5.0"))
+    out = tmp_path / "cmp"
+    assert main(["compare", str(path), str(twin), "--pairs", "20", "--format", "md", "--out", str(out)]) == 0
+    printed = capsys.readouterr().out
+    assert f"wrote 5 files to {out}:" in printed
+    for name in ("compare-demands.md", "compare-totals.md", "compare-bottlenecks.md", "compare-rates.png"):
+        assert f"  {out / name}" in printed and (out / name).is_file()

@@ -61,15 +61,17 @@ def run(args: argparse.Namespace) -> int:
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
-        for stem, table in zip(_STEMS, tables):
-            (out / (stem + _SUFFIX[args.format])).write_text(render(table, args.format), encoding="utf-8")
-        written = len(tables)
+        written = [out / (stem + _SUFFIX[args.format]) for stem in _STEMS[:len(tables)]]
+        for path, table in zip(written, tables):
+            path.write_text(render(table, args.format), encoding="utf-8")
         if not args.no_simulate:
             from netsim.report.compare import comparison_figure
             from netsim.report.figures import save_figure
 
-            written += len(save_figure(comparison_figure(candidates), out / "compare-rates"))
-        print(f"wrote {written} files to {out}")
+            written += save_figure(comparison_figure(candidates), out / "compare-rates")
+        print(f"wrote {len(written)} files to {out}:")
+        for path in written:
+            print(f"  {path}")
     print(f"compared {len(candidates)} candidates in {time.perf_counter() - started:.1f} s "
           f"(seed {args.seed})")
     return 0

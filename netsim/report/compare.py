@@ -10,6 +10,7 @@ cut between its users over the links' repeaterless capacities (Pirandola, Commun
 from __future__ import annotations
 
 import math
+import textwrap
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -239,8 +240,8 @@ def run_candidates(paths: Sequence[str], *, pairs: int | None = 200, time_s: flo
 def comparison_figure(candidates: Sequence[Candidate]) -> Any:
     """Delivered rate per demand for each candidate (bars with 95 % error bars).
 
-    Site names are abbreviated as on the network map; the figure's key panel is not drawn, so
-    labels are initials joined by a dash (the tables give the full names).
+    Site names are abbreviated as on the network map (initials joined by a dash), with a key of
+    the abbreviations under the figure so that it reads on its own.
     """
     from netsim.report.figures import grouped_bars
     from netsim.report.netmap import short_labels
@@ -259,7 +260,11 @@ def comparison_figure(candidates: Sequence[Candidate]) -> Any:
         values = [_number(r.get("rate_per_s")) for r in rows]
         cis = [r.get("rate_ci95") or [math.nan, math.nan] for r in rows]
         series[c.name] = (values, [_number(ci[0]) for ci in cis], [_number(ci[1]) for ci in cis])
-    return grouped_bars(labels, series, xlabel="delivered rate (pairs/s)")
+    fig = grouped_bars(labels, series, xlabel="delivered rate (pairs/s)")
+    legend = "; ".join(f"{abbrev}: {name}" for name, abbrev in short.items() if abbrev != name)
+    if legend:
+        fig.supxlabel("\n".join(textwrap.wrap(legend, 90)), fontsize=5)
+    return fig
 
 
 def _number(value: Any) -> float:
