@@ -221,3 +221,55 @@ def test_heralded_links_respect_the_bound_of_their_actual_channels(scheme: str) 
     assert per_mode <= (whole if scheme == "direct" else arm)
     if scheme == "single_photon":
         assert per_mode > whole  # the whole-fibre repeaterless figure is no bound for this scheme
+
+
+def _ratio_estimate(reward: np.ndarray, length: np.ndarray, prob: np.ndarray, n: int) -> tuple[float, float]:
+    """Long-run reward per unit time E[R]/E[L] of a renewal process and its standard error after at
+    least n cycles (renewal-reward theorem and the delta method; S. M. Ross, Stochastic Processes,
+    2nd ed., Wiley, 1996, Sec. 3.6 (memory))."""
+    mean_l = float((length * prob).sum())
+    theta = float((reward * prob).sum()) / mean_l
+    return theta, math.sqrt(float(((reward - theta * length) ** 2 * prob).sum())) / (mean_l * math.sqrt(n))
+
+
+def test_memory_occupancy_counts_qubits_lost_to_failed_swaps() -> None:
+    """Regression: qubits of pairs lost to a failed Bell measurement held their memories too.
+
+    A zero-length 2-hop chain (herald one period after the round starts) tries once per
+    max(K_0, K_1) periods; in every try, success or not, hop i's repeater qubit waits
+    (max(K) - K_i + 1) periods and the user's qubit as long. Occupancy per slot = qubit-seconds over
+    time and slots (renewal-reward theorem, Ross 1996 (memory)); it does not depend on the swap's
+    success probability. Before the fix only delivered pairs were counted (half the value here).
+    """
+    p, period, swap_success, pairs = 0.3, 1e-3, 0.5, 4000
+    k = np.arange(1, 200)
+    k0, k1 = np.meshgrid(k, k, indexing="ij")
+    prob = np.outer(p * (1 - p) ** (k - 1), p * (1 - p) ** (k - 1))
+    longest = np.maximum(k0, k1)
+    chain = line_chain(2, p, period, bsm_success_probability=swap_success)
+    run = simulate([chain], rule=StopRule(pairs=pairs), seed=4, options=DesOptions(cutoff_s=1.0))[0]
+    occupancy = run.site_qubit_s / run.simulated_time_s / np.array([1, 2, 1])
+    user, se_user = _ratio_estimate(longest - k0 + 1.0, longest * 1.0, prob, pairs)
+    repeater, se_rep = _ratio_estimate(2.0 * longest - k0 - k1 + 2.0, 2.0 * longest, prob, pairs)
+    assert occupancy[0] == pytest.approx(user, abs=4 * se_user)
+    assert occupancy[1] == pytest.approx(repeater, abs=4 * se_rep)
+
+
+def test_memory_occupancy_counts_pairs_consumed_by_purification() -> None:
+    """Regression: the pairs a purification round consumes (or loses) held their memories.
+
+    One zero-length hop, one recurrence round: the first pair waits K_1 + 1 periods (its own round
+    and the second pair's K_1 rounds), the second one period, and a successful output is delivered
+    at once; a try lasts K_0 + K_1 periods. Per slot (2 per end) the occupancy is
+    E[K_1 + 2] / (2 E[K_0 + K_1]) = (1 + 2p)/4 (renewal-reward theorem, Ross 1996 (memory)).
+    """
+    p, period, pairs = 0.3, 1e-3, 4000
+    chain = line_chain(1, p, period, werner_state(0.8), memory_slots=2)
+    options = DesOptions(purification="bbpssw", purification_rounds=1)
+    run = simulate([chain], rule=StopRule(pairs=pairs), seed=6, options=options)[0]
+    k = np.arange(1, 200)
+    k0, k1 = np.meshgrid(k, k, indexing="ij")
+    prob = np.outer(p * (1 - p) ** (k - 1), p * (1 - p) ** (k - 1))
+    expected, se = _ratio_estimate(k1 + 2.0, 2.0 * (k0 + k1), prob, pairs)
+    assert expected == pytest.approx((1 + 2 * p) / 4, rel=1e-9)
+    assert run.site_qubit_s / run.simulated_time_s / 2 == pytest.approx([expected] * 2, abs=4 * se)

@@ -249,6 +249,14 @@ class _Des:
             lane.left_seg[seg.hi] = None
             seg.pairs[-1].end[RIGHT] = hi_time
             self.free_slot(lane, seg.hi - 1, RIGHT, hi_time)
+        for p in seg.pairs:  # lost pairs held their slots too (delivered ones count in flush)
+            self.held(lane, p, p.end[LEFT], p.end[RIGHT])
+
+    @staticmethod
+    def held(lane: _Lane, pair: _Pair, left_until: float, right_until: float) -> None:
+        """Add the qubit-seconds ``pair`` spent in its two memories to the site occupancy."""
+        lane.run.site_qubit_s[pair.hop] += left_until - pair.start
+        lane.run.site_qubit_s[pair.hop + 1] += right_until - pair.start
 
     def cutoff_watch(self, lane: _Lane, seg: _Seg) -> Generator[simpy.Event, Any, None]:
         yield self.env.timeout(max(0.0, seg.deadline - self.env.now))
@@ -325,9 +333,12 @@ class _Des:
             p, out = self.purify(self.bring(c, i, other_rho, now - other.start),  # type: ignore[misc]
                                  self.bring(c, i, rho, now - item.start))
             yield self.env.timeout(c.delay_s(i, i + 1))
+            self.held(lane, item, now, now)  # pair 2 is measured at once
             if lane.rng.random() >= float(p):
                 lane.run.purification_failures[i] += 1
+                self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
                 return None
+            self.held(lane, other, now, now)  # the kept pair lives on as a new pair from now
             item, rho, level = _Pair(i, now, self.env.now), np.asarray(out), level + 1
             if level == self.rounds:
                 lane.extra[i].append(rho)
