@@ -93,7 +93,7 @@ CORPUS: list[tuple[str, str, tuple[str, ...]]] = [
     ("bool-as-number", edit("length_km = 8.0", "length_km = true"),
      ("links[0].length_km: True is not allowed; expected a number > 0 (km)",)),
     ("float-as-integer", edit("pairs = 50", "pairs = 50.0"),
-     ("demands[0].pairs: 50 is not allowed; expected an integer >= 1",)),
+     ("demands[0].pairs: 50.0 is not allowed; expected an integer >= 1",)),
     ("nan-length", edit("length_km = 8.0", "length_km = nan"), ("links[0].length_km: nan is not allowed",)),
     ("inf-t1", edit('role = "repeater"', 'role = "repeater"\nt1_s = inf'), ("sites[1].t1_s: inf is not allowed",)),
     ("negative-length", edit("length_km = 11.0", "length_km = -3.0"),

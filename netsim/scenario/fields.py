@@ -128,6 +128,9 @@ class Spec:
 
     def complaint(self, value: Any) -> str:
         """The message for a value this spec does not accept."""
+        if self.kind == "int" and isinstance(value, float) and math.isfinite(value):
+            # shown as written: "4 is not allowed; expected an integer" would puzzle the reader
+            return f"{value!r} is not allowed; expected {self.allowed()}, written without a decimal point"
         return f"{format_value(value)} is not allowed; expected {self.allowed()}"
 
     def convert(self, value: Any) -> Any:
