@@ -161,3 +161,26 @@ def test_compare_lists_every_file_it_wrote(tmp_path: Path, capsys: pytest.Captur
     assert f"wrote 5 files to {out}:" in printed
     for name in ("compare-demands.md", "compare-totals.md", "compare-bottlenecks.md", "compare-rates.png"):
         assert f"  {out / name}" in printed and (out / name).is_file()
+
+
+def test_check_reports_too_few_memory_slots_as_run_would(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A repeater between two hops holds one qubit per hop end (common practice: one memory per
+    link pair awaiting the swap), so one slot cannot serve the spur; check used to say 'valid'."""
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN.replace('role = "repeater"', 'role = "repeater"\nmemory_slots = 1'))
+    expected = (f"{path}: sites[1].memory_slots: 1 is not allowed; expected an integer >= 2 for demand "
+                "Yarrowby Lab-Ashwick Campus")
+    for command in ("check", "run"):
+        assert main([command, str(path), "--out", str(tmp_path)] if command == "run" else [command, str(path)]) == 2
+        captured = capsys.readouterr()
+        err = captured.err.strip().splitlines()
+        assert len(err) == 1 and err[0].startswith(f"netsim {command}: error: {expected}")
+        assert "Traceback" not in captured.err
+
+
+def test_integer_key_written_as_a_float_is_shown_as_written(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN.replace("length_km = 14.0", "length_km = 14.0\nmodes = 2.0"))
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert err.endswith("links[1].modes: 2.0 is not allowed; expected an integer >= 1, written without a decimal point")

@@ -6,7 +6,7 @@ import argparse
 import json
 from typing import Any
 
-__all__ = ["register", "run"]
+__all__ = ["check_memory_in", "register", "run"]
 
 
 def register(subparsers: Any) -> None:
@@ -28,12 +28,26 @@ def run(args: argparse.Namespace) -> int:
     from netsim.scenario import load
 
     scenario = load(args.file)
+    check_memory_in(scenario, args.file)
     facts, warnings = summary(scenario), audit(scenario)
     if args.format == "json":
         print(json.dumps({"file": args.file, "valid": True, **facts, "warnings": warnings}, indent=2))
     else:
         print(_text(args.file, facts, warnings))
     return 1 if (args.strict and warnings) else 0
+
+
+def check_memory_in(scenario: Any, path: str) -> None:
+    """Too few memory slots on a demand's route (the engine would refuse the run), reported like
+    every other scenario problem: ``FILE: sites[4].memory_slots: 1 is not allowed; expected ...``."""
+    from netsim.engine.api import check_memory
+    from netsim.errors import ParameterError, Problem, ScenarioError, format_value
+
+    try:
+        check_memory(scenario)
+    except ParameterError as exc:
+        message = f"{format_value(exc.value)} is not allowed; expected {exc.allowed}"
+        raise ScenarioError([Problem(exc.name, message)], source=path) from None
 
 
 def _text(path: str, facts: dict[str, Any], warnings: list[str]) -> str:

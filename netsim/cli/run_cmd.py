@@ -56,6 +56,7 @@ def _number(name: str, text: str | None, kind: type, allowed: str) -> Any:
 
 
 def run(args: argparse.Namespace) -> int:
+    from netsim.cli.check_cmd import check_memory_in
     from netsim.cli.columns import select_tables
     from netsim.engine import run as simulate
     from netsim.errors import ParameterError
@@ -71,6 +72,7 @@ def run(args: argparse.Namespace) -> int:
     if seed < 0:
         raise ParameterError("--seed", seed, "an integer >= 0")
     scenario = load(args.file)
+    check_memory_in(scenario, args.file)
     result = simulate(scenario, pairs=pairs, time_s=time_s, precision=precision, seed=seed)
     out = Path(args.out) if args.out else Path("results") / scenario.slug
     written = result.write(out)

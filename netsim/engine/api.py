@@ -25,7 +25,7 @@ from netsim.engine.vector import simulate_chain_vector, vector_applicable
 from netsim.errors import ParameterError
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
 
-__all__ = ["Component", "chains_from_scenario", "demand_row", "run", "simulate", "stop_rule"]
+__all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule"]
 
 
 def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:
@@ -216,6 +216,14 @@ def _site_rows(chains: list[Chain], runs: list[ChainRun]) -> list[dict[str, Any]
     for row in rows.values():
         row["memory_occupancy"] = row.pop("occupancy_sum") / max(row["memory_slots"], 1)
     return list(rows.values())
+
+
+def check_memory(scenario: Scenario) -> None:
+    """Raise the ParameterError :func:`run` would raise when a site on a demand's route has too
+    few memory slots (so ``netsim check`` reports it before a run)."""
+    proto = scenario.protocol
+    rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
+    _check_slots(scenario, chains_from_scenario(scenario), rounds)
 
 
 def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
