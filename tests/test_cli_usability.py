@@ -184,3 +184,19 @@ def test_integer_key_written_as_a_float_is_shown_as_written(tmp_path: Path, caps
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err.strip()
     assert err.endswith("links[1].modes: 2.0 is not allowed; expected an integer >= 1, written without a decimal point")
+
+
+def test_sweep_rejects_points_with_too_few_slots_before_running(tmp_path: Path,
+                                                                capsys: pytest.CaptureFixture[str]) -> None:
+    """Every point is checked as a whole before any runs: a point whose repeater has one slot used
+    to run, fail, and invite --retry-failed, which fails again."""
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    argv = ["sweep", str(path), "--vary", "sites[role=repeater].memory_slots=1,2", "--pairs", "10",
+            "--store", str(tmp_path / "s.sqlite")]
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1
+    assert "sweep point 0 (sites[role=repeater].memory_slots=1): makes the scenario invalid: " \
+           "sites[1].memory_slots: 1 is not allowed; expected an integer >= 2" in err[0]
+    assert not (tmp_path / "s.sqlite").exists()

@@ -41,9 +41,23 @@ def describe_parameters(parameters: Mapping[str, Any]) -> str:
     return ", ".join(f"{k}={v:g}" if isinstance(v, float) else f"{k}={v}" for k, v in parameters.items())
 
 
-def _validate_points(plan: SweepPlan) -> None:
+def _point_problems(data: dict[str, Any], source: str | None) -> list[Problem]:
+    """What is wrong with one point's scenario: the file checks, then the engine's memory check
+    (too few slots on a route), which would otherwise fail the point only when it runs."""
+    from netsim.engine.api import check_memory
+    from netsim.errors import ParameterError, format_value
     from netsim.scenario import load_data
 
+    try:
+        check_memory(load_data(data, source))
+    except ScenarioError as exc:
+        return list(exc.problems)
+    except ParameterError as exc:
+        return [Problem(exc.name, f"{format_value(exc.value)} is not allowed; expected {exc.allowed}")]
+    return []
+
+
+def _validate_points(plan: SweepPlan) -> None:
     problems: list[Problem] = []
     invalid = 0
     seen: set[str] = set()
@@ -51,13 +65,12 @@ def _validate_points(plan: SweepPlan) -> None:
         if point.repeat != 0 or point.point_id in seen:
             continue
         seen.add(point.point_id)
-        try:
-            load_data(plan.data_for(point), plan.scenario.source)
-        except ScenarioError as exc:
+        found = _point_problems(plan.data_for(point), plan.scenario.source)
+        if found:
             invalid += 1
             if invalid <= _MAX_LISTED:
                 where = f"sweep point {point.ordinal} ({describe_parameters(point.parameters)})"
-                problems.extend(Problem(where, f"makes the scenario invalid: {p}") for p in exc.problems)
+                problems.extend(Problem(where, f"makes the scenario invalid: {p}") for p in found)
     if invalid > _MAX_LISTED:
         problems.append(Problem("sweep", f"{invalid - _MAX_LISTED} more points make the scenario invalid"))
     if problems:
