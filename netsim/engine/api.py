@@ -78,7 +78,8 @@ def _need(chain: Chain, per_end: int) -> dict[str, int]:
 
 def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
     """Group demands that contend: they share a site whose slots cannot hold all their
-    reservations at once. Demands on sites with room for everyone run independently."""
+    reservations at once, or a fibre link (which carries one attempt sequence at a time).
+    Demands on sites with room for everyone and on separate fibres run independently."""
     needs = [_need(c, per_end) for c in chains]
     capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
     parent = list(range(len(chains)))
@@ -93,6 +94,11 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
         if sum(needs[k][site] for k in users) > slots:
             for k in users[1:]:
                 parent[root(k)] = root(users[0])
+    fibres = [{name for hop in c.hops for name in hop.links} for c in chains]
+    for k in range(1, len(chains)):
+        for j in range(k):
+            if fibres[k] & fibres[j]:
+                parent[root(k)] = root(j)
     groups: dict[int, list[Chain]] = {}
     for k, c in enumerate(chains):
         groups.setdefault(root(k), []).append(c)
