@@ -200,3 +200,17 @@ def test_sweep_rejects_points_with_too_few_slots_before_running(tmp_path: Path,
     assert "sweep point 0 (sites[role=repeater].memory_slots=1): makes the scenario invalid: " \
            "sites[1].memory_slots: 1 is not allowed; expected an integer >= 2" in err[0]
     assert not (tmp_path / "s.sqlite").exists()
+
+
+@pytest.mark.parametrize("command", ["compare", "report"])
+def test_simulating_commands_name_the_file_with_too_few_slots(command: str, tmp_path: Path,
+                                                              capsys: pytest.CaptureFixture[str]) -> None:
+    bad = tmp_path / "spur.toml"
+    bad.write_text(CHAIN.replace('role = "repeater"', 'role = "repeater"\nmemory_slots = 1'))
+    good = tmp_path / "spur-b.toml"
+    good.write_text(CHAIN)
+    argv = ([command, str(bad), str(good)] if command == "compare"
+            else [command, str(bad), "--simulate", "--out", str(tmp_path / "r")])
+    assert main(argv) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and f"error: {bad}: sites[1].memory_slots: 1 is not allowed" in err[0]

@@ -53,6 +53,12 @@ def run(args: argparse.Namespace) -> int:
     from netsim.report.table import render
 
     _check(args)
+    if not args.no_simulate:
+        from netsim.cli.check_cmd import check_memory_in
+        from netsim.scenario import load
+
+        for path in args.files:  # a memory shortage named with its file, before any run
+            check_memory_in(load(path), path)
     started = time.perf_counter()
     candidates = run_candidates(args.files, pairs=args.pairs or 200, time_s=args.time_s,
                                 seed=args.seed, simulate=not args.no_simulate)

@@ -77,6 +77,11 @@ def run(args: argparse.Namespace) -> int:
     from netsim.report.table import render
 
     _check(args)
+    if args.simulate and args.source.endswith(".toml"):
+        from netsim.cli.check_cmd import check_memory_in
+        from netsim.scenario import load
+
+        check_memory_in(load(args.source), args.source)  # named with its file, before the run
     started = time.perf_counter()
     options = {"seed": args.seed}
     options.update({"time_s": args.time_s} if args.time_s is not None else {"pairs": args.pairs or 1000})
