@@ -214,3 +214,21 @@ def test_simulating_commands_name_the_file_with_too_few_slots(command: str, tmp_
     assert main(argv) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and f"error: {bad}: sites[1].memory_slots: 1 is not allowed" in err[0]
+
+
+def test_compare_text_leaves_min_cut_to_the_bottleneck_table(tmp_path: Path,
+                                                              capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    twin = tmp_path / "spur-b.toml"
+    twin.write_text(CHAIN.replace("length_km = 6.0", "length_km = 5.0"))
+    base = ["compare", str(path), str(twin), "--pairs", "20"]
+    assert main(base) == 0
+    side = capsys.readouterr().out.split("\n\n")[0]
+    assert "spur: rate (pairs/s)" in side and "min-cut bound" not in side and "--wide prints all" in side
+    assert main([*base, "--wide"]) == 0
+    assert "spur: min-cut bound (ebit/s)" in capsys.readouterr().out.split("\n\n")[0]
+    assert main([*base, "--format", "csv"]) == 0
+    assert "spur: min-cut bound (ebit/s)" in capsys.readouterr().out
+    assert main([*base, "--no-simulate"]) == 0  # nothing simulated: the bounds are the content
+    assert "spur: min-cut bound (ebit/s)" in capsys.readouterr().out.split("\n\n")[0]

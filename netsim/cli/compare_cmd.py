@@ -30,6 +30,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--format", default="table", help="one of " + ", ".join(_FORMATS) + " (default table)")
     parser.add_argument("--out", default=None,
                         help="also write each table, and a figure of the rates (PNG, PDF), here")
+    parser.add_argument("--wide", action="store_true",
+                        help="text format: also print each candidate's min-cut bound beside its rate "
+                             "(default: rates and fidelities only; the bottleneck table gives the cuts)")
     parser.set_defaults(func=run)
 
 
@@ -48,6 +51,18 @@ def _check(args: argparse.Namespace) -> None:
         raise ParameterError("--time-s", args.time_s, "either --pairs or --time-s, not both")
 
 
+def _printed(tables: list[Any], args: argparse.Namespace) -> list[Any]:
+    """The tables as printed: in the text format the side-by-side table leaves out the min-cut
+    bounds (repeated in the bottleneck table) unless --wide or nothing was simulated."""
+    from netsim.cli.columns import choose_columns
+
+    if args.no_simulate:
+        return tables
+    n = len(args.files)
+    compact = {"demand": [k for i in range(n) for k in (f"r{i}", f"r{i}_ci", f"f{i}")] + ["winner"]}
+    return [choose_columns(tables[0], args.format, args, compact, None), *tables[1:]]
+
+
 def run(args: argparse.Namespace) -> int:
     from netsim.report.compare import comparison_tables, run_candidates
     from netsim.report.table import render
@@ -63,7 +78,7 @@ def run(args: argparse.Namespace) -> int:
     candidates = run_candidates(args.files, pairs=args.pairs or 200, time_s=args.time_s,
                                 seed=args.seed, simulate=not args.no_simulate)
     tables = comparison_tables(candidates)
-    print("\n".join(render(t, args.format) for t in tables), end="")
+    print("\n".join(render(t, args.format) for t in _printed(tables, args)), end="")
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
