@@ -219,6 +219,8 @@ def test_heralded_links_respect_the_bound_of_their_actual_channels(scheme: str) 
     whole = -math.log2(1 - 10 ** (-0.2 * 150 / 10))
     arm = -math.log2(1 - 10 ** (-0.2 * 75 / 10))
     assert per_mode <= (whole if scheme == "direct" else arm)
+    # The bound the network layer uses for this link is exactly that channel's.
+    assert physics.bound_bits_per_use == pytest.approx(whole if scheme == "direct" else arm, rel=1e-9)
     if scheme == "single_photon":
         assert per_mode > whole  # the whole-fibre repeaterless figure is no bound for this scheme
 

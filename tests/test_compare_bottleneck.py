@@ -22,7 +22,7 @@ def _diamond() -> nx.Graph:
     for a, b, c in [("Aldmoor", "Brackwater", 10.0), ("Aldmoor", "Cindervale", 5.0),
                     ("Brackwater", "Dunmere", 4.0), ("Cindervale", "Dunmere", 9.0),
                     ("Brackwater", "Cindervale", 3.0)]:
-        graph.add_edge(a, b, plob_cut_bits_per_s=c, plob_bits_per_s=c, length_km=10.0)
+        graph.add_edge(a, b, bound_cut_bits_per_s=c, bound_bits_per_s=c, length_km=10.0)
     return graph
 
 
@@ -36,7 +36,7 @@ def test_bottleneck_of_chain_is_its_weakest_link() -> None:
     # A chain is limited by its worst link (Pirandola, Commun. Phys. 2, 51, 2019).
     graph = nx.path_graph(["Aldmoor", "Brackwater", "Cindervale"])
     for (a, b), c in zip(graph.edges(), (7.0, 2.5)):
-        graph.edges[a, b]["plob_cut_bits_per_s"] = c
+        graph.edges[a, b]["bound_cut_bits_per_s"] = c
     assert bottleneck(graph, "Aldmoor", "Cindervale") == (2.5, [("Brackwater", "Cindervale")])
 
 
@@ -62,7 +62,7 @@ def test_winner_rules() -> None:
 def test_comparison_tables_carry_each_candidates_numbers() -> None:
     mesh = Candidate("mesh", _diamond(), [_row(5.0, (4.5, 5.5), 0.9)])
     chain = nx.path_graph(["Aldmoor", "Dunmere"])
-    chain.edges["Aldmoor", "Dunmere"].update(plob_cut_bits_per_s=1.5, length_km=30.0)
+    chain.edges["Aldmoor", "Dunmere"].update(bound_cut_bits_per_s=1.5, length_km=30.0)
     direct = Candidate("direct", chain, [{**_row(1.0, (0.9, 1.1), 0.95), "demand": "Dunmere-Aldmoor",
                                           "bound_multipath_per_s": 1.5}])
     side, totals, cuts = comparison_tables([mesh, direct])

@@ -100,9 +100,10 @@ def test_side_by_side_equals_each_run(files: list[str]) -> None:
 
 def test_chain_bottleneck_is_its_weaker_link(files: list[str]) -> None:
     # A chain is limited by its worst link (Pirandola, Commun. Phys. 2, 51, 2019): the longer
-    # 10 km link; the direct candidate's cut is its only link, whose capacity is the
-    # repeaterless bound -log2(1 - eta) at its mode rate (Pirandola et al., Nat. Commun. 8,
-    # 15043, 2017).
+    # 10 km link; the direct candidate's cut is its only link. Heralded at its midpoint station,
+    # that link is two channels of sqrt(eta) each (half the dB either side), so its capacity is
+    # -log2(1 - sqrt(eta)) at its mode rate (Pirandola et al., Nat. Commun. 8, 15043, 2017, per
+    # arm; the worse arm bounds the chain, Pirandola 2019).
     from netsim.network import build_graph
 
     candidates = run_candidates(files, simulate=False)
@@ -111,7 +112,7 @@ def test_chain_bottleneck_is_its_weaker_link(files: list[str]) -> None:
     graph = build_graph(load(files[1]))
     edge = graph.edges["Aldmoor Lab", "Cinderfold Campus"]
     eta = edge["transmissivity"]
-    assert cuts[1]["cut_bits_per_s"] == pytest.approx(-math.log2(1 - eta) * edge["mode_rate_per_s"])
+    assert cuts[1]["cut_bits_per_s"] == pytest.approx(-math.log2(1 - math.sqrt(eta)) * edge["mode_rate_per_s"])
 
 
 def test_cli_prints_and_writes_tables(files: list[str], tmp_path: Path, capsys) -> None:

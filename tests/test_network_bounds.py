@@ -39,7 +39,7 @@ def hand_network() -> nx.Graph:
     g = nx.Graph()
     for u, v, c in [("Ashby", "Bexley", 5.0), ("Bexley", "Tarn", 3.0), ("Ashby", "Corvin", 4.0),
                     ("Corvin", "Tarn", 6.0), ("Bexley", "Corvin", 2.0)]:
-        g.add_edge(u, v, plob_bits_per_s=c, plob_cut_bits_per_s=c)
+        g.add_edge(u, v, bound_bits_per_s=c, bound_cut_bits_per_s=c)
     return g
 
 
@@ -59,7 +59,7 @@ def test_bounds_of_a_chain_are_its_weakest_link() -> None:
     """A chain is limited by its worst link (Pirandola, Commun. Phys. 2, 51, 2019)."""
     g = nx.path_graph(["Esk", "Fal", "Gwen", "Hale"])
     for (u, v), c in zip(itertools.pairwise(["Esk", "Fal", "Gwen", "Hale"]), [7.0, 2.5, 9.0]):
-        g.edges[u, v].update(plob_bits_per_s=c, plob_cut_bits_per_s=c)
+        g.edges[u, v].update(bound_bits_per_s=c, bound_cut_bits_per_s=c)
     assert single_path_capacity(g, "Esk", "Hale") == multipath_capacity(g, "Esk", "Hale") == pytest.approx(2.5)
 
 
@@ -166,7 +166,7 @@ def _random_network(seed: int, n: int) -> nx.Graph:
     g = nx.gnp_random_graph(n, 0.5, seed=seed)
     for u, v in g.edges:
         c = float(rng.uniform(0.1, 10.0))
-        g.edges[u, v].update(plob_bits_per_s=c, plob_cut_bits_per_s=c)
+        g.edges[u, v].update(bound_bits_per_s=c, bound_cut_bits_per_s=c)
     return g
 
 
@@ -180,14 +180,14 @@ def test_bounds_against_brute_force(seed: int) -> None:
     if not nx.has_path(g, a, b):
         assert single_path_capacity(g, a, b) == multipath_capacity(g, a, b) == 0.0
         return
-    widest = max(min(g.edges[u, v]["plob_bits_per_s"] for u, v in itertools.pairwise(p))
+    widest = max(min(g.edges[u, v]["bound_bits_per_s"] for u, v in itertools.pairwise(p))
                  for p in nx.all_simple_paths(g, a, b))
     others = [n for n in g if n not in (a, b)]
     cuts = []
     for k in range(len(others) + 1):
         for side in itertools.combinations(others, k):
             s = {a, *side}
-            cuts.append(sum(d["plob_cut_bits_per_s"] for u, v, d in g.edges(data=True) if (u in s) != (v in s)))
+            cuts.append(sum(d["bound_cut_bits_per_s"] for u, v, d in g.edges(data=True) if (u in s) != (v in s)))
     assert single_path_capacity(g, a, b) == pytest.approx(widest, rel=1e-12)
     assert multipath_capacity(g, a, b) == pytest.approx(min(cuts), rel=1e-9)
     assert single_path_capacity(g, a, b) <= multipath_capacity(g, a, b) + 1e-12

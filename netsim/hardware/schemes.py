@@ -78,6 +78,10 @@ class Herald:
     herald_delay_s: float
 
 
+#: Schemes heralded at (or fed from) a station between the two ends.
+STATION_SCHEMES: tuple[str, ...] = ("two_photon", "single_photon", "midpoint_source")
+
+
 def _db_to_eta(db: float) -> float:
     return float(10.0 ** (-db / 10.0))
 
@@ -288,6 +292,8 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
     modes = int(path.first.modes)
     round_p = float(-np.expm1(modes * np.log1p(-p))) if p < 1 else 1.0
     loss = path.loss_db
+    # A midpoint station or source is a node between two channels: the worse arm bounds the link.
+    bound_loss = max(path.arm_losses_db()) if path.first.scheme in STATION_SCHEMES else loss
     return LinkPhysics(
         scheme=path.first.scheme, length_km=path.length_km, loss_db=loss,
         transmissivity=_db_to_eta(loss), success_probability=p, modes=modes,
@@ -295,6 +301,7 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
         herald_delay_s=herald.herald_delay_s, state=rho,
         fidelity=float(np.real(np.trace(PHI_PLUS @ rho))),
         dark_count_fraction=herald.p_false / p if p > 0 else 0.0,
+        bound_transmissivity=_db_to_eta(bound_loss),
     )
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,6 +37,11 @@ class LinkPhysics:
         <Phi+|state|Phi+>.
     dark_count_fraction : float
         Share of heralds caused by detector dark counts (0 when not modelled).
+    bound_transmissivity : float or None
+        Transmissivity of the channel that bounds what the link can deliver: for a link heralded
+        at a midpoint station (or fed by a midpoint source) the station is a node between two
+        channels, so the repeater-chain bound is the worse arm's (Pirandola, Commun. Phys. 2, 51,
+        2019); for direct transmission the whole fibre's. ``None`` means ``transmissivity``.
     """
 
     scheme: str
@@ -50,6 +56,20 @@ class LinkPhysics:
     state: np.ndarray
     fidelity: float
     dark_count_fraction: float = 0.0
+    bound_transmissivity: float | None = None
+
+    @property
+    def bound_bits_per_use(self) -> float:
+        """-log2(1 - eta) of the bounding channel (:attr:`bound_transmissivity`): an upper bound
+        on the ebits (and secret bits) per mode and attempt any protocol on this link can deliver.
+
+        References
+        ----------
+        S. Pirandola, R. Laurenza, C. Ottaviani and L. Banchi, Nat. Commun. 8, 15043 (2017);
+        S. Pirandola, Commun. Phys. 2, 51 (2019).
+        """
+        eta = self.transmissivity if self.bound_transmissivity is None else self.bound_transmissivity
+        return math.inf if eta >= 1.0 else -math.log1p(-eta) / math.log(2.0)
 
     @property
     def rate_per_s(self) -> float:

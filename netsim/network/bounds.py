@@ -109,7 +109,7 @@ def chain_fidelity(hop_fidelities: Sequence[float], gate_errors: Sequence[float]
     return (1.0 + 3.0 * w) / 4.0
 
 
-def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "plob_bits_per_s") -> float:
+def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s") -> float:
     """Single-path (widest path) capacity bound: max over routes of the weakest link's capacity.
 
     References
@@ -126,7 +126,7 @@ def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "plob_bi
     return min(graph.edges[u, v][weight] for u, v in itertools.pairwise(path))
 
 
-def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "plob_cut_bits_per_s") -> float:
+def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut_bits_per_s") -> float:
     """Multipath (flooding) capacity bound: the minimum cut between ``a`` and ``b``.
 
     The capacity of a cut is the sum of the link capacities it severs; the bound is the

@@ -25,7 +25,7 @@ from netsim.network.bounds import (
     single_path_capacity,
 )
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
-from netsim.network.graph import build_graph, plob_bits_per_use
+from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.report.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
@@ -41,6 +41,7 @@ LINK_COLUMNS: tuple[Column, ...] = (
     Column("fidelity", "fidelity"), Column("eof_ebits", "EoF (ebit)"),
     Column("plob_bits_per_use", "PLOB (bit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
     Column("plob_bits_per_s", "PLOB at modes/period (bit/s)"),
+    Column("bound_bits_per_s", "link bound as heralded (bit/s)"),
     Column("holevo_bits", "Holevo chi (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
 )
 
@@ -56,8 +57,11 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
 )
 
 LINK_NOTES = (
-    ("PLOB: -log2(1 - eta) per channel use (Pirandola et al., Nat. Commun. 8, 15043, 2017); per "
-    "second at the mode rate = modes per attempt period."),
+    ("PLOB: -log2(1 - eta) of the whole fibre per channel use (Pirandola et al., Nat. Commun. 8, "
+    "15043, 2017); per second at the mode rate = modes per attempt period. Link bound as heralded: "
+    "a midpoint station or source is a node between two channels, so the worse arm's -log2(1 - eta) "
+    "bounds the link (Pirandola, Commun. Phys. 2, 51, 2019); single-photon heralding can beat the "
+    "whole-fibre PLOB on long links, never this."),
     ("Holevo figures: the encoding sent through the fibre as a flagged erasure channel "
     "(eps = 1 - eta; polarisation or time-bin qubit)."),
     "Links at a passive switch are heralded only as part of a light path: see the demands table.",
@@ -69,8 +73,9 @@ DEMAND_NOTES = (
     "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities); the time "
     "to signal swap outcomes is not counted."),
     ("Route bound: weakest hop of the route (a light path through passive switches counts as one "
-    "channel); single-path: widest path; multipath: minimum cut over link PLOB capacities per "
-    "second (Pirandola, Commun. Phys. 2, 51, 2019); other end users never relay."),
+    "channel, split by its midpoint station if it has one); single-path: widest path; multipath: "
+    "minimum cut over the links' bounds as heralded, per second (Pirandola, Commun. Phys. 2, 51, "
+    "2019); other end users never relay."),
 )
 
 
@@ -136,6 +141,7 @@ def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, 
         "extra_loss_db": link.extra_loss_db, "loss_db": edge["loss_db"], "transmissivity": eta,
         "modes": link.modes, "plob_bits_per_use": edge["plob_bits_per_use"],
         "mode_rate_per_s": edge["mode_rate_per_s"], "plob_bits_per_s": edge["plob_bits_per_s"],
+        "bound_bits_per_s": edge["bound_bits_per_s"],
         "holevo_bits": encoding_holevo_bits(scenario.encoding, eta),
         "holevo_capacity_bits": link_capacity_bits(eta),
         "attempt_period_s": None, "success_probability": None, "pair_rate_per_s": None,
@@ -177,9 +183,10 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
 
 
 def _hop_bound_bits_per_s(hop: Hop) -> float:
-    """PLOB of a hop's whole light path (switches are passive) at its mode rate."""
+    """The bound of a hop's light path as heralded (switches are passive; a midpoint station
+    splits it into two channels, the worse of which bounds it) at its mode rate."""
     physics = hop.physics
-    return plob_bits_per_use(physics.transmissivity) * physics.modes / physics.attempt_period_s
+    return physics.bound_bits_per_use * physics.modes / physics.attempt_period_s
 
 
 def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[str, Any]:

@@ -10,8 +10,13 @@ Node attribute ``site`` (Site). Edge attributes:
 - ``plob_bits_per_use`` = -log2(1 - eta) (Pirandola et al. 2017);
 - ``mode_rate_per_s`` = modes / attempt period of the link's own heralding geometry (channel
   uses per second; for a link at a switch the memory end's preparation time is used);
-- ``plob_bits_per_s`` = ``plob_bits_per_use`` x ``mode_rate_per_s`` of ``link``;
-  ``plob_cut_bits_per_s`` the sum over parallel fibres (used by the minimum cut).
+- ``plob_bits_per_s`` = ``plob_bits_per_use`` x ``mode_rate_per_s`` of ``link``: the
+  repeaterless figure of the whole fibre, for comparison;
+- ``bound_bits_per_use`` and ``bound_bits_per_s``: what bounds the link as heralded
+  (:attr:`LinkPhysics.bound_bits_per_use`: the worse arm's -log2(1 - eta) for a midpoint
+  station or source, which is a node between two channels; the whole fibre's for direct
+  transmission); ``bound_cut_bits_per_s`` their sum over parallel fibres. The network bounds
+  (route, widest path, minimum cut) use these, after Pirandola, Commun. Phys. 2, 51 (2019).
 """
 
 from __future__ import annotations
@@ -75,6 +80,7 @@ def _edge_attributes(link: Link, site_a: Site, site_b: Site) -> dict[str, object
         "transmissivity": clock.transmissivity, "length_km": link.length_km,
         "plob_bits_per_use": per_use, "mode_rate_per_s": mode_rate,
         "plob_bits_per_s": per_use * mode_rate,
+        "bound_bits_per_use": clock.bound_bits_per_use, "bound_bits_per_s": clock.bound_bits_per_use * mode_rate,
     }
 
 
@@ -100,11 +106,11 @@ def build_graph(scenario: Scenario) -> nx.Graph:
         if graph.has_edge(link.a, link.b):
             old = graph.edges[link.a, link.b]
             attrs["links"] = (*old["links"], link)
-            attrs["plob_cut_bits_per_s"] = old["plob_cut_bits_per_s"] + attrs["plob_bits_per_s"]
+            attrs["bound_cut_bits_per_s"] = old["bound_cut_bits_per_s"] + attrs["bound_bits_per_s"]
             if old["loss_db"] <= attrs["loss_db"]:
-                attrs = {**old, "links": attrs["links"], "plob_cut_bits_per_s": attrs["plob_cut_bits_per_s"]}
+                attrs = {**old, "links": attrs["links"], "bound_cut_bits_per_s": attrs["bound_cut_bits_per_s"]}
         else:
             attrs["links"] = (link,)
-            attrs["plob_cut_bits_per_s"] = attrs["plob_bits_per_s"]
+            attrs["bound_cut_bits_per_s"] = attrs["bound_bits_per_s"]
         graph.add_edge(link.a, link.b, **attrs)
     return graph

@@ -83,19 +83,19 @@ class FewestHops:
 
 
 class HighestBound:
-    """The widest path: the route whose weakest link has the largest PLOB bound in bits/s."""
+    """The widest path: the route whose weakest link has the largest capacity bound in bits/s."""
 
     name = "highest_bound"
 
     def route(self, graph: nx.Graph, a: str, b: str) -> list[str]:
-        return [str(n) for n in widest_path(graph, a, b, weight="plob_bits_per_s")]
+        return [str(n) for n in widest_path(graph, a, b, weight="bound_bits_per_s")]
 
 
 for _builtin in (LeastLoss(), FewestHops(), HighestBound()):
     register_policy(_builtin)
 
 
-def widest_path(graph: nx.Graph, a: Hashable, b: Hashable, weight: str = "plob_bits_per_s") -> list[Hashable]:
+def widest_path(graph: nx.Graph, a: Hashable, b: Hashable, weight: str = "bound_bits_per_s") -> list[Hashable]:
     """Path from ``a`` to ``b`` maximising the smallest edge ``weight`` (a bottleneck path).
 
     Uses the property that a maximum spanning tree contains a widest path between every pair

@@ -24,7 +24,7 @@ __all__ = ["CAPACITY_ATTRIBUTE", "Candidate", "bottleneck", "candidate_from_scen
            "run_candidates", "winner"]
 
 #: Edge attribute holding a link's repeaterless capacity in ebit/s (parallel fibres summed).
-CAPACITY_ATTRIBUTE = "plob_cut_bits_per_s"
+CAPACITY_ATTRIBUTE = "bound_cut_bits_per_s"
 
 
 @dataclass
@@ -44,10 +44,10 @@ class Candidate:
 
 
 def _capacity(graph: nx.Graph, attribute: str) -> str:
-    """The capacity attribute to use: ``attribute`` if every edge has it, else per-link PLOB."""
+    """The capacity attribute to use: ``attribute`` if every edge has it, else each link's bound."""
     if all(attribute in d for _, _, d in graph.edges(data=True)):
         return attribute
-    return "plob_bits_per_s"
+    return "bound_bits_per_s"
 
 
 def bottleneck(graph: nx.Graph, a: str, b: str,
@@ -195,7 +195,7 @@ def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) ->
             rows.append({"candidate": c.name, "demand": _label(key, candidates),
                          "cut_bits_per_s": value, "links": "; ".join(_link_name(graph, u, v) for u, v in cut)})
     notes = ["Other end users never relay; parallel fibres add their capacities."]
-    return Table("Bottleneck links (minimum cut of repeaterless link capacities)", columns, [*rows], notes)
+    return Table("Bottleneck links (minimum cut of the links' bounds as heralded)", columns, [*rows], notes)
 
 
 def comparison_tables(candidates: Sequence[Candidate]) -> list[Table]:
