@@ -232,3 +232,30 @@ def test_compare_text_leaves_min_cut_to_the_bottleneck_table(tmp_path: Path,
     assert "spur: min-cut bound (ebit/s)" in capsys.readouterr().out
     assert main([*base, "--no-simulate"]) == 0  # nothing simulated: the bounds are the content
     assert "spur: min-cut bound (ebit/s)" in capsys.readouterr().out.split("\n\n")[0]
+
+
+def test_report_says_how_many_tables_it_wrote(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    assert main(["report", str(path), "--no-figures", "--out", str(tmp_path / "r")]) == 0
+    out = capsys.readouterr().out
+    assert "(1 of 2 tables shown; every table is in the files below)" in out
+    assert out.index("Demands: Yarrowby spur") < out.index("1 of 2 tables") < out.index("wrote 2 files")
+
+
+def test_store_report_without_its_scenario_says_so(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                                   capsys: pytest.CaptureFixture[str]) -> None:
+    """Reporting a store from another directory: --simulate used to be ignored without a word,
+    and the link and demand tables silently missing."""
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "spur.toml").write_text(CHAIN)
+    assert main(["sweep", "spur.toml", "--vary", "links[*].length_km=8,12", "--pairs", "10",
+                 "--workers", "1", "--quiet", "--store", "far/away/sweep.sqlite"]) == 0
+    (tmp_path / "spur.toml").unlink()
+    capsys.readouterr()
+    assert main(["report", "far/away/sweep.sqlite", "--no-figures", "--simulate"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "--simulate needs the scenario this store was swept from ('Yarrowby spur')" in err[0]
+    assert "--scenario FILE" in err[0]
+    assert main(["report", "far/away/sweep.sqlite", "--no-figures"]) == 0
+    assert "no link or demand tables and no map" in capsys.readouterr().out

@@ -95,6 +95,11 @@ def run(args: argparse.Namespace) -> int:
         summary = first if data.kind == "store" else tables.get("demands", first)
         if summary is not None:
             print(render(choose_columns(summary, "table", args, COMPACT, None), "table"))
+            if len(tables) > 1:
+                print(f"(1 of {len(tables)} tables shown; every table is in the files below)")
+        if data.kind == "store" and data.scenario is None:
+            print(f"no link or demand tables and no map: the scenario this store was swept from "
+                  f"({data.title!r}) was not found; give it with --scenario FILE")
     print(f"wrote {len(written)} files to {out} in {time.perf_counter() - started:.1f} s:")
     for path in written:
         print(f"  {path}")

@@ -249,6 +249,9 @@ def _from_store(path: Path, scenario_path: str | Path | None = None, simulate: b
         raise NetsimError(f"{path}: the store has no finished points yet; run `netsim sweep` first")
     data = ReportData("store", slug, name, records=records, parameters=parameters)
     data.scenario = _scenario_of_store(meta, path, scenario_path)
+    if data.scenario is None and simulate:
+        raise NetsimError(f"{path}: --simulate needs the scenario this store was swept from ({name!r}), "
+                          f"which is not in scenarios/ or beside the results; give it with --scenario FILE")
     if data.scenario is not None:
         data.links, data.demands = _budget_rows(data.scenario)
         if simulate:
