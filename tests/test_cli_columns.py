@@ -125,3 +125,23 @@ def test_run_table_prints_intervals_to_their_precision() -> None:
                                                "fidelity_ci95": [0.914943, 0.915001]}])
     text = render(table, "table")
     assert "0.914972" in text and "[0.914943, 0.915001]" in text
+
+
+def test_latex_types_powers_of_ten_and_keeps_the_notes() -> None:
+    """'3.59e4' in a typeset proposal reads as code; the fragment writes 3.59 x 10^4 in text mode
+    (no $ or ^, so the structural check still holds) and carries the table's notes as comments."""
+    from netsim.report.latex import check_fragment, compile_fragment, tex_engine
+
+    table = Table("Bounds of Marrowgate", [Column("link", "link"), Column("b", "bound (ebit/s)"),
+                                           Column("ci", "95% CI")],
+                  [{"link": "Marrowgate-Pell 2e5 Annex", "b": 35900.0, "ci": [1.2e-5, 3e4]}],
+                  ["Bounds after a cited source (100% of them)."])
+    text = render(table, "tex")
+    assert r"3.59\ensuremath{\times}10\textsuperscript{4}" in text
+    assert r"[1.2\ensuremath{\times}10\textsuperscript{\ensuremath{-}5}, 3\ensuremath{\times}10\textsuperscript{4}]" in text
+    assert "Marrowgate-Pell 2e5 Annex" in text  # names are text, not numbers
+    assert "% Bounds after a cited source (100% of them)." in text
+    assert check_fragment(text) == []
+    if tex_engine() is not None:
+        ok, log = compile_fragment([text])
+        assert ok, log[-500:]

@@ -11,12 +11,13 @@ import csv
 import io
 import json
 import math
+import re
 import textwrap
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-__all__ = ["FORMATS", "Column", "Table", "format_number", "render", "sig_for_interval", "tex_escape"]
+__all__ = ["FORMATS", "Column", "Table", "format_number", "render", "sig_for_interval", "tex_escape", "tex_number"]
 
 FORMATS = ("table", "csv", "md", "tex", "json")
 
@@ -209,14 +210,32 @@ def tex_escape(text: str) -> str:
     return "".join(_TEX_SPECIAL.get(ch, ch) for ch in text)
 
 
+_E_NUMBER = re.compile(r"(?<![\w.])(-?\d+(?:\.\d+)?)e([+-]?)(\d+)(?![\w.])")
+
+
+def tex_number(text: str) -> str:
+    """Numbers in e-notation as a typeset power of ten, without ``$`` or ``^`` (which the
+    structural check reserves): ``3.59e4`` -> ``3.59\\ensuremath{\\times}10\\textsuperscript{4}``."""
+    def power(m: re.Match[str]) -> str:
+        sign = r"\ensuremath{-}" if m[2] == "-" else ""
+        return rf"{m[1]}\ensuremath{{\times}}10\textsuperscript{{{sign}{int(m[3])}}}"
+    return _E_NUMBER.sub(power, text)
+
+
+def _tex_cell(text: str) -> str:
+    numeric = _looks_numeric(text) or (text.startswith("[") and text.endswith("]"))
+    return tex_number(text) if numeric else tex_escape(text)
+
+
 def _latex(table: Table) -> str:
     body = table.cells()
     numeric = [all(_looks_numeric(r[i]) for r in body) for i in range(len(table.columns))]
     spec = "".join("r" if n else "l" for n in numeric)
-    out = [f"% {tex_escape(table.title)} (requires \\usepackage{{booktabs}})",
-           f"\\begin{{tabular}}{{{spec}}}", r"\toprule",
-           " & ".join(tex_escape(c.header) for c in table.columns) + r" \\", r"\midrule"]
-    out += [" & ".join(tex_escape(c) for c in row) + r" \\" for row in body]
+    out = [f"% {tex_escape(table.title)} (requires \\usepackage{{booktabs}})"]
+    out += [f"% {line}" for note in table.notes for line in _wrap_note(note)]
+    out += [f"\\begin{{tabular}}{{{spec}}}", r"\toprule",
+            " & ".join(tex_escape(c.header) for c in table.columns) + r" \\", r"\midrule"]
+    out += [" & ".join(_tex_cell(c) for c in row) + r" \\" for row in body]
     out += [r"\bottomrule", r"\end{tabular}"]
     return "\n".join(out) + "\n"
 
