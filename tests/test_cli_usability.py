@@ -259,3 +259,20 @@ def test_store_report_without_its_scenario_says_so(tmp_path: Path, monkeypatch: 
     assert "--scenario FILE" in err[0]
     assert main(["report", "far/away/sweep.sqlite", "--no-figures"]) == 0
     assert "no link or demand tables and no map" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(("argv", "line"), [
+    (["report", "x.toml", "--pairs", "ten"], "netsim report: error: --pairs = 'ten' is not allowed; expected an integer"),
+    (["compare", "a.toml", "b.toml", "--time-s", "soon"],
+     "netsim compare: error: --time-s = 'soon' is not allowed; expected a number"),
+    (["budget", "x.toml", "--only", "link"],
+     "netsim budget: error: --only = 'link' is not allowed; expected one of links, demands"),
+    (["frobnicate"], "netsim: error: COMMAND = 'frobnicate' is not allowed; expected one of link, check, budget, "
+                     "run, sweep, report, compare"),
+])
+def test_option_type_errors_take_the_house_form(argv: list[str], line: str,
+                                                capsys: pytest.CaptureFixture[str]) -> None:
+    with pytest.raises(SystemExit) as info:
+        main(argv)
+    assert info.value.code == 2
+    assert capsys.readouterr().err.strip().splitlines() == [line]

@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import importlib.util
+import re
 import sys
 from collections.abc import Sequence
 from typing import NoReturn
@@ -29,7 +30,23 @@ class OneLineParser(argparse.ArgumentParser):
     """An argument parser whose errors are a single line and exit code 2."""
 
     def error(self, message: str) -> NoReturn:
-        self.exit(2, f"{self.prog}: error: {message}\n")
+        self.exit(2, f"{self.prog}: error: {house_style(message)}\n")
+
+
+_KINDS = {"int": "an integer", "float": "a number"}
+
+
+def house_style(message: str) -> str:
+    """An argparse complaint about a value in the form every netsim error takes:
+    ``--pairs = 'ten' is not allowed; expected an integer``. Other messages pass unchanged."""
+    match = re.fullmatch(r"argument (\S+?)(?:/\S+)?: invalid (int|float) value: '(.*)'", message)
+    if match:
+        return f"{match[1]} = {match[3]!r} is not allowed; expected {_KINDS[match[2]]}"
+    match = re.fullmatch(r"argument (\S+?)(?:/\S+)?: invalid choice: '(.*)' \(choose from (.*)\)", message)
+    if match:
+        choices = ", ".join(c.strip().strip("'") for c in match[3].split(","))
+        return f"{match[1]} = {match[2]!r} is not allowed; expected one of {choices}"
+    return message
 
 
 def build_parser() -> argparse.ArgumentParser:
