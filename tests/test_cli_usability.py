@@ -276,3 +276,17 @@ def test_option_type_errors_take_the_house_form(argv: list[str], line: str,
         main(argv)
     assert info.value.code == 2
     assert capsys.readouterr().err.strip().splitlines() == [line]
+
+
+def test_interrupted_sweep_says_how_to_resume(monkeypatch: pytest.MonkeyPatch,
+                                              capsys: pytest.CaptureFixture[str]) -> None:
+    import netsim.cli.sweep_cmd as sweep_cmd
+
+    def interrupted(_args: object) -> int:
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(sweep_cmd, "run_command", interrupted)
+    assert main(["sweep", "x.toml"]) == 130
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == ["netsim sweep: interrupted; results written so far are kept; run the same command "
+                   "again to resume (finished points are not rerun)"]

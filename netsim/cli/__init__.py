@@ -35,6 +35,9 @@ class OneLineParser(argparse.ArgumentParser):
 
 _KINDS = {"int": "an integer", "float": "a number"}
 
+#: What to do after Ctrl-C, by command.
+_RESUME = {"sweep": "; run the same command again to resume (finished points are not rerun)"}
+
 
 def house_style(message: str) -> str:
     """An argparse complaint about a value in the form every netsim error takes:
@@ -77,7 +80,8 @@ def main(argv: Sequence[str] | None = None) -> int:
             print(f"netsim {args.command}: error: {line}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
-        print(f"netsim {args.command}: interrupted; results written so far are kept", file=sys.stderr)
+        print(f"netsim {args.command}: interrupted; results written so far are kept"
+              + _RESUME.get(args.command, ""), file=sys.stderr)
         return 130
     except BrokenPipeError:
         return 0
