@@ -290,3 +290,12 @@ def test_interrupted_sweep_says_how_to_resume(monkeypatch: pytest.MonkeyPatch,
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["netsim sweep: interrupted; results written so far are kept; run the same command "
                    "again to resume (finished points are not rerun)"]
+
+
+def test_units_are_written_alike_in_every_command(capsys: pytest.CaptureFixture[str]) -> None:
+    """Unit symbols take no plural (common practice, as for SI symbols): 'bit/use', as the budget
+    and report tables write it, not 'bits/use'."""
+    assert main(["link", "--length-km", "10"]) == 0
+    out = capsys.readouterr().out
+    assert "PLOB (bit/use)" in out and "(bit/qubit)" in out and "coherent info (ebit/pair)" in out
+    assert "bits/" not in out and "ebits/pair" not in out

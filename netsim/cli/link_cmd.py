@@ -122,10 +122,10 @@ def link_table(args: argparse.Namespace) -> Any:
     rows: list[Mapping[str, Any]] = [*link_rows(args.length_km, args.attenuation_db_per_km, args.extra_loss_db,
                      args.depolarizing, args.encoding, args.loss_model)]
     columns = [Column("length_km", "length (km)"), Column("loss_db", "loss (dB)"),
-               Column("transmissivity", "eta"), Column("plob_bits_per_use", "PLOB (bits/use)"),
-               Column("holevo_bits", f"Holevo {args.encoding} (bits/qubit)"),
-               Column("capacity_bits", "Holevo capacity (bits/use)"),
-               Column("coherent_info_ebits", "coherent info (ebits/pair)")]
+               Column("transmissivity", "eta"), Column("plob_bits_per_use", "PLOB (bit/use)"),
+               Column("holevo_bits", f"Holevo {args.encoding} (bit/qubit)"),
+               Column("capacity_bits", "Holevo capacity (bit/use)"),
+               Column("coherent_info_ebits", "coherent info (ebit/pair)")]
     loss = "amplitude damping gamma = 1 - eta" if args.loss_model == "damping" else "erasure eps = 1 - eta"
     notes = [(f"attenuation {args.attenuation_db_per_km:g} dB/km, extra loss {args.extra_loss_db:g} dB; "
               f"channel: depolarizing p = {args.depolarizing:g} at the sender, then {loss}."),
