@@ -299,3 +299,20 @@ def test_units_are_written_alike_in_every_command(capsys: pytest.CaptureFixture[
     out = capsys.readouterr().out
     assert "PLOB (bit/use)" in out and "(bit/qubit)" in out and "coherent info (ebit/pair)" in out
     assert "bits/" not in out and "ebits/pair" not in out
+
+
+def test_map_labels_stay_inside_the_frame() -> None:
+    """The label of the east-most site was drawn to its right, across the map's frame."""
+    from netsim.report.netmap import MapLink, MapSite, network_map
+
+    sites = [MapSite("Orrin Quay", "user", 0.0, 0.0), MapSite("Velt Relay", "repeater", 9.0, 11.0),
+             MapSite("Wrenholt Far East Campus", "user", 22.0, 16.0)]
+    links = [MapLink("Orrin Quay", "Velt Relay", 2e4), MapLink("Velt Relay", "Wrenholt Far East Campus", 1e4)]
+    fig = network_map(sites, links)
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    frame = ax.get_window_extent(renderer)
+    for text in ax.texts:
+        box = text.get_window_extent(renderer)
+        assert frame.x0 - 1 <= box.x0 and box.x1 <= frame.x1 + 1, text.get_text()

@@ -123,10 +123,13 @@ def _draw_sites(ax: Axes, sites: Sequence[MapSite], pos: Mapping[str, tuple[floa
             xy = np.array([pos[s.name] for s in chosen])
             ax.scatter(xy[:, 0], xy[:, 1], marker=marker, s=28, facecolor="white",
                        edgecolor="black", linewidth=0.9, zorder=3, label=role)
+    xs = [p[0] for p in pos.values()]
+    right_edge = max(xs) - 0.15 * (max(xs) - min(xs))
     for s in sites:
         x, y = pos[s.name]
-        ax.annotate(labels[s.name], (x, y), xytext=(3, 3), textcoords="offset points", fontsize=6,
-                    zorder=4)
+        left = len(xs) > 1 and x > right_edge  # near the right frame: label on the left, not clipped
+        ax.annotate(labels[s.name], (x, y), xytext=(-3 if left else 3, 3), textcoords="offset points",
+                    fontsize=6, ha="right" if left else "left", zorder=4)
 
 
 def _scale_bar(ax: Axes, pos: Mapping[str, tuple[float, float]]) -> float:
