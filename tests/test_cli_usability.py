@@ -316,3 +316,12 @@ def test_map_labels_stay_inside_the_frame() -> None:
     for text in ax.texts:
         box = text.get_window_extent(renderer)
         assert frame.x0 - 1 <= box.x0 and box.x1 <= frame.x1 + 1, text.get_text()
+
+
+def test_finished_sweep_names_the_next_command(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    store = tmp_path / "s.sqlite"
+    assert main(["sweep", str(path), "--vary", "links[*].length_km=8,12", "--pairs", "10", "--workers", "1",
+                 "--quiet", "--store", str(store)]) == 0
+    assert capsys.readouterr().out.splitlines()[-1] == f"tables and figures: netsim report {store}"

@@ -176,4 +176,6 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
                         point_timeout_s=args.point_timeout_s, quiet=args.quiet)
     print(summary_line(summary), file=sys.stdout)
+    if summary.done and not summary.failed:
+        print(f"tables and figures: netsim report {store}")
     return 0 if summary.failed == 0 else 1
