@@ -325,3 +325,22 @@ def test_finished_sweep_names_the_next_command(tmp_path: Path, capsys: pytest.Ca
     assert main(["sweep", str(path), "--vary", "links[*].length_km=8,12", "--pairs", "10", "--workers", "1",
                  "--quiet", "--store", str(store)]) == 0
     assert capsys.readouterr().out.splitlines()[-1] == f"tables and figures: netsim report {store}"
+
+
+def test_unused_link_explains_its_empty_simulated_cells(tmp_path: Path) -> None:
+    spare = CHAIN + '''
+[[sites]]
+name = "Brindle Yard"
+role = "user"
+
+[[links]]
+ends = ["Quillmere Relay", "Brindle Yard"]
+length_km = 4.0
+'''
+    path = tmp_path / "spur.toml"
+    path.write_text(spare)
+    assert main(["report", str(path), "--simulate", "--pairs", "20", "--no-figures", "--quiet",
+                 "--out", str(tmp_path / "r")]) == 0
+    text = (tmp_path / "r" / "links.md").read_text()
+    assert "| Quillmere Relay-Brindle Yard |" in text
+    assert "'-' in the simulated columns: no demand's route uses the link." in text

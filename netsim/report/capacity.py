@@ -217,6 +217,8 @@ def link_table(rows: list[dict[str, Any]], scenario_name: str) -> Table:
     if any(r.get("rate_sim_per_s") is not None for r in rows):
         notes.append("Simulated pair rate: heralded successes per attempt round over the attempt "
                      "period (exact Clopper-Pearson 95% interval), comparable with the analytic rate.")
+        if any(r.get("rate_sim_per_s") is None for r in rows):
+            notes.append("'-' in the simulated columns: no demand's route uses the link.")
     return Table(f"Link capacity: {scenario_name}", LINK_COLUMNS, [*rows], notes)
 
 
