@@ -344,3 +344,15 @@ length_km = 4.0
     text = (tmp_path / "r" / "links.md").read_text()
     assert "| Quillmere Relay-Brindle Yard |" in text
     assert "'-' in the simulated columns: no demand's route uses the link." in text
+
+
+@pytest.mark.parametrize(("argv", "line"), [
+    (["run", "x.toml", "--sed", "3"],
+     "netsim run: error: --sed 3: not an option or argument of netsim run; did you mean --seed? see netsim run --help"),
+    (["budget", "a.toml", "b.toml"],
+     "netsim budget: error: b.toml: not an option or argument of netsim budget; see netsim budget --help"),
+])
+def test_unknown_option_names_the_command(argv: list[str], line: str, capsys: pytest.CaptureFixture[str]) -> None:
+    """argparse said 'netsim: error: unrecognized arguments: --sed 3', without the command."""
+    assert main(argv) == 2
+    assert capsys.readouterr().err.strip().splitlines() == [line]

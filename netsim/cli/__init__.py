@@ -10,6 +10,7 @@ Ctrl-C exits with code 130 after the command has had its chance to leave files c
 from __future__ import annotations
 
 import argparse
+import difflib
 import importlib
 import importlib.util
 import re
@@ -67,9 +68,26 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra: list[str]) -> str:
+    """One line for arguments no option takes, naming the command, with the nearest option."""
+    prog = f"netsim {command}" if command else "netsim"
+    options: list[str] = []
+    for action in parser._actions:  # the subcommand's parser holds its option strings
+        if isinstance(action, argparse._SubParsersAction) and command in action.choices:
+            options = [o for a in action.choices[command]._actions for o in a.option_strings]
+    word = extra[0].split("=", 1)[0]
+    close = difflib.get_close_matches(word, options, n=1) if word.startswith("-") else []
+    hint = f"did you mean {close[0]}? " if close else ""
+    return (f"{prog}: error: {' '.join(extra)}: not an option or argument of {prog}; "
+            f"{hint}see {prog} --help")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    args, extra = parser.parse_known_args(argv)
+    if extra:
+        print(_unknown_option(parser, getattr(args, "command", None), extra), file=sys.stderr)
+        return 2
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
