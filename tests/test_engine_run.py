@@ -112,7 +112,7 @@ def test_cli_writes_results_and_prints_a_table(tmp_path: Path) -> None:
     toml.write_text(_toml(_data()), encoding="utf-8")
     done = _cli(str(toml), "--pairs", "30", "--seed", "3", cwd=tmp_path)
     assert done.returncode == 0, done.stderr
-    assert "rate (1/s)" in done.stdout
+    assert "rate (pairs/s)" in done.stdout
     data = json.loads((tmp_path / "results" / "orrin" / "run.json").read_text())
     assert [d["delivered_pairs"] >= 30 for d in data["demands"]] == [True, True]
 

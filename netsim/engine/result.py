@@ -35,11 +35,11 @@ __all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS", "RunResult"]
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("demand", "demand"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),
-    Column("simulated_time_s", "sim. time (s)"), Column("rate_per_s", "rate (1/s)", ci_key="rate_ci95"),
-    Column("rate_ci95", "rate 95% CI (1/s)", ci_key="rate_ci95"), Column("expected_rate_per_s", "expected rate (1/s)"),
+    Column("simulated_time_s", "sim. time (s)"), Column("rate_per_s", "rate (pairs/s)", ci_key="rate_ci95"),
+    Column("rate_ci95", "rate 95% CI (pairs/s)", ci_key="rate_ci95"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
     Column("fidelity_mean", "fidelity", ci_key="fidelity_ci95"),
     Column("fidelity_ci95", "fidelity 95% CI", ci_key="fidelity_ci95"),
-    Column("eof_mean", "EoF (ebit)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
+    Column("eof_mean", "EoF (ebit/pair)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
     Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (bit/s)"),
     Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),
 )
