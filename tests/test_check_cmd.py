@@ -143,3 +143,25 @@ def test_mixed_settings_along_a_light_path_are_flagged(tmp_path: Path, capsys: p
     out = capsys.readouterr().out
     assert "light path links[0] + links[1] (Marsden Lab to Oxley Lab): links disagree on scheme" in out
     assert "sites: 3 (2 user, 0 repeater, 1 switch)" in out
+
+
+def test_a_light_path_walked_both_ways_is_warned_about_once() -> None:
+    # Two demands cross the same switched light path in opposite directions; the warning about
+    # that path (far too lossy for its scheme at 22 dB/km; any rate below 1e-3 pairs/s is flagged,
+    # common practice for this check) must appear once, not once per direction.
+    from netsim.network.audit import audit
+    from netsim.scenario import load_data
+
+    scenario = load_data({
+        "network": {"name": "Skerrow"},
+        "defaults": {"link": {"attenuation_db_per_km": 22.0}},
+        "sites": [{"name": "Skerrow Lab", "role": "user"}, {"name": "Tolly Switch", "role": "switch"},
+                  {"name": "Umber Lab", "role": "user"}],
+        "links": [{"ends": ["Skerrow Lab", "Tolly Switch"], "length_km": 3.0},
+                  {"ends": ["Tolly Switch", "Umber Lab"], "length_km": 4.0}],
+        "demands": [{"users": ["Skerrow Lab", "Umber Lab"]}, {"users": ["Umber Lab", "Skerrow Lab"]}],
+    })
+    path_lines = [w for w in audit(scenario) if "light path" in w]
+    assert path_lines, "the lossy light path should be flagged"
+    assert len(path_lines) == len(set(w.split(":", 1)[1] for w in path_lines))
+    assert not any("links[1] + links[0]" in w for w in path_lines)

@@ -87,9 +87,9 @@ def _path_warnings(scenario: Scenario, graph: nx.Graph) -> list[str]:
             continue  # reported by the budget's own warning for this demand
         for hop in route_hops(graph, route):
             key = tuple(k.index for k in hop.links)
-            if len(hop.links) < 2 or key in seen:
+            if len(hop.links) < 2 or frozenset(key) in seen:  # either walking direction
                 continue
-            seen.add(key)
+            seen.add(frozenset(key))
             label = "light path " + " + ".join(f"links[{i}]" for i in key) + f" ({hop.a} to {hop.b})"
             out += _physics_warnings(label, hop.physics.scheme, hop.physics)
             path = LightPath.join(hop.links, scenario.site(hop.a), scenario.site(hop.b))
