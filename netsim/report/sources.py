@@ -10,7 +10,7 @@ The report layer never simulates: runs are requested from the engine's public ``
 from __future__ import annotations
 
 import json
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -153,24 +153,35 @@ def _candidate_scenarios(path: Path) -> list[Path]:
     return [root / folder / f"{slug}.toml" for root in roots for folder in ("scenarios", ".")]
 
 
-def _scenario_of_run(run: Mapping[str, Any], path: Path, scenario_path: str | Path | None) -> Any:
-    """The scenario a run was made from: ``scenario_path`` if given (its name must match the
-    run's), else a file found next to the results whose name matches; ``None`` if none is."""
+def _find_scenario(path: Path, scenario_path: str | Path | None, matches: Callable[[Any], bool],
+                   expected: str) -> Any:
+    """``scenario_path`` if given (a ParameterError naming ``--scenario`` unless it ``matches``),
+    else the first file of :func:`_candidate_scenarios` that matches; ``None`` if none does."""
     from netsim.scenario import load
 
-    name = _run_name(run)
     if scenario_path is not None:
         scenario = load(scenario_path)
-        if name is not None and scenario.name != name:
-            raise ParameterError("--scenario", str(scenario_path),
-                                 f"the scenario the run was made from (named {name!r})")
+        if not matches(scenario):
+            raise ParameterError("--scenario", str(scenario_path), expected)
         return scenario
     for candidate in _candidate_scenarios(path):
         if candidate.is_file():
             scenario = load(candidate)
-            if scenario.name == name:
+            if matches(scenario):
                 return scenario
     return None
+
+
+def _scenario_of_run(run: Mapping[str, Any], path: Path, scenario_path: str | Path | None) -> Any:
+    """The scenario a run was made from: ``scenario_path`` if given (its name must match the
+    run's), else a file found next to the results whose name matches; ``None`` if none is."""
+    name = _run_name(run)
+    if name is None and scenario_path is not None:
+        from netsim.scenario import load
+
+        return load(scenario_path)  # an unnamed run cannot be checked against its scenario
+    return _find_scenario(path, scenario_path, lambda scenario: scenario.name == name,
+                          f"the scenario the run was made from (named {name!r})")
 
 
 def _from_run(path: Path, scenario_path: str | Path | None = None) -> ReportData:
@@ -216,20 +227,9 @@ def _scenario_of_store(meta: Mapping[str, str], path: Path,
                        scenario_path: str | Path | None) -> Any:
     """The store's base scenario: ``scenario_path`` (checked against the stored hash), else
     ``scenarios/<slug>.toml`` near the results when its hash matches; ``None`` otherwise."""
-    from netsim.scenario import load
-
-    if scenario_path is not None:
-        scenario = load(scenario_path)
-        if meta.get("scenario_hash") != _sweep_base_hash(scenario):
-            raise ParameterError("--scenario", str(scenario_path),
-                                 f"the scenario this store was swept from ({meta.get('scenario_name')!r})")
-        return scenario
-    for candidate in _candidate_scenarios(path):
-        if candidate.is_file():
-            scenario = load(candidate)
-            if meta.get("scenario_hash") == _sweep_base_hash(scenario):
-                return scenario
-    return None
+    return _find_scenario(path, scenario_path,
+                          lambda scenario: meta.get("scenario_hash") == _sweep_base_hash(scenario),
+                          f"the scenario this store was swept from ({meta.get('scenario_name')!r})")
 
 
 def _from_store(path: Path, scenario_path: str | Path | None = None, simulate: bool = False,
