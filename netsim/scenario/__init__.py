@@ -10,14 +10,14 @@ from netsim.scenario.loader import TOP_LEVEL_KEYS, content_hash, load, load_data
 from netsim.scenario.model import Demand, Encoding, Link, Protocol, Scenario, Site
 
 __all__ = [
-           "TOP_LEVEL_KEYS",
-           "Demand",
-           "Encoding",
-           "Link",
-           "Protocol",
-           "Scenario",
-           "Site",
-           "content_hash",
-           "load",
-           "load_data",
+    "TOP_LEVEL_KEYS",
+    "Demand",
+    "Encoding",
+    "Link",
+    "Protocol",
+    "Scenario",
+    "Site",
+    "content_hash",
+    "load",
+    "load_data",
 ]
