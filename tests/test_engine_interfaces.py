@@ -203,3 +203,27 @@ def test_a_lone_chain_with_one_interface_stays_on_the_vectorised_engine() -> Non
     one, two = (run(scenario(k), seed=4, ensembles=False).demands[0] for k in (1, 2))  # type: ignore[arg-type]
     assert one["engine"] == "vector" and two["engine"] == "vector"
     assert one["rate_ci95"][1] < two["rate_ci95"][0]
+
+
+def test_budget_expected_fidelity_counts_transfer_errors() -> None:
+    """The closed-form budget: a transfer error p depolarizes one qubit of a (twirled) Werner hop
+    pair, multiplying its Werner parameter by 1 - p (depolarizing convention, Nielsen & Chuang 2010
+    (memory)); two users with p = 0.02 and a repeater with p = 0.05 on both of its qubits give
+    w' = w 0.98^2 0.95^2, F = (1 + 3 w') / 4."""
+    from netsim.network import budget
+
+    def scenario(user_p: float, relay_p: float) -> object:
+        return load_data({
+            "network": {"name": "Ashby line"},
+            "sites": [{"name": "Ashby", "role": "user", "memory_transfer_error": user_p},
+                      {"name": "Bramble Relay", "role": "repeater", "memory_transfer_error": relay_p},
+                      {"name": "Crane", "role": "user", "memory_transfer_error": user_p}],
+            "links": [{"ends": ["Ashby", "Bramble Relay"], "length_km": 10.0},
+                      {"ends": ["Bramble Relay", "Crane"], "length_km": 10.0}],
+            "demands": [{"users": ["Ashby", "Crane"]}],
+        })
+
+    clean = budget(scenario(0.0, 0.0)).demands[0]["expected_fidelity"]  # type: ignore[arg-type]
+    noisy = budget(scenario(0.02, 0.05)).demands[0]["expected_fidelity"]  # type: ignore[arg-type]
+    w = (4 * clean - 1) / 3
+    assert noisy == pytest.approx((1 + 3 * w * 0.98**2 * 0.95**2) / 4, abs=1e-12)
