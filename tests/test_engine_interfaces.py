@@ -238,7 +238,7 @@ def test_pruning_the_attempt_log_changes_nothing(monkeypatch: pytest.MonkeyPatch
     from netsim.engine import des as des_module
 
     def site(name: str, role: str) -> Site:
-        return Site(name, role, memory_slots=8 if role == "repeater" else 2, t1_s=1.0, t2_s=0.5,
+        return Site(name, role, memory_slots=8 if role == "repeater" else 2, t1_s=1.0, t2_s=0.5,  # type: ignore[arg-type]
                     attempt_dephasing=0.01)
 
     hub, ends = site("Fenwick Hub", "repeater"), [site(n, "user") for n in ("Gale", "Holm", "Irby", "Jessop")]
