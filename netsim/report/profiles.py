@@ -36,7 +36,7 @@ _NOTE = ("demonstrated: values reached in published experiments; projected: publ
 
 def profile_list() -> Table:
     """One row per bundled profile."""
-    rows = []
+    rows: list[Mapping[str, Any]] = []
     for p in profiles().values():
         site, link = p.site_values(), p.link_values()
         rows.append({"profile": p.name, "variant": p.variant, "scheme": link.get("scheme"),
@@ -47,8 +47,8 @@ def profile_list() -> Table:
     return Table("Hardware profiles", LIST_COLUMNS, rows, notes)
 
 
-def _value_rows(profile: Profile) -> list[dict[str, Any]]:
-    rows = []
+def _value_rows(profile: Profile) -> list[Mapping[str, Any]]:
+    rows: list[Mapping[str, Any]] = []
     for part, values in (("site", profile.site), ("link", profile.link)):
         for key, entry in values.items():
             rows.append({"table": part, "key": key, "value": entry.value, "source": entry.source})
