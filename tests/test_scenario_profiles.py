@@ -352,3 +352,11 @@ def test_a_switch_does_not_count_as_built_in(capsys: pytest.CaptureFixture[str])
 
     labels = {row["profile"] for row in budget(mesh).links + budget(mesh).demands if row.get("profile")}
     assert labels == {"trapped-ion-demonstrated"}
+
+
+def test_compare_names_each_candidate_s_profiles() -> None:
+    from netsim.report.compare import comparison_tables, run_candidates
+
+    paths = [str(ROOT / "scenarios" / "vellmoor-mesh.toml"), str(ROOT / "scenarios" / "vellmoor-star.toml")]
+    _, totals, _ = comparison_tables(run_candidates(paths, simulate=False))
+    assert [r["profile"] for r in totals.rows] == ["trapped-ion-demonstrated"] * 2
