@@ -360,3 +360,12 @@ def test_compare_names_each_candidate_s_profiles() -> None:
     paths = [str(ROOT / "scenarios" / "vellmoor-mesh.toml"), str(ROOT / "scenarios" / "vellmoor-star.toml")]
     _, totals, _ = comparison_tables(run_candidates(paths, simulate=False))
     assert [r["profile"] for r in totals.rows] == ["trapped-ion-demonstrated"] * 2
+
+
+def test_sweep_tables_name_the_base_scenario_s_profile() -> None:
+    from netsim.report.build import _profile_note
+    from netsim.report.sources import ReportData
+
+    data = ReportData(kind="store", slug="chain3", title="Chain of three", scenario=load(ROOT / "scenarios" / "chain3.toml"))
+    assert _profile_note(data).startswith("Hardware profile: trapped-ion-demonstrated")
+    assert _profile_note(ReportData(kind="store", slug="x", title="x")) == ""
