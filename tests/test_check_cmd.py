@@ -85,10 +85,13 @@ def test_unentangled_heralds_are_flagged(tmp_path: Path, capsys: pytest.CaptureF
     assert "is not above 1/2" in capsys.readouterr().out
 
 
-def test_json_output(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    assert main(["check", "--format", "json", str(write(tmp_path))]) == 0
+def test_json_output(capsys: pytest.CaptureFixture[str]) -> None:
+    # The bundled chain (demonstrated trapped-ion values) draws no warning; a two-photon link on
+    # the built-in defaults (an emission efficiency of 1e-4) now would, as test_a_link_beyond_... shows.
+    assert main(["check", "--format", "json", str(CHAIN)]) == 0
     data = json.loads(capsys.readouterr().out)
-    assert data["valid"] is True and data["sites"] == 2 and data["users"] == 2 and data["warnings"] == []
+    assert data["valid"] is True and data["sites"] == 3 and data["users"] == 2 and data["warnings"] == []
+    assert [u["profile"] for u in data["profiles"]] == ["trapped-ion-demonstrated"]
 
 
 def test_invalid_file_exits_2_with_one_line_per_problem(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -34,7 +34,7 @@ def test_budget_text_fits_a_terminal_and_says_how_to_see_more(capsys: pytest.Cap
     assert max(len(line) for line in out.splitlines()) <= TERMINAL
     assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (bit/s)" in out
     assert "Holevo capacity (bit/use)" not in out
-    assert "--wide prints all 19" in out and "--wide prints all 13" in out
+    assert "--wide prints all 20" in out and "--wide prints all 14" in out
 
 
 def test_budget_wide_prints_every_column(capsys: pytest.CaptureFixture[str]) -> None:
@@ -48,7 +48,7 @@ def test_budget_wide_prints_every_column(capsys: pytest.CaptureFixture[str]) -> 
 def test_budget_csv_keeps_every_column_by_default(capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["budget", str(MESH), "--format", "csv", "--only", "links"]) == 0
     header = next(csv.reader(io.StringIO(capsys.readouterr().out)))
-    assert len(header) == 19 and "Holevo capacity (bit/use)" in header
+    assert len(header) == 20 and "Holevo capacity (bit/use)" in header
 
 
 def test_budget_columns_chooses_by_key(capsys: pytest.CaptureFixture[str]) -> None:

@@ -15,11 +15,15 @@ def register(subparsers: Any) -> None:
         "check", help="validate a scenario file and summarise it",
         description="Validate a scenario file; print counts of sites, links and demands and "
                     "planning warnings (links beyond what their scheme can bridge, routes below "
-                    "a demand's min_fidelity). Exit 0 if valid, 2 if not; with --strict, 1 when "
+                    "a demand's min_fidelity) and the hardware profiles it names (--profiles: "
+                    "their values and sources). Exit 0 if valid, 2 if not; with --strict, 1 when "
                     "there are warnings.")
     parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
     parser.add_argument("--format", choices=("text", "json"), default="text", help="output format (default text)")
     parser.add_argument("--strict", action="store_true", help="exit with code 1 when there are warnings")
+    parser.add_argument("--profiles", action="store_true",
+                        help="explain the hardware profiles the scenario uses: every value with its source, "
+                             "the sites and links resting on it and the values the file overrides")
     parser.set_defaults(func=run)
 
 
@@ -27,13 +31,22 @@ def run(args: argparse.Namespace) -> int:
     from netsim.network.audit import audit, summary
     from netsim.scenario import load
 
+    from netsim.report.profiles import profile_record, scenario_usage, usage_tables
+    from netsim.report.table import render
+
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
     facts, warnings = summary(scenario), audit(scenario)
+    usage = scenario_usage(scenario)
     if args.format == "json":
-        print(json.dumps({"file": args.file, "valid": True, **facts, "warnings": warnings}, indent=2))
+        extra: dict[str, Any] = {"profiles": usage}
+        if args.profiles:
+            extra["profile_values"] = {u["profile"]: profile_record(u["profile"]) for u in usage}
+        print(json.dumps({"file": args.file, "valid": True, **facts, **extra, "warnings": warnings}, indent=2))
     else:
-        print(_text(args.file, facts, warnings))
+        print(_text(args.file, facts, warnings, usage))
+        if args.profiles:
+            print("".join("\n" + render(t, "table") for t in usage_tables(scenario)), end="")
     return 1 if (args.strict and warnings) else 0
 
 
@@ -50,7 +63,7 @@ def check_memory_in(scenario: Any, path: str) -> None:
         raise ScenarioError([Problem(exc.name, message)], source=path) from None
 
 
-def _text(path: str, facts: dict[str, Any], warnings: list[str]) -> str:
+def _text(path: str, facts: dict[str, Any], warnings: list[str], usage: list[dict[str, Any]]) -> str:
     lines = [
         f"{path}: valid scenario {facts['name']!r}",
         (f"  sites: {facts['sites']} ({facts['users']} user, {facts['repeaters']} repeater, "
@@ -58,6 +71,12 @@ def _text(path: str, facts: dict[str, Any], warnings: list[str]) -> str:
         f"  links: {facts['links']} ({facts['fibre_km']:.4g} km of fibre)",
         f"  demands: {facts['demands']} (routing: {facts['routing']})",
     ]
+    for use in usage:
+        parts = [f"{len(use['sites'])} site(s)"] * bool(use["sites"]) + [f"{len(use['links'])} link(s)"] * bool(use["links"])
+        lines.append(f"  profile: {use['profile']} ({use['variant']}) for {', '.join(parts)}"
+                     + (f"; overridden at {len(use['overrides'])}" if use["overrides"] else ""))
+    if not usage:
+        lines.append("  profile: none named; built-in defaults (see netsim profiles)")
     lines.append(f"  warnings: {len(warnings)}" if warnings else "  warnings: none")
     lines += [f"  warning: {w}" for w in warnings]
     return "\n".join(lines)

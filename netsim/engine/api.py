@@ -24,6 +24,7 @@ from netsim.engine.result import RunResult
 from netsim.engine.vector import simulate_chain_vector, vector_applicable
 from netsim.errors import ParameterError
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
+from netsim.scenario.profiles import profile_label
 
 __all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule"]
 
@@ -303,5 +304,23 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
     horizon = max((r.simulated_time_s for r in runs), default=0.0)
     stop = {"pairs": rule.pairs, "time_s": rule.time_s, "precision": rule.precision} if rule else {"per_demand": True}
     notes = [f"95% intervals: normal approximation (z = {Z95:.3f}); rate interval from inter-delivery times."]
-    return RunResult(scenario.name, scenario.slug, int(seed), stop, rows, _link_rows(chains, runs, horizon),
-                     _site_rows(chains, runs), interrupted=any(r.interrupted for r in runs), notes=notes)
+    link_rows, site_rows = _link_rows(chains, runs, horizon), _site_rows(chains, runs)
+    _add_profiles(scenario, chains, rows, link_rows, site_rows)
+    return RunResult(scenario.name, scenario.slug, int(seed), stop, rows, link_rows,
+                     site_rows, interrupted=any(r.interrupted for r in runs), notes=notes)
+
+
+def _add_profiles(scenario: Scenario, chains: list[Chain], demands: list[dict[str, Any]],
+                  links: list[dict[str, Any]], sites: list[dict[str, Any]]) -> None:
+    """A ``profile`` field in every row: the hardware profiles its figures rest on."""
+    by_link = {link.name: link for link in scenario.links}
+    by_site = {site.name: site for site in scenario.sites}
+    for row in links:
+        link = by_link.get(row["link"])
+        ends = [by_site[n] for n in ((link.a, link.b) if link else ()) if by_site[n].role != "switch"]
+        row["profile"] = profile_label(link.profile if link else None, *(s.profile for s in ends))
+    for row in sites:
+        row["profile"] = profile_label(by_site[row["site"]].profile)
+    for row, chain in zip(demands, chains):
+        hop_links = [by_link[n] for hop in chain.hops for n in hop.links if n in by_link]
+        row["profile"] = profile_label(*(s.profile for s in chain.sites), *(link.profile for link in hop_links))

@@ -18,6 +18,10 @@ Per link: attempt rounds, successes (heralded pairs), ``utilisation`` = time spe
 rounds / simulated time, summed over the demands routed over the link (each demand has its own
 memory slots and modes, so it can exceed 1). Per site: ``memory_occupancy`` = qubit-seconds
 stored / (simulated time x memory slots).
+
+Every demand, link and site row has a ``profile`` field: the hardware profiles its figures rest
+on (the route's sites and links for a demand; the link and its two end sites for a link), with
+``built-in`` for a site or link that names none (:func:`netsim.scenario.profiles.profile_label`).
 """
 
 from __future__ import annotations
@@ -34,7 +38,7 @@ from netsim.report.table import Column, Table
 __all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS", "RunResult"]
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
-    Column("demand", "demand"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),
+    Column("demand", "demand"), Column("profile", "profile"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),
     Column("simulated_time_s", "sim. time (s)"), Column("rate_per_s", "rate (pairs/s)", ci_key="rate_ci95"),
     Column("rate_ci95", "rate 95% CI (pairs/s)", ci_key="rate_ci95"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
     Column("fidelity_mean", "fidelity", ci_key="fidelity_ci95"),
@@ -44,11 +48,11 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),
 )
 LINK_COLUMNS: tuple[Column, ...] = (
-    Column("link", "link"), Column("attempts", "attempt rounds"), Column("successes", "pairs heralded"),
+    Column("link", "link"), Column("profile", "profile"), Column("attempts", "attempt rounds"), Column("successes", "pairs heralded"),
     Column("utilisation", "utilisation"), Column("discarded", "cut-off discards"),
 )
 SITE_COLUMNS: tuple[Column, ...] = (
-    Column("site", "site"), Column("memory_slots", "slots"), Column("memory_occupancy", "occupancy"),
+    Column("site", "site"), Column("profile", "profile"), Column("memory_slots", "slots"), Column("memory_occupancy", "occupancy"),
     Column("swap_failures", "failed swaps"),
 )
 

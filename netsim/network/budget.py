@@ -29,11 +29,13 @@ from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.report.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
+from netsim.scenario.profiles import profile_label
 
-__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget"]
+__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget", "route_profiles"]
 
 LINK_COLUMNS: tuple[Column, ...] = (
-    Column("link", "link"), Column("scheme", "scheme"), Column("length_km", "length (km)"),
+    Column("link", "link"), Column("profile", "profile"), Column("scheme", "scheme"),
+    Column("length_km", "length (km)"),
     Column("fibre_loss_db", "fibre loss (dB)"), Column("extra_loss_db", "extra loss (dB)"),
     Column("loss_db", "total loss (dB)"), Column("transmissivity", "eta"),
     Column("attempt_period_s", "attempt period (s)"), Column("modes", "modes"),
@@ -46,7 +48,7 @@ LINK_COLUMNS: tuple[Column, ...] = (
 )
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
-    Column("demand", "demand"), Column("route", "route"), Column("hops", "hops"),
+    Column("demand", "demand"), Column("route", "route"), Column("profile", "profile"), Column("hops", "hops"),
     Column("length_km", "length (km)"), Column("loss_db", "route loss (dB)"),
     Column("expected_wait_s", "all hops ready (s)"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
     Column("expected_fidelity", "expected fidelity"),
@@ -142,7 +144,10 @@ def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, 
     link, physics = edge["link"], edge["physics"]
     eta = edge["transmissivity"]
     row: dict[str, Any] = {
-        "link": link.name, "scheme": link.scheme, "length_km": link.length_km,
+        "link": link.name,
+        "profile": profile_label(link.profile, *(s.profile for s in (graph.nodes[a]["site"], graph.nodes[b]["site"])
+                                                 if s.role != "switch")),
+        "scheme": link.scheme, "length_km": link.length_km,
         "fibre_loss_db": loss_db(link.length_km, link.attenuation_db_per_km),
         "extra_loss_db": link.extra_loss_db, "loss_db": edge["loss_db"], "transmissivity": eta,
         "modes": link.modes, "plob_bits_per_use": edge["plob_bits_per_use"],
@@ -180,12 +185,20 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
         row["route"] = None
         return row, f"demands[{demand.index}] ({demand.name}): {exc}"
     hops = route_hops(graph, route)
+    row["profile"] = route_profiles(graph, route, hops)
     row.update(_chain_figures(graph, route, hops))
     warning = ""
     if row["expected_fidelity"] < demand.min_fidelity:
         warning = (f"demands[{demand.index}] ({demand.name}): expected fidelity "
                    f"{row['expected_fidelity']:.3g} is below min_fidelity {demand.min_fidelity:g}")
     return row, warning
+
+
+def route_profiles(graph: nx.Graph, route: list[str], hops: list[Hop]) -> str:
+    """The hardware profiles a route's figures rest on: its memory sites' and its links'."""
+    sites = [graph.nodes[n]["site"] for n in route]
+    return profile_label(*(s.profile for s in sites if s.role != "switch"),
+                         *(link.profile for hop in hops for link in hop.links))
 
 
 def _hop_bound_bits_per_s(hop: Hop) -> float:

@@ -77,6 +77,7 @@ def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
                   params: Sequence[str]) -> dict[str, Table]:
     tables: dict[str, Table] = {}
     rows_p, cols_p, rest = params[0], (params[1] if len(params) > 1 else None), list(params[2:])
+    note = _profile_note(data)
     for metric, ci in metrics.items():
         kind = metric_kind(data.records, metric)
         records = [r for r in data.records if r.get("kind") == kind and metric in r]
@@ -88,7 +89,21 @@ def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
                 title = f"{header(metric)}, {kind} {name}{where}".replace(f"{kind} , ", "")
                 key = file_stem(f"pivot-{metric}-{name}{where}")
                 tables[key] = pivot_table(chosen, metric, rows_p, cols_p, ci_key=ci, title=title)
+                if note:
+                    tables[key].notes.append(note)
     return tables
+
+
+def _profile_note(data: ReportData) -> str:
+    """Which hardware profiles a sweep's figures rest on (the base scenario's), for its tables."""
+    from netsim.scenario.profiles import profile_label
+
+    scenario = data.scenario
+    if scenario is None:
+        return ""
+    label = profile_label(*(s.profile for s in scenario.sites if s.role != "switch"),
+                          *(link.profile for link in scenario.links))
+    return f"Hardware profile: {label} (the base scenario's; swept keys replace its values where they apply)."
 
 
 def ordered_parameters(data: ReportData, params: Sequence[str] | None) -> list[str]:

@@ -28,6 +28,7 @@ __all__ = [
 
 LINK_COLUMNS = (
     Column("link", "link"),
+    Column("profile", "hardware profile"),
     Column("length_km", "length (km)", 3),
     Column("loss_db", "loss budget (dB)", 3),
     Column("transmissivity", "transmissivity", 3),
@@ -51,6 +52,7 @@ LINK_COLUMNS = (
 DEMAND_COLUMNS = (
     Column("demand", "demand"),
     Column("route", "route"),
+    Column("profile", "hardware profile"),
     Column("hops", "hops"),
     Column("rate_per_s", "delivered rate (pairs/s)", ci_key="rate_ci95"),
     Column("rate_ci95", "rate 95% CI (pairs/s)", ci_key="rate_ci95"),
@@ -190,7 +192,7 @@ def _ratio(value: Any, bound: Any) -> float | None:
 
 def _demand_row(budget: Mapping[str, Any], run: Mapping[str, Any]) -> dict[str, Any]:
     row: dict[str, Any] = {c.key: pick(run, c.key) for c in DEMAND_COLUMNS}
-    for key in ("demand", "bound_single_path_per_s", "bound_multipath_per_s",
+    for key in ("demand", "profile", "bound_single_path_per_s", "bound_multipath_per_s",
                 "expected_rate_per_s", "expected_fidelity"):
         row[key] = pick(budget, key) if pick(budget, key) is not None else row[key]
     row["route"] = _route_text(pick(budget, "route") or pick(run, "route"))  # switches shown

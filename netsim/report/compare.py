@@ -147,7 +147,7 @@ def _sum(rows: Sequence[Mapping[str, Any]], key: str) -> float | None:
 
 
 def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Table:
-    columns = [Column("candidate", "candidate"), Column("links", "links"),
+    columns = [Column("candidate", "candidate"), Column("profile", "hardware profile"), Column("links", "links"),
                Column("fibre_km", "fibre (km)", 4), Column("rate_per_s", "total rate (pairs/s)", 4),
                Column("ebits_per_s", "total ebits/s (ebit/s)", 4),
                Column("bound", "sum of min-cut bounds (ebit/s)", 4),
@@ -155,7 +155,8 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
     rows = []
     for c in candidates:
         fibre = math.fsum(float(d.get("length_km", 0.0)) for _, _, d in c.graph.edges(data=True))
-        rows.append({"candidate": c.name, "links": c.graph.number_of_edges(), "fibre_km": fibre,
+        rows.append({"candidate": c.name, "profile": _profiles(c.graph),
+                     "links": c.graph.number_of_edges(), "fibre_km": fibre,
                      "rate_per_s": _sum(c.demands, "rate_per_s"),
                      "ebits_per_s": _sum(c.demands, "ebits_per_s"),
                      "bound": _sum(c.demands, "bound_multipath_per_s"),
@@ -196,6 +197,15 @@ def _bottlenecks(candidates: Sequence[Candidate], keys: list[frozenset[str]]) ->
                          "cut_bits_per_s": value, "links": "; ".join(_link_name(graph, u, v) for u, v in cut)})
     notes = ["Other end users never relay; parallel fibres add their capacities."]
     return Table("Bottleneck links (minimum cut of the links' bounds as heralded)", columns, [*rows], notes)
+
+
+def _profiles(graph: nx.Graph) -> str:
+    """The hardware profiles of a candidate's memory sites and links (``built-in`` for none)."""
+    from netsim.scenario.profiles import profile_label
+
+    sites = [d["site"] for _, d in graph.nodes(data=True) if "site" in d and d["site"].role != "switch"]
+    links = [d["link"] for _, _, d in graph.edges(data=True) if "link" in d]
+    return profile_label(*(s.profile for s in sites), *(link.profile for link in links))
 
 
 def comparison_tables(candidates: Sequence[Candidate]) -> list[Table]:

@@ -4,7 +4,9 @@ Decisions documented in scenarios/REFERENCE.md:
 
 - Site names are unique (compared exactly); ``x_km`` and ``y_km`` come together or not at all.
 - ``memory_slots`` must be >= 1 at a user or repeater site; 0 is allowed only at a switch.
-- T2 <= 2 T1 is checked after ``[defaults.site]`` is applied.
+- T2 <= 2 T1 is checked after ``[defaults.site]`` and profiles are applied.
+- A value comes from the table itself, else its own ``profile``, else ``[defaults.*]``, else the
+  profile named there, else the built-in default (:mod:`netsim.scenario.profiles`).
 - At most one link joins a pair of sites (the network graph is simple); parallel fibres are
   modelled with ``modes``. Self-loops are rejected.
 - A demand joins two different ``user`` sites that a path of links connects whose inner sites
@@ -21,6 +23,7 @@ from netsim.errors import Problem, format_value
 from netsim.scenario.checks import check_table, name_pair, suggest, table_list
 from netsim.scenario.fields import DEMAND_FIELDS, LINK_FIELDS, SITE_FIELDS, Spec
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Demand, Link, Site
+from netsim.scenario.profiles import link_values, site_values
 
 __all__ = ["parse_demands", "parse_links", "parse_sites"]
 
@@ -29,8 +32,12 @@ def _missing(path: str, key: str, spec: Spec) -> Problem:
     return Problem(f"{path}.{key}", f"missing; required, {spec.allowed()}")
 
 
-def _origin(key: str, own: Mapping[str, Any]) -> str:
-    return "" if key in own else " (from defaults)"
+def _origin(key: str, own: Mapping[str, Any], profile: Mapping[str, Any] | None = None) -> str:
+    if key in own:
+        return ""
+    if profile and key in profile:
+        return f" (from profile {own.get('profile')!r})"
+    return " (from defaults)"
 
 
 def parse_sites(value: Any, defaults: Mapping[str, Any],
@@ -50,13 +57,15 @@ def parse_sites(value: Any, defaults: Mapping[str, Any],
     roles: dict[str, str] = {}
     first_index: dict[str, int] = {}
     _default_coherence(defaults, problems)
+    base = {**site_values(defaults.get("profile")), **defaults}
     tables = table_list(value, "sites", problems)
     for i, table in tables:
         count = len(problems)
         own = check_table(table, f"sites[{i}]", SITE_FIELDS, problems)
         _register(i, table, own, first_index, roles, problems)
-        merged = {**defaults, **own}
-        _site_rules(f"sites[{i}]", own, merged, {k for k in table if k not in own}, problems)
+        from_profile = site_values(own.get("profile"))
+        merged = {**base, **from_profile, **own}
+        _site_rules(f"sites[{i}]", own, from_profile, merged, {k for k in table if k not in own}, problems)
         if len(problems) == count:
             sites.append(Site(**merged))
     if len(tables) < 2 and len(value) == len(tables):
@@ -80,7 +89,7 @@ def _register(i: int, table: Mapping[str, Any], own: Mapping[str, Any], first_in
         roles[name] = own.get("role", "")  # "": the role is missing or invalid (reported)
 
 
-def _site_rules(path: str, own: Mapping[str, Any], merged: Mapping[str, Any],
+def _site_rules(path: str, own: Mapping[str, Any], from_profile: Mapping[str, Any], merged: Mapping[str, Any],
                 invalid: set[Any], problems: list[Problem]) -> None:
     if ("x_km" in own) != ("y_km" in own):
         have, lack = ("x_km", "y_km") if "x_km" in own else ("y_km", "x_km")
@@ -89,24 +98,28 @@ def _site_rules(path: str, own: Mapping[str, Any], merged: Mapping[str, Any],
     slots = merged.get("memory_slots")
     role = own.get("role")
     if slots == 0 and role in ("user", "repeater"):
-        problems.append(Problem(f"{path}.memory_slots", f"0{_origin('memory_slots', own)} is not "
+        problems.append(Problem(f"{path}.memory_slots", f"0{_origin('memory_slots', own, from_profile)} is not "
                                 f"allowed at a {role} site; expected an integer >= 1 (0 only at a "
                                 "switch)"))
     t1, t2 = merged.get("t1_s", Site.t1_s), merged.get("t2_s", Site.t2_s)
-    own_times = {"t1_s", "t2_s"} & set(own)
+    own_times = {"t1_s", "t2_s"} & (set(own) | set(from_profile))
     if own_times and not invalid & {"t1_s", "t2_s"} and t2 > 2.0 * t1:
-        problems.append(Problem(f"{path}.t2_s", f"{format_value(t2)}{_origin('t2_s', own)} is "
+        problems.append(Problem(f"{path}.t2_s", f"{format_value(t2)}{_origin('t2_s', own, from_profile)} is "
                                 f"not allowed; expected t2_s <= 2 * t1_s = {2.0 * t1:g} s "
-                                f"(T2 <= 2 T1; t1_s = {t1:g}{_origin('t1_s', own)})"))
+                                f"(T2 <= 2 T1; t1_s = {t1:g}{_origin('t1_s', own, from_profile)})"))
 
 
 def _default_coherence(defaults: Mapping[str, Any], problems: list[Problem]) -> None:
-    """T2 <= 2 T1 for the defaults alone, reported once at [defaults.site] (sites that set
-    neither time themselves inherit the problem and are not reported again)."""
-    t1, t2 = defaults.get("t1_s", Site.t1_s), defaults.get("t2_s", Site.t2_s)
+    """T2 <= 2 T1 for the defaults alone (with the profile they name), reported once at
+    [defaults.site] (sites that set neither time themselves inherit the problem and are not
+    reported again)."""
+    from_profile = site_values(defaults.get("profile"))
+    base = {**from_profile, **defaults}
+    t1, t2 = base.get("t1_s", Site.t1_s), base.get("t2_s", Site.t2_s)
     if t2 > 2.0 * t1:
         key = "t2_s" if "t2_s" in defaults else "t1_s"
-        built_in = {k: "" if k in defaults else " (built-in default)" for k in ("t1_s", "t2_s")}
+        built_in = {k: "" if k in defaults else f" (from profile {defaults['profile']!r})" if k in from_profile
+                    else " (built-in default)" for k in ("t1_s", "t2_s")}
         problems.append(Problem(f"defaults.site.{key}", f"t2_s = {t2:g}{built_in['t2_s']} and "
                                 f"t1_s = {t1:g}{built_in['t1_s']} are not allowed together; "
                                 "expected t2_s <= 2 * t1_s (T2 <= 2 T1)"))
@@ -123,12 +136,13 @@ def parse_links(value: Any, defaults: Mapping[str, Any], roles: Mapping[str, str
     edges: list[tuple[str, str]] = []
     pairs: dict[frozenset[str], int] = {}
     tables = table_list(value, "links", problems)
+    base = {**link_values(defaults.get("profile")), **defaults}
     for i, table in tables:
         path = f"links[{i}]"
         count = len(problems)
         own = check_table(table, path, LINK_FIELDS, problems, extra=("ends",))
         ends = _ends(table, f"{path}.ends", roles, problems)
-        merged = {**defaults, **own}
+        merged = {**base, **link_values(own.get("profile")), **own}
         if "length_km" not in merged and "length_km" not in table:
             problems.append(_missing(path, "length_km", LINK_FIELDS["length_km"]))
         if ends is not None:

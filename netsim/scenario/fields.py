@@ -8,6 +8,7 @@ in :mod:`netsim.scenario.model`, so the contract and the loader cannot disagree.
 
 from __future__ import annotations
 
+import difflib
 import math
 import numbers
 from collections.abc import Mapping
@@ -15,6 +16,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from netsim.errors import format_value
+from netsim.scenario.profiles import profile_names
 from netsim.scenario.model import (
     PURIFICATION_PROTOCOLS,
     ROUTING_POLICIES,
@@ -29,6 +31,7 @@ __all__ = [
     "LINK_DEFAULTABLE",
     "LINK_FIELDS",
     "NETWORK_FIELDS",
+    "PROFILE_SPEC",
     "PROTOCOL_FIELDS",
     "SITE_DEFAULTABLE",
     "SITE_FIELDS",
@@ -75,6 +78,8 @@ class Spec:
         The unit shown in messages and in the reference (also part of the key name).
     required : bool
         Whether the key must be present (after ``[defaults]`` are applied).
+    suggest : bool
+        For a ``choice``: add the closest allowed string to the complaint (did you mean).
     """
 
     kind: str
@@ -85,6 +90,7 @@ class Spec:
     choices: tuple[str, ...] = ()
     unit: str = ""
     required: bool = False
+    suggest: bool = False
 
     def allowed(self) -> str:
         """What is allowed, as a phrase: ``a number in (0, 1]``, ``one of 'a', 'b'``."""
@@ -131,6 +137,10 @@ class Spec:
         if self.kind == "int" and isinstance(value, float) and math.isfinite(value):
             # shown as written: "4 is not allowed; expected an integer" would puzzle the reader
             return f"{value!r} is not allowed; expected {self.allowed()}, written without a decimal point"
+        if self.kind == "choice" and self.suggest and isinstance(value, str):
+            close = difflib.get_close_matches(value, list(self.choices), n=1, cutoff=0.5)
+            if close:
+                return f"{format_value(value)} is not allowed; did you mean {close[0]!r}? expected {self.allowed()}"
         return f"{format_value(value)} is not allowed; expected {self.allowed()}"
 
     def convert(self, value: Any) -> Any:
@@ -149,6 +159,9 @@ def _prob(low_open: bool = False, high_open: bool = False) -> Spec:
 def _positive(unit: str) -> Spec:
     return Spec("real", 0.0, None, low_open=True, unit=unit)
 
+
+#: ``profile = "NAME"``: one of the bundled hardware profiles (``netsim profiles`` lists them).
+PROFILE_SPEC = Spec("choice", choices=profile_names(), suggest=True)
 
 NETWORK_FIELDS: Mapping[str, Spec] = {
     "name": Spec("str", required=True),
@@ -174,6 +187,7 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "memory_transfer_error": _prob(),
     "photon_indistinguishability": _prob(),
     "attempt_dephasing": _prob(),
+    "profile": PROFILE_SPEC,
 }
 
 #: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
@@ -189,6 +203,7 @@ LINK_FIELDS: Mapping[str, Spec] = {
     "bright_state_population": _prob(low_open=True, high_open=True),
     "pair_probability": _prob(low_open=True, high_open=True),
     "phase_noise_rad": Spec("real", 0.0, None, unit="rad"),
+    "profile": PROFILE_SPEC,
 }
 
 #: Keys of a ``[[demands]]`` table (``users`` is checked apart: two site names).
