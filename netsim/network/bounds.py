@@ -157,51 +157,47 @@ def expected_delivery_rounds(round_probabilities: Sequence[float], swap_successe
 
 
 def _arrival_matrix(n: int, i: int, q: float, success: Sequence[float]) -> scipy.sparse.csr_array:
-    """Transition of the present-hop set when hop ``i`` (empty) may gain a pair and be joined."""
+    """Transition of the present-hop set when hop ``i`` (empty) may gain a pair and be joined.
+
+    Rows and columns are bit masks of the hops holding pairs. Rows where hop ``i`` already holds
+    a pair are the identity (they are never used: the caller applies this only to rounds in which
+    hop ``i`` started empty).
+    """
     size = 1 << n
-    out = _Triplets()
+    m = np.arange(size, dtype=np.int64)
     bit = 1 << i
-    for m in range(size):
-        if m & bit:
-            out[m, m] += 1.0  # not reached for rows where hop i started empty
-            continue
-        out[m, m] += 1.0 - q
-        left = _run(m, i - 1, -1, n)
-        right = _run(m, i + 1, +1, n)
-        s_left, s_right = success[i], success[i + 1]
-        if not left and not right:
-            out[m, m | bit] += q
-        elif left and not right:
-            out[m, m | bit] += q * s_left
-            out[m, m & ~left] += q * (1 - s_left)
-        elif right and not left:
-            out[m, m | bit] += q * s_right
-            out[m, m & ~right] += q * (1 - s_right)
-        else:
-            out[m, m & ~left] += q * (1 - s_left)
-            out[m, m | bit] += q * s_left * s_right
-            out[m, m & ~left & ~right] += q * s_left * (1 - s_right)
-    return out.matrix(size)
+    below = bit - 1
+    # the run of present hops ending at hop i - 1: from just above the highest empty hop below i
+    holes = ~m & below
+    top_hole = np.where(holes > 0, np.frexp(holes.astype(float))[1] - 1, -1)
+    left = below & ~((np.int64(1) << (top_hole + 1)) - 1)
+    # the run of present hops starting at hop i + 1: as many as the trailing ones above i
+    above = m >> (i + 1)
+    first_hole = (~above) & (above + 1)
+    right = (first_hole - 1) << (i + 1)
+    right &= size - 1
+    s_left, s_right = success[i], success[i + 1]
+    has_l, has_r = left != 0, right != 0
+    rows, cols, vals = [], [], []
 
+    def add(mask: np.ndarray, to: np.ndarray, p: np.ndarray | float) -> None:
+        weight = np.broadcast_to(np.asarray(p, dtype=float), mask.shape)[mask]
+        keep = weight != 0.0
+        rows.append(m[mask][keep])
+        cols.append(to[mask][keep])
+        vals.append(weight[keep])
 
-class _Triplets(dict[tuple[int, int], float]):
-    """Sparse matrix entries gathered as ``out[row, col] += value``."""
-
-    def __missing__(self, key: tuple[int, int]) -> float:
-        return 0.0
-
-    def matrix(self, size: int) -> scipy.sparse.csr_array:
-        rows, cols = zip(*self.keys())
-        return scipy.sparse.csr_array((list(self.values()), (rows, cols)), shape=(size, size))
-
-
-def _run(mask: int, start: int, step: int, n: int) -> int:
-    """Bit mask of the run of present hops beginning at ``start`` and going in ``step``'s direction."""
-    run, k = 0, start
-    while 0 <= k < n and mask >> k & 1:
-        run |= 1 << k
-        k += step
-    return run
+    empty = (m & bit) == 0
+    add(~empty, m, 1.0)
+    add(empty, m, 1.0 - q)
+    joined = m | bit
+    p_join = np.where(has_l, s_left, 1.0) * np.where(has_r, s_right, 1.0)
+    add(empty, joined, q * p_join)
+    add(empty & has_l, m & ~left, q * (1 - s_left))
+    add(empty & has_r & ~has_l, m & ~right, q * (1 - s_right))
+    add(empty & has_l & has_r, m & ~left & ~right, q * s_left * (1 - s_right))
+    return scipy.sparse.csr_array((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                                  shape=(size, size))
 
 
 def expected_delivery_s(round_probabilities: Sequence[float], periods_s: Sequence[float],
