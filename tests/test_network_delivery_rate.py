@@ -103,3 +103,33 @@ def test_matches_the_event_engine(n: int, q: float, s: float) -> None:
 def test_matches_the_event_engine_grid(n: int, s: float) -> None:
     """Two to six hops, BSM success 0.5-1: the event engine within 2 % of the exact rate."""
     _check_against_engine(n, 0.35, s, pairs=20_000)
+
+
+def _line_scenario(n: int, bsm: float) -> dict[str, object]:
+    return {"network": {"name": "line"},
+            "defaults": {"site": {"bsm_success_probability": bsm, "memory_slots": 2}, "link": {"scheme": "two_photon"}},
+            "sites": [{"name": f"Quarry {i}", "role": "user" if i in (0, n) else "repeater"} for i in range(n + 1)],
+            "links": [{"ends": [f"Quarry {i}", f"Quarry {i + 1}"], "length_km": 2.0} for i in range(n)],
+            "demands": [{"users": ["Quarry 0", f"Quarry {n}"]}]}
+
+
+def test_budget_uses_the_exact_rate_and_says_when_it_cannot() -> None:
+    """The budget's expected rate is 1 / expected_delivery_s for three hops at s = 0.6; beyond
+    MAX_EXACT_SWAP_HOPS hops with uncertain swaps it gives no figure and a warning (sure swaps
+    stay exact at any length)."""
+    from netsim.network import budget
+    from netsim.network.graph import build_graph
+    from netsim.network.routing import find_route, route_hops
+    from netsim.scenario import load_data
+
+    scenario = load_data(_line_scenario(3, 0.6))
+    hops = route_hops(build_graph(scenario), find_route(build_graph(scenario), "Quarry 0", "Quarry 3"))
+    q = [h.physics.round_success_probability for h in hops]
+    tau = [h.physics.attempt_period_s for h in hops]
+    row = budget(scenario).demands[0]
+    assert row["expected_rate_per_s"] == pytest.approx(1 / expected_delivery_s(q, tau, [0.6, 0.6]), rel=1e-12)
+    long = budget(load_data(_line_scenario(MAX_EXACT_SWAP_HOPS + 2, 0.6)))
+    assert long.demands[0]["expected_rate_per_s"] is None
+    assert any("no expected rate" in w and f"exact up to {MAX_EXACT_SWAP_HOPS}" in w for w in long.warnings)
+    sure = budget(load_data(_line_scenario(MAX_EXACT_SWAP_HOPS + 2, 1.0)))
+    assert sure.demands[0]["expected_rate_per_s"] > 0
