@@ -72,10 +72,29 @@ def test_route_fidelity_below_min_fidelity_is_flagged(tmp_path: Path, capsys: py
 
 
 def test_memory_shorter_than_the_wait_is_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    """100 km two-photon: pairs take ~1 s to herald, far longer than t2_s = 1 ms."""
-    main(["check", str(write(tmp_path, length=100.0, t2=1e-3))])
+    """Two hops of 50 km two-photon: each pair takes ~1 s to herald, far longer than t2_s = 1 ms,
+    and the first pair decays while the second is made."""
+    two_hops = LONG_LINK.format(length=50.0, min_fidelity=0.5, t2=1e-3, scheme="two_photon").replace(
+        '[[links]]\nends = ["Kettleby Lab", "Lowen Lab"]',
+        '[[sites]]\nname = "Mire Relay"\nrole = "repeater"\nt2_s = 1e-3\nmemory_slots = 2\n\n'
+        '[[links]]\nends = ["Kettleby Lab", "Mire Relay"]\nlength_km = 50.0\nscheme = "two_photon"\n\n'
+        '[[links]]\nends = ["Mire Relay", "Lowen Lab"]')
+    path = tmp_path / "two.toml"
+    path.write_text(two_hops)
+    main(["check", str(path)])
     out = capsys.readouterr().out
     assert "longer than t2_s = 0.001 s at Kettleby Lab" in out
+
+
+def test_a_lone_link_is_judged_by_its_herald_delay(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """One hop stores nothing while it waits; only the herald delay counts: 100 km two-photon
+    returns the herald after 2 x 50 km / (c / 1.468) ~ 0.49 ms (common practice), against t2_s =
+    1 ms (more than a tenth of it) and 1 s (no warning)."""
+    main(["check", str(write(tmp_path, length=100.0, t2=1e-3))])
+    out = capsys.readouterr().out
+    assert "all hops are ready" not in out and "the herald returns after 0.000" in out
+    main(["check", str(write(tmp_path, length=100.0, t2=1.0))])
+    assert "herald returns" not in capsys.readouterr().out
 
 
 def test_unentangled_heralds_are_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

@@ -166,3 +166,22 @@ def test_cli_ctrl_c_writes_what_was_delivered(tmp_path: Path) -> None:
     data_out = json.loads((tmp_path / "results" / "orrin" / "run.json").read_text())
     assert data_out["interrupted"] is True
     assert data_out["demands"][0]["delivered_pairs"] > 0
+
+
+def test_coherent_information_does_not_depend_on_which_user_is_written_first() -> None:
+    """One-way hashing may run from either user (Devetak & Winter, Proc. R. Soc. A 461, 207,
+    2005), so a demand written A-B or B-A reports the same coherent information: the better end.
+    Here one user's memory decays fast (T1 = 0.5 ms), so the two directions differ by about 3x."""
+    def scenario(users: list[str]) -> Any:
+        return load_data({"network": {"name": "either end"},
+                          "sites": [{"name": "Fenwick", "role": "user", "t1_s": 0.0005, "t2_s": 0.001},
+                                    {"name": "Garrow", "role": "user", "t1_s": 100.0, "t2_s": 1.0}],
+                          "links": [{"ends": ["Fenwick", "Garrow"], "length_km": 20.0, "scheme": "single_photon",
+                                     "bright_state_population": 0.03, "midpoint_fraction": 0.2}],
+                          "demands": [{"users": users}]})
+
+    one, other = (engine.run(scenario(u), pairs=300, seed=4).to_dict()["demands"][0]
+                  for u in (["Fenwick", "Garrow"], ["Garrow", "Fenwick"]))
+    assert one["coherent_information_mean"] > 0.1
+    assert one["coherent_information_mean"] == pytest.approx(other["coherent_information_mean"], rel=1e-9)
+    assert one["distillable_ebits_per_s"] == pytest.approx(other["distillable_ebits_per_s"], rel=1e-9)

@@ -71,7 +71,8 @@ def test_amplitude_damping_quantum_capacity_via_coherent_information(eta: float)
 
     def ic(p: float) -> float:
         psi = np.array([math.sqrt(1 - p), 0, 0, math.sqrt(p)], dtype=complex)
-        return float(qinfo.coherent_information(channel.apply(np.outer(psi, psi.conj()), qubit=1)))
+        # a channel quantity: the output B is the receiving end, so I(A>B) = S(B) - S(AB)
+        return float(qinfo.coherent_information(channel.apply(np.outer(psi, psi.conj()), qubit=1), end="b"))
 
     for p in (0.2, 0.5, 0.8):
         closed = max(0.0, float(binary_entropy(eta * p) - binary_entropy((1 - eta) * p)))

@@ -91,6 +91,36 @@ def test_coherent_information_of_werner_states() -> None:
     assert f_threshold == pytest.approx(0.8107, abs=1e-4)
 
 
+def test_coherent_information_from_either_end_against_qutip() -> None:
+    # Reference library: QuTiP entropies. One-way hashing may run from either end (Devetak &
+    # Winter, Proc. R. Soc. A 461, 207, 2005): "a" is S(A) - S(AB), "b" is S(B) - S(AB), and the
+    # default is the larger, so it does not depend on which user is written first.
+    rho = random_density_matrices(30, 4, seed=91, rank=2)
+    swap = np.eye(4)[[0, 2, 1, 3]]
+    for r in rho:
+        q = qutip.Qobj(r, dims=[[2, 2], [2, 2]])
+        s_ab = qutip.entropy_vn(q, base=2)
+        to_a = max(0.0, qutip.entropy_vn(q.ptrace(0), base=2) - s_ab)
+        to_b = max(0.0, qutip.entropy_vn(q.ptrace(1), base=2) - s_ab)
+        assert float(qinfo.coherent_information(r, end="a")) == pytest.approx(to_a, abs=1e-9)
+        assert float(qinfo.coherent_information(r, end="b")) == pytest.approx(to_b, abs=1e-9)
+        assert float(qinfo.coherent_information(r)) == pytest.approx(max(to_a, to_b), abs=1e-9)
+        assert float(qinfo.coherent_information(swap @ r @ swap)) == pytest.approx(max(to_a, to_b), abs=1e-9)
+
+
+def test_coherent_information_of_a_damped_pair_is_best_from_the_receiver() -> None:
+    # Phi+ with qubit B damped (eta = 0.6): S(B) - S(AB) = h(eta/2) - h((1 - eta)/2) (Giovannetti &
+    # Fazio, PRA 71, 032314, 2005) and S(A) - S(AB) = 1 - h((1 - eta)/2), the reverse coherent
+    # information (Garcia-Patron, Pirandola, Lloyd & Shapiro, PRL 102, 210501, 2009 (memory)).
+    eta = 0.6
+    rho = qinfo.amplitude_damping(1 - eta).apply(qinfo.bell_state("phi+"), qubit=1)
+    h = qinfo.binary_entropy
+    assert float(qinfo.coherent_information(rho, end="b")) == pytest.approx(float(h(eta / 2) - h((1 - eta) / 2)), abs=1e-12)
+    assert float(qinfo.coherent_information(rho)) == pytest.approx(float(1 - h((1 - eta) / 2)), abs=1e-12)
+    with pytest.raises(ParameterError, match="end"):
+        qinfo.coherent_information(rho, end="left")
+
+
 def _root(fn, lo: float, hi: float) -> float:  # type: ignore[no-untyped-def]
     from scipy.optimize import brentq
 

@@ -130,7 +130,10 @@ def link_table(args: argparse.Namespace) -> Any:
     notes = [(f"attenuation {args.attenuation_db_per_km:g} dB/km, extra loss {args.extra_loss_db:g} dB; "
               f"channel: depolarizing p = {args.depolarizing:g} at the sender, then {loss}."),
              ("PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
-              "entanglement and secret key without repeaters; it does not bound classical capacity.")]
+              "entanglement and secret key without repeaters; it does not bound classical capacity."),
+             ("Coherent info: of a Bell pair with one qubit sent through the span, the larger of "
+              "S(B) - S(AB) and S(A) - S(AB) (one-way hashing from either end; Devetak & Winter, "
+              "Proc. R. Soc. A 461, 207, 2005).")]
     return Table("Single fibre span", columns, rows, notes)
 
 

@@ -14,6 +14,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from netsim import qinfo
+from netsim.qinfo.states import partial_trace
 
 __all__ = ["Z95", "ChainRun", "PairMetrics", "StopRule", "phi_plus_fidelity"]
 
@@ -35,7 +36,8 @@ class PairMetrics:
     sum_fidelity_sq: float = 0.0
     sum_eof: float = 0.0
     sum_eof_sq: float = 0.0
-    sum_coherent: float = 0.0
+    sum_coherent: float = 0.0  # S(B) - S(AB) per pair, clipped at 0 (hashing with messages A -> B)
+    sum_coherent_a: float = 0.0  # S(A) - S(AB) per pair, clipped at 0 (hashing with messages B -> A)
     sum_state: NDArray[np.complex128] = field(default_factory=lambda: np.zeros((4, 4), dtype=complex))
     first_delivery_s: float = math.nan
     last_delivery_s: float = math.nan
@@ -46,13 +48,17 @@ class PairMetrics:
             return
         f = phi_plus_fidelity(states)
         e = np.asarray(qinfo.entanglement_of_formation(states), dtype=float)
-        c = np.asarray(qinfo.coherent_information(states), dtype=float)
+        # coherent information towards each end (qinfo.coherent_information), S(AB) found once
+        s_ab = np.asarray(qinfo.von_neumann_entropy(states), dtype=float)
+        c = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 1)), dtype=float) - s_ab, 0.0, None)
+        c_a = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 0)), dtype=float) - s_ab, 0.0, None)
         self.n += len(states)
         self.sum_fidelity += float(f.sum())
         self.sum_fidelity_sq += float((f * f).sum())
         self.sum_eof += float(e.sum())
         self.sum_eof_sq += float((e * e).sum())
         self.sum_coherent += float(c.sum())
+        self.sum_coherent_a += float(c_a.sum())
         self.sum_state = self.sum_state + states.sum(axis=0)
         if math.isnan(self.first_delivery_s):
             self.first_delivery_s = float(delivered_s[0])

@@ -8,7 +8,9 @@ Definitions (all per demand):
   ``eof_ci95``; ``eof_of_mean_state`` (of the average delivered state).
 - ``ebits_per_s`` = rate x ``eof_mean`` (entanglement of formation delivered per second);
   ``coherent_information_mean`` (hashing lower bound on distillable entanglement per pair) and
-  ``distillable_ebits_per_s`` = rate x coherent information of the average state.
+  ``distillable_ebits_per_s`` = rate x coherent information of the average state. One-way
+  hashing may run from either user: each figure is the larger of S(B) - S(AB) (messages from A
+  to B) and S(A) - S(AB) (from B to A), the direction chosen once for the whole stream.
 - ``key_fraction`` of the average state (entanglement-based BB84: errors are estimated over the
   whole stream) and ``key_rate_per_s`` = rate x key fraction.
 - The analytic figures of :func:`netsim.network.budget` sit beside them (``expected_*``,

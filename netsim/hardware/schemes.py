@@ -10,8 +10,11 @@ Every scheme computes, per mode and per attempt:
 Derived here (dark counts): the heralded state is the mixture weighted by how often each kind of
 herald happens, rho = (p_true rho_true + p_false rho_false) / (p_true + p_false), so the fidelity
 drops from F_true to (p_true F_true + p_false F_false) / (p_true + p_false): dark counts matter
-when ``p_false`` is not small against ``p_true``, i.e. on long, lossy links. Dark counts are kept
-to leading order in the dark-count probability d per detector per window.
+when ``p_false`` is not small against ``p_true``, i.e. on long, lossy links. Detectors are
+threshold detectors with dark-count probability d per window, treated exactly: a detector that
+receives light it detects with probability P clicks with probability 1 - (1 - P)(1 - d), and a
+pattern that needs a detector silent carries (1 - d) for it (checked in the tests against an
+explicit enumeration of click patterns and against QuTiP models).
 
 Per-arm efficiency: P = (emission or memory efficiency) x (fibre transmissivity of the arm) x
 (detector efficiency). States are written in the frame where the target is Phi+ (the Pauli
@@ -158,19 +161,24 @@ def two_photon_herald(path: LightPath) -> Herald:
     (Barrett & Kok: eta^2 / 2 for equal arms), with the heralded state a Bell state (Phi+ after
     correction) for indistinguishable photons.
 
-    Dark counts (derived here, to leading order in d; checked against a first-principles QuTiP
-    model in the tests). Each spin emits in round 1 or round 2 with probability 1/2.
+    Dark counts (derived here, exact for threshold detectors; checked against an enumeration of
+    click patterns and a first-principles QuTiP model in the tests). Each spin emits in round 1
+    or round 2 with probability 1/2; a herald needs exactly one of the two detectors of each
+    round to click. A round holding one photon gives that with
+    o(P) = (1 - d) [P + 2 d (1 - P)] (the photon's detector clicks, the other stays dark, or
+    the photon is lost and exactly one detector fires dark); an empty round with o(0) = 2 d (1 - d).
 
-    - A true herald is lost when the idle detector of either round fires too (both detectors
-      of a round click): p_true = P_a P_b / 2 x (1 - 2d).
-    - Photons in different rounds, only one detected (1/2 [P_a (1 - P_b) + P_b (1 - P_a)]): a
-      dark click in the empty round (2 d) completes the pattern; the lost photon revealed its
-      spin, leaving anti-correlated spins ((|01><01| + |10><10|)/2 before the correction),
-      F = 1/2.
-    - Photons in the same round, at least one detected (1/2 [1 - (1 - P_a)(1 - P_b)]; two
-      photons bunch into one detector): a dark click in the other round (2 d) heralds the
-      correlated spins ((|00><00| + |11><11|)/2 before the correction), F = 0.
-    - Nothing detected ((1 - P_a)(1 - P_b)): two dark clicks ((2 d)^2) herald I/4.
+    - Photons in different rounds (1/2), both detected and no extra click: the true herald,
+      p_true = P_a P_b (1 - d)^2 / 2.
+    - Photons in different rounds, at least one lost and its round completed by a dark click:
+      1/2 (1 - d)^2 [2 d P_a (1 - P_b) + 2 d P_b (1 - P_a) + 4 d^2 (1 - P_a)(1 - P_b)]; the lost
+      photon revealed its spin, leaving anti-correlated spins ((|01><01| + |10><10|)/2 before
+      the correction), F = 1/2.
+    - Photons in the same round (1/2): the full round gives one click with
+      (1 - d) [P_a (1 - P_b) + P_b (1 - P_a) + P_a P_b (1 + V) / 2 + 2 d (1 - P_a)(1 - P_b)] (two
+      detected photons leave by one port with (1 + V) / 2, Hong, Ou & Mandel 1987; V = 1 gives
+      1 - (1 - P_a)(1 - P_b)) and the empty round with 2 d (1 - d); the heralded spins are
+      correlated ((|00><00| + |11><11|)/2 before the correction), F = 0.
 
     States are written after the Psi -> Phi+ correction. Two preparations per attempt (one per
     round).
@@ -182,15 +190,17 @@ def two_photon_herald(path: LightPath) -> Herald:
     splitter.
     """
     pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
-    d2 = 2.0 * path.first.dark_count_probability
-    w_anti = d2 * (pa * (1 - pb) + pb * (1 - pa)) / 2.0
-    w_corr = d2 * (1 - (1 - pa) * (1 - pb)) / 2.0
-    w_none = d2 ** 2 * (1 - pa) * (1 - pb)
-    raw_false = (w_anti * np.diag([0.5, 0.0, 0.0, 0.5]) + w_corr * np.diag([0.0, 0.5, 0.5, 0.0])
-                 + w_none * MIXED)
+    d = path.first.dark_count_probability
+    keep = (1 - d) ** 2
+    w_anti = keep * (2 * d * (pa * (1 - pb) + pb * (1 - pa)) + 4 * d * d * (1 - pa) * (1 - pb)) / 2.0
+    vis = pair_visibility(path.site_a, path.site_b)
+    # the full round: one detected photon, or both bunched ((1 + V) / 2), or a lone dark click
+    one_click = pa * (1 - pb) + pb * (1 - pa) + pa * pb * (1 + vis) / 2 + 2 * d * (1 - pa) * (1 - pb)
+    w_corr = 2 * d * keep * one_click / 2.0
+    raw_false = w_anti * np.diag([0.5, 0.0, 0.0, 0.5]) + w_corr * np.diag([0.0, 0.5, 0.5, 0.0])
     period = _station_timing(path, preparations=2)
-    rho_true = _scale_coherence(PHI_PLUS, 0, 3, pair_visibility(path.site_a, path.site_b))
-    return Herald(pa * pb / 2.0 * (1 - d2), rho_true, w_anti + w_corr + w_none, _normalised(raw_false),
+    rho_true = _scale_coherence(PHI_PLUS, 0, 3, vis)
+    return Herald(pa * pb / 2.0 * keep, rho_true, w_anti + w_corr, _normalised(raw_false),
                   period, period)
 
 
@@ -218,9 +228,10 @@ def single_photon_herald(path: LightPath) -> Herald:
     F = (1 - alpha)(1 + c) / (2 - alpha P (3 - V) / 2), to first order in P
     F ~ (1 - alpha)(1 + c) / 2 (Hermans et al. 2022, Methods (memory)).
 
-    Dark counts: a true herald is rejected when the other detector fires too (factor 1 - d);
-    with no photon detected ((1 - alpha P_a)(1 - alpha P_b)), one of the two detectors fires
-    dark, p_false = 2 d (1 - alpha P_a)(1 - alpha P_b) (leading order in d); the memories are
+    Dark counts (exact for threshold detectors): a true herald is rejected when the other
+    detector fires too (factor 1 - d); with no photon detected ((1 - alpha P_a)(1 - alpha P_b)),
+    exactly one of the two detectors fires dark, p_false = 2 d (1 - d)(1 - alpha P_a)(1 - alpha P_b);
+    the memories are
     then in the no-click state, diagonal with weights (1 - alpha)^2 |00>,
     alpha (1 - alpha)(1 - P_a) |10>, alpha (1 - alpha)(1 - P_b) |01>,
     alpha^2 (1 - P_a)(1 - P_b) |11> (derived here).
@@ -240,7 +251,7 @@ def single_photon_herald(path: LightPath) -> Herald:
                         alpha * (1 - alpha) * (1 - pa), alpha ** 2 * (1 - pa) * (1 - pb)])
     d = path.first.dark_count_probability
     period = _station_timing(path)
-    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * float(np.trace(no_click)),
+    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * (1 - d) * float(np.trace(no_click)),
                   _flip_b(_normalised(no_click)),
                   period, period)
 
@@ -256,8 +267,10 @@ def midpoint_source_herald(path: LightPath) -> Herald:
     photon stored per side, p_2 (1 - (1 - P_a)^2)(1 - (1 - P_b)^2), give with probability 1/2
     photons of the same pair (Phi+) and otherwise halves of different pairs (I/4).
 
-    Dark counts (one herald detector per memory): one side stored a photon and the other side's
-    detector fires dark, d p_1 (P_a (1 - P_b) + P_b (1 - P_a)), plus two dark clicks d^2 (1 - p_1);
+    Dark counts (one herald detector per memory, exact for threshold detectors given the pair
+    numbers kept): a herald needs both detectors to click; with n pairs side x detects a photon
+    with D_x = 1 - (1 - P_x)^n, and a herald not made by photons alone has probability
+    p_n [(1 - (1 - D_a)(1 - d))(1 - (1 - D_b)(1 - d)) - D_a D_b] for n = 0, 1, 2;
     the memories are then uncorrelated, rho_false = I/4 (approximation).
 
     Attempt period (derived here): the next photon must not reach a memory before that memory has
@@ -272,7 +285,10 @@ def midpoint_source_herald(path: LightPath) -> Herald:
     w_two = p2 * (1 - (1 - pa) ** 2) * (1 - (1 - pb) ** 2)
     rho_true = _normalised(w_one * PHI_PLUS + w_two * (PHI_PLUS + MIXED) / 2.0)
     d = path.first.dark_count_probability
-    p_false = d * p1 * (pa * (1 - pb) + pb * (1 - pa)) + d ** 2 * (1 - p1)
+    p_false = 0.0
+    for p_n, n in ((1 / (1 + mu), 0), (p1, 1), (p2, 2)):
+        da, db = 1 - (1 - pa) ** n, 1 - (1 - pb) ** n
+        p_false += p_n * ((1 - (1 - da) * (1 - d)) * (1 - (1 - db) * (1 - d)) - da * db)
     f, v = path.station_fraction, FIBRE_SPEED_KM_PER_S
     prep = max(path.site_a.attempt_prep_time_s, path.site_b.attempt_prep_time_s)
     period = prep + 2.0 * max(f, 1 - f) * path.length_km / v
@@ -286,7 +302,8 @@ def direct_herald(path: LightPath) -> Herald:
     The emitter's memory emits a photon entangled with it; the receiving memory absorbs it and
     a detector heralds storage. Derived here: p_true = e_emit x eta x m_receive x eta_det over
     the whole path (no station), heralded state Phi+. A dark count of the storage herald
-    (d (1 - p_true)) leaves the emitter's qubit unpaired: rho_false = I/4 (approximation).
+    (d (1 - p_true), exact for a threshold detector) leaves the emitter's qubit unpaired:
+    rho_false = I/4 (approximation).
     The emitter must hear the outcome before it re-initialises: period = preparation + 2 L / v.
     The emitter is the path's reference end (:attr:`LightPath.is_canonical`): for a lone link,
     its ``a`` end as written in the scenario.

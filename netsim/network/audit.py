@@ -46,7 +46,7 @@ def audit(scenario: Scenario, result: Budget | None = None) -> list[str]:
     result = result if result is not None else budget(scenario)
     graph = build_graph(scenario)
     warnings = _link_warnings(scenario, graph) + _path_warnings(scenario, graph)
-    warnings += _isolated_sites(scenario, graph) + _memory_warnings(scenario, result)
+    warnings += _isolated_sites(scenario, graph) + _memory_warnings(scenario, result, graph)
     return warnings + list(result.warnings)
 
 
@@ -112,14 +112,27 @@ def _isolated_sites(scenario: Scenario, graph: nx.Graph) -> list[str]:
             for i, s in enumerate(scenario.sites) if graph.degree(s.name) == 0]
 
 
-def _memory_warnings(scenario: Scenario, result: Budget) -> list[str]:
-    """Demands whose hops take longer to be ready than the memories on the route stay coherent."""
+def _memory_warnings(scenario: Scenario, result: Budget, graph: nx.Graph) -> list[str]:
+    """Demands whose hops take longer to be ready than the memories on the route stay coherent.
+
+    A one-hop demand stores nothing while it waits (its pair goes to the users when heralded):
+    only its herald delay, during which both memories hold their qubits, is compared with T2."""
+    from netsim.network.routing import route_hops
+
     out = []
     for demand, row in zip(scenario.demands, result.demands):
         if not row.get("route"):
             continue
         memories = [scenario.site(n) for n in row["route_sites"]]
         shortest = min((s for s in memories if s.role != "switch"), key=lambda s: s.t2_s)
+        if row.get("hops") == 1:
+            herald_s = route_hops(graph, row["route_sites"])[0].physics.herald_delay_s
+            if herald_s > 0.1 * shortest.t2_s:
+                out.append(f"demands[{demand.index}] ({demand.name}): the herald returns after "
+                           f"{herald_s:.3g} s, more than a tenth of t2_s = {shortest.t2_s:g} s at "
+                           f"{shortest.name}; memory decay (ignored by the budget) lowers the "
+                           "delivered fidelity")
+            continue
         if row["expected_wait_s"] > shortest.t2_s:
             out.append(f"demands[{demand.index}] ({demand.name}): all hops are ready after "
                        f"{row['expected_wait_s']:.3g} s on average, longer than t2_s = "

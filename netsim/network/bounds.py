@@ -12,9 +12,13 @@ from collections.abc import Sequence
 
 import networkx as nx
 import numpy as np
+import scipy.sparse
 
 __all__ = [
+    "MAX_EXACT_SWAP_HOPS",
     "chain_fidelity",
+    "expected_delivery_rounds",
+    "expected_delivery_s",
     "expected_rounds",
     "expected_wait_s",
     "multipath_capacity",
@@ -89,6 +93,127 @@ def expected_wait_s(round_probabilities: Sequence[float], periods_s: Sequence[fl
     per_round = [-math.expm1((tau / t) * math.log1p(-q)) if q < 1 else 1.0
                  for q, t in zip(round_probabilities, periods_s)]
     return tau * expected_rounds(per_round)
+
+
+#: Largest chain whose delivery time with uncertain swaps is computed exactly (2^n Markov states).
+MAX_EXACT_SWAP_HOPS = 10
+
+
+def expected_delivery_rounds(round_probabilities: Sequence[float], swap_successes: Sequence[float]) -> float:
+    """Expected synchronous rounds until a chain delivers one end-to-end pair, swaps uncertain.
+
+    The protocol is swap as soon as possible with unlimited memory time: hop i succeeds with
+    probability q_i per round and keeps its pair; an inner site j (1 <= j <= n - 1) Bell-measures
+    as soon as it holds both of its qubits and joins the two segments with probability s_j, else
+    both segments are lost and their hops start again the next round. Pairs that arrive in the
+    same round are joined one at a time from left to right, the new pair first with its left
+    neighbour and then (if that worked) with its right one, as the simulation does.
+
+    Method (written here for netsim): after each round no two segments touch, so the state is the
+    set of hops that hold a pair (2^n states; the maximal runs are the segments). One round is
+    the product over hops i of "if hop i was empty at the start of the round, it succeeds with
+    q_i and is joined to its neighbours"; the delivery time is the absorption time of this
+    Markov chain, E[N] = (I - Q)^-1 1 from the empty chain (Q: transitions among the states
+    that have not delivered), solved densely up to :data:`MAX_EXACT_SWAP_HOPS` hops. With sure
+    swaps it reduces to the maximum of geometric variables, :func:`expected_rounds`
+    (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019, who also treat uncertain swaps with
+    a Markov chain for a different swapping order); with two hops it is E[max] / s_1, the renewal
+    form. Raises ``ValueError`` beyond :data:`MAX_EXACT_SWAP_HOPS` hops with an uncertain swap.
+
+    References
+    ----------
+    E. Shchukin, F. Schmidt and P. van Loock, "Waiting time in quantum repeaters with
+    probabilistic entanglement swapping", Phys. Rev. A 100, 032322 (2019).
+    """
+    q = [float(x) for x in round_probabilities]
+    s = [float(x) for x in swap_successes]
+    n = len(q)
+    if len(s) != max(n - 1, 0):
+        raise ValueError(f"{n} hops need {max(n - 1, 0)} swap success probabilities, got {len(s)}")
+    if n == 0:
+        return 0.0
+    if any(x <= 0.0 for x in q) or any(x <= 0.0 for x in s):
+        return math.inf
+    if all(x >= 1.0 for x in s):
+        return expected_rounds(q)
+    if n > MAX_EXACT_SWAP_HOPS:
+        raise ValueError(f"{n} hops with uncertain swaps: the exact delivery time is computed up to "
+                         f"{MAX_EXACT_SWAP_HOPS} hops")
+    size = 1 << n
+    masks = np.arange(size)
+    # site j joins hops j - 1 and j; success[j] for j = 1..n - 1
+    success = [1.0, *s, 1.0]
+    # rows: the state at the start of the round; columns: the state so far in the round
+    dist = np.eye(size)
+    for i in range(n):
+        step = _arrival_matrix(n, i, q[i], success)
+        rows = (masks >> i) & 1 == 0
+        dist[rows] = (step.T @ dist[rows].T).T
+    full = size - 1
+    transient = masks != full
+    a = np.eye(size - 1) - dist[np.ix_(transient, transient)]
+    rounds = np.linalg.solve(a, np.ones(size - 1))
+    return float(rounds[0])
+
+
+def _arrival_matrix(n: int, i: int, q: float, success: Sequence[float]) -> scipy.sparse.csr_array:
+    """Transition of the present-hop set when hop ``i`` (empty) may gain a pair and be joined.
+
+    Rows and columns are bit masks of the hops holding pairs. Rows where hop ``i`` already holds
+    a pair are the identity (they are never used: the caller applies this only to rounds in which
+    hop ``i`` started empty).
+    """
+    size = 1 << n
+    m = np.arange(size, dtype=np.int64)
+    bit = 1 << i
+    below = bit - 1
+    # the run of present hops ending at hop i - 1: from just above the highest empty hop below i
+    holes = ~m & below
+    top_hole = np.where(holes > 0, np.frexp(holes.astype(float))[1] - 1, -1)
+    left = below & ~((np.int64(1) << (top_hole + 1)) - 1)
+    # the run of present hops starting at hop i + 1: as many as the trailing ones above i
+    above = m >> (i + 1)
+    first_hole = (~above) & (above + 1)
+    right = (first_hole - 1) << (i + 1)
+    right &= size - 1
+    s_left, s_right = success[i], success[i + 1]
+    has_l, has_r = left != 0, right != 0
+    rows, cols, vals = [], [], []
+
+    def add(mask: np.ndarray, to: np.ndarray, p: np.ndarray | float) -> None:
+        weight = np.broadcast_to(np.asarray(p, dtype=float), mask.shape)[mask]
+        keep = weight != 0.0
+        rows.append(m[mask][keep])
+        cols.append(to[mask][keep])
+        vals.append(weight[keep])
+
+    empty = (m & bit) == 0
+    add(~empty, m, 1.0)
+    add(empty, m, 1.0 - q)
+    joined = m | bit
+    p_join = np.where(has_l, s_left, 1.0) * np.where(has_r, s_right, 1.0)
+    add(empty, joined, q * p_join)
+    add(empty & has_l, m & ~left, q * (1 - s_left))
+    add(empty & has_r & ~has_l, m & ~right, q * (1 - s_right))
+    add(empty & has_l & has_r, m & ~left & ~right, q * s_left * (1 - s_right))
+    return scipy.sparse.csr_array((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))),
+                                  shape=(size, size))
+
+
+def expected_delivery_s(round_probabilities: Sequence[float], periods_s: Sequence[float],
+                        swap_successes: Sequence[float]) -> float:
+    """Expected time for a chain to deliver one end-to-end pair (see :func:`expected_delivery_rounds`).
+
+    Hop-specific periods are handled as in :func:`expected_wait_s`: every hop is clocked at the
+    slowest period tau, in which hop i succeeds with 1 - (1 - q_i)^(tau / tau_i). The expected
+    rate of the chain is 1 / E[T] (one pair per delivery; a new one starts from empty hops).
+    """
+    if not periods_s:
+        return 0.0
+    tau = max(periods_s)
+    per_round = [-math.expm1((tau / t) * math.log1p(-q)) if q < 1 else 1.0
+                 for q, t in zip(round_probabilities, periods_s)]
+    return tau * expected_delivery_rounds(per_round, swap_successes)
 
 
 def werner_parameter(fidelity: float) -> float:

@@ -8,6 +8,7 @@ here is simulated.
 
 from __future__ import annotations
 
+import functools
 import itertools
 import math
 from collections.abc import Mapping
@@ -19,7 +20,9 @@ import networkx as nx
 from netsim.errors import ParameterError
 from netsim.hardware.fibre import loss_db
 from netsim.network.bounds import (
+    MAX_EXACT_SWAP_HOPS,
     chain_fidelity,
+    expected_delivery_s,
     expected_wait_s,
     multipath_capacity,
     single_path_capacity,
@@ -71,9 +74,11 @@ LINK_NOTES = (
 
 DEMAND_NOTES = (
     ("Expected rate and fidelity: swap as soon as possible, unlimited memory time, memory decay "
-    "ignored, hop pairs twirled to Werner states (waiting time after Shchukin, Schmidt & van "
-    "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities); the time "
-    "to signal swap outcomes is not counted."),
+    "ignored, hop pairs twirled to Werner states. All hops ready: the wait for every hop to hold "
+    "a pair (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019). Expected rate: one over the "
+    "expected time to deliver, a failed Bell measurement losing both segments it joins (exact "
+    f"Markov chain over which hops hold pairs, up to {MAX_EXACT_SWAP_HOPS} hops when a swap can "
+    "fail); the time to signal swap outcomes is not counted."),
     ("Photon indistinguishability and phase noise are in the link fidelity; memory transfer "
     "errors in the expected fidelity (each multiplies the Werner parameter by 1 - p). Not in "
     "these closed forms (simulate for them): hops that take turns at a site with fewer "
@@ -187,11 +192,14 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
     hops = route_hops(graph, route)
     row["profile"] = route_profiles(graph, route, hops)
     row.update(_chain_figures(graph, route, hops))
-    warning = ""
+    warnings = []
+    if row["expected_rate_per_s"] is None:
+        warnings.append(f"demands[{demand.index}] ({demand.name}): no expected rate: {len(hops)} hops with "
+                        f"Bell measurements that can fail (exact up to {MAX_EXACT_SWAP_HOPS}); simulate it")
     if row["expected_fidelity"] < demand.min_fidelity:
-        warning = (f"demands[{demand.index}] ({demand.name}): expected fidelity "
-                   f"{row['expected_fidelity']:.3g} is below min_fidelity {demand.min_fidelity:g}")
-    return row, warning
+        warnings.append(f"demands[{demand.index}] ({demand.name}): expected fidelity "
+                        f"{row['expected_fidelity']:.3g} is below min_fidelity {demand.min_fidelity:g}")
+    return row, "; ".join(warnings)
 
 
 def route_profiles(graph: nx.Graph, route: list[str], hops: list[Hop]) -> str:
@@ -208,13 +216,23 @@ def _hop_bound_bits_per_s(hop: Hop) -> float:
     return physics.bound_bits_per_use * physics.modes / physics.attempt_period_s
 
 
+@functools.lru_cache(maxsize=256)
+def _delivery_s(q: tuple[float, ...], periods_s: tuple[float, ...], swaps: tuple[float, ...]) -> float | None:
+    """Expected delivery time, or None for a chain too long for the exact method."""
+    try:
+        return expected_delivery_s(q, periods_s, swaps)
+    except ValueError:
+        return None
+
+
 def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[str, Any]:
     from netsim.network.channel import werner_eof_ebits
 
     inner = [graph.nodes[h.b]["site"] for h in hops[:-1]]
-    wait = expected_wait_s([h.physics.round_success_probability for h in hops],
-                           [h.physics.attempt_period_s for h in hops])
-    bsm = math.prod(s.bsm_success_probability for s in inner)
+    q = [h.physics.round_success_probability for h in hops]
+    periods = [h.physics.attempt_period_s for h in hops]
+    wait = expected_wait_s(q, periods)
+    deliver = _delivery_s(tuple(q), tuple(periods), tuple(s.bsm_success_probability for s in inner))
     # a memory transfer depolarizes its qubit: on a Werner pair it multiplies w by (1 - p) like a gate error
     ends = [graph.nodes[site]["site"] for h in hops for site in (h.a, h.b)]
     errors = [s.gate_error for s in inner] + [s.memory_transfer_error for s in ends]
@@ -224,7 +242,8 @@ def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[s
         "route": " > ".join(route), "route_sites": list(route), "hops": len(hops),
         "length_km": sum(e["length_km"] for e in edges), "loss_db": sum(e["loss_db"] for e in edges),
         "expected_wait_s": wait,
-        "expected_rate_per_s": bsm / wait if wait > 0 and math.isfinite(wait) else 0.0,
+        "expected_rate_per_s": (None if deliver is None else
+                                1.0 / deliver if deliver > 0 and math.isfinite(deliver) else 0.0),
         "expected_fidelity": fidelity, "expected_eof_ebits": werner_eof_ebits(fidelity),
         "route_bound_bits_per_s": min(_hop_bound_bits_per_s(h) for h in hops),
     }

@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from netsim.errors import ParameterError
 from netsim.qinfo.entropy import binary_entropy, von_neumann_entropy
 from netsim.qinfo.states import as_states, is_xstate, partial_trace
 
@@ -213,22 +214,34 @@ def entanglement_of_formation(rho: ArrayLike) -> NDArray[np.float64]:
     return binary_entropy((1.0 + np.sqrt(np.clip(1.0 - c * c, 0.0, 1.0))) / 2.0)
 
 
-def coherent_information(rho: ArrayLike, dims: tuple[int, int] = (2, 2)) -> NDArray[np.float64]:
-    """Coherent information S(B) - S(AB) in bits, B the second subsystem, clipped at 0.
+def coherent_information(rho: ArrayLike, dims: tuple[int, int] = (2, 2),
+                         end: str = "either") -> NDArray[np.float64]:
+    """Coherent information in bits, clipped at 0: the one-way hashing lower bound on the
+    distillable entanglement (ebits per pair).
 
-    The one-way hashing lower bound on the distillable entanglement (ebits per pair).
+    One-way hashing can be run from either end of the pair: with the classical messages going
+    from A to B it achieves I(A>B) = S(B) - S(AB), from B to A I(B>A) = S(A) - S(AB). By default
+    (``end="either"``) the larger of the two is returned, since the users may choose the
+    direction; ``end="b"`` gives S(B) - S(AB) (B the second subsystem) and ``end="a"`` gives
+    S(A) - S(AB).
 
     Parameters
     ----------
     rho : array of shape (..., dA dB, dA dB)
     dims : (int, int)
         (dA, dB); (2, 3) for a pair whose second qubit went through an erasure channel.
+    end : {"either", "a", "b"}
 
     References
     ----------
     I. Devetak and A. Winter, "Distillation of secret key and entanglement from quantum
     states", Proc. R. Soc. A 461, 207 (2005).
     """
+    if end not in ("either", "a", "b"):
+        raise ParameterError("end", end, "one of either, a, b")
     r = as_states(rho, "rho", int(dims[0]) * int(dims[1]))
+    s_ab = von_neumann_entropy(r)
     s_b = von_neumann_entropy(partial_trace(r, 1, tuple(dims)))
-    return np.clip(s_b - von_neumann_entropy(r), 0.0, None)
+    s_a = von_neumann_entropy(partial_trace(r, 0, tuple(dims)))
+    towards = {"b": s_b, "a": s_a, "either": np.maximum(s_a, s_b)}[end]
+    return np.clip(towards - s_ab, 0.0, None)
