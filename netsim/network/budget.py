@@ -53,6 +53,8 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("expected_fidelity_no_decay", "fidelity without memory decay"),
     Column("expected_storage_s", "expected storage (qubit-s/pair)"),
     Column("expected_eof_ebits", "expected EoF (ebit)"), Column("min_fidelity", "min fidelity"),
+    Column("meets_fidelity", "meets F (est.)"), Column("min_rate_per_s", "min rate (pairs/s)"),
+    Column("meets_rate", "meets rate (est.)"),
     Column("route_bound_bits_per_s", "route bound (bit/s)"),
     Column("single_path_bits_per_s", "single-path bound (bit/s)"),
     Column("multipath_bits_per_s", "multipath bound (bit/s)"),
@@ -169,7 +171,8 @@ def _physics_figures(physics: Any) -> dict[str, Any]:
 def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str, Any], str]:
     relays = relay_graph(graph, demand.a, demand.b)
     row: dict[str, Any] = {
-        "demand": demand.name, "min_fidelity": demand.min_fidelity,
+        "demand": demand.name, "min_fidelity": demand.min_fidelity, "min_rate_per_s": demand.min_rate_per_s,
+        "meets_fidelity": None, "meets_rate": None,
         "single_path_bits_per_s": single_path_capacity(relays, demand.a, demand.b),
         "multipath_bits_per_s": multipath_capacity(relays, demand.a, demand.b),
     }
@@ -180,10 +183,19 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
         return row, f"demands[{demand.index}] ({demand.name}): {exc}"
     hops = route_hops(graph, route)
     row.update(_chain_figures(graph, route, hops))
-    warning = ""
-    if row["expected_fidelity"] < demand.min_fidelity:
-        warning = (f"demands[{demand.index}] ({demand.name}): expected fidelity "
-                   f"{row['expected_fidelity']:.3g} is below min_fidelity {demand.min_fidelity:g}")
+    fid, rate = row["expected_fidelity"], row["expected_rate_per_s"]
+    row["meets_fidelity"] = bool(fid >= demand.min_fidelity) if math.isfinite(fid) else False
+    if demand.min_rate_per_s is not None:
+        row["meets_rate"] = bool(row["meets_fidelity"] and rate >= demand.min_rate_per_s)
+    problems = []
+    if not row["meets_fidelity"]:
+        problems.append(f"expected fidelity {fid:.3g} (memory decay included) is below min_fidelity "
+                        f"{demand.min_fidelity:g}")
+    if row["meets_rate"] is False:
+        useful = rate if row["meets_fidelity"] else 0.0
+        problems.append(f"expected useful rate {useful:.3g} pairs/s is below min_rate_per_s "
+                        f"{demand.min_rate_per_s:g}")
+    warning = f"demands[{demand.index}] ({demand.name}): " + "; ".join(problems) if problems else ""
     return row, warning
 
 
