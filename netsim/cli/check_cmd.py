@@ -15,11 +15,15 @@ def register(subparsers: Any) -> None:
         "check", help="validate a scenario file and summarise it",
         description="Validate a scenario file; print counts of sites, links and demands and "
                     "planning warnings (links beyond what their scheme can bridge, routes below "
-                    "a demand's min_fidelity). Exit 0 if valid, 2 if not; with --strict, 1 when "
+                    "a demand's min_fidelity or min_rate_per_s, purification that hurts) and, for a "
+                    "demand below its min_fidelity, what would fix it. Exit 0 if valid, 2 if not; with --strict, 1 when "
                     "there are warnings.")
     parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
     parser.add_argument("--format", choices=("text", "json"), default="text", help="output format (default text)")
     parser.add_argument("--strict", action="store_true", help="exit with code 1 when there are warnings")
+    parser.add_argument("--no-scan", action="store_true",
+                        help="for a demand below its min_fidelity, advise from closed forms only (skip "
+                             "the short simulations that look for the best cut-off)")
     parser.set_defaults(func=run)
 
 
@@ -30,10 +34,15 @@ def run(args: argparse.Namespace) -> int:
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
     facts, warnings = summary(scenario), audit(scenario)
+    from netsim.engine.advice import demand_advice
+
+    advice = demand_advice(scenario, simulate=not args.no_scan)
     if args.format == "json":
-        print(json.dumps({"file": args.file, "valid": True, **facts, "warnings": warnings}, indent=2))
+        print(json.dumps({"file": args.file, "valid": True, **facts, "warnings": warnings, "advice": advice},
+                         indent=2))
     else:
         print(_text(args.file, facts, warnings))
+        print("\n".join(f"  fix: {line}" for line in advice)) if advice else None
     return 1 if (args.strict and warnings) else 0
 
 

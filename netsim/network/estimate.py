@@ -58,6 +58,7 @@ from netsim.errors import ParameterError
 from netsim.hardware.fibre import propagation_delay_s
 from netsim.network.bounds import expected_wait_s
 from netsim.network.routing import Hop, register_policy, route_hops
+from netsim.scenario.model import Site
 
 __all__ = ["HighestRate", "RouteEstimate", "estimate_hops", "estimate_route", "expected_storage_s"]
 
@@ -128,9 +129,14 @@ def expected_storage_s(q: Sequence[float], period_s: Sequence[float], herald_s: 
     return out
 
 
-def estimate_hops(graph: nx.Graph, hops: Sequence[Hop]) -> RouteEstimate:
-    """:func:`estimate_route` for a route already split into heralded hops."""
-    sites = [graph.nodes[h.a]["site"] for h in hops] + [graph.nodes[hops[-1].b]["site"]]
+def estimate_hops(graph: nx.Graph, hops: Sequence[Hop], sites: Sequence[Site] | None = None) -> RouteEstimate:
+    """:func:`estimate_route` for a route already split into heralded hops.
+
+    ``sites`` (the ``len(hops) + 1`` memory sites in route order) replaces the graph's sites, to
+    ask what other memories would give.
+    """
+    if sites is None:
+        sites = [graph.nodes[h.a]["site"] for h in hops] + [graph.nodes[hops[-1].b]["site"]]
     q = [h.physics.round_success_probability for h in hops]
     period = [h.physics.attempt_period_s for h in hops]
     herald = [h.physics.herald_delay_s for h in hops]
@@ -163,7 +169,7 @@ def estimate_route(graph: nx.Graph, route: Sequence[str]) -> RouteEstimate:
     return estimate_hops(graph, route_hops(graph, route))
 
 
-def _delivered(hops: Sequence[Hop], sites: Sequence, storage: Sequence[tuple[float, float]]) -> np.ndarray:  # type: ignore[type-arg]
+def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tuple[float, float]]) -> np.ndarray:
     out = None
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
