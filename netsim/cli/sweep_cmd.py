@@ -124,7 +124,25 @@ def _dry_run(args: argparse.Namespace, plan: Any, point_function: Any, store: Pa
         print(describe_point(point, statuses.get(point.point_id)))
     print(f"{len(plan.points)} points, {len(todo)} to run; store {store}"
           f"{'' if statuses else ' (not created yet)'}")
+    _print_routes_and_overrides(plan, dry_run=True)
     return _print_estimate(args, plan, point_function, len(todo))
+
+
+def _print_routes_and_overrides(plan: Any, dry_run: bool) -> None:
+    """Route changes across the plan (dry run: each; a run: how many) and the sites or links a
+    defaults.* axis does not reach."""
+    from netsim.sweep.routes import route_changes, unswept_overrides
+
+    for line in unswept_overrides(plan):
+        print(f"not swept: {line}")
+    changes = route_changes(plan)
+    if dry_run:
+        print(f"route changes against the base scenario: {len(changes) or 'none'}")
+        for line in changes:
+            print(f"  route: {line}")
+    elif changes:
+        print(f"{len(changes)} point-demand pairs take another route than the base scenario "
+              "(--dry-run lists them; the report marks them)")
 
 
 def _print_estimate(args: argparse.Namespace, plan: Any, point_function: Any, count: int) -> int:
@@ -172,6 +190,7 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     store = Path(args.store) if args.store else default_store_path(plan)
     if args.dry_run:
         return _dry_run(args, plan, point_function, store)
+    _print_routes_and_overrides(plan, dry_run=False)
     executor = make_executor(point_function, args.workers, args.cluster)
     summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
                         point_timeout_s=args.point_timeout_s, quiet=args.quiet)
