@@ -68,7 +68,9 @@ def _add_run_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--store", default=None, metavar="PATH",
                         help="result store (default results/<scenario>/sweep.sqlite)")
     parser.add_argument("--dry-run", action="store_true",
-                        help="list the points and estimate the run time from one calibration point; run nothing else")
+                        help="list the points, the route changes against the base scenario and the entries a "
+                             "defaults.* axis does not reach, and estimate the run time from one calibration "
+                             "point; run nothing else")
     parser.add_argument("--retry-failed", action="store_true", help="run only the points recorded as failed")
     parser.add_argument("--point-timeout-s", type=float, default=None, metavar="T",
                         help="record a point as failed when it runs longer than T seconds")
