@@ -34,7 +34,7 @@ def test_budget_text_fits_a_terminal_and_says_how_to_see_more(capsys: pytest.Cap
     assert max(len(line) for line in out.splitlines()) <= TERMINAL
     assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (bit/s)" in out
     assert "Holevo capacity (bit/use)" not in out
-    assert "--wide prints all 20" in out and "--wide prints all 14" in out
+    assert "--wide prints all 20" in out and "--wide prints all 19" in out
 
 
 def test_budget_wide_prints_every_column(capsys: pytest.CaptureFixture[str]) -> None:

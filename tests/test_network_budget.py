@@ -76,7 +76,7 @@ def test_demand_expectation_at_a_worked_point() -> None:
     assert row["route"] == "Hollin Lab > Ives Relay > Jura Lab"
     assert row["hops"] == 2
     assert row["expected_rate_per_s"] == pytest.approx(0.5 / (tau * (3 - 2 * q) / (q * (2 - q))), rel=1e-9)
-    assert row["expected_fidelity"] == pytest.approx((1 + 3 * w * w * 0.98) / 4, rel=1e-12)
+    assert row["expected_fidelity_no_decay"] == pytest.approx((1 + 3 * w * w * 0.98) / 4, rel=1e-12)
     # Wootters (PRL 80, 2245, 1998): a Werner state with F > 1/2 has C = 2F - 1.
     c = 2 * row["expected_fidelity"] - 1
     h = (1 + math.sqrt(1 - c * c)) / 2

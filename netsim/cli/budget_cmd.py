@@ -13,8 +13,8 @@ _FORMATS = ("table", "csv", "md", "tex", "json")
 #: Columns the text format prints by default (``--wide``: all), by the table's first column key.
 COMPACT = {
     "link": ("profile", "scheme", "length_km", "loss_db", "pair_rate_per_s", "fidelity", "eof_ebits", "plob_bits_per_s"),
-    "demand": ("profile", "hops", "length_km", "loss_db", "expected_rate_per_s", "expected_fidelity", "min_fidelity",
-               "multipath_bits_per_s"),
+    "demand": ("profile", "hops", "expected_rate_per_s", "expected_fidelity", "min_fidelity", "meets_fidelity",
+               "meets_rate", "multipath_bits_per_s"),
 }
 
 

@@ -15,8 +15,9 @@ def register(subparsers: Any) -> None:
         "check", help="validate a scenario file and summarise it",
         description="Validate a scenario file; print counts of sites, links and demands and "
                     "planning warnings (links beyond what their scheme can bridge, routes below "
-                    "a demand's min_fidelity) and the hardware profiles it names (--profiles: "
-                    "their values and sources). Exit 0 if valid, 2 if not; with --strict, 1 when "
+                    "a demand's min_fidelity or min_rate_per_s, purification that hurts), for a demand "
+                    "below its min_fidelity what would fix it, and the hardware profiles it names "
+                    "(--profiles: their values and sources). Exit 0 if valid, 2 if not; with --strict, 1 when "
                     "there are warnings.")
     parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
     parser.add_argument("--format", choices=("text", "json"), default="text", help="output format (default text)")
@@ -24,6 +25,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--profiles", action="store_true",
                         help="explain the hardware profiles the scenario uses: every value with its source, "
                              "the sites and links resting on it and the values the file overrides")
+    parser.add_argument("--no-scan", action="store_true",
+                        help="for a demand below its min_fidelity, advise from closed forms only (skip "
+                             "the short simulations that look for the best cut-off)")
     parser.set_defaults(func=run)
 
 
@@ -37,14 +41,20 @@ def run(args: argparse.Namespace) -> int:
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
     facts, warnings = summary(scenario), audit(scenario)
+    from netsim.engine.advice import demand_advice
+
     usage = scenario_usage(scenario)
+    advice = demand_advice(scenario, simulate=not args.no_scan)
     if args.format == "json":
         extra: dict[str, Any] = {"profiles": usage}
         if args.profiles:
             extra["profile_values"] = {u["profile"]: profile_record(u["profile"]) for u in usage}
-        print(json.dumps({"file": args.file, "valid": True, **facts, **extra, "warnings": warnings}, indent=2))
+        print(json.dumps({"file": args.file, "valid": True, **facts, **extra, "warnings": warnings,
+                          "advice": advice}, indent=2))
     else:
         print(_text(args.file, facts, warnings, usage))
+        if advice:
+            print("\n".join(f"  fix: {line}" for line in advice))
         if args.profiles:
             print("".join("\n" + render(t, "table") for t in usage_tables(scenario)), end="")
     return 1 if (args.strict and warnings) else 0

@@ -59,7 +59,7 @@ def _printed(tables: list[Any], args: argparse.Namespace) -> list[Any]:
     if args.no_simulate:
         return tables
     n = len(args.files)
-    compact = {"demand": [k for i in range(n) for k in (f"r{i}", f"r{i}_ci", f"f{i}")] + ["winner"]}
+    compact = {"demand": [k for i in range(n) for k in (f"r{i}", f"f{i}", f"m{i}")] + ["winner"]}
     return [choose_columns(tables[0], args.format, args, compact, None), *tables[1:]]
 
 

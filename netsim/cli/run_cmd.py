@@ -14,8 +14,8 @@ _FORMATS = ("table", "csv", "md", "json")
 
 #: Columns the text format prints by default (``--wide``: all), by the table's first column key.
 COMPACT = {
-    "demand": ("profile", "delivered_pairs", "rate_per_s", "rate_ci95", "fidelity_mean", "fidelity_ci95", "eof_mean",
-               "key_rate_per_s"),
+    "demand": ("profile", "delivered_pairs", "rate_per_s", "rate_ci95", "fidelity_mean", "fidelity_ci95", "meets_fidelity",
+               "useful_rate_per_s", "meets_rate"),
 }
 
 

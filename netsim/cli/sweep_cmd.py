@@ -68,7 +68,9 @@ def _add_run_options(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--store", default=None, metavar="PATH",
                         help="result store (default results/<scenario>/sweep.sqlite)")
     parser.add_argument("--dry-run", action="store_true",
-                        help="list the points and estimate the run time from one calibration point; run nothing else")
+                        help="list the points, the route changes against the base scenario and the entries a "
+                             "defaults.* axis does not reach, and estimate the run time from one calibration "
+                             "point; run nothing else")
     parser.add_argument("--retry-failed", action="store_true", help="run only the points recorded as failed")
     parser.add_argument("--point-timeout-s", type=float, default=None, metavar="T",
                         help="record a point as failed when it runs longer than T seconds")
@@ -124,7 +126,25 @@ def _dry_run(args: argparse.Namespace, plan: Any, point_function: Any, store: Pa
         print(describe_point(point, statuses.get(point.point_id)))
     print(f"{len(plan.points)} points, {len(todo)} to run; store {store}"
           f"{'' if statuses else ' (not created yet)'}")
+    _print_routes_and_overrides(plan, dry_run=True)
     return _print_estimate(args, plan, point_function, len(todo))
+
+
+def _print_routes_and_overrides(plan: Any, dry_run: bool) -> None:
+    """Route changes across the plan (dry run: each; a run: how many) and the sites or links a
+    defaults.* axis does not reach."""
+    from netsim.sweep.routes import route_changes, unswept_overrides
+
+    for line in unswept_overrides(plan):
+        print(f"not swept: {line}")
+    changes = route_changes(plan)
+    if dry_run:
+        print(f"route changes against the base scenario: {len(changes) or 'none'}")
+        for line in changes:
+            print(f"  route: {line}")
+    elif changes:
+        print(f"{len(changes)} point-demand pairs take another route than the base scenario "
+              "(--dry-run lists them; the report marks them)")
 
 
 def _print_estimate(args: argparse.Namespace, plan: Any, point_function: Any, count: int) -> int:
@@ -172,6 +192,7 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     store = Path(args.store) if args.store else default_store_path(plan)
     if args.dry_run:
         return _dry_run(args, plan, point_function, store)
+    _print_routes_and_overrides(plan, dry_run=False)
     executor = make_executor(point_function, args.workers, args.cluster)
     summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
                         point_timeout_s=args.point_timeout_s, quiet=args.quiet)

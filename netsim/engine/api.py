@@ -26,7 +26,7 @@ from netsim.errors import ParameterError
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
 from netsim.scenario.profiles import profile_label
 
-__all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule"]
+__all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule", "verdicts"]
 
 
 def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:
@@ -58,7 +58,8 @@ def chains_from_scenario(scenario: Scenario) -> list[Chain]:
         hops = route_hops(graph, route)
         sites = tuple(graph.nodes[h.a]["site"] for h in hops) + (graph.nodes[hops[-1].b]["site"],)
         specs = tuple(HopSpec(f"{h.a}-{h.b}", h.physics, tuple(link.name for link in h.links)) for h in hops)
-        chains.append(Chain(d.name, sites, specs, index=d.index, pairs=d.pairs, duration_s=d.duration_s))
+        chains.append(Chain(d.name, sites, specs, index=d.index, pairs=d.pairs, duration_s=d.duration_s,
+                            min_fidelity=d.min_fidelity, route=tuple(route)))
     return chains
 
 
@@ -195,10 +196,13 @@ def demand_row(chain: Chain, run: ChainRun) -> dict[str, Any]:
     eof_mean_state = float(qinfo.entanglement_of_formation(mean_state)) if ok else math.nan
     coh_mean_state = float(qinfo.coherent_information(mean_state)) if ok else math.nan
     key = float(qinfo.key_fraction(mean_state)) if ok else math.nan
+    useful, useful_ci = m.useful_rate(run.simulated_time_s)
     return {
-        "demand": chain.name, "route": list(chain.site_names), "hops": chain.n_hops, "engine": run.engine,
-        "delivered_pairs": m.n, "simulated_time_s": run.simulated_time_s,
+        "demand": chain.name, "route": list(chain.route or chain.site_names), "hops": chain.n_hops,
+        "engine": run.engine, "delivered_pairs": m.n, "simulated_time_s": run.simulated_time_s,
         "rate_per_s": rate, "rate_ci95": rate_ci,
+        "useful_pairs": m.n_useful, "useful_fraction": m.n_useful / m.n if ok else math.nan,
+        "useful_rate_per_s": useful, "useful_rate_ci95": useful_ci,
         "fidelity_mean": fid, "fidelity_ci95": fid_ci, "eof_mean": eof, "eof_ci95": eof_ci,
         "eof_of_mean_state": eof_mean_state, "ebits_per_s": rate * eof if ok else 0.0,
         # one direction for the whole stream, whichever end serves it better
@@ -207,6 +211,25 @@ def demand_row(chain: Chain, run: ChainRun) -> dict[str, Any]:
         "key_fraction": key, "key_rate_per_s": rate * key if ok else 0.0,
         "first_delivery_s": m.first_delivery_s,
         "interrupted": run.interrupted,
+    }
+
+
+def verdicts(row: dict[str, Any], min_fidelity: float | None, min_rate_per_s: float | None) -> dict[str, Any]:
+    """The requirement columns of a simulated demand row.
+
+    ``meets_fidelity``: the mean delivered fidelity reaches ``min_fidelity``; ``meets_rate``: the
+    useful-pair rate (pairs whose own fidelity reaches ``min_fidelity``) reaches
+    ``min_rate_per_s``. Each is None where no requirement is set or nothing was delivered to judge.
+    Judged on the point estimates; the 95 % intervals beside them say how sure the verdict is.
+    """
+    fid = row.get("fidelity_mean")
+    has_fid = min_fidelity is not None and fid is not None and math.isfinite(fid)
+    useful = row.get("useful_rate_per_s")
+    return {
+        "min_fidelity": min_fidelity, "min_rate_per_s": min_rate_per_s,
+        "meets_fidelity": bool(fid >= min_fidelity) if has_fid else None,  # type: ignore[operator]
+        "meets_rate": (bool(useful >= min_rate_per_s) if min_rate_per_s is not None and useful is not None
+                       else None),
     }
 
 
@@ -295,8 +318,9 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
                          purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
-    for row, extra in zip(rows, _analytic(scenario)):
+    for row, extra, demand in zip(rows, _analytic(scenario), scenario.demands):
         row.update(extra)
+        row.update(verdicts(row, demand.min_fidelity, demand.min_rate_per_s))
     if ensembles:
         streams = np.random.SeedSequence([seed, 1]).spawn(len(chains))
         for row, c, ss in zip(rows, chains, streams):

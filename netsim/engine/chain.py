@@ -66,6 +66,10 @@ class Chain:
         Pairs the demand asks for (used when the run has no explicit stop rule).
     duration_s : float or None
         Simulated time the demand asks for.
+    min_fidelity : float
+        A delivered pair whose own fidelity reaches this is useful (0: every pair).
+    route : tuple of str
+        The demand's route as site names, passive switches included (empty: ``sites``).
     """
 
     name: str
@@ -74,6 +78,8 @@ class Chain:
     index: int = 0
     pairs: int | None = None
     duration_s: float | None = None
+    min_fidelity: float = 0.0
+    route: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         if len(self.hops) < 1:

@@ -120,7 +120,7 @@ class _Lane:
     def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int) -> None:
         n = chain.n_hops
         self.chain, self.rng = chain, rng
-        self.run = ChainRun.zeros(n, engine="des")
+        self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
         self.next_round = np.zeros(n)
         self.busy = [[False, False] for _ in range(n)]
         self.attempting = [False] * n

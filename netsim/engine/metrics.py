@@ -41,12 +41,19 @@ class PairMetrics:
     sum_state: NDArray[np.complex128] = field(default_factory=lambda: np.zeros((4, 4), dtype=complex))
     first_delivery_s: float = math.nan
     last_delivery_s: float = math.nan
+    #: A pair is useful when its own fidelity reaches this (the demand's ``min_fidelity``).
+    threshold: float = 0.0
+    n_useful: int = 0
+    last_useful_s: float = 0.0
+    useful_intervals_sum_s: float = 0.0
+    useful_intervals_sum_sq_s: float = 0.0
 
     def add(self, states: NDArray[np.complex128], delivered_s: NDArray[np.float64]) -> None:
-        """Add a chunk of delivered states (N, 4, 4) and their delivery times (N,)."""
+        """Add a chunk of delivered states (N, 4, 4) and their delivery times (N,), in order."""
         if len(states) == 0:
             return
         f = phi_plus_fidelity(states)
+        self._add_useful(np.asarray(delivered_s, dtype=float)[f >= self.threshold - 1e-12])
         e = np.asarray(qinfo.entanglement_of_formation(states), dtype=float)
         # coherent information towards each end (qinfo.coherent_information), S(AB) found once
         s_ab = np.asarray(qinfo.von_neumann_entropy(states), dtype=float)
@@ -63,6 +70,39 @@ class PairMetrics:
         if math.isnan(self.first_delivery_s):
             self.first_delivery_s = float(delivered_s[0])
         self.last_delivery_s = float(delivered_s[-1])
+
+    def _add_useful(self, times_s: NDArray[np.float64]) -> None:
+        if len(times_s) == 0:
+            return
+        dt = np.diff(np.concatenate([[self.last_useful_s], times_s]))
+        self.n_useful += len(times_s)
+        self.useful_intervals_sum_s += float(dt.sum())
+        self.useful_intervals_sum_sq_s += float((dt * dt).sum())
+        self.last_useful_s = float(times_s[-1])
+
+    def useful_rate(self, simulated_time_s: float) -> tuple[float, list[float]]:
+        """Useful pairs per second and its 95 % interval.
+
+        The interval inverts a normal interval on the mean time between useful deliveries (the
+        method of the rate interval). With fewer than two useful pairs it is [0, 3/t] for none
+        (the "rule of three": Hanley & Lippman-Hand, JAMA 249, 1743, 1983) and undefined
+        (NaN) above for one.
+        """
+        t = simulated_time_s
+        if t <= 0:
+            return 0.0, [0.0, math.nan]
+        n = self.n_useful
+        rate = n / t
+        if n == 0:
+            return 0.0, [0.0, 3.0 / t]
+        if n < 2:
+            return rate, [math.nan, math.nan]
+        mean = self.useful_intervals_sum_s / n
+        var = max(self.useful_intervals_sum_sq_s / n - mean * mean, 0.0) * n / (n - 1)
+        rel = Z95 * math.sqrt(var / n) / mean if mean > 0 else math.inf
+        if not math.isfinite(rel):
+            return rate, [math.nan, math.nan]
+        return rate, [rate / (1.0 + rel), rate / (1.0 - rel) if rel < 1 else math.inf]
 
     def mean_ci(self, total: float, total_sq: float) -> tuple[float, list[float]]:
         """Mean and 95 % interval of a per-pair quantity from its sum and sum of squares."""
@@ -115,9 +155,10 @@ class ChainRun:
     intervals_n: int = 0
 
     @classmethod
-    def zeros(cls, n_hops: int, engine: str) -> ChainRun:
+    def zeros(cls, n_hops: int, engine: str, min_fidelity: float = 0.0) -> ChainRun:
+        """An empty record; pairs whose fidelity reaches ``min_fidelity`` count as useful."""
         z = np.zeros(n_hops)
-        return cls(PairMetrics(), 0.0, z.copy(), z.copy(), z.copy(), z.copy(), np.zeros(n_hops + 1),
+        return cls(PairMetrics(threshold=float(min_fidelity)), 0.0, z.copy(), z.copy(), z.copy(), z.copy(), np.zeros(n_hops + 1),
                    z.copy(), np.zeros(n_hops + 1), engine=engine)
 
     def add_intervals(self, delivered_s: NDArray[np.float64], previous_s: float) -> None:

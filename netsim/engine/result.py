@@ -15,6 +15,12 @@ Definitions (all per demand):
   whole stream) and ``key_rate_per_s`` = rate x key fraction.
 - The analytic figures of :func:`netsim.network.budget` sit beside them (``expected_*``,
   ``*_bound_bits_per_s``).
+- Requirements: a pair is *useful* when its own delivered fidelity reaches the demand's
+  ``min_fidelity``. ``useful_pairs``, ``useful_fraction`` (useful / delivered),
+  ``useful_rate_per_s`` with ``useful_rate_ci95`` (from the times between useful deliveries;
+  [0, 3/t] when none was useful); ``meets_fidelity`` (mean fidelity >= ``min_fidelity``) and
+  ``meets_rate`` (useful rate >= ``min_rate_per_s``), None where no requirement is set.
+- ``route``: the demand's route as site names, passive switches included.
 
 Per link: attempt rounds, successes (heralded pairs), ``utilisation`` = time spent in attempt
 rounds / simulated time, summed over the demands routed over the link (each demand has its own
@@ -43,8 +49,13 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("demand", "demand"), Column("profile", "profile"), Column("engine", "engine"), Column("delivered_pairs", "pairs"),
     Column("simulated_time_s", "sim. time (s)"), Column("rate_per_s", "rate (pairs/s)", ci_key="rate_ci95"),
     Column("rate_ci95", "rate 95% CI (pairs/s)", ci_key="rate_ci95"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
+    Column("useful_rate_per_s", "useful rate (pairs/s)", ci_key="useful_rate_ci95"),
+    Column("useful_rate_ci95", "useful rate 95% CI (pairs/s)", ci_key="useful_rate_ci95"),
+    Column("useful_fraction", "useful share", 3), Column("min_rate_per_s", "min rate (pairs/s)"),
+    Column("meets_rate", "meets rate"),
     Column("fidelity_mean", "fidelity", ci_key="fidelity_ci95"),
     Column("fidelity_ci95", "fidelity 95% CI", ci_key="fidelity_ci95"),
+    Column("min_fidelity", "min fidelity"), Column("meets_fidelity", "meets fidelity"),
     Column("eof_mean", "EoF (ebit/pair)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
     Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (bit/s)"),
     Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),

@@ -150,7 +150,7 @@ def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator
     Stopping by time keeps only the pairs delivered by ``rule.time_s`` and reports that time;
     stopping by pairs or precision reports the time of the last delivery.
     """
-    run = ChainRun.zeros(chain.n_hops, engine="vector")
+    run = ChainRun.zeros(chain.n_hops, engine="vector", min_fidelity=chain.min_fidelity)
     carry = np.zeros(chain.n_hops)
     now = 0.0
     try:

@@ -8,7 +8,6 @@ here is simulated.
 
 from __future__ import annotations
 
-import functools
 import itertools
 import math
 from collections.abc import Mapping
@@ -22,12 +21,11 @@ from netsim.hardware.fibre import loss_db
 from netsim.network.bounds import (
     MAX_EXACT_SWAP_HOPS,
     chain_fidelity,
-    expected_delivery_s,
-    expected_wait_s,
     multipath_capacity,
     single_path_capacity,
 )
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
+from netsim.network.estimate import estimate_hops
 from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.report.table import Column, Table
@@ -55,7 +53,11 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("length_km", "length (km)"), Column("loss_db", "route loss (dB)"),
     Column("expected_wait_s", "all hops ready (s)"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
     Column("expected_fidelity", "expected fidelity"),
+    Column("expected_fidelity_no_decay", "fidelity without memory decay"),
+    Column("expected_storage_s", "expected storage (qubit-s/pair)"),
     Column("expected_eof_ebits", "expected EoF (ebit)"), Column("min_fidelity", "min fidelity"),
+    Column("meets_fidelity", "F met (est.)"), Column("min_rate_per_s", "min rate (pairs/s)"),
+    Column("meets_rate", "rate met (est.)"),
     Column("route_bound_bits_per_s", "route bound (bit/s)"),
     Column("single_path_bits_per_s", "single-path bound (bit/s)"),
     Column("multipath_bits_per_s", "multipath bound (bit/s)"),
@@ -73,18 +75,19 @@ LINK_NOTES = (
 )
 
 DEMAND_NOTES = (
-    ("Expected rate and fidelity: swap as soon as possible, unlimited memory time, memory decay "
-    "ignored, hop pairs twirled to Werner states. All hops ready: the wait for every hop to hold "
-    "a pair (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019). Expected rate: one over the "
-    "expected time to deliver, a failed Bell measurement losing both segments it joins (exact "
-    f"Markov chain over which hops hold pairs, up to {MAX_EXACT_SWAP_HOPS} hops when a swap can "
-    "fail); the time to signal swap outcomes is not counted."),
+    ("Expected rate: swap as soon as possible; one over the expected time to deliver, a failed "
+    "Bell measurement losing both segments it joins (exact Markov chain over which hops hold "
+    f"pairs, up to {MAX_EXACT_SWAP_HOPS} hops when a swap can fail; for sure swaps the wait for "
+    "every hop to hold a pair, Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019). Expected "
+    "fidelity: the hops' heralded states decohered in memory (T1, T2) for the expected storage "
+    "times of swap-asap (herald, waiting for the neighbouring hop, signalling the outcomes to the "
+    "users), then swapped with the gate errors (storage-time view after Brand, Coopmans & "
+    "Elkouss, IEEE JSAC 38, 619, 2020). Not modelled: cut-off, purification, other demands."),
     ("Photon indistinguishability and phase noise are in the link fidelity; memory transfer "
-    "errors in the expected fidelity (each multiplies the Werner parameter by 1 - p). Not in "
-    "these closed forms (simulate for them): hops that take turns at a site with fewer "
-    "communication qubits than hops (the rate assumes parallel generation, up to twice the "
-    "sequential rate for two hops), memory transfer time, and attempt dephasing (like memory "
-    "decay)."),
+    "errors in the expected fidelity (a depolarizing p on each moved qubit). Not in these closed "
+    "forms (simulate for them): hops that take turns at a site with fewer communication qubits "
+    "than hops (the rate assumes parallel generation, up to twice the sequential rate for two "
+    "hops), memory transfer time, and attempt dephasing (like memory decay)."),
     ("Route bound: weakest hop of the route (a light path through passive switches counts as one "
     "channel, split by its midpoint station if it has one); single-path: widest path; multipath: "
     "minimum cut over the links' bounds as heralded, per second (Pirandola, Commun. Phys. 2, 51, "
@@ -180,7 +183,8 @@ def _physics_figures(physics: Any) -> dict[str, Any]:
 def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str, Any], str]:
     relays = relay_graph(graph, demand.a, demand.b)
     row: dict[str, Any] = {
-        "demand": demand.name, "min_fidelity": demand.min_fidelity,
+        "demand": demand.name, "min_fidelity": demand.min_fidelity, "min_rate_per_s": demand.min_rate_per_s,
+        "meets_fidelity": None, "meets_rate": None,
         "single_path_bits_per_s": single_path_capacity(relays, demand.a, demand.b),
         "multipath_bits_per_s": multipath_capacity(relays, demand.a, demand.b),
     }
@@ -192,14 +196,23 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
     hops = route_hops(graph, route)
     row["profile"] = route_profiles(graph, route, hops)
     row.update(_chain_figures(graph, route, hops))
-    warnings = []
-    if row["expected_rate_per_s"] is None:
-        warnings.append(f"demands[{demand.index}] ({demand.name}): no expected rate: {len(hops)} hops with "
-                        f"Bell measurements that can fail (exact up to {MAX_EXACT_SWAP_HOPS}); simulate it")
-    if row["expected_fidelity"] < demand.min_fidelity:
-        warnings.append(f"demands[{demand.index}] ({demand.name}): expected fidelity "
-                        f"{row['expected_fidelity']:.3g} is below min_fidelity {demand.min_fidelity:g}")
-    return row, "; ".join(warnings)
+    fid, rate = row["expected_fidelity"], row["expected_rate_per_s"]
+    row["meets_fidelity"] = bool(fid >= demand.min_fidelity) if math.isfinite(fid) else False
+    if demand.min_rate_per_s is not None and rate is not None:
+        row["meets_rate"] = bool(row["meets_fidelity"] and rate >= demand.min_rate_per_s)
+    problems = []
+    if rate is None:
+        problems.append(f"no expected rate: {len(hops)} hops with Bell measurements that can fail (exact up "
+                        f"to {MAX_EXACT_SWAP_HOPS}); simulate it")
+    if not row["meets_fidelity"]:
+        problems.append(f"expected fidelity {fid:.3g} (memory decay included) is below min_fidelity "
+                        f"{demand.min_fidelity:g}")
+    if row.get("meets_rate") is False:
+        useful = rate if row["meets_fidelity"] else 0.0
+        problems.append(f"expected useful rate {useful:.3g} pairs/s is below min_rate_per_s "
+                        f"{demand.min_rate_per_s:g}")
+    warning = f"demands[{demand.index}] ({demand.name}): " + "; ".join(problems) if problems else ""
+    return row, warning
 
 
 def route_profiles(graph: nx.Graph, route: list[str], hops: list[Hop]) -> str:
@@ -216,34 +229,20 @@ def _hop_bound_bits_per_s(hop: Hop) -> float:
     return physics.bound_bits_per_use * physics.modes / physics.attempt_period_s
 
 
-@functools.lru_cache(maxsize=256)
-def _delivery_s(q: tuple[float, ...], periods_s: tuple[float, ...], swaps: tuple[float, ...]) -> float | None:
-    """Expected delivery time, or None for a chain too long for the exact method."""
-    try:
-        return expected_delivery_s(q, periods_s, swaps)
-    except ValueError:
-        return None
-
-
 def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[str, Any]:
     from netsim.network.channel import werner_eof_ebits
 
-    inner = [graph.nodes[h.b]["site"] for h in hops[:-1]]
-    q = [h.physics.round_success_probability for h in hops]
-    periods = [h.physics.attempt_period_s for h in hops]
-    wait = expected_wait_s(q, periods)
-    deliver = _delivery_s(tuple(q), tuple(periods), tuple(s.bsm_success_probability for s in inner))
-    # a memory transfer depolarizes its qubit: on a Werner pair it multiplies w by (1 - p) like a gate error
-    ends = [graph.nodes[site]["site"] for h in hops for site in (h.a, h.b)]
-    errors = [s.gate_error for s in inner] + [s.memory_transfer_error for s in ends]
-    fidelity = chain_fidelity([h.physics.fidelity for h in hops], errors)
+    estimate = estimate_hops(graph, hops)
+    fidelity = estimate.fidelity
     edges = [graph.edges[u, v] for u, v in itertools.pairwise(route)]
     return {
         "route": " > ".join(route), "route_sites": list(route), "hops": len(hops),
         "length_km": sum(e["length_km"] for e in edges), "loss_db": sum(e["loss_db"] for e in edges),
-        "expected_wait_s": wait,
-        "expected_rate_per_s": (None if deliver is None else
-                                1.0 / deliver if deliver > 0 and math.isfinite(deliver) else 0.0),
-        "expected_fidelity": fidelity, "expected_eof_ebits": werner_eof_ebits(fidelity),
+        "expected_wait_s": estimate.wait_s,
+        "expected_rate_per_s": estimate.rate_per_s if estimate.rate_exact else None,
+        "expected_fidelity": fidelity,
+        "expected_fidelity_no_decay": estimate.fidelity_no_decay,
+        "expected_storage_s": sum(a + b for a, b in estimate.storage_s),
+        "expected_eof_ebits": werner_eof_ebits(fidelity) if math.isfinite(fidelity) else math.nan,
         "route_bound_bits_per_s": min(_hop_bound_bits_per_s(h) for h in hops),
     }

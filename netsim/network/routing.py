@@ -73,13 +73,21 @@ class LeastLoss:
 
 
 class FewestHops:
-    """The route with the fewest links; ties broken by the smaller loss in dB."""
+    """The route with the fewest heralded hops (light paths between memory sites, what the
+    tables call hops: a passive switch adds links but no hop); ties broken by the smaller loss
+    in dB. Entering a memory site costs more than the loss of the whole network, so the hop
+    count dominates."""
 
     name = "fewest_hops"
 
     def route(self, graph: nx.Graph, a: str, b: str) -> list[str]:
         big = 1.0 + sum(d["loss_db"] for _, _, d in graph.edges(data=True))
-        return list(nx.dijkstra_path(graph, a, b, weight=lambda u, v, d: big + d["loss_db"]))
+
+        def weight(u: str, v: str, d: dict) -> float:  # type: ignore[type-arg]
+            # networkx calls weight(current, neighbour, data) on an undirected graph
+            return d["loss_db"] + (big if is_memory_site(graph.nodes[v]["site"]) else 0.0)
+
+        return list(nx.dijkstra_path(graph, a, b, weight=weight))
 
 
 class HighestBound:

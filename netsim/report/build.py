@@ -25,7 +25,8 @@ from netsim.report.units import header
 __all__ = ["DEFAULT_METRICS", "file_stem", "metric_kind", "ordered_parameters", "report_figures", "report_tables", "write_report"]
 
 #: Metrics pivoted for a sweep store by default, with the key of their 95 % interval.
-DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
+DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95",
+                                          "useful_rate_per_s": "useful_rate_ci95"}
 _MAX_GROUPS = 12
 _SUFFIX = {"table": ".txt", "csv": ".csv", "md": ".md", "tex": ".tex", "json": ".json"}
 
@@ -140,7 +141,9 @@ def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None 
     if data.kind == "store":
         chosen = ordered_parameters(data, params)
         if chosen:
-            tables.update(_sweep_tables(data, metrics or DEFAULT_METRICS, chosen))
+            stored = {k for r in data.records for k in r}
+            defaults = {m: ci for m, ci in DEFAULT_METRICS.items() if m in stored}  # older stores lack some
+            tables.update(_sweep_tables(data, metrics or defaults, chosen))
         if not data.links:
             return tables
     links = link_rows(data.links, data.run_links, _simulated_time(data))

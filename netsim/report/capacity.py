@@ -58,6 +58,13 @@ DEMAND_COLUMNS = (
     Column("rate_ci95", "rate 95% CI (pairs/s)", ci_key="rate_ci95"),
     Column("fidelity_mean", "fidelity", ci_key="fidelity_ci95"),
     Column("fidelity_ci95", "fidelity 95% CI", ci_key="fidelity_ci95"),
+    Column("min_fidelity", "min fidelity"),
+    Column("meets_fidelity", "meets fidelity"),
+    Column("useful_rate_per_s", "useful rate (pairs/s)", ci_key="useful_rate_ci95"),
+    Column("useful_rate_ci95", "useful rate 95% CI (pairs/s)", ci_key="useful_rate_ci95"),
+    Column("useful_fraction", "useful share", 3),
+    Column("min_rate_per_s", "min rate (pairs/s)"),
+    Column("meets_rate", "meets rate"),
     Column("eof_mean", "EoF (ebit/pair)", 3),
     Column("ebits_per_s", "ebits/s (ebit/s)", 3),
     Column("key_rate_per_s", "key rate (bit/s)", 3),
@@ -195,7 +202,11 @@ def _demand_row(budget: Mapping[str, Any], run: Mapping[str, Any]) -> dict[str, 
     for key in ("demand", "profile", "bound_single_path_per_s", "bound_multipath_per_s",
                 "expected_rate_per_s", "expected_fidelity"):
         row[key] = pick(budget, key) if pick(budget, key) is not None else row[key]
-    row["route"] = _route_text(pick(budget, "route") or pick(run, "route"))  # switches shown
+    for key in ("min_fidelity", "min_rate_per_s"):
+        row[key] = pick(budget, key) if pick(budget, key) is not None else row[key]
+    if not run:  # not simulated: the verdicts of the closed-form estimate (noted under the table)
+        row["meets_fidelity"], row["meets_rate"] = budget.get("meets_fidelity"), budget.get("meets_rate")
+    row["route"] = _route_text(pick(run, "route") or pick(budget, "route"))  # switches shown
     row["hops"] = _hops(budget, run)
     row["rate_to_bound"] = _ratio(row["rate_per_s"], row["bound_single_path_per_s"])
     return row
@@ -231,7 +242,11 @@ def demand_table(rows: list[dict[str, Any]], scenario_name: str) -> Table:
              ("Delivered rate / single-path bound compares pairs/s with ebit/s; above 1 for "
              "pairs too noisy to count as ebits, or on long links heralded at a midpoint "
              "station, which the whole-fibre bound treats as one channel.")]
+    notes.append("Useful pairs: those whose own fidelity reaches the demand's min fidelity; meets "
+                 "fidelity: mean fidelity >= min fidelity; meets rate: useful rate >= min rate ('-': "
+                 "no rate requirement).")
     if rows and all(r.get("rate_per_s") is None for r in rows):
-        notes.append("Not simulated, so the delivered columns are empty ('-'): report the scenario "
+        notes.append("Not simulated, so the delivered columns are empty ('-') and the verdicts are "
+                     "those of the closed-form estimate (memory decay included): report the scenario "
                      "with --simulate, or a run.json from netsim run, to fill them.")
     return Table(f"Demands: {scenario_name}", DEMAND_COLUMNS, [*rows], notes)

@@ -70,31 +70,47 @@ def bottleneck(graph: nx.Graph, a: str, b: str,
     return float(value), cut  # type: ignore[misc]
 
 
+def _useful(row: Mapping[str, Any]) -> float:
+    """The useful-pair rate of a row (the delivered rate when the row predates useful pairs)."""
+    value = row.get("useful_rate_per_s")
+    return float(value if value is not None else row["rate_per_s"])
+
+
 def _interval(row: Mapping[str, Any]) -> tuple[float, float]:
-    ci = row.get("rate_ci95")
-    rate = float(row["rate_per_s"])
-    return (float(ci[0]), float(ci[1])) if ci else (rate, rate)
+    ci = row.get("useful_rate_ci95") if row.get("useful_rate_per_s") is not None else row.get("rate_ci95")
+    rate = _useful(row)
+    if not ci or ci[0] is None or ci[1] is None:
+        return (rate, rate)
+    return (float(ci[0]), float(ci[1]))
+
+
+def meets(row: Mapping[str, Any] | None, floor: float | None = None) -> bool | None:
+    """Whether a simulated demand row meets its requirements: ``meets_fidelity`` (or the mean
+    fidelity against ``floor``) and ``meets_rate`` where a rate is required; None when not simulated."""
+    if row is None or row.get("rate_per_s") is None:
+        return None
+    fid_ok = row.get("meets_fidelity")
+    if fid_ok is None and floor is not None and row.get("fidelity_mean") is not None:
+        fid_ok = float(row["fidelity_mean"]) >= floor
+    return fid_ok is not False and row.get("meets_rate") is not False
 
 
 def _eligible(candidate: Candidate, key: frozenset[str]) -> dict[str, Any] | None:
     row = candidate.demand(key)
-    if row is None or row.get("rate_per_s") is None:
-        return None
-    floor = candidate.min_fidelity.get(key)
-    fidelity = row.get("fidelity_mean")
-    if floor is not None and fidelity is not None and float(fidelity) < floor:
+    if not meets(row, candidate.min_fidelity.get(key)):
         return None
     return row
 
 
 def winner(candidates: Sequence[Candidate], key: frozenset[str]) -> str:
-    """Who serves the demand best: highest delivered rate at or above the minimum fidelity.
+    """Who serves the demand best: highest useful-pair rate among the candidates meeting the
+    demand's requirements (minimum fidelity, and minimum rate where one is set).
 
     Returns the candidate's name, ``"tie: A, B"`` when the leader's 95 % interval overlaps the
-    runner-up's, or ``"none"`` when no candidate delivers useful pairs.
+    runner-up's, or ``"none"`` when no candidate meets the requirements.
     """
     ranked = sorted(((row, c.name) for c in candidates if (row := _eligible(c, key))),
-                    key=lambda item: float(item[0]["rate_per_s"]), reverse=True)
+                    key=lambda item: _useful(item[0]), reverse=True)
     if not ranked:
         return "none"
     if len(ranked) > 1 and _interval(ranked[1][0])[1] >= _interval(ranked[0][0])[0]:
@@ -124,6 +140,8 @@ def _side_by_side(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -
         columns += [Column(f"r{i}", f"{c.name}: rate (pairs/s)", ci_key=f"r{i}_ci"),
                     Column(f"r{i}_ci", f"{c.name}: 95% CI", ci_key=f"r{i}_ci"),
                     Column(f"f{i}", f"{c.name}: fidelity", ci_key=f"f{i}_ci"),
+                    Column(f"u{i}", f"{c.name}: useful rate (pairs/s)", ci_key=f"u{i}_ci"),
+                    Column(f"m{i}", f"{c.name}: meets"),
                     Column(f"b{i}", f"{c.name}: min-cut bound (ebit/s)", 3)]
     columns.append(Column("winner", "best"))
     rows = []
@@ -133,10 +151,14 @@ def _side_by_side(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -
             d = c.demand(key) or {}
             row.update({f"r{i}": d.get("rate_per_s"), f"r{i}_ci": d.get("rate_ci95"),
                         f"f{i}": d.get("fidelity_mean"), f"f{i}_ci": d.get("fidelity_ci95"),
+                        f"u{i}": d.get("useful_rate_per_s"), f"u{i}_ci": d.get("useful_rate_ci95"),
+                        f"m{i}": meets(c.demand(key), c.min_fidelity.get(key)),
                         f"b{i}": d.get("bound_multipath_per_s")})
         rows.append(row)
-    notes = [("best: highest delivered rate among candidates meeting the demand's minimum "
-             "fidelity; 'tie' when the 95% intervals of the two best overlap."),
+    notes = [("best: highest useful-pair rate (pairs whose own fidelity reaches the demand's minimum) "
+             "among candidates meeting the demand's requirements (minimum fidelity, and minimum rate "
+             "where set); 'tie' when the 95% intervals of the two best overlap. meets: both "
+             "requirements met."),
              "'-': the candidate has no such demand, or it was not simulated."]
     return Table("Candidates side by side, per demand", columns, [*rows], notes)
 
@@ -151,7 +173,9 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
                Column("fibre_km", "fibre (km)", 4), Column("rate_per_s", "total rate (pairs/s)", 4),
                Column("ebits_per_s", "total ebits/s (ebit/s)", 4),
                Column("bound", "sum of min-cut bounds (ebit/s)", 4),
-               Column("wins", "demands won"), Column("served", "demands meeting min fidelity")]
+               Column("wins", "demands won"), Column("served", "demands met"),
+               Column("fidelity_margin", "min fidelity margin", 3),
+               Column("rate_margin", "min useful/required rate", 3)]
     rows = []
     for c in candidates:
         fibre = math.fsum(float(d.get("length_km", 0.0)) for _, _, d in c.graph.edges(data=True))
@@ -161,8 +185,46 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
                      "ebits_per_s": _sum(c.demands, "ebits_per_s"),
                      "bound": _sum(c.demands, "bound_multipath_per_s"),
                      "wins": sum(winner(candidates, k) == c.name for k in keys),
-                     "served": sum(_eligible(c, k) is not None for k in keys)})
-    return Table("Candidates: totals", columns, [*rows])
+                     "served": sum(_eligible(c, k) is not None for k in keys),
+                     **_margins(c, keys)})
+    return Table("Candidates: totals", columns, [*rows], _verdict_notes(rows, len(keys)))
+
+
+def _margins(candidate: Candidate, keys: list[frozenset[str]]) -> dict[str, float | None]:
+    """The smallest fidelity margin (mean - min) and useful rate / min rate over the demands."""
+    fid, rate = [], []
+    for key in keys:
+        row = candidate.demand(key)
+        if not row or row.get("rate_per_s") is None:
+            continue
+        floor = row.get("min_fidelity", candidate.min_fidelity.get(key))
+        if floor is not None and row.get("fidelity_mean") is not None:
+            fid.append(float(row["fidelity_mean"]) - float(floor))
+        if row.get("min_rate_per_s") and row.get("useful_rate_per_s") is not None:
+            rate.append(float(row["useful_rate_per_s"]) / float(row["min_rate_per_s"]))
+    return {"fidelity_margin": min(fid) if fid else None, "rate_margin": min(rate) if rate else None}
+
+
+def _verdict_notes(rows: list[dict[str, Any]], total: int) -> list[str]:
+    """Which candidate meets more demands' requirements, and by how many."""
+    if not rows or all(r["served"] == 0 for r in rows) and all(r["rate_per_s"] is None for r in rows):
+        return ["Not simulated: no verdicts."]
+    ranked = sorted(rows, key=lambda r: (r["served"], r["fidelity_margin"] if r["fidelity_margin"] is not None
+                                         else -math.inf), reverse=True)
+    best = ranked[0]
+    text = f"{best['candidate']} meets the requirements of {best['served']} of {total} demands"
+    if len(ranked) > 1:
+        second = ranked[1]
+        lead = best["served"] - second["served"]
+        text += (f", {lead} more than {second['candidate']} ({second['served']})" if lead > 0 else
+                 f", as many as {second['candidate']}; the smallest fidelity margin decides "
+                 f"({_fmt(best['fidelity_margin'])} against {_fmt(second['fidelity_margin'])})")
+    return [text + ". demands met: fidelity and rate requirements both met; margins: the smallest "
+            "over the candidate's simulated demands (mean fidelity - min fidelity; useful rate / min rate)."]
+
+
+def _fmt(value: float | None) -> str:
+    return "-" if value is None else f"{value:+.3g}"
 
 
 def _relays(graph: nx.Graph, a: str, b: str) -> nx.Graph:

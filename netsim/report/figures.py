@@ -123,7 +123,8 @@ def rate_vs_distance(length_km: ArrayLike, rates: Mapping[str, ArrayLike],
 @with_style
 def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlabel: str,
                         ylabel: str, logx: bool = False, logy: bool = False,
-                        title: str | None = None) -> Figure:
+                        title: str | None = None, requirements: Mapping[str, float] | None = None,
+                        marked: Mapping[str, tuple[Any, Any]] | None = None) -> Figure:
     """A metric against one swept parameter, one line per series with its 95 % band.
 
     Parameters
@@ -134,6 +135,11 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
         Axis labels, units included.
     logx, logy : bool
         Logarithmic axes; ``logy`` only takes effect when the values span a decade or more.
+    requirements : mapping of str to float, optional
+        Label -> required value, drawn as a dashed horizontal line (e.g. a minimum fidelity).
+    marked : mapping of str to (x, y), optional
+        Series name -> points to ring (e.g. where the route differs from the base scenario's);
+        the legend entry says what the rings mean.
     """
     fig, ax = new_figure()
     for i, (name, (x, y, low, high)) in enumerate(curves.items()):
@@ -144,6 +150,14 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
             ax.fill_between(np.asarray(x, float)[ok], np.asarray(low, float)[ok],
                             np.asarray(high, float)[ok], color=style["color"], alpha=0.2,
                             linewidth=0, label=None)
+    for k, (label, value) in enumerate((requirements or {}).items()):
+        ax.axhline(float(value), color="0.25", linestyle=(0, (4, 2 + k)), linewidth=0.9, label=label)
+    ring_label = "route differs from the base scenario's"
+    for name, (mx, my) in (marked or {}).items():
+        if len(mx):
+            ax.plot(mx, my, linestyle="none", marker="o", markersize=8, markerfacecolor="none",
+                    markeredgecolor="#d62728", markeredgewidth=1.0, label=ring_label)
+            ring_label = "_nolegend_"
     ax.set_xscale("log" if logx else "linear")
     ax.set_yscale("log" if logy and _decades(curves) >= 1.0 else "linear")
     ax.set_xlabel(xlabel)
@@ -151,7 +165,7 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
     ax.grid(True, linewidth=0.3, color="0.85")
     if title:
         fig.suptitle(title, fontsize=7)  # above the legend, which sits above the axes
-    if len(curves) > 1 or next(iter(curves), ""):
+    if len(curves) > 1 or next(iter(curves), "") or requirements or marked:
         # above the axes: inside, it covered curves and their 95 % bands
         ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7, loc="lower center",
                   bbox_to_anchor=(0.5, 1.0), ncol=_legend_columns(curves))
@@ -175,8 +189,15 @@ def _decades(curves: Mapping[str, tuple[Any, Any, Any, Any]]) -> float:
 
 @with_style
 def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: str,
-            zlabel: str, annotate: bool = True, title: str | None = None) -> Figure:
-    """A two-parameter heatmap of a metric (viridis, colour bar with the metric and its unit)."""
+            zlabel: str, annotate: bool = True, title: str | None = None,
+            passing: ArrayLike | None = None, passing_label: str = "meets the requirement",
+            marked: ArrayLike | None = None) -> Figure:
+    """A two-parameter heatmap of a metric (viridis, colour bar with the metric and its unit).
+
+    ``passing`` (booleans shaped like ``z``) outlines the cells that meet a requirement in white
+    and hatches the others; ``marked`` (booleans) rings the cells whose route differs from the
+    base scenario's in red.
+    """
     fig, ax = new_figure(height_in=2.8)
     z = np.asarray(z, dtype=float)
     mesh = ax.imshow(z, origin="lower", aspect="auto", cmap="viridis", interpolation="nearest")
@@ -191,6 +212,30 @@ def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: st
         ax.set_title(title, fontsize=7)
     if annotate and z.size <= 64:
         _annotate(ax, z)
+    handles: list[Any] = []
+    if passing is not None:
+        from matplotlib.patches import Patch, Rectangle
+
+        ok = np.asarray(passing, dtype=bool)
+        for (i, j), good in np.ndenumerate(ok):
+            if not np.isfinite(z[i, j]):
+                continue
+            ax.add_patch(Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False, linewidth=1.2 if good else 0,
+                                   edgecolor="white", hatch=None if good else "///", alpha=0.9))
+        handles += [Patch(facecolor="none", edgecolor="0.3", label=passing_label),
+                    Patch(facecolor="none", edgecolor="0.3", hatch="///", label="does not")]
+    if marked is not None:
+        from matplotlib.lines import Line2D
+
+        rings = np.argwhere(np.asarray(marked, dtype=bool))
+        if rings.size:
+            ax.plot(rings[:, 1], rings[:, 0], linestyle="none", marker="o", markersize=13,
+                    markerfacecolor="none", markeredgecolor="#d62728", markeredgewidth=1.0)
+            handles.append(Line2D([], [], linestyle="none", marker="o", markerfacecolor="none",
+                                  markeredgecolor="#d62728", label="route differs from the base scenario's"))
+    if handles:
+        ax.legend(handles=handles, frameon=False, loc="lower center", bbox_to_anchor=(0.5, 1.0 if not title else 1.06),
+                  ncol=len(handles), fontsize=6)
     return fig
 
 

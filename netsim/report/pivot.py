@@ -3,8 +3,11 @@
 A record is one mapping per (sweep point, demand or link): the swept parameters under their
 paths (``"links[*].attenuation_db_per_km"``), any labels (``"demand"``) and the metrics
 (``"rate_per_s"``, ``"rate_ci95"``...). Records sharing the same parameter values (repeats with
-independent seeds) are combined: their mean with a Student-t 95 % interval from the spread.
-A single record keeps its own interval.
+independent seeds) are combined: with each record's own 95 % interval, the inverse-variance
+weighted mean and its interval, widened by the Particle Data Group scale factor when the
+repeats scatter more than their intervals allow (:func:`netsim.report.units.combine_ci95`);
+without intervals, the mean with a Student-t 95 % interval from the spread. A single record
+keeps its own interval.
 """
 
 from __future__ import annotations
@@ -18,9 +21,10 @@ import numpy as np
 
 from netsim.errors import ParameterError
 from netsim.report.table import Column, Table
-from netsim.report.units import header, mean_ci95
+from netsim.report.units import combine_ci95, header, mean_ci95
 
-__all__ = ["Cell", "aggregate", "grid", "pivot_table", "series", "short_name", "swept_parameters"]
+__all__ = ["REQUIREMENTS", "Cell", "Extras", "aggregate", "extras", "grid", "pivot_table", "series", "short_name",
+           "swept_parameters"]
 
 
 @dataclass(frozen=True)
@@ -49,7 +53,10 @@ def _combine(group: list[Mapping[str, Any]], metric: str, ci_key: str | None) ->
         ci = group[0].get(ci_key) if ci_key else None
         low, high = (float(ci[0]), float(ci[1])) if ci else (math.nan, math.nan)
         return Cell(values[0], low, high, 1)
-    mean, low, high = mean_ci95(values)
+    if ci_key:
+        mean, low, high = combine_ci95(values, [r.get(ci_key) for r in group])
+    else:
+        mean, low, high = mean_ci95(values)
     return Cell(mean, low, high, len(group))
 
 
@@ -90,27 +97,78 @@ def short_name(path: str) -> str:
     return path.rsplit(".", 1)[-1]
 
 
-def _one_parameter(cells: dict[tuple[Any, ...], Cell], metric: str, param: str) -> Table:
+#: The requirement a metric is judged against: metric -> the record key holding the minimum.
+REQUIREMENTS: dict[str, str] = {"fidelity_mean": "min_fidelity", "useful_rate_per_s": "min_rate_per_s"}
+
+
+@dataclass(frozen=True)
+class Extras:
+    """Per parameter point: whether the metric meets its requirement (None: no requirement)
+    and the route when it differs from the base scenario's (None: same, or not recorded)."""
+
+    meets: bool | None
+    changed_route: str | None
+
+
+def extras(records: Sequence[Mapping[str, Any]], metric: str, params: Sequence[str],
+           cells: Mapping[tuple[Any, ...], Cell]) -> dict[tuple[Any, ...], Extras]:
+    """The verdict and the route change of every cell (see :class:`Extras`)."""
+    groups: dict[tuple[Any, ...], list[Mapping[str, Any]]] = {}
+    for record in records:
+        groups.setdefault(tuple(record.get(p) for p in params), []).append(record)
+    out = {}
+    for key, cell in cells.items():
+        group = groups.get(key, [])
+        floor = next((r[REQUIREMENTS[metric]] for r in group if metric in REQUIREMENTS
+                      and r.get(REQUIREMENTS[metric]) is not None), None)
+        meets = None if floor is None or math.isnan(cell.value) else bool(cell.value >= float(floor))
+        changed = next((str(r.get("route")) for r in group if r.get("route_changed")), None)
+        out[key] = Extras(meets, changed)
+    return out
+
+
+def _one_parameter(cells: dict[tuple[Any, ...], Cell], metric: str, param: str,
+                   more: Mapping[tuple[Any, ...], Extras]) -> Table:
     ci = f"{metric}_ci95"
     columns = [Column(param, param), Column(metric, header(metric), ci_key=ci),
                Column(ci, "95% CI", ci_key=ci), Column("n", "records")]
-    rows: list[Mapping[str, Any]] = [{param: k[0], metric: c.value, ci: c.interval, "n": c.n} for k, c in cells.items()]
+    if any(e.meets is not None for e in more.values()):
+        columns.append(Column("meets", f"meets {REQUIREMENTS[metric].replace('_per_s', '').replace('_', ' ')}"))
+    if any(e.changed_route for e in more.values()):
+        columns.append(Column("route", "route (if not the base scenario's)"))
+    rows: list[Mapping[str, Any]] = [{param: k[0], metric: c.value, ci: c.interval, "n": c.n,
+                                      "meets": more[k].meets, "route": more[k].changed_route}
+                                     for k, c in cells.items()]
     return Table(f"{header(metric)} against {param}", columns, rows)
 
 
-def _two_parameters(cells: dict[tuple[Any, ...], Cell], metric: str, rp: str, cp: str) -> Table:
+def _two_parameters(cells: dict[tuple[Any, ...], Cell], metric: str, rp: str, cp: str,
+                    more: Mapping[tuple[Any, ...], Extras]) -> Table:
     col_values = sorted({k[1] for k in cells}, key=lambda v: _sort_key((v,)))
+    judged = any(e.meets is not None for e in more.values())
     columns = [Column(rp, f"{rp} \\ {cp}")]
     for j, v in enumerate(col_values):
         columns += [Column(f"c{j}", f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
                            else f"{short_name(cp)}={v}", ci_key=f"c{j}_ci"),
                     Column(f"c{j}_ci", "95% CI", ci_key=f"c{j}_ci")]
+        if judged:
+            columns.append(Column(f"c{j}_ok", "meets"))
     rows: dict[Any, dict[str, Any]] = {}
     for (r, c), cell in cells.items():
         row = rows.setdefault(r, {rp: r})
         j = col_values.index(c)
-        row[f"c{j}"], row[f"c{j}_ci"] = cell.value, cell.interval
+        row[f"c{j}"], row[f"c{j}_ci"], row[f"c{j}_ok"] = cell.value, cell.interval, more[(r, c)].meets
     return Table(f"{header(metric)} over {rp} and {cp}", columns, [*rows.values()])
+
+
+def _route_notes(more: Mapping[tuple[Any, ...], Extras], params: Sequence[str]) -> list[str]:
+    changed = [(k, e.changed_route) for k, e in more.items() if e.changed_route]
+    if not changed:
+        return []
+    where = "; ".join(", ".join(f"{short_name(p)}={v}" for p, v in zip(params, k)) + f": {route}"
+                      for k, route in changed)
+    return [f"Route differs from the base scenario's at {len(changed)} point(s), so those figures are "
+            f"of another path: {where}."]
 
 
 def pivot_table(records: Sequence[Mapping[str, Any]], metric: str, row_param: str,
@@ -133,12 +191,19 @@ def pivot_table(records: Sequence[Mapping[str, Any]], metric: str, row_param: st
     """
     params = [row_param] if col_param is None else [row_param, col_param]
     cells = aggregate(records, metric, params, ci_key)
-    table = (_one_parameter(cells, metric, row_param) if col_param is None
-             else _two_parameters(cells, metric, row_param, col_param))
+    more = extras(records, metric, params, cells)
+    table = (_one_parameter(cells, metric, row_param, more) if col_param is None
+             else _two_parameters(cells, metric, row_param, col_param, more))
     if title:
         table.title = title
+    table.notes.extend(_route_notes(more, params))
+    if any(e.meets is not None for e in more.values()):
+        table.notes.append(f"meets: the value at the point reaches the demand's {REQUIREMENTS[metric]}.")
     if any(c.n > 1 for c in cells.values()):
-        table.notes.append("Points with several records: mean and Student-t 95% interval of the mean.")
+        table.notes.append("Points with several records (repeats): inverse-variance weighted mean of the "
+                           "repeats' own estimates, 95% interval from their intervals, widened by the "
+                           "Particle Data Group scale factor when they scatter more than those allow "
+                           "(Student-t on the spread where a record has no interval).")
     return table
 
 

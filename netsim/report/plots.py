@@ -18,11 +18,11 @@ from numpy.typing import ArrayLike
 from netsim.report.build import file_stem, value_order
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
-from netsim.report.pivot import grid, series
+from netsim.report.pivot import REQUIREMENTS, grid, series
 from netsim.report.sources import ReportData, demand_names
 from netsim.report.units import header, param_label, param_value_label
 
-__all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "scheme_curves", "sweep_figures"]
+__all__ = ["SCHEME_LENGTHS_KM", "map_links", "network_figures", "requirement_lines", "scheme_curves", "sweep_figures"]
 
 SCHEME_LENGTHS_KM = np.linspace(1.0, 120.0, 60)
 
@@ -104,6 +104,23 @@ def _fixed(records: list[dict[str, Any]], rest: Sequence[str]) -> tuple[list[dic
     return chosen, "".join(f", {k}={v}" for k, v in fixed.items())
 
 
+def requirement_lines(records: Sequence[Mapping[str, Any]], metric: str) -> dict[str, float]:
+    """Label -> value of the requirement ``metric`` is judged against, one per distinct value
+    in ``records`` (e.g. ``{"min fidelity 0.7": 0.7}``); empty when none is set."""
+    key = REQUIREMENTS.get(metric)
+    values = sorted({float(r[key]) for r in records if key and r.get(key) is not None})
+    return {f"{key.replace('_per_s', '').replace('_', ' ')} {v:g}" + (" pairs/s" if key.endswith("per_s") else ""): v
+            for v in values} if key else {}
+
+
+def _changed_points(records: Sequence[Mapping[str, Any]], metric: str, param: str) -> tuple[list[float], list[float]]:
+    """x and y of the points whose route differs from the base scenario's (mean over repeats)."""
+    xs = sorted({float(r[param]) for r in records if r.get("route_changed") and r.get(metric) is not None})
+    ys = [float(np.mean([float(r[metric]) for r in records if r.get(param) is not None
+                         and float(r[param]) == x and r.get(metric) is not None])) for x in xs]
+    return xs, ys
+
+
 def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: str | None,
                     params: Sequence[str]) -> dict[str, Figure]:
     """Heatmap over the first two parameters and lines against the first, one per second value."""
@@ -112,13 +129,26 @@ def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: s
     stem = file_stem(f"{metric}-{name}{where}")
     curves = {param_value_label(params[1], v): series(
         [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
+    marked = {param_value_label(params[1], v): _changed_points(
+        [r for r in chosen if r.get(params[1]) == v], metric, params[0]) for v in y}
     title = f"demand {name}{where}"
+    lines = requirement_lines(chosen, metric)
+    passing = None
+    if len(lines) == 1:
+        passing = np.where(np.isfinite(z), z >= next(iter(lines.values())), False)
+    changed = np.zeros(z.shape, dtype=bool)
+    for r in chosen:
+        if r.get("route_changed"):
+            changed[np.searchsorted(y, float(r[params[1]])), np.searchsorted(x, float(r[params[0]]))] = True
     return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=param_label(params[0]),
                                        ylabel=param_label(params[1]), zlabel=header(metric),
-                                       title=title),
+                                       title=title, passing=passing,
+                                       passing_label=f"meets {next(iter(lines), '')}",
+                                       marked=changed if changed.any() else None),
             f"lines-{stem}": metric_vs_parameter(curves, xlabel=param_label(params[0]),
                                                  ylabel=header(metric), title=title,
-                                                 logy=metric.endswith("per_s"))}
+                                                 logy=metric.endswith("per_s"), requirements=lines,
+                                                 marked={k: v for k, v in marked.items() if v[0]})}
 
 
 def sweep_figures(data: ReportData, params: Sequence[str],
@@ -126,21 +156,27 @@ def sweep_figures(data: ReportData, params: Sequence[str],
     """Each metric against the first swept parameter with 95 % bands (one line per demand);
     with two or more parameters, per demand a heatmap over the first two and lines against the
     first (further parameters held at their first value)."""
-    metrics = metrics or {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
+    metrics = metrics or {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95",
+                          "useful_rate_per_s": "useful_rate_ci95"}
     demands = [r for r in data.records if r.get("kind") == "demand"]
     if not params or not demands:
         return {}
     figures: dict[str, Figure] = {}
     for metric, ci in metrics.items():
-        curves = {}
+        curves, marked = {}, {}
         for name in demand_names(demands):
             mine = [r for r in demands if r.get("name") == name and r.get(metric) is not None]
             if mine and len(params) == 1:
                 curves[name] = series(mine, metric, params[0], ci_key=ci)
+                points = _changed_points(mine, metric, params[0])
+                if points[0]:
+                    marked[name] = points
             elif mine:
                 figures.update(_demand_figures(mine, name, metric, ci, params))
         if curves:
             figures[file_stem(f"{metric}-vs-{params[0]}")] = metric_vs_parameter(
                 curves, xlabel=param_label(params[0]), ylabel=header(metric),
-                logy=metric.endswith("per_s"))
+                logy=metric.endswith("per_s"),
+                requirements=requirement_lines([r for r in demands if r.get(metric) is not None], metric),
+                marked=marked)
     return figures

@@ -17,7 +17,8 @@ from typing import Any
 
 from netsim.errors import NetsimError, ParameterError
 
-__all__ = ["SOURCE_SUFFIXES", "ReportData", "load_source", "source_kind", "store_records"]
+__all__ = ["SOURCE_SUFFIXES", "ReportData", "load_source", "mark_route_changes", "source_kind",
+           "store_records"]
 
 SOURCE_SUFFIXES = {".toml": "scenario", ".json": "run", ".sqlite": "store", ".db": "store",
                    ".sqlite3": "store"}
@@ -213,7 +214,27 @@ def store_records(store: Any) -> list[dict[str, Any]]:
             high = record.get(low_key[:-4] + "_high")
             low = record[low_key]
             record[low_key[:-4]] = None if low is None or high is None else [low, high]
+    for (point_id, kind, name), record in list(grouped.items()):
+        if kind != "route":
+            continue
+        del grouped[(point_id, kind, name)]
+        demand = grouped.get((point_id, "demand", name))
+        routes = [k for k in record if " > " in k]  # a route joins at least two sites
+        if demand is not None and routes:
+            demand["route"] = routes[0]
     return list(grouped.values())
+
+
+def mark_route_changes(records: Sequence[dict[str, Any]], base: Mapping[str, str]) -> int:
+    """Set ``route_changed`` on demand records: True where the stored route differs from the
+    base scenario's; returns how many differ (records without a stored route are left alone)."""
+    changed = 0
+    for record in records:
+        if record.get("kind") != "demand" or "route" not in record or record.get("name") not in base:
+            continue
+        record["route_changed"] = record["route"] != base[str(record["name"])]
+        changed += bool(record["route_changed"])
+    return changed
 
 
 def _sweep_base_hash(scenario: Any) -> str:
@@ -249,6 +270,13 @@ def _from_store(path: Path, scenario_path: str | Path | None = None, simulate: b
         raise NetsimError(f"{path}: the store has no finished points yet; run `netsim sweep` first")
     data = ReportData("store", slug, name, records=records, parameters=parameters)
     data.scenario = _scenario_of_store(meta, path, scenario_path)
+    base = json.loads(meta["base_routes"]) if meta.get("base_routes") else None
+    if base is None and data.scenario is not None:
+        from netsim.sweep.routes import scenario_routes  # type: ignore[import-not-found]
+
+        base = scenario_routes(data.scenario)
+    if base is not None:
+        mark_route_changes(records, base)
     if data.scenario is None and simulate:
         raise NetsimError(f"{path}: --simulate needs the scenario this store was swept from ({name!r}), "
                           f"which is not in scenarios/ or beside the results; give it with --scenario FILE")

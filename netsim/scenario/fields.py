@@ -211,6 +211,7 @@ DEMAND_FIELDS: Mapping[str, Spec] = {
     "pairs": Spec("int", 1, None),
     "duration_s": _positive("s"),
     "min_fidelity": _prob(),
+    "min_rate_per_s": Spec("real", 0.0, None, unit="1/s"),
 }
 
 PROTOCOL_FIELDS: Mapping[str, Spec] = {

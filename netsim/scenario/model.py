@@ -15,7 +15,7 @@ Scenario file layout (TOML)::
                        own key > own profile > [defaults.*] key > [defaults.*] profile > built-in)
     [[sites]]          name, role, x_km, y_km, memory_slots, t1_s, t2_s, ...
     [[links]]          ends = [site, site], length_km, attenuation_db_per_km, ...
-    [[demands]]        users = [site, site], pairs or duration_s, min_fidelity
+    [[demands]]        users = [site, site], pairs or duration_s, min_fidelity, min_rate_per_s
     [sweep]            kept untouched in Scenario.data for the sweep layer
 
 The full reference (every key, unit, default and allowed range) is the README's scenario reference.
@@ -51,7 +51,7 @@ SITE_ROLES: tuple[str, ...] = ("user", "repeater", "switch")
 #: an entangled-pair source at the midpoint with absorptive memories at both ends, and
 #: emitter-to-receiver transmission (the photon travels from end a to a memory at end b).
 SCHEMES: tuple[str, ...] = ("two_photon", "single_photon", "midpoint_source", "direct")
-ROUTING_POLICIES: tuple[str, ...] = ("least_loss", "fewest_hops", "highest_bound")
+ROUTING_POLICIES: tuple[str, ...] = ("least_loss", "fewest_hops", "highest_bound", "highest_rate")
 PURIFICATION_PROTOCOLS: tuple[str, ...] = ("none", "bbpssw", "dejmps")
 #: Swapping orders the engine offers (a plug-in family; add a name here when adding a plug-in).
 SWAP_POLICIES: tuple[str, ...] = ("asap",)
@@ -131,6 +131,9 @@ class Link:
 class Demand:
     """Two end users who want Bell pairs: ``pairs`` of them, or for ``duration_s`` seconds.
 
+    A pair is *useful* when its own delivered fidelity reaches ``min_fidelity``;
+    ``min_rate_per_s`` (optional) is the rate of useful pairs the users need.
+
     The loader fills in ``pairs = DEFAULT_DEMAND_PAIRS`` when the file gives neither, so exactly
     one of ``pairs`` and ``duration_s`` is set on a loaded demand. ``index`` is the demand's
     zero-based position among the ``[[demands]]`` tables.
@@ -142,6 +145,7 @@ class Demand:
     pairs: int | None = None
     duration_s: float | None = None
     min_fidelity: float = 0.5
+    min_rate_per_s: float | None = None   # useful pairs per second needed; None: no requirement
 
     @property
     def name(self) -> str:

@@ -59,7 +59,13 @@ def store_meta(plan: SweepPlan) -> dict[str, str]:
     """The meta entries a new store records for this plan."""
     return {"scenario_hash": scenario_hash(plan), "scenario_name": plan.scenario.name,
             "spec_hash": plan.spec.hash, "spec": json.dumps(plan.spec.canonical(), sort_keys=True),
-            "created_utc": utc_now(), "netsim_version": __version__}
+            "created_utc": utc_now(), "netsim_version": __version__, "base_routes": _base_routes(plan)}
+
+
+def _base_routes(plan: SweepPlan) -> str:
+    from netsim.sweep.routes import base_routes
+
+    return base_routes(plan)
 
 
 def tasks_for(plan: SweepPlan, points: Sequence[Point], timeout_s: float | None) -> Iterator[PointTask]:

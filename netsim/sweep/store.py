@@ -9,8 +9,11 @@ Schema (version 1)::
     points(point_id TEXT PRIMARY KEY, ordinal, parameters (JSON object key path -> value),
            repeat, seed, status ('pending' | 'done' | 'failed'), started_utc, finished_utc,
            duration_s, attempts, error)
-    metrics(point_id, kind ('demand' | 'link' | 'site' | 'run'), name, metric, value REAL,
+    metrics(point_id, kind ('demand' | 'link' | 'site' | 'run' | 'route'), name, metric, value REAL,
             PRIMARY KEY (point_id, kind, name, metric))          -- long format
+        kind 'route': name = the demand, metric = its route (site names, switches included,
+        joined by " > "), value = its heralded hops. meta base_routes: JSON demand -> route of
+        the base scenario (stores made before it have none).
 
 Only the coordinating process writes. Each finished point (its row and all its metric rows) is
 committed in one transaction, so a store killed at any moment holds whole points only.

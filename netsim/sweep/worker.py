@@ -132,7 +132,8 @@ def flatten_result(result: Mapping[str, Any]) -> list[tuple[str, str, str, float
 
     ``demands``/``links``/``sites`` (a list of mappings named by their ``name``, ``demand``,
     ``link`` or ``site`` string, or a mapping by name) give rows of kind ``demand``/``link``/``site``; other numeric top-level entries give kind ``run``
-    with name ``""``. Nested mappings become dotted metric names; a ``..._ci95`` pair becomes
+    with name ``""``. A demand's ``route`` (site names) gives one row of kind ``route``: name =
+    the demand, metric = the site names joined by ``" > "``, value = its hops. Nested mappings become dotted metric names; a ``..._ci95`` pair becomes
     ``..._ci95_low`` and ``..._ci95_high``; other number lists get ``[i]``. Strings are skipped;
     None, NaN and infinities are stored as NULL; booleans as 0/1.
     """
@@ -145,6 +146,10 @@ def flatten_result(result: Mapping[str, Any]) -> list[tuple[str, str, str, float
                 flat: list[tuple[str, float | None]] = []
                 _flatten("", entity, flat)
                 rows.extend((_KINDS[key], name, m, v) for m, v in flat)
+                route = entity.get("route") if key == "demands" and isinstance(entity, Mapping) else None
+                if isinstance(route, (list, tuple)) and route and all(isinstance(s, str) for s in route):
+                    hops = entity.get("hops")
+                    rows.append(("route", name, " > ".join(route), float(hops) if isinstance(hops, int) else None))
         else:
             flat = []
             _flatten(str(key), value, flat)
