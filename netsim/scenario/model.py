@@ -13,7 +13,8 @@ Scenario file layout (TOML)::
     [defaults.link]    any Link key except ends, applied where a link is silent
     [[sites]]          name, role, x_km, y_km, memory_slots, t1_s, t2_s, ...
     [[links]]          ends = [site, site], length_km, attenuation_db_per_km, ...
-    [[demands]]        users = [site, site], pairs or duration_s, min_fidelity
+    [[demands]]        users = [site, site], pairs or duration_s, min_fidelity, min_rate_per_s
+    [costs]            currency, fibre_per_km, repeater_site, memory_slot, mode, ...
     [sweep]            kept untouched in Scenario.data for the sweep layer
 
 The full reference (every key, unit, default and allowed range) is the README's scenario reference.
@@ -32,6 +33,7 @@ __all__ = [
     "SCHEMES",
     "SITE_ROLES",
     "SWAP_POLICIES",
+    "Costs",
     "Demand",
     "Encoding",
     "Link",
@@ -81,6 +83,8 @@ class Site:
     bsm_success_probability: float = 1.0  # Bell-state measurement success (swapping here)
     gate_error: float = 0.0               # depolarizing p applied to the swapped pair
     attempt_prep_time_s: float = 1e-6     # memory initialisation and emission per attempt
+    candidate: bool = False               # exists only if a design chooses it (netsim design)
+    cost: float | None = None             # own price of building the site (replaces [costs])
 
 
 @dataclass(frozen=True)
@@ -104,6 +108,8 @@ class Link:
     midpoint_fraction: float = 0.5        # position of the midpoint station from a (0..1)
     bright_state_population: float = 0.1  # alpha for single-photon heralding
     pair_probability: float = 0.01        # mean pairs per pulse of a midpoint source
+    candidate: bool = False               # exists only if a design chooses it (netsim design)
+    cost: float | None = None             # own price of the fibre (e.g. a dark-fibre lease)
 
     @property
     def name(self) -> str:
@@ -125,6 +131,7 @@ class Demand:
     pairs: int | None = None
     duration_s: float | None = None
     min_fidelity: float = 0.5
+    min_rate_per_s: float | None = None   # useful pairs per second wanted; None: no requirement
 
     @property
     def name(self) -> str:
@@ -157,8 +164,30 @@ class Protocol:
 
 
 @dataclass(frozen=True)
+class Costs:
+    """Prices of the ``[costs]`` table, in the unit named by ``currency`` (a label only).
+
+    ``fibre_per_km`` per km of link; ``repeater_site`` / ``user_site`` per site built;
+    ``memory_slot`` per qubit memory; ``mode`` per multiplexed mode and link end; ``detector``
+    per heralding detector (two per link); ``heralding_station`` per link heralded at a
+    midpoint station or source (every scheme but ``direct``). A site's or link's own ``cost``
+    replaces the site or fibre price (its slots, modes and detectors are still priced).
+    """
+
+    currency: str = "units"
+    fibre_per_km: float = 0.0
+    repeater_site: float = 0.0
+    user_site: float = 0.0
+    memory_slot: float = 0.0
+    mode: float = 0.0
+    detector: float = 0.0
+    heralding_station: float = 0.0
+
+
+@dataclass(frozen=True)
 class Scenario:
-    """A whole validated scenario. ``data`` is the parsed file with defaults not yet applied
+    """A whole validated scenario (``sites`` and ``links``: the built network; candidates apart).
+    ``data`` is the parsed file with defaults not yet applied
     (sweeps edit it and load it again); ``content_hash`` is the SHA-256 of its canonical JSON."""
 
     name: str
@@ -171,6 +200,11 @@ class Scenario:
     data: dict[str, Any] = field(repr=False, compare=False, default_factory=dict)
     content_hash: str = ""
     source: str | None = None
+    costs: Costs | None = None            # the [costs] table; None when the file has none
+    #: Sites and links marked ``candidate = true`` (and links with a candidate end): they exist
+    #: only once a design chooses them, so ``sites`` and ``links`` hold the built network alone.
+    candidate_sites: tuple[Site, ...] = ()
+    candidate_links: tuple[Link, ...] = ()
 
     def site(self, name: str) -> Site:
         for s in self.sites:
