@@ -12,6 +12,7 @@
 from netsim.design.costs import CostRow, cost_table, network_cost
 from netsim.design.estimate import RouteEstimate, route_estimate
 
+from netsim.design.fibremap import import_fibre_map
 from netsim.design.milp import Design, DesignOptions, design_network
 
 __all__ = [
@@ -21,6 +22,7 @@ __all__ = [
     "RouteEstimate",
     "cost_table",
     "design_network",
+    "import_fibre_map",
 
     "network_cost",
     "route_estimate",

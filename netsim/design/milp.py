@@ -57,7 +57,8 @@ __all__ = ["Design", "DesignOptions", "Option", "design_network", "enumerate_opt
 @dataclass(frozen=True)
 class DesignOptions:
     """Limits of the search. ``rate_factor`` / ``fidelity_floor`` map a demand index to a raised
-    target (used when a simulation shows a demand missing its requirement)."""
+    target and ``slot_floor`` a site name to a least number of memory slots (used when a
+    simulation shows a demand missing its requirement)."""
 
     routes_per_demand: int = 8
     max_modes: int = 64
@@ -66,6 +67,7 @@ class DesignOptions:
     time_limit_s: float = 60.0
     rate_factor: Mapping[int, float] = field(default_factory=dict)
     fidelity_floor: Mapping[int, float] = field(default_factory=dict)
+    slot_floor: Mapping[str, int] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         checks = (("routes_per_demand", self.routes_per_demand, 1, "an integer >= 1"),
@@ -265,7 +267,8 @@ def _solve(scenario: Scenario, options: DesignOptions, kept: list[Option]) -> De
         j = index["s", v]
         c[j] = costs.memory_slot if sites[v].role != "switch" else 0.0
         is_cand = v in cand_sites
-        lower[j], upper[j] = (0 if is_cand else sites[v].memory_slots), options.max_slots if is_cand else max(options.max_slots, sites[v].memory_slots)
+        floor = max(sites[v].memory_slots, options.slot_floor.get(v, 0))
+        lower[j], upper[j] = (0 if is_cand else floor), options.max_slots if is_cand else max(options.max_slots, floor)
 
     rows: list[tuple[dict[int, float], float, float]] = []
     for d in scenario.demands:
@@ -291,6 +294,8 @@ def _solve(scenario: Scenario, options: DesignOptions, kept: list[Option]) -> De
     for v in cand_sites:
         if ("s", v) in index:
             rows.append(({index["s", v]: 1.0, index["y", v]: -float(options.max_slots)}, -np.inf, 0.0))
+            if options.slot_floor.get(v):
+                rows.append(({index["s", v]: 1.0, index["y", v]: -float(options.slot_floor[v])}, 0.0, np.inf))
     for n in used_links:
         share = {index["x", i]: o.share for i, o in enumerate(kept) if n in o.links and o.share > 0}
         if share:
@@ -319,12 +324,13 @@ def _solve(scenario: Scenario, options: DesignOptions, kept: list[Option]) -> De
         names = ", ".join(f"demands[{d.index}] ({d.name})" for d in scenario.demands)
         return Design(status, problems=[f"{names}: {reason}"], options_considered=len(kept))
     x = np.round(result.x).astype(int)
-    return _design_from(scenario, kept, index, x, result, cand_sites, cand_links, full, options.max_utilisation)
+    return _design_from(scenario, kept, index, x, result, cand_sites, cand_links, full, options.max_utilisation,
+                        options.slot_floor)
 
 
 def _design_from(scenario: Scenario, kept: list[Option], index: Mapping[tuple[str, Any], int], x: np.ndarray,
                  result: Any, cand_sites: list[str], cand_links: list[str], full: Scenario,
-                 max_utilisation: float) -> Design:
+                 max_utilisation: float, slot_floor: Mapping[str, int]) -> Design:
     chosen_sites = [v for v in cand_sites if x[index["y", v]]]
     chosen_links = [n for n in cand_links if x[index["z", n]]]
     all_cand_sites = [s.name for s in scenario.candidate_sites]
@@ -345,6 +351,7 @@ def _design_from(scenario: Scenario, kept: list[Option], index: Mapping[tuple[st
             alone = max([o.slots[site.name] for o in chosen if site.name in o.slots], default=1)
             held = sum(o.slots[site.name] * o.share for o in chosen if site.name in o.slots) / max_utilisation
             floor = site.memory_slots if site.name not in all_cand_sites else 1
+            floor = max(floor, slot_floor.get(site.name, 0))
             slots[site.name] = max(alone, math.ceil(held - 1e-9), floor)
     routes: dict[str, dict[str, Any]] = {}
     for i, o in enumerate(kept):

@@ -110,6 +110,7 @@ def _map(scenario: Scenario, checked: Checked, path: Path) -> Path:
         x, y = pos[s.name]
         if s.name in rejected_s:
             ax.plot(x, y, markers[s.role], mfc="white", mec="0.6", ms=8, zorder=3)
+            ax.annotate(s.name, (x, y), xytext=(4, 4), textcoords="offset points", fontsize=7, color="0.5")
         else:
             colour = "tab:blue" if s.name in chosen_s else "black"
             ax.plot(x, y, markers[s.role], color=colour, ms=8, zorder=3)

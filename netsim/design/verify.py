@@ -2,9 +2,13 @@
 
 The closed forms the design uses assume each demand alone with unlimited memory time; the
 simulation adds contention for fibres and memory slots, memory decay and the network's routing
-policy. A demand that misses its ``min_rate_per_s`` gets its target raised by the shortfall (times
-a margin) and the program is solved again, which buys modes, slots or another route; one that
-misses ``min_fidelity`` gets its fidelity floor raised likewise. After ``rounds`` attempts, or
+policy. Demands run greedily in the simulation (each takes what the slots and fibres give it,
+not only its minimum), so a site whose slots hold one demand's reservation at a time serves the
+demands through it in turn. A demand that misses its ``min_rate_per_s`` therefore first gets
+more slots at the blocked sites on its route (enough for every demand through the site to hold
+its reservation at once); where no site on its route is short of slots, its rate target is
+raised by the shortfall (times a margin), which buys modes or another route. One that misses
+``min_fidelity`` gets its fidelity floor raised likewise. The program is solved again each time. After ``rounds`` attempts, or
 when the raised targets make the program infeasible, the verdicts say so.
 """
 
@@ -93,7 +97,11 @@ def design_and_check(scenario: Scenario, options: DesignOptions, *, pairs: int =
         if round_no == rounds:
             checked.history.append(f"stopped after {rounds} round(s); the misses above remain")
             return checked
-        options = _tightened(options, missed)
+        options = _tightened(options, missed, design, designed)
+        blocked = {k: v for k, v in options.slot_floor.items() if v > design.memory_slots.get(k, 0)}
+        if blocked:
+            checked.history.append("more slots at blocked site(s): " + ", ".join(
+                f"{k} {design.memory_slots.get(k, 0)} -> {v}" for k, v in blocked.items()))
         attempt = design_network(scenario, options)
         if attempt.status == "infeasible" or not attempt.routes:
             checked.history.append("cannot tighten: with the raised targets " + "; ".join(attempt.problems))
@@ -104,15 +112,33 @@ def design_and_check(scenario: Scenario, options: DesignOptions, *, pairs: int =
     return checked
 
 
-def _tightened(options: DesignOptions, missed: list[dict[str, Any]]) -> DesignOptions:
+def blocked_sites(design: Design, designed: Scenario, route: list[str]) -> dict[str, int]:
+    """Sites of ``route`` whose slots cannot hold the reservations of every designed demand
+    through them at once, with the slots that would."""
+    per_end = (designed.protocol.purification_rounds if designed.protocol.purification != "none" else 0) + 1
+    needs: dict[str, int] = {}
+    for planned in design.routes.values():
+        path = planned["route"]
+        for s in path:
+            needs[s] = needs.get(s, 0) + per_end * (1 if s in (path[0], path[-1]) else 2)
+    return {s: needs[s] for s in route if s in design.memory_slots and design.memory_slots[s] < needs.get(s, 0)}
+
+
+def _tightened(options: DesignOptions, missed: list[dict[str, Any]], design: Design,
+               designed: Scenario) -> DesignOptions:
     factors, floors = dict(options.rate_factor), dict(options.fidelity_floor)
+    slot_floor = dict(options.slot_floor)
     for v in missed:
         i = v["index"]
         need = v["min_rate_per_s"] or 0.0
-        if need > 0 and v["rate_per_s"] < need:
+        route = v["simulated_route"].split(" > ") if v["simulated_route"] else []
+        blocked = blocked_sites(design, designed, route) if need > 0 and v["rate_per_s"] < need else {}
+        for site, slots in blocked.items():
+            slot_floor[site] = max(slot_floor.get(site, 0), slots)
+        if need > 0 and v["rate_per_s"] < need and not blocked:
             shortfall = need / max(v["rate_per_s"], need * 1e-3)
             factors[i] = factors.get(i, 1.0) * shortfall * TIGHTEN_MARGIN
         if v["fidelity_mean"] < v["min_fidelity"]:
             gap = v["min_fidelity"] - v["fidelity_mean"]
             floors[i] = min(1.0, max(floors.get(i, 0.0), v["min_fidelity"]) + gap * TIGHTEN_MARGIN)
-    return replace(options, rate_factor=factors, fidelity_floor=floors)
+    return replace(options, rate_factor=factors, fidelity_floor=floors, slot_floor=slot_floor)
