@@ -76,7 +76,7 @@ CORPUS: list[tuple[str, str, tuple[str, ...]]] = [
     ("unknown-site-key", edit('role = "repeater"', 'role = "repeater"\nt2_seconds = 1.0'),
      ("sites[1].t2_seconds: unknown key; did you mean 't2_s'?",)),
     ("unknown-key-no-guess", edit("pairs = 50", "pairs = 50\ncolour = 'red'"),
-     ("demands[0].colour: unknown key; allowed keys: pairs, duration_s, min_fidelity, users",)),
+     ("demands[0].colour: unknown key; allowed keys: pairs, duration_s, min_fidelity, min_rate_per_s, users",)),
     ("missing-network", BASE.replace('[network]\nname = "Corpus base"\n', ""),
      ("network: missing; required",)),
     ("missing-name", edit('name = "Corpus base"', 'purpose = "no name"'), ("network.name: missing",)),

@@ -291,6 +291,7 @@ def _table_links(rows: list[tuple[str, dict[str, Any]]], names: set[str], proble
                 problems.append(Problem(label, f"{key}: {format_value(value)} is not allowed; expected the name of "
                                                "a site of the sites table"))
                 bad = True
+        props = {k: v for k, v in props.items() if not (isinstance(v, str) and v.strip() == "")}
         if "length_km" not in props and "length_m" not in props:
             problems.append(Problem(label, "length_km: missing; required, the fibre route length (or length_m)"))
             bad = True
@@ -379,10 +380,17 @@ def import_fibre_map(path: str | Path, *, fmt: str | None = None, links_path: st
 
 def _one_line_each(problems: list[Problem]) -> list[Problem]:
     """One problem per feature, node, edge or row: its complaints joined with '; '."""
+    import re
+
     merged: dict[str, list[str]] = {}
     for p in problems:
         merged.setdefault(p.path, []).append(p.message)
-    return [Problem(path, "; ".join(messages)) for path, messages in merged.items()]
+
+    def order(path: str) -> tuple[str, int]:  # file order: features[3] before features[12]
+        match = re.match(r"(.*?)(?:\[(\d+)\]| row (\d+))", path)
+        return (match[1], int(match[2] or match[3])) if match else (path, -1)
+
+    return [Problem(path, "; ".join(merged[path])) for path in sorted(merged, key=order)]
 
 
 def _duplicates(sites: list[dict[str, Any]], site_labels: list[str], links: list[dict[str, Any]],
