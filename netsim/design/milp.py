@@ -3,31 +3,35 @@
 Formulation (path-based, after Rabbie, Chakraborty, Avis & Wehner, "Designing quantum networks
 using preexisting infrastructure", npj Quantum Inf. 8, 5, 2022). For every demand d the K
 least-loss routes through repeaters and switches (other end users never relay) are enumerated in
-the network with every candidate built; each route r is priced at every multiplexing level k (a
+the network with every candidate built (and the K fewest-hop ones, which swap less and keep
+more fidelity); each route r is priced at every multiplexing level k (a
 power of two up to ``max_modes``; every link of the route carries at least k modes) by the
 closed form :func:`netsim.design.estimate.route_estimate`. An option (d, r, k) is kept when its
-fidelity reaches the demand's ``min_fidelity`` and its rate its ``min_rate_per_s``.
+fidelity reaches the demand's ``min_fidelity`` and its rate its ``min_rate_per_s``; per route, the
+least such level and the next ``LEVELS_ABOVE_LEAST`` are kept (more modes only shorten the share
+of fibre time a demand takes).
 
 Variables: x_o in {0, 1} per option; y_v in {0, 1} per candidate site; z_l in {0, 1} per
 candidate link; m_l (modes, integer) per link; s_v (memory slots, integer) per memory site.
 
 - one option per demand: sum_{o of d} x_o = 1;
-- an option needs its candidate sites and links: x_o <= y_v, x_o <= z_l; a candidate link
-  needs its candidate ends: z_l <= y_v;
-- modes: m_l >= k x_o for every option using l; m_l >= the file's ``modes`` on a built link,
+- an option needs its candidate sites and links: sum_{o of d through v} x_o <= y_v and
+  sum_{o of d using l} x_o <= z_l per demand (summed over the demand's options, which is valid
+  as it takes one, and tighter than a row per option); a candidate link needs its candidate
+  ends: z_l <= y_v;
+- modes: m_l >= sum_{o of d using l} k_o x_o per demand; m_l >= the file's ``modes`` on a built link,
   z_l <= m_l <= max_modes z_l on a candidate link;
 - fibre time: a fibre carries one attempt sequence at a time, and demand d on option o keeps
   its route busy a share u_o = min_rate_d / rate_o of the time, so sum_{o using l} u_o x_o <=
   max_utilisation on every link;
-- memory: s_v >= n_{o,v} x_o (the slots one cycle of option o reserves at v: one per hop end,
-  times purification rounds + 1) and s_v >= sum_o n_{o,v} u_o x_o / max_utilisation (slots held
+- memory: s_v >= sum_{o of d through v} n_{o,v} x_o per demand (the slots one cycle of option
+  o reserves at v: one per hop end, times purification rounds + 1) and s_v >= sum_o n_{o,v} u_o x_o / max_utilisation (slots held
   on average); s_v >= the file's ``memory_slots`` on a built site, s_v <= max_slots y_v on a
   candidate one;
 - minimise the price of everything built (:mod:`netsim.design.costs`): site prices y_v, slot
   prices s_v, fibre, station and detectors z_l, mode prices 2 m_l (both ends).
 
-Solved with ``scipy.optimize.milp`` (HiGHS). Routes beyond the K least-loss ones are not
-considered; the network's routing policy may choose a different route in the designed network,
+Solved with ``scipy.optimize.milp`` (HiGHS). Other routes are not considered; the network's routing policy may choose a different route in the designed network,
 which the simulation that follows reveals.
 """
 
@@ -51,7 +55,11 @@ from netsim.network.graph import build_graph
 from netsim.network.routing import relay_graph
 from netsim.scenario.model import Costs, Demand, Link, Scenario, Site
 
-__all__ = ["Design", "DesignOptions", "Option", "design_network", "enumerate_options", "full_network"]
+#: Multiplexing levels kept per route above the least that meets the rate: more modes shorten
+#: the share of fibre time a demand takes, which can pay where fibres are shared.
+LEVELS_ABOVE_LEAST = 2
+
+__all__ = ["LEVELS_ABOVE_LEAST", "Design", "DesignOptions", "Option", "design_network", "enumerate_options", "full_network"]
 
 
 @dataclass(frozen=True)
@@ -153,12 +161,15 @@ def target_fidelity(demand: Demand, options: DesignOptions) -> float:
 
 
 def candidate_routes(graph: nx.Graph, demand: Demand, k: int) -> list[tuple[str, ...]]:
-    """The ``k`` least-loss routes joining the demand's users through repeaters and switches."""
+    """The ``k`` least-loss and the ``k`` fewest-hop routes (fewer swaps, higher fidelity) joining
+    the demand's users through repeaters and switches."""
     relays = relay_graph(graph, demand.a, demand.b)
     if demand.a not in relays or demand.b not in relays or not nx.has_path(relays, demand.a, demand.b):
         return []
-    paths = nx.shortest_simple_paths(relays, demand.a, demand.b, weight="loss_db")
-    return [tuple(p) for p in itertools.islice(paths, k)]
+    by_loss = nx.shortest_simple_paths(relays, demand.a, demand.b, weight="loss_db")
+    by_hops = nx.shortest_simple_paths(relays, demand.a, demand.b)
+    routes = [tuple(p) for p in itertools.islice(by_loss, k)]
+    return routes + [r for r in (tuple(p) for p in itertools.islice(by_hops, k)) if r not in routes]
 
 
 def enumerate_options(scenario: Scenario, options: DesignOptions
@@ -179,11 +190,15 @@ def enumerate_options(scenario: Scenario, options: DesignOptions
             names = tuple(base.edges[u, v]["link"].name for u, v in itertools.pairwise(route))
             slots = {s: per_end * (1 if s in (route[0], route[-1]) else 2)
                      for s in route if base.nodes[s]["site"].role != "switch"}
+            adequate = 0
             for level in levels if rate_needed > 0 else levels[:1]:
+                if adequate == LEVELS_ABOVE_LEAST + 1:
+                    break
                 estimate = route_estimate(graphs[level], route)
                 priced[demand.index].append((level, route, estimate.rate_per_s, estimate.fidelity))
                 if estimate.fidelity < fidelity_needed or estimate.rate_per_s < rate_needed or estimate.rate_per_s <= 0:
                     continue
+                adequate += 1
                 kept.append(Option(demand.index, route, level, estimate.rate_per_s, estimate.fidelity, names,
                                    slots, rate_needed / estimate.rate_per_s))
     return kept, routes, priced
@@ -273,17 +288,23 @@ def _solve(scenario: Scenario, options: DesignOptions, kept: list[Option]) -> De
     rows: list[tuple[dict[int, float], float, float]] = []
     for d in scenario.demands:
         rows.append(({index["x", i]: 1.0 for i, o in enumerate(kept) if o.demand == d.index}, 1.0, 1.0))
-    for i, o in enumerate(kept):
-        x = index["x", i]
-        for v in o.route:
+    # Each demand takes exactly one option, so its options are summed per site and link: the
+    # aggregated rows (sum_{o of d using l} x_o <= z_l, m_l >= sum k_o x_o, s_v >= sum n_o,v x_o)
+    # are valid and give a much tighter linear relaxation than one row per option.
+    for d in scenario.demands:
+        mine = [(i, o) for i, o in enumerate(kept) if o.demand == d.index]
+        for v in {v for _, o in mine for v in o.route}:
+            through = [(i, o) for i, o in mine if v in o.route]
             if ("y", v) in index:
-                rows.append(({x: 1.0, index["y", v]: -1.0}, -np.inf, 0.0))
-        for n in o.links:
+                rows.append(({**{index["x", i]: 1.0 for i, _ in through}, index["y", v]: -1.0}, -np.inf, 0.0))
+            if ("s", v) in index:
+                rows.append(({index["s", v]: 1.0, **{index["x", i]: -float(o.slots[v]) for i, o in through
+                                                     if v in o.slots}}, 0.0, np.inf))
+        for n in {n for _, o in mine for n in o.links}:
+            using = [(i, o) for i, o in mine if n in o.links]
             if ("z", n) in index:
-                rows.append(({x: 1.0, index["z", n]: -1.0}, -np.inf, 0.0))
-            rows.append(({index["m", n]: 1.0, x: -float(o.level)}, 0.0, np.inf))
-        for v, need in o.slots.items():
-            rows.append(({index["s", v]: 1.0, x: -float(need)}, 0.0, np.inf))
+                rows.append(({**{index["x", i]: 1.0 for i, _ in using}, index["z", n]: -1.0}, -np.inf, 0.0))
+            rows.append(({index["m", n]: 1.0, **{index["x", i]: -float(o.level) for i, o in using}}, 0.0, np.inf))
     for n in cand_links:
         z, m = index["z", n], index["m", n]
         rows.append(({m: 1.0, z: -1.0}, 0.0, np.inf))
