@@ -73,3 +73,36 @@ def test_bad_keys_one_line(change: Any, message: str) -> None:
         load_data(d)
     lines = str(err.value).splitlines()
     assert len(lines) == 1 and lines[0].startswith(message), lines
+
+
+def test_report_and_compare_show_cost_per_useful_pair() -> None:
+    """One demand uses every element of the Yarrow line, so its cost share is the whole 448.5
+    (hand calculation above) and its cost per useful pair/s is 448.5 / the closed-form rate (its
+    fidelity clears min_fidelity 0.5); a second demand wanting fidelity 0.99 gets no useful pair."""
+    from netsim.network import budget
+    from netsim.report.build import report_tables
+    from netsim.report.compare import candidate_from_scenario, comparison_tables
+    from netsim.report.sources import ReportData
+
+    scenario = load_data(data())
+    plan = budget(scenario).demands
+    rate = plan[0]["expected_rate_per_s"]
+    assert plan[0]["expected_fidelity"] >= 0.5 and rate > 0
+    report = ReportData("scenario", "yarrow", "Yarrow line", links=budget(scenario).links, demands=plan,
+                        scenario=scenario)
+    rows = report_tables(report)["demand_costs"].rows
+    assert rows[0]["cost_share"] == pytest.approx(448.5)
+    assert rows[0]["cost_per_useful_pair_per_s"] == pytest.approx(448.5 / rate)
+    assert rows[-1]["demand"] == "network" and rows[-1]["cost_per_useful_pair_per_s"] == pytest.approx(448.5 / rate)
+
+    two = data()
+    two["demands"].append({"users": ["Zenna Lab", "Yarrow Lab"], "min_fidelity": 0.99})
+    candidate = candidate_from_scenario(load_data(two), None)
+    assert candidate.costs[0]["cost_share"] == pytest.approx(448.5 / 2)  # every element shared by two
+    assert candidate.costs[1]["useful_rate_per_s"] == 0.0
+    assert candidate.costs[1]["cost_per_useful_pair_per_s"] is None
+    tables = comparison_tables([candidate])
+    totals = tables[1].rows[0]
+    assert totals["cost"] == pytest.approx(448.5)
+    assert totals["cost_per_useful"] == pytest.approx(448.5 / rate)
+    assert tables[-1].title == "Candidates: cost per useful pair per second"

@@ -187,14 +187,16 @@ def _geojson(path: Path, snap_m: float, problems: list[Problem]) -> tuple[list[d
                 problems.append(Problem(label, f"coordinates: {format_value(coords)} is not allowed; expected "
                                                "a LineString of at least two [lon, lat] positions"))
                 continue
-            points = [_lonlat(label, c, problems) for c in coords]
-            if all(points):
-                lines.append((label, props, points))  # type: ignore[arg-type]
+            checked = [_lonlat(label, c, problems) for c in coords]
+            points = [p for p in checked if p is not None]
+            if len(points) == len(checked):
+                lines.append((label, props, points))
         else:
             problems.append(Problem(label, f"geometry type {format_value(kind)} is not allowed; expected "
                                            "Point (a site) or LineString (a fibre)"))
     sites, site_labels = _site_entries(raw_sites, problems)
-    positions = {s.get("name"): ll for s, (_, _, ll, _) in zip(sites, raw_sites) if ll and s.get("name")}
+    positions: dict[str, tuple[float, float]] = {
+        str(s["name"]): ll for s, (_, _, ll, _) in zip(sites, raw_sites) if ll and s.get("name")}
     links, link_labels = [], []
     for label, props, points in lines:
         ends = _line_ends(label, props, points, positions, snap_m, problems)
@@ -395,7 +397,9 @@ def _one_line_each(problems: list[Problem]) -> list[Problem]:
 
 def _duplicates(sites: list[dict[str, Any]], site_labels: list[str], links: list[dict[str, Any]],
                 link_labels: list[str]) -> list[Problem]:
-    out, seen, pairs = [], {}, {}
+    out: list[Problem] = []
+    seen: dict[str, str] = {}
+    pairs: dict[frozenset[str], str] = {}
     for site, label in zip(sites, site_labels):
         if site["name"] in seen:
             out.append(Problem(label, f"name: {site['name']!r} is not allowed; {seen[site['name']]} has it already"))
