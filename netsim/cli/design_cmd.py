@@ -17,7 +17,7 @@ def register(subparsers: Any) -> None:
         description="Solve a mixed-integer linear program over candidate routes (closed-form rates "
                     "and fidelities) for the cheapest network meeting every demand's min_rate_per_s "
                     "and min_fidelity, simulate it, and tighten it where the simulation misses. "
-                    "Writes design.json, design.toml, costs.md/csv, verdicts.md and map.png. "
+                    "Writes design.json, design.toml, costs.md/csv, verdicts.md, memory.md and map.png. "
                     "Exit code 2 when no design can meet the demands.")
     parser.add_argument("file", metavar="FILE", help="scenario file (TOML) with candidate sites or links")
     parser.add_argument("--out", metavar="DIR", default=None, help="output directory (default results/<scenario>/design/)")
@@ -30,6 +30,8 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--pairs", metavar="N", default="500", help="pairs per demand simulated (default 500)")
     parser.add_argument("--rounds", metavar="R", default="3", help="simulate-and-tighten rounds (default 3)")
     parser.add_argument("--seed", metavar="S", default="0", help="random seed of the simulation (default 0)")
+    parser.add_argument("--wait-target", metavar="W", default="0.05",
+                        help="share of slot requests allowed to wait, for the memory sizing (default 0.05)")
     parser.add_argument("--no-simulate", action="store_true", help="solve only; skip the simulation")
     parser.set_defaults(func=design)
 
@@ -62,7 +64,7 @@ def _float(name: str, text: str, allowed: str, low: float, high: float, low_open
 
 def design(args: argparse.Namespace) -> int:
     from netsim.design.milp import DesignOptions
-    from netsim.design.output import verdict_table, write_design
+    from netsim.design.output import memory_rows, memory_table, verdict_table, write_design
     from netsim.design.verify import design_and_check
     from netsim.report.table import render
     from netsim.scenario import load
@@ -74,11 +76,12 @@ def design(args: argparse.Namespace) -> int:
         time_limit_s=_float("--time-limit-s", args.time_limit_s, "a number > 0 (s)", 0.0, float("inf")))
     pairs, rounds = _int("--pairs", args.pairs, 1), _int("--rounds", args.rounds, 1)
     seed = _int("--seed", args.seed, 0)
+    wait_target = _float("--wait-target", args.wait_target, "a number in [0, 1]", 0.0, 1.0, low_open=False)
     scenario = load(args.file)
     checked = design_and_check(scenario, options, pairs=pairs, seed=seed, rounds=rounds,
                                simulate=not args.no_simulate)
     out = Path(args.out) if args.out else Path("results") / scenario.slug / "design"
-    written = write_design(scenario, checked, out)
+    written = write_design(scenario, checked, out, wait_target)
     d = checked.design
     if d.status == "infeasible" or not d.routes:
         for line in d.problems:
@@ -92,6 +95,7 @@ def design(args: argparse.Namespace) -> int:
     print(f"  chosen links: {', '.join(d.chosen_links) or 'none'}; rejected: {', '.join(d.rejected_links) or 'none'}")
     if checked.verdicts:
         print(render(verdict_table(checked), "table"), end="")
+        print(render(memory_table(memory_rows(checked.sites, wait_target), wait_target), "table"), end="")
     else:
         print("\n".join(checked.history))
     print("wrote " + ", ".join(str(p) for p in written), file=sys.stderr)

@@ -15,7 +15,52 @@ from netsim.design.verify import Checked
 from netsim.report.table import Column, Table, render
 from netsim.scenario.model import Scenario
 
-__all__ = ["VERDICT_COLUMNS", "verdict_table", "write_design"]
+__all__ = ["MEMORY_COLUMNS", "VERDICT_COLUMNS", "memory_rows", "memory_table", "slots_for_wait", "verdict_table",
+           "write_design"]
+
+MEMORY_COLUMNS = (
+    Column("site", "site"), Column("memory_slots", "slots"), Column("slots_peak", "peak reserved"),
+    Column("slots_p99", "99th pct reserved"), Column("memory_occupancy", "qubit occupancy"),
+    Column("waited_share", "requests that waited"), Column("slots_for_target", "slots for waiting <= target"),
+)
+
+
+def slots_for_wait(loads: dict[str, int], target: float, fallback: int) -> int:
+    """Least slots C with the share of requests that met a load above C at most ``target``
+    (``loads``: {slots in use + queued + own need at a request: count}); ``fallback`` when no
+    request was recorded (a lone chain holds its slots throughout)."""
+    counts = sorted((int(k), n) for k, n in loads.items())
+    total = sum(n for _, n in counts)
+    if total == 0:
+        return fallback
+    above = total
+    for load, n in counts:
+        above -= n
+        if above / total <= target:
+            return load
+    return counts[-1][0]
+
+
+def memory_rows(sites: list[dict[str, Any]], target: float) -> list[dict[str, Any]]:
+    """Memory sizing per site from a simulation's site rows."""
+    rows = []
+    for s in sites:
+        if "slots_peak" not in s:
+            continue
+        rows.append({"site": s["site"], "memory_slots": s["memory_slots"], "slots_peak": s["slots_peak"],
+                     "slots_p99": s["slots_p99"], "memory_occupancy": s.get("memory_occupancy"),
+                     "waited_share": s["waited_share"],
+                     "slots_for_target": slots_for_wait(s.get("slot_loads") or {}, target, s["slots_peak"])})
+    return rows
+
+
+def memory_table(rows: list[dict[str, Any]], target: float) -> Table:
+    notes = [f"From the last simulation. Reserved: slots held for demands' cycles (a demand reserves one "
+             "slot per hop end on its whole route before each cycle); qubit occupancy: qubit-seconds "
+             "stored over time x slots. Slots for waiting <= target: the least number of slots with at "
+             f"most {target:g} of the reservation requests meeting more slots in use, queued or asked for "
+             "than that (an estimate from the loads requests met; a re-run checks it)."]
+    return Table("memory sizing", MEMORY_COLUMNS, list(rows), notes)
 
 VERDICT_COLUMNS = (
     Column("demand", "demand"), Column("min_rate_per_s", "min rate (pairs/s)"),
@@ -48,15 +93,15 @@ def _json_safe(value: Any) -> Any:
     return value
 
 
-def write_design(scenario: Scenario, checked: Checked, out: Path) -> list[Path]:
+def write_design(scenario: Scenario, checked: Checked, out: Path, wait_target: float = 0.05) -> list[Path]:
     """Write every output into ``out``; return the paths written."""
     out.mkdir(parents=True, exist_ok=True)
     design = checked.design
     written = []
     record = {**design.to_dict(), "scenario": scenario.name,
               "currency": (scenario.costs.currency if scenario.costs else "units"),
-              "verdicts": checked.verdicts, "history": checked.history,
-              "memory": checked.sites}
+              "verdicts": checked.verdicts, "history": checked.history, "wait_target": wait_target,
+              "memory": memory_rows(checked.sites, wait_target)}
     path = out / "design.json"
     path.write_text(json.dumps(_json_safe(record), indent=2) + "\n", encoding="utf-8")
     written.append(path)
@@ -76,6 +121,9 @@ def write_design(scenario: Scenario, checked: Checked, out: Path) -> list[Path]:
     if checked.verdicts:
         path = out / "verdicts.md"
         path.write_text(render(verdict_table(checked), "md"), encoding="utf-8")
+        written.append(path)
+        path = out / "memory.md"
+        path.write_text(render(memory_table(record["memory"], wait_target), "md"), encoding="utf-8")
         written.append(path)
     return written
 

@@ -17,7 +17,10 @@ Definitions (all per demand):
 Per link: attempt rounds, successes (heralded pairs), ``utilisation`` = time spent in attempt
 rounds / simulated time, summed over the demands routed over the link (each demand has its own
 memory slots and modes, so it can exceed 1). Per site: ``memory_occupancy`` = qubit-seconds
-stored / (simulated time x memory slots).
+stored / (simulated time x memory slots); ``slots_peak`` and ``slots_p99`` the most and the 99th
+percentile (over time) of slots reserved for demands' cycles, ``waited_share`` the share of
+reservation requests not granted at once, ``slot_loads`` what each request met (slots in use +
+queued + its own need; {load: count}).
 """
 
 from __future__ import annotations
@@ -49,7 +52,8 @@ LINK_COLUMNS: tuple[Column, ...] = (
 )
 SITE_COLUMNS: tuple[Column, ...] = (
     Column("site", "site"), Column("memory_slots", "slots"), Column("memory_occupancy", "occupancy"),
-    Column("swap_failures", "failed swaps"),
+    Column("slots_peak", "peak slots reserved"), Column("slots_p99", "99th pct slots reserved"),
+    Column("waited_share", "requests that waited"), Column("swap_failures", "failed swaps"),
 )
 
 
