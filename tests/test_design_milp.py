@@ -242,3 +242,42 @@ def test_design_cli_bad_options_one_line(tmp_path: Any, capsys: Any, argv: list[
     assert main(["design", "scenarios/chain3.toml", "--out", str(tmp_path), *argv]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and message in err[0]
+
+
+def test_check_points_a_candidate_only_demand_at_design(tmp_path: Any, capsys: Any) -> None:
+    """Alva-Corran can only be served by candidates: check says so on one line, naming the demand."""
+    from netsim.cli import main
+    from netsim.design.tomlout import dumps
+
+    src = tmp_path / "ring.toml"
+    src.write_text(dumps(ring((5.0, 5.0), PRICES[0]).data), encoding="utf-8")
+    assert main(["check", str(src)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1
+    assert "demands[1].users: ['Alva Lab', 'Corran Lab'] is not allowed here; only candidate" in err[0]
+    assert "run netsim design FILE first" in err[0]
+
+
+def test_interrupted_simulation_keeps_the_design(tmp_path: Any, monkeypatch: Any) -> None:
+    """Ctrl-C during the check: the solved design is written, the history says it is unchecked."""
+    from netsim.cli import main
+    from netsim.design import verify
+    from netsim.design.tomlout import dumps
+
+    def stop(*_: Any) -> None:
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(verify, "_simulate", stop)
+    src = tmp_path / "ring.toml"
+    src.write_text(dumps(ring((40.0, 20.0), PRICES[0]).data), encoding="utf-8")
+    assert main(["design", str(src), "--out", str(tmp_path / "o")]) == 130
+    record = json.loads((tmp_path / "o" / "design.json").read_text())
+    assert record["status"] == "optimal" and "interrupted" in record["history"][-1]
+    assert load(tmp_path / "o" / "design.toml").links
+
+
+def test_time_limit_status() -> None:
+    """A solver time limit far below what the program needs ends as time_limit, not optimal."""
+    scenario = ring((2500.0, 300.0), PRICES[0])
+    design = design_network(scenario, DesignOptions(time_limit_s=1e-6))
+    assert design.status == "time_limit"

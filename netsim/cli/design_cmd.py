@@ -99,4 +99,7 @@ def design(args: argparse.Namespace) -> int:
     else:
         print("\n".join(checked.history))
     print("wrote " + ", ".join(str(p) for p in written), file=sys.stderr)
+    if checked.interrupted:
+        print("netsim design: interrupted; the design is written, its simulation check is not", file=sys.stderr)
+        return 130
     return 0 if checked.met or args.no_simulate else 1

@@ -36,6 +36,7 @@ class Checked:
     verdicts: list[dict[str, Any]] = field(default_factory=list)
     sites: list[dict[str, Any]] = field(default_factory=list)
     history: list[str] = field(default_factory=list)
+    interrupted: bool = False
 
     @property
     def met(self) -> bool:
@@ -85,7 +86,13 @@ def design_and_check(scenario: Scenario, options: DesignOptions, *, pairs: int =
     if not simulate:
         return checked
     for round_no in range(1, rounds + 1):
-        result = _simulate(designed, pairs, seed)
+        try:
+            result = _simulate(designed, pairs, seed)
+        except KeyboardInterrupt:
+            checked.interrupted = True
+            checked.history.append(f"interrupted while simulating round {round_no}: the design of that round "
+                                   "is written but not checked by simulation")
+            return checked
         checked.verdicts = verdicts(designed, design, result)
         checked.sites = result["sites"]
         missed = [v for v in checked.verdicts if v["verdict"] == "missed"]
