@@ -145,7 +145,7 @@ def _reference_text() -> str:
 
 SECTIONS = {"[network]": (F.NETWORK_FIELDS, None), "[[sites]]": (F.SITE_FIELDS, M.Site),
             "[[links]]": (F.LINK_FIELDS, M.Link), "[[demands]]": (F.DEMAND_FIELDS, M.Demand),
-            "[protocol]": (F.PROTOCOL_FIELDS, M.Protocol)}
+            "[protocol]": (F.PROTOCOL_FIELDS, M.Protocol), "[costs]": (F.COSTS_FIELDS, M.Costs)}
 
 
 def _reference_rows() -> dict[str, dict[str, list[str]]]:
@@ -170,6 +170,8 @@ def _default_text(cls: type | None, key: str, spec: F.Spec) -> str:
     value = {f.name: f.default for f in dataclasses.fields(cls)}[key]
     if value is None:
         return "none"
+    if isinstance(value, bool):
+        return f"`{str(value).lower()}`"  # as written in TOML
     return f"`{value!r}`" if isinstance(value, str) else f"`{value:g}`" if isinstance(value, float) else f"`{value}`"
 
 

@@ -24,7 +24,7 @@ from netsim.errors import NetsimError
 __all__ = ["OneLineParser", "build_parser", "main"]
 
 #: Subcommand modules, in the order ``netsim --help`` lists them.
-COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare", "profiles")
+COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare", "profiles", "design", "import")
 
 
 class OneLineParser(argparse.ArgumentParser):

@@ -66,11 +66,35 @@ def check_memory_in(scenario: Any, path: str) -> None:
     from netsim.engine.api import check_memory
     from netsim.errors import ParameterError, Problem, ScenarioError, format_value
 
+    _needs_design(scenario, path)
     try:
         check_memory(scenario)
     except ParameterError as exc:
         message = f"{format_value(exc.value)} is not allowed; expected {exc.allowed}"
         raise ScenarioError([Problem(exc.name, message)], source=path) from None
+
+
+def _needs_design(scenario: Any, path: str) -> None:
+    """Demands that only candidate sites or links could serve: one line each, pointing at
+    ``netsim design`` (candidates exist only once a design chooses them)."""
+    if not scenario.candidate_sites and not scenario.candidate_links:
+        return
+    import networkx as nx
+
+    from netsim.errors import Problem, ScenarioError
+    from netsim.network import build_graph
+    from netsim.network.routing import relay_graph
+
+    graph = build_graph(scenario)
+    problems = []
+    for d in scenario.demands:
+        relays = relay_graph(graph, d.a, d.b)
+        if not nx.has_path(relays, d.a, d.b):
+            problems.append(Problem(f"demands[{d.index}].users", f"[{d.a!r}, {d.b!r}] is not allowed here; only "
+                                    "candidate sites or links join them, which exist once a design chooses "
+                                    "them; expected a built route (run netsim design FILE first)"))
+    if problems:
+        raise ScenarioError(problems, source=path)
 
 
 def _text(path: str, facts: dict[str, Any], warnings: list[str], usage: list[dict[str, Any]]) -> str:

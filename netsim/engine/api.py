@@ -261,7 +261,40 @@ def _site_rows(chains: list[Chain], runs: list[ChainRun]) -> list[dict[str, Any]
             row["swap_failures"] += int(r.swap_failures[j])
     for row in rows.values():
         row["memory_occupancy"] = row.pop("occupancy_sum") / max(row["memory_slots"], 1)
+    _slot_figures(rows, chains, runs)
     return list(rows.values())
+
+
+def _slot_figures(rows: dict[str, dict[str, Any]], chains: list[Chain], runs: list[ChainRun]) -> None:
+    """Reserved slots per site: ``slots_peak``, ``slots_p99`` (99th percentile over time),
+    ``slot_requests``, ``waited_share`` (requests not granted at once) and ``slot_loads``
+    ({slots in use + queued + own need at a request: count}, keys as text).
+
+    Demands that run in separate groups (their sites have room for all of them) add up: their
+    peaks and percentiles are summed (an upper bound) and each group's loads are shifted by the
+    other groups' peaks. A chain alone on the vectorised engine holds its slots throughout.
+    """
+    groups: dict[str, dict[int, dict[str, Any]]] = {}
+    for c, r in zip(chains, runs):
+        need = _need(c, 1)
+        for site in c.sites:
+            if r.slot_stats is not None and site.name in r.slot_stats:
+                groups.setdefault(site.name, {})[id(r.slot_stats)] = r.slot_stats[site.name]
+            else:
+                k = need[site.name]
+                groups.setdefault(site.name, {})[id(r)] = {"peak": k, "p99": k, "requests": 0, "waited": 0,
+                                                           "loads": {}}
+    for name, found in groups.items():
+        parts = list(found.values())
+        peak = sum(p["peak"] for p in parts)
+        loads: dict[str, int] = {}
+        for p in parts:
+            for load, count in p["loads"].items():
+                key = str(load + peak - p["peak"])
+                loads[key] = loads.get(key, 0) + count
+        requests, waited = sum(p["requests"] for p in parts), sum(p["waited"] for p in parts)
+        rows[name].update(slots_peak=peak, slots_p99=sum(p["p99"] for p in parts), slot_requests=requests,
+                          waited_share=waited / requests if requests else 0.0, slot_loads=loads)
 
 
 def check_memory(scenario: Scenario) -> None:

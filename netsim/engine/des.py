@@ -531,6 +531,9 @@ def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: lis
     sim = _Des(chains, rngs, capacity, rules, options)
     _check_capacity(sim, capacity)
     runs = sim.run()
+    stats = sim.broker.stats()
+    for r in runs:
+        r.slot_stats = stats
     return runs, [lane.log for lane in sim.lanes]
 
 

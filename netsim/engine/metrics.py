@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -153,6 +154,9 @@ class ChainRun:
     intervals_sum_s: float = 0.0
     intervals_sum_sq_s: float = 0.0
     intervals_n: int = 0
+    #: Memory-slot statistics of the run's group per site (``SlotBroker.stats``); None when
+    #: the chain ran alone on the vectorised engine (it holds its slots throughout).
+    slot_stats: dict[str, dict[str, Any]] | None = None
 
     @classmethod
     def zeros(cls, n_hops: int, engine: str, min_fidelity: float = 0.0) -> ChainRun:

@@ -28,7 +28,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Protocol
+from typing import Any, Protocol
 
 import simpy
 
@@ -134,18 +134,63 @@ class SlotBroker:
         self.env, self.free, self.policy = env, dict(capacity), policy
         self.waiting: list[tuple[Request, simpy.Event]] = []
         self._sequence = 0
+        # occupancy statistics per site (see stats())
+        self.capacity = dict(capacity)
+        self._since = dict.fromkeys(capacity, 0.0)
+        self._time_at: dict[str, dict[int, float]] = {s: {} for s in capacity}
+        self._peak = dict.fromkeys(capacity, 0)
+        self._requests = dict.fromkeys(capacity, 0)
+        self._waited = dict.fromkeys(capacity, 0)
+        self._loads: dict[str, dict[int, int]] = {s: {} for s in capacity}
 
     def request(self, demand_index: int, need: dict[str, int]) -> simpy.Event:
         event = self.env.event()
         self._sequence += 1
+        short = []
+        for site, k in need.items():  # slots in use + queued before it + its own
+            load = self.capacity[site] - self.free[site] + sum(r.need.get(site, 0) for r, _ in self.waiting) + k
+            self._loads[site][load] = self._loads[site].get(load, 0) + 1
+            self._requests[site] += 1
+            if load > self.capacity[site]:
+                short.append(site)
         self.waiting.append((Request(demand_index, self.env.now, self._sequence, need), event))
         self._grant()
+        if not event.triggered:
+            for site in short or list(need):
+                self._waited[site] += 1
         return event
 
     def release(self, need: dict[str, int]) -> None:
         for site, k in need.items():
+            self._tick(site)
             self.free[site] += k
         self._grant()
+
+    def _tick(self, site: str) -> None:
+        """Credit the time since the last change to the current number of slots in use."""
+        in_use = self.capacity[site] - self.free[site]
+        spent = self._time_at[site]
+        spent[in_use] = spent.get(in_use, 0.0) + self.env.now - self._since[site]
+        self._since[site] = self.env.now
+
+    def stats(self) -> dict[str, dict[str, Any]]:
+        """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
+        for a reservation there, ``waited`` (requests not granted at once, counted at the sites
+        that were short), ``loads`` ({slots in use + queued + own need at the request: count})."""
+        out: dict[str, dict[str, Any]] = {}
+        for site in self.capacity:
+            self._tick(site)
+            spent = self._time_at[site]
+            total = sum(spent.values())
+            p99, running = 0, 0.0
+            for in_use in sorted(spent):
+                running += spent[in_use]
+                p99 = in_use
+                if total > 0 and running >= 0.99 * total:
+                    break
+            out[site] = {"peak": self._peak[site], "p99": p99, "requests": self._requests[site],
+                         "waited": self._waited[site], "loads": dict(self._loads[site])}
+        return out
 
     def _grant(self) -> None:
         """Grant in policy order. A request that cannot be served earmarks what it needs, so
@@ -156,7 +201,9 @@ class SlotBroker:
         for req in self.policy.order([r for r, _ in self.waiting]):
             if all(spare[s] >= k for s, k in req.need.items()):
                 for s, k in req.need.items():
+                    self._tick(s)
                     self.free[s] -= k
+                    self._peak[s] = max(self._peak[s], self.capacity[s] - self.free[s])
                     spare[s] -= k
                 self.waiting = [(r, e) for r, e in self.waiting if r is not req]
                 events[id(req)].succeed()

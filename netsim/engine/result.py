@@ -25,7 +25,10 @@ Definitions (all per demand):
 Per link: attempt rounds, successes (heralded pairs), ``utilisation`` = time spent in attempt
 rounds / simulated time, summed over the demands routed over the link (each demand has its own
 memory slots and modes, so it can exceed 1). Per site: ``memory_occupancy`` = qubit-seconds
-stored / (simulated time x memory slots).
+stored / (simulated time x memory slots); ``slots_peak`` and ``slots_p99`` the most and the 99th
+percentile (over time) of slots reserved for demands' cycles, ``waited_share`` the share of
+reservation requests not granted at once, ``slot_loads`` what each request met (slots in use +
+queued + its own need; {load: count}).
 
 Every demand, link and site row has a ``profile`` field: the hardware profiles its figures rest
 on (the route's sites and links for a demand; the link and its two end sites for a link), with
@@ -65,8 +68,10 @@ LINK_COLUMNS: tuple[Column, ...] = (
     Column("utilisation", "utilisation"), Column("discarded", "cut-off discards"),
 )
 SITE_COLUMNS: tuple[Column, ...] = (
-    Column("site", "site"), Column("profile", "profile"), Column("memory_slots", "slots"), Column("memory_occupancy", "occupancy"),
-    Column("swap_failures", "failed swaps"),
+    Column("site", "site"), Column("profile", "profile"), Column("memory_slots", "slots"),
+    Column("memory_occupancy", "occupancy"),
+    Column("slots_peak", "peak slots reserved"), Column("slots_p99", "99th pct slots reserved"),
+    Column("waited_share", "requests that waited"), Column("swap_failures", "failed swaps"),
 )
 
 

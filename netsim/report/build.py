@@ -149,10 +149,24 @@ def report_tables(data: ReportData, *, metrics: Mapping[str, str | None] | None 
     links = link_rows(data.links, data.run_links, _simulated_time(data))
     demands = demand_rows(data.demands, data.run_demands)
     tables.update(links=link_table(links, data.title), demands=demand_table(demands, data.title))
+    tables.update(_cost_tables(data, demands))
     if data.kind == "run" and data.scenario is None:
         tables["links"].notes.append("The run's scenario file was not found, so the analytic "
                                      "columns are empty: pass --scenario FILE.")
     return tables
+
+
+def _cost_tables(data: ReportData, demands: list[dict[str, Any]]) -> dict[str, Table]:
+    """The network's price per element and per useful pair per second, when it is priced."""
+    from netsim.design.costs import cost_table, demand_cost_rows, demand_cost_table, network_cost
+
+    if data.scenario is None or not network_cost(data.scenario):
+        return {}
+    currency = data.scenario.costs.currency if data.scenario.costs else "units"
+    per_demand = demand_cost_rows(data.scenario, data.demands, demands)
+    return {"costs": cost_table(f"Cost: {data.title}", network_cost(data.scenario), currency),
+            "demand_costs": demand_cost_table(f"Cost per useful pair per second: {data.title}", per_demand,
+                                              currency)}
 
 
 def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,

@@ -35,6 +35,9 @@ class Candidate:
     graph: nx.Graph
     demands: list[dict[str, Any]]
     min_fidelity: dict[frozenset[str], float] = field(default_factory=dict)
+    #: Cost per useful pair per second (netsim.design.costs.demand_cost_rows): one row per
+    #: demand and a last ``network`` row; empty when the scenario is not priced.
+    costs: list[dict[str, Any]] = field(default_factory=list)
 
     def demand(self, key: frozenset[str]) -> dict[str, Any] | None:
         for row in self.demands:
@@ -176,6 +179,8 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
                Column("wins", "demands won"), Column("served", "demands met"),
                Column("fidelity_margin", "min fidelity margin", 3),
                Column("rate_margin", "min useful/required rate", 3)]
+    if any(c.costs for c in candidates):
+        columns += [Column("cost", "cost"), Column("cost_per_useful", "cost per useful pair/s", 4)]
     rows = []
     for c in candidates:
         fibre = math.fsum(float(d.get("length_km", 0.0)) for _, _, d in c.graph.edges(data=True))
@@ -187,6 +192,8 @@ def _totals(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> Tabl
                      "wins": sum(winner(candidates, k) == c.name for k in keys),
                      "served": sum(_eligible(c, k) is not None for k in keys),
                      **_margins(c, keys)})
+        if c.costs:
+            rows[-1].update(cost=c.costs[-1]["cost_share"], cost_per_useful=c.costs[-1]["cost_per_useful_pair_per_s"])
     return Table("Candidates: totals", columns, [*rows], _verdict_notes(rows, len(keys)))
 
 
@@ -225,6 +232,25 @@ def _verdict_notes(rows: list[dict[str, Any]], total: int) -> list[str]:
 
 def _fmt(value: float | None) -> str:
     return "-" if value is None else f"{value:+.3g}"
+
+
+def _cost_per_demand(candidates: Sequence[Candidate], keys: list[frozenset[str]]) -> list[Table]:
+    """Cost share and cost per useful pair per second of every demand, per priced candidate."""
+    if not any(c.costs for c in candidates):
+        return []
+    columns = [Column("demand", "demand")] + [
+        Column(f"{c.name}:cost_per_useful", f"{c.name}: cost per useful pair/s", 4) for c in candidates]
+    rows: list[Mapping[str, Any]] = []
+    for key in [*keys, None]:
+        row: dict[str, Any] = {"demand": _label(key, candidates) if key else "network"}
+        rows.append(row)
+        for c in candidates:
+            match = [r for r in c.costs if (pair_key(r["demand"]) == key if key else r["demand"] == "network")]
+            row[f"{c.name}:cost_per_useful"] = match[0]["cost_per_useful_pair_per_s"] if match else None
+    notes = ["Each candidate's [costs]: a site's or link's price is split equally among the demands routed "
+             "over it, over the demand's useful rate (pairs reaching min_fidelity); '-': unpriced, or no "
+             "useful pair."]
+    return [Table("Candidates: cost per useful pair per second", columns, rows, notes)]
 
 
 def _relays(graph: nx.Graph, a: str, b: str) -> nx.Graph:
@@ -273,7 +299,8 @@ def _profiles(graph: nx.Graph) -> str:
 def comparison_tables(candidates: Sequence[Candidate]) -> list[Table]:
     """Side-by-side per demand, totals, and bottleneck links of every candidate."""
     keys = _all_keys(candidates)
-    return [_side_by_side(candidates, keys), _totals(candidates, keys), _bottlenecks(candidates, keys)]
+    return [_side_by_side(candidates, keys), _totals(candidates, keys), _bottlenecks(candidates, keys),
+            *_cost_per_demand(candidates, keys)]
 
 
 def candidate_from_scenario(scenario: Any, run: Mapping[str, Any] | None,
@@ -283,9 +310,13 @@ def candidate_from_scenario(scenario: Any, run: Mapping[str, Any] | None,
     from netsim.network.budget import budget
     from netsim.report.capacity import demand_rows
 
-    rows = demand_rows(budget(scenario).demands, (run or {}).get("demands"))
+    from netsim.design.costs import demand_cost_rows
+
+    plan = budget(scenario).demands
+    rows = demand_rows(plan, (run or {}).get("demands"))
     floors = {pair_key((d.a, d.b)): float(d.min_fidelity) for d in scenario.demands}
-    return Candidate(name or scenario.slug, build_graph(scenario), rows, floors)
+    return Candidate(name or scenario.slug, build_graph(scenario), rows, floors,
+                     demand_cost_rows(scenario, plan, rows))
 
 
 def run_candidates(paths: Sequence[str], *, pairs: int | None = 200, time_s: float | None = None,

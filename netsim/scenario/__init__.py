@@ -7,10 +7,11 @@ scenarios/REFERENCE.md for every key, unit, default and allowed range.
 """
 
 from netsim.scenario.loader import TOP_LEVEL_KEYS, content_hash, load, load_data
-from netsim.scenario.model import Demand, Encoding, Link, Protocol, Scenario, Site
+from netsim.scenario.model import Costs, Demand, Encoding, Link, Protocol, Scenario, Site
 
 __all__ = [
     "TOP_LEVEL_KEYS",
+    "Costs",
     "Demand",
     "Encoding",
     "Link",

@@ -101,6 +101,10 @@ def _site_rules(path: str, own: Mapping[str, Any], from_profile: Mapping[str, An
         problems.append(Problem(f"{path}.memory_slots", f"0{_origin('memory_slots', own, from_profile)} is not "
                                 f"allowed at a {role} site; expected an integer >= 1 (0 only at a "
                                 "switch)"))
+    if own.get("candidate") and role == "user":
+        problems.append(Problem(f"{path}.candidate", "true is not allowed at a user site; expected "
+                                "false (demands name their users; only repeaters and switches "
+                                "may be candidates)"))
     t1, t2 = merged.get("t1_s", Site.t1_s), merged.get("t2_s", Site.t2_s)
     own_times = {"t1_s", "t2_s"} & (set(own) | set(from_profile))
     if own_times and not invalid & {"t1_s", "t2_s"} and t2 > 2.0 * t1:

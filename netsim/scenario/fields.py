@@ -27,6 +27,7 @@ from netsim.scenario.model import (
 )
 
 __all__ = [
+    "COSTS_FIELDS",
     "DEMAND_FIELDS",
     "LINK_DEFAULTABLE",
     "LINK_FIELDS",
@@ -68,8 +69,9 @@ class Spec:
 
     Parameters
     ----------
-    kind : {"real", "int", "str", "choice"}
-        ``real`` accepts int and float (never bool); ``int`` accepts integers only.
+    kind : {"real", "int", "str", "choice", "bool"}
+        ``real`` accepts int and float (never bool); ``int`` accepts integers only; ``bool``
+        accepts ``true`` and ``false`` only.
     low, high : float, optional
         Bounds of a number; ``low_open``/``high_open`` exclude the bound itself.
     choices : tuple of str
@@ -98,6 +100,8 @@ class Spec:
             return "one of " + ", ".join(repr(c) for c in self.choices)
         if self.kind == "str":
             return "a non-empty string"
+        if self.kind == "bool":
+            return "true or false"
         noun = "an integer" if self.kind == "int" else "a number"
         text = noun + self._range_text()
         return f"{text} ({self.unit})" if self.unit else text
@@ -120,6 +124,8 @@ class Spec:
             return isinstance(value, str) and value in self.choices
         if self.kind == "str":
             return isinstance(value, str) and value.strip() != ""
+        if self.kind == "bool":
+            return isinstance(value, bool)
         if self.kind == "int" and not is_integer(value):
             return False
         if not is_finite_number(value):
@@ -188,6 +194,8 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "photon_indistinguishability": _prob(),
     "attempt_dephasing": _prob(),
     "profile": PROFILE_SPEC,
+    "candidate": Spec("bool"),
+    "cost": Spec("real", 0.0, None),
 }
 
 #: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
@@ -204,6 +212,8 @@ LINK_FIELDS: Mapping[str, Spec] = {
     "pair_probability": _prob(low_open=True, high_open=True),
     "phase_noise_rad": Spec("real", 0.0, None, unit="rad"),
     "profile": PROFILE_SPEC,
+    "candidate": Spec("bool"),
+    "cost": Spec("real", 0.0, None),
 }
 
 #: Keys of a ``[[demands]]`` table (``users`` is checked apart: two site names).
@@ -212,6 +222,18 @@ DEMAND_FIELDS: Mapping[str, Spec] = {
     "duration_s": _positive("s"),
     "min_fidelity": _prob(),
     "min_rate_per_s": Spec("real", 0.0, None, unit="1/s"),
+}
+
+#: Keys of the ``[costs]`` table: prices in the unit named by ``currency`` (a label).
+COSTS_FIELDS: Mapping[str, Spec] = {
+    "currency": Spec("str"),
+    "fibre_per_km": Spec("real", 0.0, None),
+    "repeater_site": Spec("real", 0.0, None),
+    "user_site": Spec("real", 0.0, None),
+    "memory_slot": Spec("real", 0.0, None),
+    "mode": Spec("real", 0.0, None),
+    "detector": Spec("real", 0.0, None),
+    "heralding_station": Spec("real", 0.0, None),
 }
 
 PROTOCOL_FIELDS: Mapping[str, Spec] = {
@@ -225,7 +247,7 @@ PROTOCOL_FIELDS: Mapping[str, Spec] = {
 
 #: Site keys that ``[defaults.site]`` may set.
 SITE_DEFAULTABLE: Mapping[str, Spec] = {
-    k: v for k, v in SITE_FIELDS.items() if k not in ("name", "role", "x_km", "y_km")
+    k: v for k, v in SITE_FIELDS.items() if k not in ("name", "role", "x_km", "y_km", "candidate", "cost")
 }
 #: Link keys that ``[defaults.link]`` may set.
-LINK_DEFAULTABLE: Mapping[str, Spec] = dict(LINK_FIELDS)
+LINK_DEFAULTABLE: Mapping[str, Spec] = {k: v for k, v in LINK_FIELDS.items() if k not in ("candidate", "cost")}

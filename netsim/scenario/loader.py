@@ -21,18 +21,19 @@ from netsim.scenario.checks import check_table, join, unknown_key
 from netsim.scenario.elements import parse_demands, parse_links, parse_sites
 from netsim.scenario.encoding import parse_encoding
 from netsim.scenario.fields import (
+    COSTS_FIELDS,
     LINK_DEFAULTABLE,
     NETWORK_FIELDS,
     PROTOCOL_FIELDS,
     SITE_DEFAULTABLE,
 )
-from netsim.scenario.model import Protocol, Scenario
+from netsim.scenario.model import Costs, Protocol, Scenario
 
 __all__ = ["TOP_LEVEL_KEYS", "content_hash", "load", "load_data"]
 
 #: The tables a scenario file may hold. ``sweep`` is kept untouched for the sweep layer.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
-    "network", "encoding", "protocol", "defaults", "sites", "links", "demands", "sweep",
+    "network", "encoding", "protocol", "defaults", "sites", "links", "demands", "sweep", "costs",
 )
 
 
@@ -117,11 +118,17 @@ def _build(data: dict[str, Any], problems: list[Problem], source: str | None) ->
     demands = parse_demands(data.get("demands", []), roles, edges, problems)
     encoding = parse_encoding(data.get("encoding"), problems)
     protocol = _protocol(data.get("protocol", {}), problems)
+    costs = Costs(**check_table(data["costs"], "costs", COSTS_FIELDS, problems)) if "costs" in data else None
     if problems or network is None or encoding is None or protocol is None:
         return None
-    return Scenario(name=network["name"], purpose=network.get("purpose", ""), sites=tuple(sites),
-                    links=tuple(links), demands=tuple(demands), encoding=encoding,
-                    protocol=protocol, data=data, content_hash=content_hash(data), source=source)
+    built_sites = tuple(s for s in sites if not s.candidate)
+    names = {s.name for s in built_sites}
+    built_links = tuple(k for k in links if not k.candidate and k.a in names and k.b in names)
+    return Scenario(name=network["name"], purpose=network.get("purpose", ""), sites=built_sites,
+                    links=built_links, demands=tuple(demands), encoding=encoding,
+                    protocol=protocol, data=data, content_hash=content_hash(data), source=source,
+                    costs=costs, candidate_sites=tuple(s for s in sites if s.candidate),
+                    candidate_links=tuple(k for k in links if k not in built_links))
 
 
 def _network(table: Any, problems: list[Problem]) -> dict[str, Any] | None:

@@ -16,6 +16,7 @@ Scenario file layout (TOML)::
     [[sites]]          name, role, x_km, y_km, memory_slots, t1_s, t2_s, ...
     [[links]]          ends = [site, site], length_km, attenuation_db_per_km, ...
     [[demands]]        users = [site, site], pairs or duration_s, min_fidelity, min_rate_per_s
+    [costs]            currency, fibre_per_km, repeater_site, memory_slot, mode, ...
     [sweep]            kept untouched in Scenario.data for the sweep layer
 
 The full reference (every key, unit, default and allowed range) is the README's scenario reference.
@@ -34,6 +35,7 @@ __all__ = [
     "SCHEMES",
     "SITE_ROLES",
     "SWAP_POLICIES",
+    "Costs",
     "Demand",
     "Encoding",
     "Link",
@@ -95,6 +97,10 @@ class Site:
     photon_indistinguishability: float = 0.8  # limits the interference visibility of two sites' photons
     attempt_dephasing: float = 1e-3       # dephasing p of stored qubits per attempt the site makes
     profile: str | None = None            # the hardware profile the values came from (own or defaults)
+    gate_error: float = 0.0               # depolarizing p applied to the swapped pair
+    attempt_prep_time_s: float = 1e-6     # memory initialisation and emission per attempt
+    candidate: bool = False               # exists only if a design chooses it (netsim design)
+    cost: float | None = None             # own price of building the site (replaces [costs])
 
 
 @dataclass(frozen=True)
@@ -121,6 +127,8 @@ class Link:
     pair_probability: float = 0.01        # mean pairs per pulse of a midpoint source
     phase_noise_rad: float = 0.25         # rms optical phase error of single-photon heralding
     profile: str | None = None            # the hardware profile the values came from (own or defaults)
+    candidate: bool = False               # exists only if a design chooses it (netsim design)
+    cost: float | None = None             # own price of the fibre (e.g. a dark-fibre lease)
 
     @property
     def name(self) -> str:
@@ -178,8 +186,30 @@ class Protocol:
 
 
 @dataclass(frozen=True)
+class Costs:
+    """Prices of the ``[costs]`` table, in the unit named by ``currency`` (a label only).
+
+    ``fibre_per_km`` per km of link; ``repeater_site`` / ``user_site`` per site built;
+    ``memory_slot`` per qubit memory; ``mode`` per multiplexed mode and link end; ``detector``
+    per heralding detector (two per link); ``heralding_station`` per link heralded at a
+    midpoint station or source (every scheme but ``direct``). A site's or link's own ``cost``
+    replaces the site or fibre price (its slots, modes and detectors are still priced).
+    """
+
+    currency: str = "units"
+    fibre_per_km: float = 0.0
+    repeater_site: float = 0.0
+    user_site: float = 0.0
+    memory_slot: float = 0.0
+    mode: float = 0.0
+    detector: float = 0.0
+    heralding_station: float = 0.0
+
+
+@dataclass(frozen=True)
 class Scenario:
-    """A whole validated scenario. ``data`` is the parsed file with defaults not yet applied
+    """A whole validated scenario (``sites`` and ``links``: the built network; candidates apart).
+    ``data`` is the parsed file with defaults not yet applied
     (sweeps edit it and load it again); ``content_hash`` is the SHA-256 of its canonical JSON."""
 
     name: str
@@ -192,6 +222,11 @@ class Scenario:
     data: dict[str, Any] = field(repr=False, compare=False, default_factory=dict)
     content_hash: str = ""
     source: str | None = None
+    costs: Costs | None = None            # the [costs] table; None when the file has none
+    #: Sites and links marked ``candidate = true`` (and links with a candidate end): they exist
+    #: only once a design chooses them, so ``sites`` and ``links`` hold the built network alone.
+    candidate_sites: tuple[Site, ...] = ()
+    candidate_links: tuple[Link, ...] = ()
 
     def site(self, name: str) -> Site:
         for s in self.sites:
