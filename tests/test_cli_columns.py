@@ -129,7 +129,7 @@ def test_run_table_prints_intervals_to_their_precision() -> None:
 
 def test_latex_types_powers_of_ten_and_keeps_the_notes() -> None:
     """'3.59e4' in a typeset proposal reads as code; the fragment writes 3.59 x 10^4 in text mode
-    (no $ or ^, so the structural check still holds) and carries the table's notes as comments."""
+    (no $ or ^, so the structural check still holds) and prints the table's notes below it."""
     from netsim.report.latex import check_fragment, compile_fragment, tex_engine
 
     table = Table("Bounds of Marrowgate", [Column("link", "link"), Column("b", "bound (ebit/s)"),
@@ -140,7 +140,7 @@ def test_latex_types_powers_of_ten_and_keeps_the_notes() -> None:
     assert r"3.59\ensuremath{\times}10\textsuperscript{4}" in text
     assert r"[1.2\ensuremath{\times}10\textsuperscript{\ensuremath{-}5}, 3\ensuremath{\times}10\textsuperscript{4}]" in text
     assert "Marrowgate-Pell 2e5 Annex" in text  # names are text, not numbers
-    assert "% Bounds after a cited source (100% of them)." in text
+    assert r"Bounds after a cited source (100\% of them).\par" in text
     assert check_fragment(text) == []
     if tex_engine() is not None:
         ok, log = compile_fragment([text])

@@ -349,6 +349,11 @@ length_km = 4.0
 @pytest.mark.parametrize(("argv", "line"), [
     (["run", "x.toml", "--sed", "3"],
      "netsim run: error: --sed 3: not an option or argument of netsim run; did you mean --seed? see netsim run --help"),
+    # A prefix is not the option: '--pair 10' once replaced a 3000-pair run (argparse default).
+    (["run", "x.toml", "--pair", "10"],
+     "netsim run: error: --pair 10: not an option or argument of netsim run; did you mean --pairs? see netsim run --help"),
+    (["report", "x.toml", "--sim"],
+     "netsim report: error: --sim: not an option or argument of netsim report; did you mean --simulate? see netsim report --help"),
     (["budget", "a.toml", "b.toml"],
      "netsim budget: error: b.toml: not an option or argument of netsim budget; see netsim budget --help"),
 ])

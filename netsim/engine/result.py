@@ -29,7 +29,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from netsim.report.table import Column, Table
+from netsim.table import Column, Table
 
 __all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS", "RunResult"]
 

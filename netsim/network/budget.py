@@ -27,7 +27,7 @@ from netsim.network.bounds import (
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
 from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
-from netsim.report.table import Column, Table
+from netsim.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
 
 __all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget"]
