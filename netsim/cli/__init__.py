@@ -24,7 +24,7 @@ from netsim.errors import NetsimError
 __all__ = ["OneLineParser", "build_parser", "main"]
 
 #: Subcommand modules, in the order ``netsim --help`` lists them.
-COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare")
+COMMANDS = ("link", "check", "budget", "run", "sweep", "sensitivity", "report", "compare")
 
 
 class OneLineParser(argparse.ArgumentParser):

@@ -30,7 +30,7 @@ from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
 
-__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget"]
+__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget", "expected_figures"]
 
 LINK_COLUMNS: tuple[Column, ...] = (
     Column("link", "link"), Column("scheme", "scheme"), Column("length_km", "length (km)"),
@@ -129,6 +129,25 @@ def budget(scenario: Scenario, policy: str | None = None) -> Budget:
         rows.append(row)
         warnings += [warning] if warning else []
     return Budget(scenario.name, links, rows, warnings)
+
+
+def expected_figures(scenario: Scenario, policy: str | None = None) -> list[dict[str, Any]]:
+    """Per demand, only the closed-form expectations of :func:`budget` (route, expected wait,
+    rate, fidelity and EoF; no bounds or Holevo figures): the cheap part, for sampling many
+    variants of one scenario. A demand without a route gets ``{"demand": name, "route": None}``.
+    """
+    graph = build_graph(scenario)
+    rows = []
+    for demand in scenario.demands:
+        row: dict[str, Any] = {"demand": demand.name, "min_fidelity": demand.min_fidelity}
+        try:
+            route = find_route(graph, demand.a, demand.b, policy or scenario.protocol.routing)
+        except ParameterError:
+            rows.append({**row, "route": None})
+            continue
+        row.update(_chain_figures(graph, route, route_hops(graph, route)))
+        rows.append(row)
+    return rows
 
 
 def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, Any]:

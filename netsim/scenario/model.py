@@ -15,6 +15,7 @@ Scenario file layout (TOML)::
     [[links]]          ends = [site, site], length_km, attenuation_db_per_km, ...
     [[demands]]        users = [site, site], pairs or duration_s, min_fidelity
     [sweep]            kept untouched in Scenario.data for the sweep layer
+    [sensitivity]      kept untouched in Scenario.data: ranges of the sensitivity ranking
 
 The full reference (every key, unit, default and allowed range) is the README's scenario reference.
 """
