@@ -268,7 +268,7 @@ def test_store_report_without_its_scenario_says_so(tmp_path: Path, monkeypatch: 
     (["budget", "x.toml", "--only", "link"],
      "netsim budget: error: --only = 'link' is not allowed; expected one of links, demands"),
     (["frobnicate"], "netsim: error: COMMAND = 'frobnicate' is not allowed; expected one of link, check, budget, "
-                     "run, sweep, report, compare"),
+                     "run, sweep, sensitivity, report, compare"),
 ])
 def test_option_type_errors_take_the_house_form(argv: list[str], line: str,
                                                 capsys: pytest.CaptureFixture[str]) -> None:

@@ -51,7 +51,7 @@ def test_run_json_report_finds_its_scenario(tmp_path: Path, monkeypatch) -> None
     result = engine.run(load(tmp_path / "scenarios" / "chain3.toml"), pairs=30, seed=1, ensembles=False)
     result.write(tmp_path / "results" / "chain3")
     assert main(["report", "results/chain3/run.json", "--format", "tex", "--quiet"]) == 0
-    out = tmp_path / "results" / "chain3" / "report"
+    out = tmp_path / "results" / "chain3" / "report-run"    # named for its source
     fragments = [(out / name).read_text() for name in ("links.tex", "demands.tex")]
     assert [check_fragment(f) for f in fragments] == [[], []]
     if tex_engine() is not None:                      # compile only where TeX is installed
@@ -119,7 +119,8 @@ def load_source_table(tmp_path: Path):
 @pytest.mark.parametrize(("argv", "message"), [
     (["nowhere.toml"], "SOURCE = 'nowhere.toml' is not allowed; expected an existing file"),
     (["data.xlsx"], "SOURCE = 'data.xlsx' is not allowed; expected a scenario (.toml)"),
-    ([str(CHAIN3), "--format", "pdf"], "--format = 'pdf' is not allowed; expected one of md"),
+    ([str(CHAIN3), "--format", "docx"], "--format = 'docx' is not allowed; expected one of md"),
+    ([str(CHAIN3), "--format", "pdf", "--ranking", "fast"], "--ranking = 'fast' is not allowed; expected one of morris"),
     ([str(CHAIN3), "--pairs", "10"], "--pairs/--time-s = 10 is not allowed; expected only together with --simulate"),
     ([str(CHAIN3), "--simulate", "--pairs", "0"], "--pairs = 0 is not allowed"),
 ])
@@ -146,7 +147,7 @@ def test_store_report_adds_base_scenario_tables_when_found(tmp_path: Path, monke
     assert main(["sweep", "scenarios/chain3.toml", "--vary", "links[*].length_km=8,12",
                  "--pairs", "20", "--workers", "1", "--quiet"]) == 0
     assert main(["report", "results/chain3/sweep.sqlite", "--quiet", "--no-figures"]) == 0
-    out = tmp_path / "results" / "chain3" / "report"
+    out = tmp_path / "results" / "chain3" / "report-sweep"  # a run's report would not replace it
     names = {p.name for p in out.iterdir()}
     assert {"links.md", "demands.md", "pivot-rate_per_s-alder-row-lab-cindermoss-campus.md"} <= names
     (tmp_path / "scenarios" / "chain3.toml").write_text(CHAIN3.read_text().replace("= 10.0", "= 11.0", 1))

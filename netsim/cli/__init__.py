@@ -97,6 +97,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
+    args.argv = list(argv) if argv is not None else None  # the command as typed, for provenance
     try:
         return int(args.func(args) or 0)
     except NetsimError as exc:

@@ -9,7 +9,7 @@ from typing import Any
 
 __all__ = ["register", "run"]
 
-_FORMATS = ("md", "csv", "tex", "json", "table")
+_FORMATS = ("md", "csv", "tex", "json", "table", "pdf")
 
 #: Columns of the printed summary by default (``--wide``: all; the files always hold every column).
 COMPACT = {
@@ -29,7 +29,13 @@ def register(subparsers: Any) -> None:
                     "a run result (run.json) or a sweep store (.sqlite, pivot tables over the "
                     "swept parameters). Tables go to one file each; figures as PNG and PDF.")
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
-    parser.add_argument("--format", default="md", help="table format: " + ", ".join(_FORMATS) + " (default md)")
+    parser.add_argument("--format", default="md",
+                        help="table format: " + ", ".join(_FORMATS) + " (default md); pdf writes only "
+                             "the proposal document (proposal.pdf)")
+    parser.add_argument("--pdf", action="store_true",
+                        help="also write the proposal document proposal.pdf beside the tables and figures")
+    parser.add_argument("--ranking", default="morris",
+                        help="sensitivity ranking in the PDF: morris (default), sobol or none")
     parser.add_argument("--out", default=None,
                         help="output directory (default results/<scenario>/report-<source>: "
                              "report-budget for a scenario, report-simulation with --simulate, "
@@ -61,6 +67,8 @@ def _check(args: argparse.Namespace) -> None:
 
     if args.format not in _FORMATS:
         raise ParameterError("--format", args.format, "one of " + ", ".join(_FORMATS))
+    if args.ranking not in ("morris", "sobol", "none"):
+        raise ParameterError("--ranking", args.ranking, "one of morris, sobol, none")
     if args.pairs is not None and args.pairs < 1:
         raise ParameterError("--pairs", args.pairs, "an integer >= 1")
     if args.time_s is not None and not args.time_s > 0:
@@ -89,6 +97,28 @@ def default_out(source: str | Path, slug: str, simulate: bool) -> Path:
     return Path("results") / slug / f"report-{name}"
 
 
+def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> Path:
+    """The proposal document, with the sensitivity ranking on the closed forms when the
+    scenario is known."""
+    import shlex
+    import sys
+
+    from netsim import __version__
+    from netsim.report.build import report_figures
+    from netsim.report.proposal import Provenance, write_proposal
+
+    ranking = None
+    if args.ranking != "none" and data.scenario is not None and data.scenario.demands:
+        from netsim.sweep.sensitivity import rank_parameters
+
+        ranking = rank_parameters(data.scenario, method=args.ranking, seed=args.seed)
+    figures = {} if args.no_figures else report_figures(data, tables, args.param)
+    command = "netsim " + " ".join(shlex.quote(a) for a in (args.argv or sys.argv[1:]))
+    seed = args.seed if (args.simulate or ranking is not None) else None
+    return write_proposal(path, data, tables, figures,
+                          Provenance(command, str(args.source), seed, __version__), ranking)
+
+
 def run(args: argparse.Namespace) -> int:
     from netsim.cli.columns import choose_columns
     from netsim.cli.outputs import refuse_overwrite
@@ -112,8 +142,12 @@ def run(args: argparse.Namespace) -> int:
                        scenario_path=args.scenario)
     out = Path(args.out) if args.out else default_out(args.source, data.slug, args.simulate)
     refuse_overwrite([out], args.force, "report")
-    tables, written = write_report(data, out, args.format, figures=not args.no_figures,
-                                   metrics=_metrics(args.metric), params=args.param)
+    pdf_only = args.format == "pdf"
+    tables, written = write_report(data, out, "md" if pdf_only else args.format,
+                                   figures=not args.no_figures and not pdf_only,
+                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only)
+    if pdf_only or args.pdf:
+        written.append(_write_pdf(args, data, tables, out / "proposal.pdf"))
     if not args.quiet:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)

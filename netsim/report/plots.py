@@ -15,7 +15,7 @@ import numpy as np
 from matplotlib.figure import Figure
 from numpy.typing import ArrayLike
 
-from netsim.report.build import file_stem, value_order
+from netsim.report.build import file_stem, fixed_label, parameter_groups
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
 from netsim.report.pivot import grid, series
@@ -97,35 +97,41 @@ def network_figures(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) ->
     return figures
 
 
-def _fixed(records: list[dict[str, Any]], rest: Sequence[str]) -> tuple[list[dict[str, Any]], str]:
-    """Records at the first value of every parameter beyond the two plotted, and a caption."""
-    fixed = {k: min((r.get(k) for r in records), key=value_order) for k in rest}
-    chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
-    return chosen, "".join(f", {k}={v}" for k, v in fixed.items())
-
-
 def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: str | None,
                     params: Sequence[str]) -> dict[str, Figure]:
-    """Heatmap over the first two parameters and lines against the first, one per second value."""
-    chosen, where = _fixed(records, params[2:])
-    x, y, z = grid(chosen, metric, params[0], params[1])
-    stem = file_stem(f"{metric}-{name}{where}")
-    curves = {param_value_label(params[1], v): series(
-        [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
-    title = f"demand {name}{where}"
-    return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=param_label(params[0]),
-                                       ylabel=param_label(params[1]), zlabel=header(metric),
-                                       title=title),
-            f"lines-{stem}": metric_vs_parameter(curves, xlabel=param_label(params[0]),
-                                                 ylabel=header(metric), title=title,
-                                                 logy=metric.endswith("per_s"))}
+    """Heatmap over the first two parameters and lines against the first, one per second value;
+    one pair of figures per combination of the values of the further parameters, named in the
+    title and the file name (key as written, value rounded)."""
+    figures: dict[str, Figure] = {}
+    for fixed in parameter_groups(records, params[2:]):
+        chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
+        if not chosen:
+            continue
+        where = fixed_label(fixed)
+        x, y, z = grid(chosen, metric, params[0], params[1])
+        stem = file_stem(f"{metric}-{name}{where}")
+        curves = {param_value_label(params[1], v): series(
+            [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
+        title = f"demand {name}{where}"
+        held = f"; held at {where[2:]}" if where else ""
+        heat = heatmap(x, y, z, xlabel=param_label(params[0]), ylabel=param_label(params[1]),
+                       zlabel=header(metric), title=title)
+        heat.set_label(f"{header(metric)} of demand {name} over {params[0]} and {params[1]}{held} "
+                       "(mean over repeats at each sweep point).")
+        lines = metric_vs_parameter(curves, xlabel=param_label(params[0]), ylabel=header(metric),
+                                    title=title, logy=metric.endswith("per_s"))
+        lines.set_label(f"{header(metric)} of demand {name} against {params[0]}, one line per value of "
+                        f"{params[1]}{held}; shaded: 95 % intervals.")
+        figures[f"heatmap-{stem}"] = heat
+        figures[f"lines-{stem}"] = lines
+    return figures
 
 
 def sweep_figures(data: ReportData, params: Sequence[str],
                   metrics: Mapping[str, str | None] | None = None) -> dict[str, Figure]:
     """Each metric against the first swept parameter with 95 % bands (one line per demand);
     with two or more parameters, per demand a heatmap over the first two and lines against the
-    first (further parameters held at their first value)."""
+    first, for every combination of the values of the further parameters."""
     metrics = metrics or {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95"}
     demands = [r for r in data.records if r.get("kind") == "demand"]
     if not params or not demands:
@@ -140,7 +146,8 @@ def sweep_figures(data: ReportData, params: Sequence[str],
             elif mine:
                 figures.update(_demand_figures(mine, name, metric, ci, params))
         if curves:
-            figures[file_stem(f"{metric}-vs-{params[0]}")] = metric_vs_parameter(
-                curves, xlabel=param_label(params[0]), ylabel=header(metric),
-                logy=metric.endswith("per_s"))
+            fig = metric_vs_parameter(curves, xlabel=param_label(params[0]), ylabel=header(metric),
+                                      logy=metric.endswith("per_s"))
+            fig.set_label(f"{header(metric)} against {params[0]}, one line per demand; shaded: 95 % intervals.")
+            figures[file_stem(f"{metric}-vs-{params[0]}")] = fig
     return figures
