@@ -20,7 +20,7 @@ from netsim.errors import ParameterError
 from netsim.report.table import Column, Table
 from netsim.report.units import header, mean_ci95
 
-__all__ = ["Cell", "aggregate", "grid", "pivot_table", "series", "short_name", "swept_parameters"]
+__all__ = ["grid_key", "Cell", "aggregate", "grid", "pivot_table", "series", "short_name", "swept_parameters"]
 
 
 @dataclass(frozen=True)
@@ -98,18 +98,26 @@ def _one_parameter(cells: dict[tuple[Any, ...], Cell], metric: str, param: str) 
     return Table(f"{header(metric)} against {param}", columns, rows)
 
 
+def grid_key(metric: str, col_param: str, value: Any, interval: bool = False) -> str:
+    """The row key (and DataFrame column) of a two-way pivot's cell: the metric, or its
+    interval, at one value of the column parameter (key as written, value rounded):
+    ``grid_key("rate_per_s", "sites[*].t2_s", 0.1)`` -> ``"rate_per_s at sites[*].t2_s=0.1"``."""
+    text = f"{value:.4g}" if isinstance(value, float) else str(value)
+    return f"{metric}{'_ci95' if interval else ''} at {col_param}={text}"
+
+
 def _two_parameters(cells: dict[tuple[Any, ...], Cell], metric: str, rp: str, cp: str) -> Table:
     col_values = sorted({k[1] for k in cells}, key=lambda v: _sort_key((v,)))
     columns = [Column(rp, f"{rp} \\ {cp}")]
-    for j, v in enumerate(col_values):
-        columns += [Column(f"c{j}", f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
-                           else f"{short_name(cp)}={v}", ci_key=f"c{j}_ci"),
-                    Column(f"c{j}_ci", "95% CI", ci_key=f"c{j}_ci")]
+    for v in col_values:
+        key, ci = grid_key(metric, cp, v), grid_key(metric, cp, v, interval=True)
+        columns += [Column(key, f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
+                           else f"{short_name(cp)}={v}", ci_key=ci),
+                    Column(ci, "95% CI", ci_key=ci)]
     rows: dict[Any, dict[str, Any]] = {}
     for (r, c), cell in cells.items():
         row = rows.setdefault(r, {rp: r})
-        j = col_values.index(c)
-        row[f"c{j}"], row[f"c{j}_ci"] = cell.value, cell.interval
+        row[grid_key(metric, cp, c)], row[grid_key(metric, cp, c, interval=True)] = cell.value, cell.interval
     return Table(f"{header(metric)} over {rp} and {cp}", columns, [*rows.values()])
 
 

@@ -388,7 +388,8 @@ def _figure_caption(stem: str, fig: Figure, data: ReportData, assumptions: str) 
                 "with the repeaterless bound -log2(1 - eta); closed forms with the fibre, detectors and "
                 "end sites of the scenario's first memory-to-memory link, only length and scheme varied; "
                 "nothing simulated.")
-    return f"{text or stem.replace('-', ' ') + '.'} {assumptions}"
+    text = text or stem.replace("-", " ") + "."
+    return f"{text[:1].upper()}{text[1:]} {assumptions}"
 
 
 def _assumptions_line(data: ReportData, provenance: Provenance) -> str:
