@@ -32,7 +32,7 @@ def test_budget_text_fits_a_terminal_and_says_how_to_see_more(capsys: pytest.Cap
     assert main(["budget", str(MESH)]) == 0
     out = capsys.readouterr().out
     assert max(len(line) for line in out.splitlines()) <= TERMINAL
-    assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (bit/s)" in out
+    assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (ebit/s)" in out
     assert "Holevo capacity (bit/use)" not in out
     assert "--wide prints all 19" in out and "--wide prints all 13" in out
 
@@ -55,7 +55,7 @@ def test_budget_columns_chooses_by_key(capsys: pytest.CaptureFixture[str]) -> No
     assert main(["budget", str(CHAIN), "--format", "csv", "--columns", "fidelity,holevo_bits"]) == 0
     out = capsys.readouterr().out
     header = next(csv.reader(io.StringIO(out)))
-    assert header == ["link", "fidelity", "Holevo chi (bit/qubit)"]
+    assert header == ["link", "fidelity", "Holevo information (bit/qubit)"]
     assert "demand" not in out  # the demands table holds neither key: it is left out
 
 
@@ -79,9 +79,9 @@ def test_run_text_is_compact_and_wide_restores(tmp_path: Path, capsys: pytest.Ca
     assert main(argv) == 0
     compact = capsys.readouterr().out
     assert max(len(line) for line in compact.splitlines()) <= TERMINAL
-    assert "rate 95% CI (pairs/s)" in compact and "Holevo chi (bit/qubit)" not in compact
+    assert "rate 95% CI (pairs/s)" in compact and "Holevo information (bit/qubit)" not in compact
     assert main([*argv, "--wide"]) == 0
-    assert "Holevo chi (bit/qubit)" in capsys.readouterr().out
+    assert "Holevo information (bit/qubit)" in capsys.readouterr().out
     header = next(csv.reader((tmp_path / "run.csv").open()))
     assert any("chi" in h for h in header)  # the file keeps every field
 

@@ -40,8 +40,8 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("fidelity_mean", "fidelity", ci_key="fidelity_ci95"),
     Column("fidelity_ci95", "fidelity 95% CI", ci_key="fidelity_ci95"),
     Column("eof_mean", "EoF (ebit/pair)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
-    Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (bit/s)"),
-    Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),
+    Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (ebit/s)"),
+    Column("ensemble_chi_bits_per_qubit", "Holevo information, simulated (bit/qubit)"),
 )
 LINK_COLUMNS: tuple[Column, ...] = (
     Column("link", "link"), Column("attempts", "attempt rounds"), Column("successes", "pairs heralded"),

@@ -39,10 +39,10 @@ LINK_COLUMNS: tuple[Column, ...] = (
     Column("attempt_period_s", "attempt period (s)"), Column("modes", "modes"),
     Column("success_probability", "success per mode"), Column("pair_rate_per_s", "pair rate (pairs/s)"),
     Column("fidelity", "fidelity"), Column("eof_ebits", "EoF (ebit/pair)"),
-    Column("plob_bits_per_use", "PLOB (bit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
-    Column("plob_bits_per_s", "PLOB at modes/period (bit/s)"),
-    Column("bound_bits_per_s", "link bound as heralded (bit/s)"),
-    Column("holevo_bits", "Holevo chi (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
+    Column("plob_bits_per_use", "repeaterless bound (ebit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
+    Column("plob_bits_per_s", "repeaterless bound (ebit/s)"),
+    Column("bound_bits_per_s", "link bound as heralded (ebit/s)"),
+    Column("holevo_bits", "Holevo information (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
 )
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
@@ -51,17 +51,17 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("expected_wait_s", "all hops ready (s)"), Column("expected_rate_per_s", "expected rate (pairs/s)"),
     Column("expected_fidelity", "expected fidelity"),
     Column("expected_eof_ebits", "expected EoF (ebit)"), Column("min_fidelity", "min fidelity"),
-    Column("route_bound_bits_per_s", "route bound (bit/s)"),
-    Column("single_path_bits_per_s", "single-path bound (bit/s)"),
-    Column("multipath_bits_per_s", "multipath bound (bit/s)"),
+    Column("route_bound_bits_per_s", "route bound (ebit/s)"),
+    Column("single_path_bits_per_s", "single-path bound (ebit/s)"),
+    Column("multipath_bits_per_s", "multipath bound (ebit/s)"),
 )
 
 LINK_NOTES = (
-    ("PLOB: -log2(1 - eta) of the whole fibre per channel use (Pirandola et al., Nat. Commun. 8, "
+    ("Repeaterless bound (PLOB): -log2(1 - eta) of the whole fibre per channel use (Pirandola et al., Nat. Commun. 8, "
     "15043, 2017); per second at the mode rate = modes per attempt period. Link bound as heralded: "
     "a midpoint station or source is a node between two channels, so the worse arm's -log2(1 - eta) "
     "bounds the link (Pirandola, Commun. Phys. 2, 51, 2019); single-photon heralding can beat the "
-    "whole-fibre PLOB on long links, never this."),
+    "whole-fibre repeaterless bound on long links, never this."),
     ("Holevo figures: the encoding sent through the fibre as a flagged erasure channel "
     "(eps = 1 - eta; polarisation or time-bin qubit)."),
     "Links at a passive switch are heralded only as part of a light path: see the demands table.",
@@ -155,7 +155,9 @@ def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, 
     link, physics = edge["link"], edge["physics"]
     eta = edge["transmissivity"]
     row: dict[str, Any] = {
-        "link": link.name, "scheme": link.scheme, "length_km": link.length_km,
+        # a link at a passive switch is heralded only as part of a light path, under the scheme
+        # of the path's reference link: it has no scheme of its own to show
+        "link": link.name, "scheme": link.scheme if physics is not None else None, "length_km": link.length_km,
         "fibre_loss_db": loss_db(link.length_km, link.attenuation_db_per_km),
         "extra_loss_db": link.extra_loss_db, "loss_db": edge["loss_db"], "transmissivity": eta,
         "modes": link.modes, "plob_bits_per_use": edge["plob_bits_per_use"],
