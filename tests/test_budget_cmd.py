@@ -18,8 +18,8 @@ CHAIN = SCENARIOS / "chain3.toml"
 def test_table_output_has_units_in_headers(capsys: pytest.CaptureFixture[str]) -> None:
     assert main(["budget", str(CHAIN), "--wide"]) == 0
     out = capsys.readouterr().out
-    for header in ("length (km)", "total loss (dB)", "pair rate (pairs/s)", "PLOB at modes/period (bit/s)",
-                   "Holevo chi (bit/qubit)", "multipath bound (bit/s)"):
+    for header in ("length (km)", "total loss (dB)", "pair rate (pairs/s)", "repeaterless bound (ebit/s)",
+                   "Holevo information (bit/qubit)", "multipath bound (ebit/s)"):
         assert header in out
     assert "Alder Row Lab > Brackwater Relay > Cindermoss Campus" in out
 

@@ -32,7 +32,7 @@ def test_budget_text_fits_a_terminal_and_says_how_to_see_more(capsys: pytest.Cap
     assert main(["budget", str(MESH)]) == 0
     out = capsys.readouterr().out
     assert max(len(line) for line in out.splitlines()) <= TERMINAL
-    assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (bit/s)" in out
+    assert "pair rate (pairs/s)" in out and "fidelity" in out and "multipath bound (ebit/s)" in out
     assert "Holevo capacity (bit/use)" not in out
     assert "--wide prints all 20" in out and "--wide prints all 19" in out
 
@@ -55,7 +55,7 @@ def test_budget_columns_chooses_by_key(capsys: pytest.CaptureFixture[str]) -> No
     assert main(["budget", str(CHAIN), "--format", "csv", "--columns", "fidelity,holevo_bits"]) == 0
     out = capsys.readouterr().out
     header = next(csv.reader(io.StringIO(out)))
-    assert header == ["link", "fidelity", "Holevo chi (bit/qubit)"]
+    assert header == ["link", "fidelity", "Holevo information (bit/qubit)"]
     assert "demand" not in out  # the demands table holds neither key: it is left out
 
 
@@ -79,9 +79,9 @@ def test_run_text_is_compact_and_wide_restores(tmp_path: Path, capsys: pytest.Ca
     assert main(argv) == 0
     compact = capsys.readouterr().out
     assert max(len(line) for line in compact.splitlines()) <= TERMINAL
-    assert "rate 95% CI (pairs/s)" in compact and "Holevo chi (bit/qubit)" not in compact
+    assert "rate 95% CI (pairs/s)" in compact and "Holevo information (bit/qubit)" not in compact
     assert main([*argv, "--wide"]) == 0
-    assert "Holevo chi (bit/qubit)" in capsys.readouterr().out
+    assert "Holevo information (bit/qubit)" in capsys.readouterr().out
     header = next(csv.reader((tmp_path / "run.csv").open()))
     assert any("chi" in h for h in header)  # the file keeps every field
 
@@ -129,7 +129,7 @@ def test_run_table_prints_intervals_to_their_precision() -> None:
 
 def test_latex_types_powers_of_ten_and_keeps_the_notes() -> None:
     """'3.59e4' in a typeset proposal reads as code; the fragment writes 3.59 x 10^4 in text mode
-    (no $ or ^, so the structural check still holds) and carries the table's notes as comments."""
+    (no $ or ^, so the structural check still holds) and prints the table's notes below it."""
     from netsim.report.latex import check_fragment, compile_fragment, tex_engine
 
     table = Table("Bounds of Marrowgate", [Column("link", "link"), Column("b", "bound (ebit/s)"),
@@ -140,7 +140,7 @@ def test_latex_types_powers_of_ten_and_keeps_the_notes() -> None:
     assert r"3.59\ensuremath{\times}10\textsuperscript{4}" in text
     assert r"[1.2\ensuremath{\times}10\textsuperscript{\ensuremath{-}5}, 3\ensuremath{\times}10\textsuperscript{4}]" in text
     assert "Marrowgate-Pell 2e5 Annex" in text  # names are text, not numbers
-    assert "% Bounds after a cited source (100% of them)." in text
+    assert r"Bounds after a cited source (100\% of them).\par" in text
     assert check_fragment(text) == []
     if tex_engine() is not None:
         ok, log = compile_fragment([text])

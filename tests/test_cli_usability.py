@@ -268,7 +268,7 @@ def test_store_report_without_its_scenario_says_so(tmp_path: Path, monkeypatch: 
     (["budget", "x.toml", "--only", "link"],
      "netsim budget: error: --only = 'link' is not allowed; expected one of links, demands"),
     (["frobnicate"], "netsim: error: COMMAND = 'frobnicate' is not allowed; expected one of link, check, budget, "
-                     "run, sweep, report, compare, profiles, design, import"),
+                     "run, sweep, sensitivity, report, compare, profiles, design, import"),
 ])
 def test_option_type_errors_take_the_house_form(argv: list[str], line: str,
                                                 capsys: pytest.CaptureFixture[str]) -> None:
@@ -297,7 +297,7 @@ def test_units_are_written_alike_in_every_command(capsys: pytest.CaptureFixture[
     and report tables write it, not 'bits/use'."""
     assert main(["link", "--length-km", "10"]) == 0
     out = capsys.readouterr().out
-    assert "PLOB (bit/use)" in out and "(bit/qubit)" in out and "coherent info (ebit/pair)" in out
+    assert "repeaterless bound (ebit/use)" in out and "(bit/qubit)" in out and "coherent info (ebit/pair)" in out
     assert "bits/" not in out and "ebits/pair" not in out
 
 
@@ -349,6 +349,11 @@ length_km = 4.0
 @pytest.mark.parametrize(("argv", "line"), [
     (["run", "x.toml", "--sed", "3"],
      "netsim run: error: --sed 3: not an option or argument of netsim run; did you mean --seed? see netsim run --help"),
+    # A prefix is not the option: '--pair 10' once replaced a 3000-pair run (argparse default).
+    (["run", "x.toml", "--pair", "10"],
+     "netsim run: error: --pair 10: not an option or argument of netsim run; did you mean --pairs? see netsim run --help"),
+    (["report", "x.toml", "--sim"],
+     "netsim report: error: --sim: not an option or argument of netsim report; did you mean --simulate? see netsim report --help"),
     (["budget", "a.toml", "b.toml"],
      "netsim budget: error: b.toml: not an option or argument of netsim budget; see netsim budget --help"),
 ])
@@ -356,3 +361,36 @@ def test_unknown_option_names_the_command(argv: list[str], line: str, capsys: py
     """argparse said 'netsim: error: unrecognized arguments: --sed 3', without the command."""
     assert main(argv) == 2
     assert capsys.readouterr().err.strip().splitlines() == [line]
+
+
+def test_one_name_per_quantity_in_every_table() -> None:
+    """The repeaterless bound, the network bounds and the Holevo figures are named alike by
+    budget, run, report, compare and link (a planner comparing two outputs must not wonder
+    whether 'PLOB (bit/use)' and 'repeaterless bound (ebit/use)' differ)."""
+    import argparse
+    import importlib
+
+    from netsim.cli.link_cmd import link_table
+    from netsim.report import capacity
+
+    plan = importlib.import_module("netsim.network.budget")      # the module, not the function
+    run_result = importlib.import_module("netsim.engine.result")
+
+    canonical = {"plob_bits_per_use": "repeaterless bound (ebit/use)",
+                 "plob_bits_per_s": "repeaterless bound (ebit/s)",
+                 "bound_bits_per_s": "link bound as heralded (ebit/s)",
+                 "holevo_bits": "Holevo information (bit/qubit)",
+                 "holevo_capacity_bits": "Holevo capacity (bit/use)",
+                 "route_bound_bits_per_s": "route bound (ebit/s)",
+                 "single_path_bits_per_s": "single-path bound (ebit/s)",
+                 "bound_single_path_per_s": "single-path bound (ebit/s)",
+                 "multipath_bits_per_s": "multipath bound (ebit/s)",
+                 "bound_multipath_per_s": "multipath bound (ebit/s)"}
+    args = argparse.Namespace(length_km=[10.0], attenuation_db_per_km=0.2, extra_loss_db=0.0,
+                              depolarizing=0.0, encoding="bb84", loss_model="erasure")
+    columns = [*plan.LINK_COLUMNS, *plan.DEMAND_COLUMNS, *capacity.LINK_COLUMNS, *capacity.DEMAND_COLUMNS,
+               *run_result.DEMAND_COLUMNS, *link_table(args).columns]
+    seen = [(c.key, c.header) for c in columns if c.key in canonical]
+    assert len({k for k, _ in seen}) >= 8
+    assert [(k, h) for k, h in seen if h != canonical[k]] == []
+    assert not any("PLOB" in c.header or "Holevo chi" in c.header for c in columns)

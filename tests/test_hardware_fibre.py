@@ -49,7 +49,7 @@ def test_transmissivities_of_spans_multiply() -> None:
 
 
 def test_propagation_delay_is_about_4_9_us_per_km() -> None:
-    # Group index 1.468 at 1550 nm gives about 4.9 us/km (common practice; REFERENCES, fibre).
+    # Group index 1.468 at 1550 nm gives about 4.9 us/km (common practice).
     assert fibre.propagation_delay_s(1.0) == pytest.approx(4.9e-6, rel=0.01)
     # Exactly L n_g / c with c = 299 792.458 km/s (SI definition of the metre).
     assert fibre.propagation_delay_s(100.0) == pytest.approx(100.0 * 1.468 / 299_792.458, rel=1e-12)

@@ -86,7 +86,7 @@ def test_csv_has_one_row_per_length(capsys: pytest.CaptureFixture[str]) -> None:
 def test_text_formats_list_each_length(capsys: pytest.CaptureFixture[str], fmt: str) -> None:
     assert main(["link", "--length-km", "3", "7", "--format", fmt]) == 0
     lines = capsys.readouterr().out.splitlines()
-    assert any("length (km)" in line and "PLOB (bit/use)" in line for line in lines)
+    assert any("length (km)" in line and "repeaterless bound (ebit/use)" in line for line in lines)
     assert sum(1 for line in lines if "0.6" in line and "0.871" in line) == 1  # 3 km: eta = 10^-0.06
     assert sum(1 for line in lines if "1.4" in line and "0.7244" in line) == 1  # 7 km: eta = 10^-0.14
 

@@ -143,3 +143,11 @@ def test_route_bound_counts_a_switched_light_path_as_one_channel() -> None:
     assert row["hops"] == 2
     assert row["route_bound_bits_per_s"] == pytest.approx(expected, rel=1e-12)
     assert row["route_bound_bits_per_s"] < graph.edges["Quillby Lab", "Orrin Switch"]["bound_bits_per_s"]
+    # A link at the switch is heralded only inside the light path: it shows no scheme of its
+    # own (the path's scheme comes from its reference link); a memory-to-memory link does.
+    links = {r["link"]: r for r in budget(scenario).links}
+    assert links["Quillby Lab-Orrin Switch"]["scheme"] is None
+    assert links["Orrin Switch-Pell Relay"]["scheme"] is None
+    assert links["Pell Relay-Rook Lab"]["scheme"] == "single_photon"
+    text = render(budget(scenario).tables()[0], "table")
+    assert "Quillby Lab-Orrin Switch" in text and text.count("single_photon") == 1

@@ -9,6 +9,8 @@ from pathlib import Path
 
 import pytest
 
+from netsim.errors import ParameterError
+
 from netsim import engine
 from netsim.cli import main
 from netsim.report.frames import to_dataframe
@@ -51,7 +53,7 @@ def test_run_json_report_finds_its_scenario(tmp_path: Path, monkeypatch) -> None
     result = engine.run(load(tmp_path / "scenarios" / "chain3.toml"), pairs=30, seed=1, ensembles=False)
     result.write(tmp_path / "results" / "chain3")
     assert main(["report", "results/chain3/run.json", "--format", "tex", "--quiet"]) == 0
-    out = tmp_path / "results" / "chain3" / "report"
+    out = tmp_path / "results" / "chain3" / "report-run"    # named for its source
     fragments = [(out / name).read_text() for name in ("links.tex", "demands.tex")]
     assert [check_fragment(f) for f in fragments] == [[], []]
     if tex_engine() is not None:                      # compile only where TeX is installed
@@ -90,8 +92,9 @@ def test_store_report_pivots_the_stored_numbers(tmp_path: Path, capsys) -> None:
     assert "delivered rate (pairs/s), demand Aldmoor-Cinderfold" in capsys.readouterr().out
     table = json.loads((out / "pivot-rate_per_s-aldmoor-cinderfold.json").read_text())
     rows = {r["defaults.link.attenuation_db_per_km"]: r for r in table["rows"]}
-    assert (rows[0.2]["c0"], rows[0.2]["c1"], rows[0.3]["c0"], rows[0.3]["c1"]) == (100.0, 110.0, 120.0, 130.0)
-    assert rows[0.3]["c1_ci"] == [125.0, 135.0]
+    c0, c1 = "rate_per_s at sites[*].t2_s=0.1", "rate_per_s at sites[*].t2_s=1"   # real names
+    assert (rows[0.2][c0], rows[0.2][c1], rows[0.3][c0], rows[0.3][c1]) == (100.0, 110.0, 120.0, 130.0)
+    assert rows[0.3]["rate_per_s_ci95 at sites[*].t2_s=1"] == [125.0, 135.0]
     figures = sorted(p.name for p in out.glob("*.png"))
     assert "heatmap-rate_per_s-aldmoor-cinderfold.png" in figures
     assert "lines-fidelity_mean-aldmoor-cinderfold.png" in figures
@@ -105,7 +108,7 @@ def test_store_records_rebuild_intervals(tmp_path: Path) -> None:
     demand = [r for r in records if r["kind"] == "demand"]
     assert len(demand) == 4 and demand[0]["rate_ci95"] == [95.0, 105.0]
     frame = to_dataframe(load_source_table(tmp_path))
-    assert list(frame["c0_ci_low"]) == [95.0, 115.0]
+    assert list(frame["rate_per_s_ci95 at sites[*].t2_s=0.1_low"]) == [95.0, 115.0]
 
 
 def load_source_table(tmp_path: Path):
@@ -119,7 +122,8 @@ def load_source_table(tmp_path: Path):
 @pytest.mark.parametrize(("argv", "message"), [
     (["nowhere.toml"], "SOURCE = 'nowhere.toml' is not allowed; expected an existing file"),
     (["data.xlsx"], "SOURCE = 'data.xlsx' is not allowed; expected a scenario (.toml)"),
-    ([str(CHAIN3), "--format", "pdf"], "--format = 'pdf' is not allowed; expected one of md"),
+    ([str(CHAIN3), "--format", "docx"], "--format = 'docx' is not allowed; expected one of md"),
+    ([str(CHAIN3), "--format", "pdf", "--ranking", "fast"], "--ranking = 'fast' is not allowed; expected one of morris"),
     ([str(CHAIN3), "--pairs", "10"], "--pairs/--time-s = 10 is not allowed; expected only together with --simulate"),
     ([str(CHAIN3), "--simulate", "--pairs", "0"], "--pairs = 0 is not allowed"),
 ])
@@ -146,7 +150,7 @@ def test_store_report_adds_base_scenario_tables_when_found(tmp_path: Path, monke
     assert main(["sweep", "scenarios/chain3.toml", "--vary", "links[*].length_km=8,12",
                  "--pairs", "20", "--workers", "1", "--quiet"]) == 0
     assert main(["report", "results/chain3/sweep.sqlite", "--quiet", "--no-figures"]) == 0
-    out = tmp_path / "results" / "chain3" / "report"
+    out = tmp_path / "results" / "chain3" / "report-sweep"  # a run's report would not replace it
     names = {p.name for p in out.iterdir()}
     assert {"links.md", "demands.md", "pivot-rate_per_s-alder-row-lab-cindermoss-campus.md"} <= names
     (tmp_path / "scenarios" / "chain3.toml").write_text(CHAIN3.read_text().replace("= 10.0", "= 11.0", 1))
@@ -176,6 +180,24 @@ def test_report_frames_for_python_users() -> None:
     assert links.attrs["headers"]["plob_bits_per_s"] == "repeaterless bound (ebit/s)"
 
 
+def test_report_frames_takes_loaded_data_and_a_run_in_memory() -> None:
+    """What load_source returns and a RunResult held in memory give the same frames as files."""
+    pytest.importorskip("pandas")
+    from netsim.report import report_frames
+
+    data = load_source(CHAIN3)
+    assert list(report_frames(data)["links"]["length_km"]) == [10.0, 12.0]
+    scenario = load(CHAIN3)
+    result = engine.run(scenario, pairs=20, seed=4, ensembles=False)
+    frames = report_frames(result, scenario=scenario)
+    demands = frames["demands"]
+    assert demands["rate_per_s"][0] == result.to_dict()["demands"][0]["rate_per_s"]
+    assert demands["expected_rate_per_s"][0] == pytest.approx(data.demands[0]["expected_rate_per_s"])
+    assert report_frames(result)["demands"]["rate_per_s"][0] == demands["rate_per_s"][0]
+    with pytest.raises(ParameterError, match="source = 'int' is not allowed"):
+        report_frames(3)
+
+
 def test_param_order_and_no_averaging_across_swept_values(tmp_path: Path) -> None:
     from netsim.report.build import report_tables
 
@@ -183,8 +205,9 @@ def test_param_order_and_no_averaging_across_swept_values(tmp_path: Path) -> Non
     tables = report_tables(data, params=["sites[*].t2_s"], metrics={"rate_per_s": "rate_ci95"})
     table = tables["pivot-rate_per_s-aldmoor-cinderfold"]
     assert table.columns[0].key == "sites[*].t2_s"          # rows: t2; columns: attenuation
-    assert {(r["sites[*].t2_s"], r["c0"], r["c1"]) for r in table.rows} == {(0.1, 100.0, 120.0),
-                                                                          (1.0, 110.0, 130.0)}
+    c0, c1 = (f"rate_per_s at defaults.link.attenuation_db_per_km={v}" for v in (0.2, 0.3))
+    assert {(r["sites[*].t2_s"], r[c0], r[c1]) for r in table.rows} == {(0.1, 100.0, 120.0),
+                                                                        (1.0, 110.0, 130.0)}
     from netsim.errors import ParameterError
 
     with pytest.raises(ParameterError, match=r"--param = 'links\[\*\]\.t1_s' is not allowed; expected a swept parameter"):
@@ -198,7 +221,7 @@ def test_any_stored_metric_can_be_pivoted(tmp_path: Path, capsys) -> None:
     tables = report_tables(data, metrics={"attempts": None})          # a link metric
     table = tables["pivot-attempts-aldmoor-brackmere"]
     assert table.title.startswith("attempts, link Aldmoor-Brackmere")
-    assert {r["c0"] for r in table.rows} == {1000.0}
+    assert {r[f"attempts at sites[*].t2_s={v}"] for r in table.rows for v in (0.1, 1)} == {1000.0}
     assert main(["report", str(_store(tmp_path / "b")), "--metric", "rate", "--no-figures"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "--metric = 'rate' is not allowed; expected a stored demand" in err[0]

@@ -139,3 +139,55 @@ def test_scheme_curves_scale_as_published() -> None:
     slope = {s: np.log(r[1] / r[0]) / np.log(eta[1] / eta[0]) for s, r in rates.items()}
     assert slope["two_photon"] == pytest.approx(1.0, abs=0.02)
     assert slope["single_photon"] == pytest.approx(0.5, abs=0.02)
+
+
+def _three_axis_records() -> list[dict]:
+    """A synthetic sweep of three parameters (the third with two values, one of them a float
+    with representation noise) for one demand; the metric encodes its own coordinates."""
+    records = []
+    for a in (0.2, 0.3):
+        for t2 in (0.1, 1.0):
+            for eff in (0.5, 0.7000000000000001):
+                records.append({"defaults.link.attenuation_db_per_km": a, "sites[*].t2_s": t2,
+                                "sites[role=user].emission_efficiency": eff, "kind": "demand",
+                                "name": "Wick-Yarrow", "repeat": 0, "point_id": f"{a}-{t2}-{eff}",
+                                "rate_per_s": 100 * a + 10 * t2 + eff, "fidelity_mean": 0.9})
+    return records
+
+
+def test_sweep_figures_cover_every_value_of_the_third_axis_with_rounded_names() -> None:
+    """Figures were drawn for the first value of the third axis only, with raw floats in the
+    names; now one heatmap and one line figure per value, key as written, value rounded."""
+    from netsim.report.plots import sweep_figures
+    from netsim.report.sources import ReportData
+
+    params = ["defaults.link.attenuation_db_per_km", "sites[*].t2_s", "sites[role=user].emission_efficiency"]
+    data = ReportData("store", "wick", "Wick test", records=_three_axis_records(), parameters=params)
+    figures = sweep_figures(data, params, {"rate_per_s": None})
+    stems = sorted(figures)
+    assert len(stems) == 4, stems                                   # 2 kinds x 2 values of the third axis
+    assert any("emission_efficiency-0.7" in s and "0000000000001" not in s for s in stems), stems
+    assert any("emission_efficiency-0.5" in s for s in stems), stems
+    for stem, fig in figures.items():
+        title = fig.axes[0].get_title() if stem.startswith("heatmap") else fig._suptitle.get_text()
+        flat = title.replace("\n", " ")
+        assert "sites[role=user].emission_efficiency=0." in flat and "0000000000001" not in flat
+        assert ("=0.5" in flat) == ("0.5" in stem)
+        # the label (caption) names what is held fixed
+        assert "held at sites[role=user].emission_efficiency=" in fig.get_label()
+    heat = next(f for s, f in figures.items() if s.startswith("heatmap") and "0.7" in s)
+    image = heat.axes[0].images[0].get_array()
+    assert float(image[0, 0]) == pytest.approx(100 * 0.2 + 10 * 0.1 + 0.7)   # the 0.7 slice, not 0.5
+
+
+def test_long_titles_wrap_inside_the_figure() -> None:
+    """A heatmap title naming a long demand and a fixed parameter was clipped at the edges."""
+    fig = heatmap([0.2, 0.3], [0.1, 1.0], np.ones((2, 2)), xlabel="a", ylabel="b", zlabel="c",
+                  title="demand Saltmarsh Data Centre-Kestrel Park Research Campus, "
+                        "sites[role=user].emission_efficiency=0.7, links[name=Harrow Quay-Brindle Gate].modes=4")
+    fig.canvas.draw()
+    renderer = fig.canvas.get_renderer()
+    box = fig.axes[0].title.get_window_extent(renderer)
+    width, height = fig.get_size_inches() * fig.dpi
+    assert box.x0 >= 0 and box.x1 <= width and box.y1 <= height
+    assert all(len(line) <= 58 for line in fig.axes[0].get_title().splitlines())

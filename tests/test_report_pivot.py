@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from netsim.errors import ParameterError
-from netsim.report.pivot import aggregate, grid, pivot_table, series, swept_parameters
+from netsim.report.pivot import aggregate, grid, grid_key, pivot_table, series, swept_parameters
 from netsim.report.table import render
 
 ALPHA = "links[*].attenuation_db_per_km"
@@ -41,7 +41,8 @@ def test_two_parameter_grid_places_every_value() -> None:
     assert len(table.rows) == 3 and len(table.columns) == 1 + 2 * 2
     by_key = {(r[ALPHA], r[T2]): r["rate_per_s"] for r in _records()}
     for row in table.rows:
-        assert row["c0"] == by_key[(row[ALPHA], 0.1)] and row["c1"] == by_key[(row[ALPHA], 1.0)]
+        assert row[grid_key("rate_per_s", T2, 0.1)] == by_key[(row[ALPHA], 0.1)]
+        assert row[grid_key("rate_per_s", T2, 1.0)] == by_key[(row[ALPHA], 1.0)]
     parsed = list(csv.reader(io.StringIO(render(table, "csv"))))
     assert float(parsed[1][1]) == by_key[(0.2, 0.1)]
 

@@ -92,7 +92,7 @@ def test_latex_fragment_passes_structural_check() -> None:
 @pytest.mark.parametrize(("mutation", "fragment"), [
     (lambda t: t.replace("\\midrule\n", ""), "once each"),
     (lambda t: t.replace(r"spare\_1", "spare_1"), "unescaped _"),
-    (lambda t: t.replace(r"\end{tabular}", ""), "does not end"),
+    (lambda t: t.replace(r"\end{tabular}", ""), "one \\begin{tabular}"),
     (lambda t: t.replace(r"duty \& spare", "duty & spare"), "cells"),
     (lambda t: t.replace(r"\{x\}", "{x"), "brace"),
     (lambda t: t.replace("{lrrll}", "{|lrrll|}"), "vertical rules"),
@@ -104,9 +104,42 @@ def test_latex_structural_check_catches_broken_fragments(mutation, fragment: str
     assert any(fragment in p for p in problems), problems
 
 
+def test_latex_table_is_a_captioned_labelled_float_fitted_to_the_page() -> None:
+    text = render(_table(), "tex")
+    lines = text.splitlines()
+    assert lines[1] == r"\begin{table}[htbp]" and lines[-1] == r"\end{table}"
+    assert r"\caption{Links of Greyhaven\_test}" in text and r"\label{tab:links-of-greyhaven-test}" in text
+    assert r"\begin{adjustbox}{max width=\linewidth}" in text
+    assert r"\par" in text and "a note" in text  # notes printed under the table
+
+
+@pytest.mark.parametrize(("mutation", "fragment"), [
+    (lambda t: t.replace(r"\caption{Links of Greyhaven\_test}", ""), "caption"),
+    (lambda t: t.replace(r"\label{tab:links-of-greyhaven-test}", ""), "label"),
+    (lambda t: t.replace(r"\begin{adjustbox}{max width=\linewidth}", "").replace(r"\end{adjustbox}", ""),
+     "fitted"),
+    (lambda t: t.replace(r"\end{table}", ""), "does not end"),
+])
+def test_latex_structural_check_wants_the_float(mutation, fragment: str) -> None:
+    problems = check_fragment(mutation(render(_table(), "tex")))
+    assert any(fragment in p for p in problems), problems
+
+
+def test_latex_escapes_characters_the_default_font_encoding_prints_wrongly() -> None:
+    """Under pdflatex's default OT1 encoding '>' prints as an inverted question mark, '<' as an
+    inverted exclamation mark and '|' as an em dash (LaTeX font encodings guide, fntguide;
+    memory): a route must be written with text commands."""
+    table = Table("Routes", [Column("route", "route")], [{"route": "Alder>Brack|x<y"}])
+    text = render(table, "tex")
+    assert r"Alder\textgreater{}Brack\textbar{}x\textless{}y" in text
+    assert check_fragment(text) == []
+    assert any("unescaped" in p for p in check_fragment(text.replace(r"\textgreater{}", ">")))
+
+
 @pytest.mark.skipif(tex_engine() is None, reason="no pdflatex or latexmk installed")
 def test_latex_fragment_compiles() -> None:
-    result = compile_fragment([render(_table(), "tex")])
+    routes = Table("Routes", [Column("route", "route")], [{"route": "Alder > Brack | x < y"}])
+    result = compile_fragment([render(_table(), "tex"), render(routes, "tex")])
     assert result is not None and result[0], result
 
 

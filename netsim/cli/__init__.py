@@ -16,7 +16,7 @@ import importlib.util
 import re
 import sys
 from collections.abc import Sequence
-from typing import NoReturn
+from typing import Any, NoReturn
 
 from netsim import __version__
 from netsim.errors import NetsimError
@@ -24,11 +24,18 @@ from netsim.errors import NetsimError
 __all__ = ["OneLineParser", "build_parser", "main"]
 
 #: Subcommand modules, in the order ``netsim --help`` lists them.
-COMMANDS = ("link", "check", "budget", "run", "sweep", "report", "compare", "profiles", "design", "import")
+COMMANDS = ("link", "check", "budget", "run", "sweep", "sensitivity", "report", "compare", "profiles", "design",
+            "import")
 
 
 class OneLineParser(argparse.ArgumentParser):
-    """An argument parser whose errors are a single line and exit code 2."""
+    """An argument parser whose errors are a single line and exit code 2. Prefixes of options
+    are never taken for the option (``--pair 10`` is refused and ``--pairs`` suggested): a typo
+    must not run a long job with a value meant for something else."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        kwargs["allow_abbrev"] = False
+        super().__init__(*args, **kwargs)
 
     def error(self, message: str) -> NoReturn:
         self.exit(2, f"{self.prog}: error: {house_style(message)}\n")
@@ -91,6 +98,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     if not getattr(args, "func", None):
         parser.print_help()
         return 2
+    args.argv = list(argv) if argv is not None else None  # the command as typed, for provenance
     try:
         return int(args.func(args) or 0)
     except NetsimError as exc:

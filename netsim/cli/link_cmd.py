@@ -122,14 +122,15 @@ def link_table(args: argparse.Namespace) -> Any:
     rows: list[Mapping[str, Any]] = [*link_rows(args.length_km, args.attenuation_db_per_km, args.extra_loss_db,
                      args.depolarizing, args.encoding, args.loss_model)]
     columns = [Column("length_km", "length (km)"), Column("loss_db", "loss (dB)"),
-               Column("transmissivity", "eta"), Column("plob_bits_per_use", "PLOB (bit/use)"),
-               Column("holevo_bits", f"Holevo {args.encoding} (bit/qubit)"),
+               Column("transmissivity", "eta"), Column("plob_bits_per_use", "repeaterless bound (ebit/use)"),
+               Column("holevo_bits", "Holevo information (bit/qubit)"),
                Column("capacity_bits", "Holevo capacity (bit/use)"),
                Column("coherent_info_ebits", "coherent info (ebit/pair)")]
     loss = "amplitude damping gamma = 1 - eta" if args.loss_model == "damping" else "erasure eps = 1 - eta"
     notes = [(f"attenuation {args.attenuation_db_per_km:g} dB/km, extra loss {args.extra_loss_db:g} dB; "
               f"channel: depolarizing p = {args.depolarizing:g} at the sender, then {loss}."),
-             ("PLOB: -log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
+             (f"Holevo information of the {args.encoding} encoding. Repeaterless bound (PLOB): "
+              "-log2(1 - eta) (Pirandola et al., Nat. Commun. 8, 15043, 2017), the limit for "
               "entanglement and secret key without repeaters; it does not bound classical capacity."),
              ("Coherent info: of a Bell pair with one qubit sent through the span, the larger of "
               "S(B) - S(AB) and S(A) - S(AB) (one-way hashing from either end; Devetak & Winter, "

@@ -9,7 +9,7 @@ from typing import Any
 
 __all__ = ["register", "run"]
 
-_FORMATS = ("md", "csv", "tex", "json", "table")
+_FORMATS = ("md", "csv", "tex", "json", "table", "pdf")
 
 #: Columns of the printed summary by default (``--wide``: all; the files always hold every column).
 COMPACT = {
@@ -20,6 +20,8 @@ COMPACT = {
 
 def register(subparsers: Any) -> None:
     """Add the ``report`` subcommand."""
+    from netsim.cli.outputs import add_force_option
+
     parser = subparsers.add_parser(
         "report", help="capacity tables and figures for a proposal",
         description="Write the per-link capacity table, the per-demand table (simulated numbers "
@@ -27,8 +29,17 @@ def register(subparsers: Any) -> None:
                     "a run result (run.json) or a sweep store (.sqlite, pivot tables over the "
                     "swept parameters). Tables go to one file each; figures as PNG and PDF.")
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
-    parser.add_argument("--format", default="md", help="table format: " + ", ".join(_FORMATS) + " (default md)")
-    parser.add_argument("--out", default=None, help="output directory (default results/<scenario>/report)")
+    parser.add_argument("--format", default="md",
+                        help="table format: " + ", ".join(_FORMATS) + " (default md); pdf writes only "
+                             "the proposal document (proposal.pdf)")
+    parser.add_argument("--pdf", action="store_true",
+                        help="also write the proposal document proposal.pdf beside the tables and figures")
+    parser.add_argument("--ranking", default="morris",
+                        help="sensitivity ranking in the PDF: morris (default), sobol or none")
+    parser.add_argument("--out", default=None,
+                        help="output directory (default results/<scenario>/report-<source>: "
+                             "report-budget for a scenario, report-simulation with --simulate, "
+                             "report-run for run.json, report-sweep for sweep.sqlite)")
     parser.add_argument("--simulate", action="store_true",
                         help="scenario (or a store's base scenario): also run the engine")
     parser.add_argument("--scenario", default=None,
@@ -43,6 +54,7 @@ def register(subparsers: Any) -> None:
                         help="store only: swept parameter for rows, then columns (repeatable); the "
                              "others get one table per value (default: sweep order)")
     parser.add_argument("--no-figures", action="store_true", help="write tables only")
+    add_force_option(parser)
     parser.add_argument("--quiet", action="store_true", help="print only the list of files written")
     parser.add_argument("--wide", action="store_true",
                         help="print every column of the summary table (default: a compact set; the "
@@ -55,6 +67,8 @@ def _check(args: argparse.Namespace) -> None:
 
     if args.format not in _FORMATS:
         raise ParameterError("--format", args.format, "one of " + ", ".join(_FORMATS))
+    if args.ranking not in ("morris", "sobol", "none"):
+        raise ParameterError("--ranking", args.ranking, "one of morris, sobol, none")
     if args.pairs is not None and args.pairs < 1:
         raise ParameterError("--pairs", args.pairs, "an integer >= 1")
     if args.time_s is not None and not args.time_s > 0:
@@ -70,8 +84,44 @@ def _metrics(names: list[str] | None) -> dict[str, str | None] | None:
     return {n: known.get(n, f"{n}_ci95") for n in names}
 
 
+def default_out(source: str | Path, slug: str, simulate: bool) -> Path:
+    """``results/<slug>/report-<source>``: one directory per kind of source, so that the report
+    of a run never replaces the report of a sweep or of the closed forms."""
+    from netsim.report.build import file_stem
+
+    path = Path(source)
+    if path.suffix.lower() == ".toml":
+        name = "simulation" if simulate else "budget"
+    else:
+        name = file_stem(path.stem)
+    return Path("results") / slug / f"report-{name}"
+
+
+def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> Path:
+    """The proposal document, with the sensitivity ranking on the closed forms when the
+    scenario is known."""
+    import shlex
+    import sys
+
+    from netsim import __version__
+    from netsim.report.build import report_figures
+    from netsim.report.proposal import Provenance, write_proposal
+
+    ranking = None
+    if args.ranking != "none" and data.scenario is not None and data.scenario.demands:
+        from netsim.sweep.sensitivity import rank_parameters
+
+        ranking = rank_parameters(data.scenario, method=args.ranking, seed=args.seed)
+    figures = {} if args.no_figures else report_figures(data, tables, args.param)
+    command = "netsim " + " ".join(shlex.quote(a) for a in (args.argv or sys.argv[1:]))
+    seed = args.seed if (args.simulate or ranking is not None) else None
+    return write_proposal(path, data, tables, figures,
+                          Provenance(command, str(args.source), seed, __version__), ranking)
+
+
 def run(args: argparse.Namespace) -> int:
     from netsim.cli.columns import choose_columns
+    from netsim.cli.outputs import refuse_overwrite
     from netsim.report.build import write_report
     from netsim.report.sources import load_source
     from netsim.report.table import render
@@ -81,15 +131,23 @@ def run(args: argparse.Namespace) -> int:
         from netsim.cli.check_cmd import check_memory_in
         from netsim.scenario import load
 
-        check_memory_in(load(args.source), args.source)  # named with its file, before the run
+        scenario = load(args.source)
+        check_memory_in(scenario, args.source)  # named with its file, before the run
+        refuse_overwrite([Path(args.out) if args.out else default_out(args.source, scenario.slug, True)],
+                         args.force, "report")
     started = time.perf_counter()
     options = {"seed": args.seed}
     options.update({"time_s": args.time_s} if args.time_s is not None else {"pairs": args.pairs or 1000})
     data = load_source(args.source, simulate=args.simulate, run_options=options,
                        scenario_path=args.scenario)
-    out = Path(args.out) if args.out else Path("results") / data.slug / "report"
-    tables, written = write_report(data, out, args.format, figures=not args.no_figures,
-                                   metrics=_metrics(args.metric), params=args.param)
+    out = Path(args.out) if args.out else default_out(args.source, data.slug, args.simulate)
+    refuse_overwrite([out], args.force, "report")
+    pdf_only = args.format == "pdf"
+    tables, written = write_report(data, out, "md" if pdf_only else args.format,
+                                   figures=not args.no_figures and not pdf_only,
+                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only)
+    if pdf_only or args.pdf:
+        written.append(_write_pdf(args, data, tables, out / "proposal.pdf"))
     if not args.quiet:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)

@@ -22,6 +22,7 @@ COMPACT = {
 def register(subparsers: Any) -> None:
     """Add the ``run`` subcommand."""
     from netsim.cli.columns import add_column_options
+    from netsim.cli.outputs import add_force_option
 
     parser = subparsers.add_parser(
         "run", help="simulate Bell-pair delivery and qubit ensembles for every demand",
@@ -37,6 +38,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--seed", metavar="S", default="0", help="random seed (default 0); same seed, same numbers")
     parser.add_argument("--out", metavar="DIR", default=None, help="output directory (default results/<scenario>/)")
     parser.add_argument("--format", default="table", help="printed format: " + ", ".join(_FORMATS) + " (default table)")
+    add_force_option(parser)
     add_column_options(parser)
     parser.set_defaults(func=run)
 
@@ -58,6 +60,7 @@ def _number(name: str, text: str | None, kind: type, allowed: str) -> Any:
 def run(args: argparse.Namespace) -> int:
     from netsim.cli.check_cmd import check_memory_in
     from netsim.cli.columns import select_tables
+    from netsim.cli.outputs import refuse_overwrite
     from netsim.engine import run as simulate
     from netsim.errors import ParameterError
     from netsim.report.table import render
@@ -73,8 +76,9 @@ def run(args: argparse.Namespace) -> int:
         raise ParameterError("--seed", seed, "an integer >= 0")
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
-    result = simulate(scenario, pairs=pairs, time_s=time_s, precision=precision, seed=seed)
     out = Path(args.out) if args.out else Path("results") / scenario.slug
+    refuse_overwrite([out / "run.json", out / "run.csv"], args.force, "run result")  # before the run
+    result = simulate(scenario, pairs=pairs, time_s=time_s, precision=precision, seed=seed)
     written = result.write(out)
     chosen = select_tables(result.tables(), args.format, args, COMPACT)
     if args.format == "json":

@@ -44,7 +44,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from netsim.report.table import Column, Table
+from netsim.table import Column, Table
 
 __all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "SITE_COLUMNS", "RunResult"]
 
@@ -60,8 +60,8 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("fidelity_ci95", "fidelity 95% CI", ci_key="fidelity_ci95"),
     Column("min_fidelity", "min fidelity"), Column("meets_fidelity", "meets fidelity"),
     Column("eof_mean", "EoF (ebit/pair)"), Column("ebits_per_s", "EoF rate (ebit/s)"),
-    Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (bit/s)"),
-    Column("ensemble_chi_bits_per_qubit", "Holevo chi (bit/qubit)"),
+    Column("key_rate_per_s", "key rate (bit/s)"), Column("route_bound_bits_per_s", "route bound (ebit/s)"),
+    Column("ensemble_chi_bits_per_qubit", "Holevo information, simulated (bit/qubit)"),
 )
 LINK_COLUMNS: tuple[Column, ...] = (
     Column("link", "link"), Column("profile", "profile"), Column("attempts", "attempt rounds"), Column("successes", "pairs heralded"),

@@ -28,11 +28,11 @@ from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
 from netsim.network.estimate import estimate_hops
 from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
-from netsim.report.table import Column, Table
+from netsim.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
 from netsim.scenario.profiles import profile_label
 
-__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget", "route_profiles"]
+__all__ = ["DEMAND_COLUMNS", "LINK_COLUMNS", "Budget", "budget", "expected_figures", "route_profiles"]
 
 LINK_COLUMNS: tuple[Column, ...] = (
     Column("link", "link"), Column("profile", "profile"), Column("scheme", "scheme"),
@@ -42,10 +42,10 @@ LINK_COLUMNS: tuple[Column, ...] = (
     Column("attempt_period_s", "attempt period (s)"), Column("modes", "modes"),
     Column("success_probability", "success per mode"), Column("pair_rate_per_s", "pair rate (pairs/s)"),
     Column("fidelity", "fidelity"), Column("eof_ebits", "EoF (ebit/pair)"),
-    Column("plob_bits_per_use", "PLOB (bit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
-    Column("plob_bits_per_s", "PLOB at modes/period (bit/s)"),
-    Column("bound_bits_per_s", "link bound as heralded (bit/s)"),
-    Column("holevo_bits", "Holevo chi (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
+    Column("plob_bits_per_use", "repeaterless bound (ebit/use)"), Column("mode_rate_per_s", "mode rate (1/s)"),
+    Column("plob_bits_per_s", "repeaterless bound (ebit/s)"),
+    Column("bound_bits_per_s", "link bound as heralded (ebit/s)"),
+    Column("holevo_bits", "Holevo information (bit/qubit)"), Column("holevo_capacity_bits", "Holevo capacity (bit/use)"),
 )
 
 DEMAND_COLUMNS: tuple[Column, ...] = (
@@ -58,17 +58,17 @@ DEMAND_COLUMNS: tuple[Column, ...] = (
     Column("expected_eof_ebits", "expected EoF (ebit)"), Column("min_fidelity", "min fidelity"),
     Column("meets_fidelity", "F met (est.)"), Column("min_rate_per_s", "min rate (pairs/s)"),
     Column("meets_rate", "rate met (est.)"),
-    Column("route_bound_bits_per_s", "route bound (bit/s)"),
-    Column("single_path_bits_per_s", "single-path bound (bit/s)"),
-    Column("multipath_bits_per_s", "multipath bound (bit/s)"),
+    Column("route_bound_bits_per_s", "route bound (ebit/s)"),
+    Column("single_path_bits_per_s", "single-path bound (ebit/s)"),
+    Column("multipath_bits_per_s", "multipath bound (ebit/s)"),
 )
 
 LINK_NOTES = (
-    ("PLOB: -log2(1 - eta) of the whole fibre per channel use (Pirandola et al., Nat. Commun. 8, "
+    ("Repeaterless bound (PLOB): -log2(1 - eta) of the whole fibre per channel use (Pirandola et al., Nat. Commun. 8, "
     "15043, 2017); per second at the mode rate = modes per attempt period. Link bound as heralded: "
     "a midpoint station or source is a node between two channels, so the worse arm's -log2(1 - eta) "
     "bounds the link (Pirandola, Commun. Phys. 2, 51, 2019); single-photon heralding can beat the "
-    "whole-fibre PLOB on long links, never this."),
+    "whole-fibre repeaterless bound on long links, never this."),
     ("Holevo figures: the encoding sent through the fibre as a flagged erasure channel "
     "(eps = 1 - eta; polarisation or time-bin qubit)."),
     "Links at a passive switch are heralded only as part of a light path: see the demands table.",
@@ -147,15 +147,36 @@ def budget(scenario: Scenario, policy: str | None = None) -> Budget:
     return Budget(scenario.name, links, rows, warnings)
 
 
+def expected_figures(scenario: Scenario, policy: str | None = None) -> list[dict[str, Any]]:
+    """Per demand, only the closed-form expectations of :func:`budget` (route, expected wait,
+    rate, fidelity and EoF; no bounds or Holevo figures): the cheap part, for sampling many
+    variants of one scenario. A demand without a route gets ``{"demand": name, "route": None}``.
+    """
+    graph = build_graph(scenario)
+    rows = []
+    for demand in scenario.demands:
+        row: dict[str, Any] = {"demand": demand.name, "min_fidelity": demand.min_fidelity}
+        try:
+            route = find_route(graph, demand.a, demand.b, policy or scenario.protocol.routing)
+        except ParameterError:
+            rows.append({**row, "route": None})
+            continue
+        row.update(_chain_figures(graph, route, route_hops(graph, route)))
+        rows.append(row)
+    return rows
+
+
 def _link_row(graph: nx.Graph, a: str, b: str, scenario: Scenario) -> dict[str, Any]:
     edge = graph.edges[a, b]
     link, physics = edge["link"], edge["physics"]
     eta = edge["transmissivity"]
     row: dict[str, Any] = {
+        # a link at a passive switch is heralded only as part of a light path, under the scheme
+        # of the path's reference link: it has no scheme of its own to show
         "link": link.name,
         "profile": profile_label(link.profile, *(s.profile for s in (graph.nodes[a]["site"], graph.nodes[b]["site"])
                                                  if s.role != "switch")),
-        "scheme": link.scheme, "length_km": link.length_km,
+        "scheme": link.scheme if physics is not None else None, "length_km": link.length_km,
         "fibre_loss_db": loss_db(link.length_km, link.attenuation_db_per_km),
         "extra_loss_db": link.extra_loss_db, "loss_db": edge["loss_db"], "transmissivity": eta,
         "modes": link.modes, "plob_bits_per_use": edge["plob_bits_per_use"],

@@ -22,7 +22,8 @@ from netsim.report.sources import ReportData, demand_names
 from netsim.report.table import Table, render
 from netsim.report.units import header
 
-__all__ = ["DEFAULT_METRICS", "file_stem", "metric_kind", "ordered_parameters", "report_figures", "report_tables", "write_report"]
+__all__ = ["DEFAULT_METRICS", "file_stem", "fixed_label", "metric_kind", "ordered_parameters", "parameter_groups",
+           "report_figures", "report_tables", "rounded", "write_report"]
 
 #: Metrics pivoted for a sweep store by default, with the key of their 95 % interval.
 DEFAULT_METRICS: dict[str, str | None] = {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95",
@@ -86,7 +87,7 @@ def _sweep_tables(data: ReportData, metrics: Mapping[str, str | None],
             mine = [r for r in records if r.get("name") == name]
             for fixed in _groups(mine, rest)[:_MAX_GROUPS]:
                 chosen = [r for r in mine if all(r.get(k) == v for k, v in fixed.items())]
-                where = "".join(f", {k}={v}" for k, v in fixed.items())
+                where = fixed_label(fixed)
                 title = f"{header(metric)}, {kind} {name}{where}".replace(f"{kind} , ", "")
                 key = file_stem(f"pivot-{metric}-{name}{where}")
                 tables[key] = pivot_table(chosen, metric, rows_p, cols_p, ci_key=ci, title=title)
@@ -117,6 +118,24 @@ def ordered_parameters(data: ReportData, params: Sequence[str] | None) -> list[s
         if p not in data.parameters:
             raise ParameterError("--param", p, "a swept parameter: " + ", ".join(data.parameters))
     return chosen + [p for p in data.parameters if p not in chosen]
+
+
+def rounded(value: Any) -> str:
+    """A swept value as people write it: numbers to four significant figures (``0.2100000003``
+    -> ``0.21``), anything else as is."""
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    return str(value)
+
+
+def fixed_label(fixed: Mapping[str, Any]) -> str:
+    """``, KEY=VALUE`` for each parameter held fixed: the key as written, the value rounded."""
+    return "".join(f", {k}={rounded(v)}" for k, v in fixed.items())
+
+
+def parameter_groups(records: Sequence[Mapping[str, Any]], keys: Sequence[str]) -> list[dict[str, Any]]:
+    """Every combination of the values of ``keys`` found in ``records`` (each value in order)."""
+    return _groups(records, keys)
 
 
 def _groups(records: Sequence[Mapping[str, Any]], keys: Sequence[str]) -> list[dict[str, Any]]:
@@ -185,12 +204,15 @@ def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
 
 def write_report(data: ReportData, out_dir: str | Path, fmt: str = "md", *,
                  figures: bool = True, metrics: Mapping[str, str | None] | None = None,
-                 params: Sequence[str] | None = None) -> tuple[dict[str, Table], list[Path]]:
-    """Write every table (one file each, in ``fmt``) and figure (PNG and PDF) to ``out_dir``."""
+                 params: Sequence[str] | None = None, write: bool = True) -> tuple[dict[str, Table], list[Path]]:
+    """Write every table (one file each, in ``fmt``) and figure (PNG and PDF) to ``out_dir``
+    (``write=False``: only build the tables)."""
     out = Path(out_dir)
+    tables = report_tables(data, metrics=metrics, params=params)  # bad options fail before any file
+    written: list[Path] = []
+    if not write:
+        return tables, written
     out.mkdir(parents=True, exist_ok=True)
-    tables = report_tables(data, metrics=metrics, params=params)
-    written = []
     for stem, table in tables.items():
         path = out / (stem + _SUFFIX[fmt] if fmt in _SUFFIX else stem)
         path.write_text(render(table, fmt), encoding="utf-8")

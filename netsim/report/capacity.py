@@ -44,7 +44,7 @@ LINK_COLUMNS = (
     Column("plob_bits_per_use", "repeaterless bound (ebit/use)", 3),
     Column("plob_bits_per_s", "repeaterless bound (ebit/s)", 3),
     Column("bound_bits_per_s", "link bound as heralded (ebit/s)", 3),
-    Column("holevo_bits", "Holevo info of encoding (bit/qubit)", 3),
+    Column("holevo_bits", "Holevo information (bit/qubit)", 3),
     Column("holevo_capacity_bits", "Holevo capacity (bit/use)", 3),
     Column("key_rate_per_s", "key rate (bit/s)", 3),
 )

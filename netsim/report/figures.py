@@ -60,6 +60,13 @@ def with_style(func: Callable[P, R]) -> Callable[P, R]:
     return wrapper
 
 
+def wrap_title(title: str, width: int = 58) -> str:
+    """A title in lines short enough for a column-wide figure, so it is never clipped."""
+    import textwrap
+
+    return "\n".join(textwrap.wrap(title, width, break_long_words=True, break_on_hyphens=False)) or title
+
+
 @with_style
 def new_figure(height_in: float = 2.6, width_in: float = COLUMN_WIDTH_IN) -> tuple[Figure, Axes]:
     """A one-axes figure at column width (call it from a function wrapped by :func:`with_style`)."""
@@ -164,7 +171,7 @@ def metric_vs_parameter(curves: Mapping[str, tuple[Any, Any, Any, Any]], *, xlab
     ax.set_ylabel(ylabel)
     ax.grid(True, linewidth=0.3, color="0.85")
     if title:
-        fig.suptitle(title, fontsize=7)  # above the legend, which sits above the axes
+        fig.suptitle(wrap_title(title), fontsize=7)  # above the legend, which sits above the axes
     if len(curves) > 1 or next(iter(curves), "") or requirements or marked:
         # above the axes: inside, it covered curves and their 95 % bands
         ax.legend(frameon=False, title="shaded: 95% interval", title_fontsize=7, loc="lower center",
@@ -209,7 +216,7 @@ def heatmap(x: ArrayLike, y: ArrayLike, z: ArrayLike, *, xlabel: str, ylabel: st
     bar = fig.colorbar(mesh, ax=ax)
     bar.set_label(zlabel)
     if title:
-        ax.set_title(title, fontsize=7)
+        ax.set_title(wrap_title(title), fontsize=7)
     if annotate and z.size <= 64:
         _annotate(ax, z)
     handles: list[Any] = []

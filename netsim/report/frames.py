@@ -12,7 +12,7 @@ from pathlib import Path
 from typing import Any
 
 from netsim.errors import NetsimError
-from netsim.report.table import Table
+from netsim.table import Table
 
 __all__ = ["report_frames", "to_dataframe"]
 
@@ -50,18 +50,37 @@ def to_dataframe(table: Table) -> Any:
     return frame
 
 
-def report_frames(source: str | Path, **options: Any) -> dict[str, Any]:
+def report_frames(source: Any, *, scenario: Any = None, **options: Any) -> dict[str, Any]:
     """Every table of the report of ``source`` as a DataFrame, by table name.
 
-    ``options`` go to :func:`netsim.report.sources.load_source` (``simulate``, ``run_options``,
-    ``scenario_path``).
+    Parameters
+    ----------
+    source : path, ReportData or RunResult
+        A file (scenario, ``run.json`` or sweep store; ``options`` go to
+        :func:`netsim.report.sources.load_source`: ``simulate``, ``run_options``,
+        ``scenario_path``), what ``load_source`` returned, or a run held in memory
+        (``netsim.engine.run(...)``).
+    scenario : Scenario, optional
+        With a run held in memory: the scenario it was made from, for the analytic columns.
 
     Examples
     --------
     >>> frames = report_frames("scenarios/chain3.toml")  # doctest: +SKIP
     >>> frames["links"][["link", "plob_bits_per_s"]]  # doctest: +SKIP
+    >>> frames = report_frames(engine.run(scenario, pairs=200), scenario=scenario)  # doctest: +SKIP
     """
     from netsim.report.build import report_tables
-    from netsim.report.sources import load_source
+    from netsim.report.sources import ReportData, from_run_result, load_source
 
-    return {name: to_dataframe(t) for name, t in report_tables(load_source(source, **options)).items()}
+    if isinstance(source, ReportData):
+        data = source
+    elif isinstance(source, (str, Path)):
+        data = load_source(source, **options)
+    elif hasattr(source, "to_dict") and hasattr(source, "demands"):
+        data = from_run_result(source, scenario)
+    else:
+        from netsim.errors import ParameterError
+
+        raise ParameterError("source", type(source).__name__, "a file path, what load_source returned, "
+                             "or a RunResult from netsim.engine.run")
+    return {name: to_dataframe(t) for name, t in report_tables(data).items()}

@@ -1,7 +1,8 @@
-"""Checks for the LaTeX table fragments written by :func:`netsim.report.render`.
+"""Checks for the LaTeX tables written by :func:`netsim.report.render`.
 
-:func:`check_fragment` is a structural check that needs no TeX installation: one ``tabular``
-environment, booktabs rules in the right order, every row with as many cells as the column
+:func:`check_fragment` is a structural check that needs no TeX installation: one ``table``
+float with a caption and a label around one ``tabular`` (inside an ``adjustbox`` that shrinks it
+to the text width), booktabs rules in the right order, every row with as many cells as the column
 specification, balanced braces and no unescaped special characters. :func:`compile_fragment`
 wraps the fragment in a minimal document and runs ``pdflatex`` (or ``latexmk``) when one is
 installed.
@@ -18,7 +19,7 @@ from pathlib import Path
 __all__ = ["check_fragment", "compile_fragment", "tex_engine", "wrap_document"]
 
 _BEGIN = re.compile(r"\\begin\{tabular\}\{([^}]*)\}")
-_UNESCAPED = re.compile(r"(?<!\\)[&%$#_^~]")
+_UNESCAPED = re.compile(r"(?<!\\)[&%$#_^~<>]")
 
 
 def _strip_comment(line: str) -> str:
@@ -55,28 +56,48 @@ def _row_problems(lines: list[str], ncols: int) -> list[str]:
     return problems
 
 
+def _float_problems(lines: list[str]) -> tuple[list[str], list[str]]:
+    """Problems of the ``table`` float around the tabular, and the lines of the tabular."""
+    if not lines or not lines[0].startswith(r"\begin{table}"):
+        return ["the table does not start with \\begin{table}"], []
+    if lines[-1] != r"\end{table}":
+        return ["the table does not end with \\end{table}"], []
+    problems = []
+    if not any(ln.startswith(r"\caption{") for ln in lines):
+        problems.append("the table has no \\caption")
+    if not any(re.fullmatch(r"\\label\{tab:[^{}\s]+\}", ln) for ln in lines):
+        problems.append("the table has no \\label{tab:...}")
+    starts = [i for i, ln in enumerate(lines) if _BEGIN.fullmatch(ln)]
+    ends = [i for i, ln in enumerate(lines) if ln == r"\end{tabular}"]
+    if len(starts) != 1 or len(ends) != 1 or ends[0] < starts[0]:
+        return problems + ["expected one \\begin{tabular}{spec} ... \\end{tabular}"], []
+    if not (lines[starts[0] - 1].startswith(r"\begin{adjustbox}{max width=")
+            and lines[ends[0] + 1] == r"\end{adjustbox}"):
+        problems.append("the tabular is not fitted to the page (adjustbox with max width)")
+    return problems, lines[starts[0]:ends[0] + 1]
+
+
 def check_fragment(text: str) -> list[str]:
-    """Structural problems of a booktabs ``tabular`` fragment (an empty list if none).
+    """Structural problems of a LaTeX table as :func:`~netsim.report.render` writes it (an
+    empty list if none).
 
     Parameters
     ----------
     text : str
-        The fragment, as written by ``render(table, "tex")``.
+        The table, as written by ``render(table, "tex")``.
 
     Returns
     -------
     list of str
         One message per problem found.
     """
-    lines = [ln.strip() for ln in (_strip_comment(x) for x in text.splitlines()) if ln.strip()]
-    if not lines or _BEGIN.fullmatch(lines[0]) is None:
-        return ["the fragment does not start with \\begin{tabular}{spec}"]
-    if lines[-1] != r"\end{tabular}":
-        return ["the fragment does not end with \\end{tabular}"]
+    all_lines = [ln.strip() for ln in (_strip_comment(x) for x in text.splitlines()) if ln.strip()]
+    problems, lines = _float_problems(all_lines)
+    if not lines:
+        return problems
     spec = _BEGIN.fullmatch(lines[0]).group(1)  # type: ignore[union-attr]
     ncols = len(re.findall(r"[lcr]|p\{", spec))
     body = lines[1:-1]
-    problems = []
     rules = [ln for ln in body if ln in (r"\toprule", r"\midrule", r"\bottomrule")]
     if rules != [r"\toprule", r"\midrule", r"\bottomrule"]:
         problems.append("expected \\toprule, \\midrule and \\bottomrule once each, in order")
@@ -84,7 +105,7 @@ def check_fragment(text: str) -> list[str]:
         problems.append("the table must open with \\toprule and close with \\bottomrule")
     if re.search(r"\\hline|\|", spec + "".join(body)):
         problems.append("vertical rules or \\hline do not belong in a booktabs table")
-    return problems + _row_problems(body, ncols) + _brace_problems("\n".join(lines))
+    return problems + _row_problems(body, ncols) + _brace_problems("\n".join(all_lines))
 
 
 def tex_engine() -> list[str] | None:
@@ -97,10 +118,11 @@ def tex_engine() -> list[str] | None:
 
 
 def wrap_document(fragments: list[str]) -> str:
-    """A minimal standalone document holding ``fragments`` (booktabs loaded)."""
+    """A minimal standalone document holding ``fragments`` (booktabs and adjustbox loaded; the
+    default OT1 font encoding, as in a document that loads no font package)."""
     body = "\n\\bigskip\n\n".join(fragments)
-    return ("\\documentclass{article}\n\\usepackage[T1]{fontenc}\n\\usepackage{booktabs}\n"
-            "\\usepackage[landscape,margin=1cm]{geometry}\n\\begin{document}\n\\tiny\n"
+    return ("\\documentclass{article}\n\\usepackage{booktabs}\n\\usepackage{adjustbox}\n"
+            "\\usepackage[margin=2cm]{geometry}\n\\begin{document}\n"
             f"{body}\n\\end{{document}}\n")
 
 

@@ -23,8 +23,8 @@ from netsim.errors import ParameterError
 from netsim.report.table import Column, Table
 from netsim.report.units import combine_ci95, header, mean_ci95
 
-__all__ = ["REQUIREMENTS", "Cell", "Extras", "aggregate", "extras", "grid", "pivot_table", "series", "short_name",
-           "swept_parameters"]
+__all__ = ["REQUIREMENTS", "Cell", "Extras", "aggregate", "extras", "grid", "grid_key", "pivot_table", "series",
+           "short_name", "swept_parameters"]
 
 
 @dataclass(frozen=True)
@@ -142,22 +142,32 @@ def _one_parameter(cells: dict[tuple[Any, ...], Cell], metric: str, param: str,
     return Table(f"{header(metric)} against {param}", columns, rows)
 
 
+def grid_key(metric: str, col_param: str, value: Any, interval: bool = False) -> str:
+    """The row key (and DataFrame column) of a two-way pivot's cell: the metric, or its
+    interval, at one value of the column parameter (key as written, value rounded):
+    ``grid_key("rate_per_s", "sites[*].t2_s", 0.1)`` -> ``"rate_per_s at sites[*].t2_s=0.1"``."""
+    text = f"{value:.4g}" if isinstance(value, float) else str(value)
+    return f"{metric}{'_ci95' if interval else ''} at {col_param}={text}"
+
+
 def _two_parameters(cells: dict[tuple[Any, ...], Cell], metric: str, rp: str, cp: str,
                     more: Mapping[tuple[Any, ...], Extras]) -> Table:
     col_values = sorted({k[1] for k in cells}, key=lambda v: _sort_key((v,)))
     judged = any(e.meets is not None for e in more.values())
     columns = [Column(rp, f"{rp} \\ {cp}")]
-    for j, v in enumerate(col_values):
-        columns += [Column(f"c{j}", f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
-                           else f"{short_name(cp)}={v}", ci_key=f"c{j}_ci"),
-                    Column(f"c{j}_ci", "95% CI", ci_key=f"c{j}_ci")]
+    for v in col_values:
+        key, ci = grid_key(metric, cp, v), grid_key(metric, cp, v, interval=True)
+        columns += [Column(key, f"{short_name(cp)}={v:g}" if isinstance(v, (int, float))
+                           else f"{short_name(cp)}={v}", ci_key=ci),
+                    Column(ci, "95% CI", ci_key=ci)]
         if judged:
-            columns.append(Column(f"c{j}_ok", "meets"))
+            columns.append(Column(f"{key} meets", "meets"))
     rows: dict[Any, dict[str, Any]] = {}
     for (r, c), cell in cells.items():
         row = rows.setdefault(r, {rp: r})
-        j = col_values.index(c)
-        row[f"c{j}"], row[f"c{j}_ci"], row[f"c{j}_ok"] = cell.value, cell.interval, more[(r, c)].meets
+        key = grid_key(metric, cp, c)
+        row[key], row[grid_key(metric, cp, c, interval=True)] = cell.value, cell.interval
+        row[f"{key} meets"] = more[(r, c)].meets
     return Table(f"{header(metric)} over {rp} and {cp}", columns, [*rows.values()])
 
 

@@ -15,7 +15,7 @@ import numpy as np
 from matplotlib.figure import Figure
 from numpy.typing import ArrayLike
 
-from netsim.report.build import file_stem, value_order
+from netsim.report.build import file_stem, fixed_label, parameter_groups
 from netsim.report.figures import heatmap, metric_vs_parameter, rate_vs_distance
 from netsim.report.netmap import MapLink, MapSite, network_map
 from netsim.report.pivot import REQUIREMENTS, grid, series
@@ -97,13 +97,6 @@ def network_figures(data: ReportData, link_rows: Sequence[Mapping[str, Any]]) ->
     return figures
 
 
-def _fixed(records: list[dict[str, Any]], rest: Sequence[str]) -> tuple[list[dict[str, Any]], str]:
-    """Records at the first value of every parameter beyond the two plotted, and a caption."""
-    fixed = {k: min((r.get(k) for r in records), key=value_order) for k in rest}
-    chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
-    return chosen, "".join(f", {k}={v}" for k, v in fixed.items())
-
-
 def requirement_lines(records: Sequence[Mapping[str, Any]], metric: str) -> dict[str, float]:
     """Label -> value of the requirement ``metric`` is judged against, one per distinct value
     in ``records`` (e.g. ``{"min fidelity 0.7": 0.7}``); empty when none is set."""
@@ -123,39 +116,53 @@ def _changed_points(records: Sequence[Mapping[str, Any]], metric: str, param: st
 
 def _demand_figures(records: list[dict[str, Any]], name: str, metric: str, ci: str | None,
                     params: Sequence[str]) -> dict[str, Figure]:
-    """Heatmap over the first two parameters and lines against the first, one per second value."""
-    chosen, where = _fixed(records, params[2:])
-    x, y, z = grid(chosen, metric, params[0], params[1])
-    stem = file_stem(f"{metric}-{name}{where}")
-    curves = {param_value_label(params[1], v): series(
-        [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
-    marked = {param_value_label(params[1], v): _changed_points(
-        [r for r in chosen if r.get(params[1]) == v], metric, params[0]) for v in y}
-    title = f"demand {name}{where}"
-    lines = requirement_lines(chosen, metric)
-    passing = None
-    if len(lines) == 1:
-        passing = np.where(np.isfinite(z), z >= next(iter(lines.values())), False)
-    changed = np.zeros(z.shape, dtype=bool)
-    for r in chosen:
-        if r.get("route_changed"):
-            changed[np.searchsorted(y, float(r[params[1]])), np.searchsorted(x, float(r[params[0]]))] = True
-    return {f"heatmap-{stem}": heatmap(x, y, z, xlabel=param_label(params[0]),
-                                       ylabel=param_label(params[1]), zlabel=header(metric),
-                                       title=title, passing=passing,
-                                       passing_label=f"meets {next(iter(lines), '')}",
-                                       marked=changed if changed.any() else None),
-            f"lines-{stem}": metric_vs_parameter(curves, xlabel=param_label(params[0]),
-                                                 ylabel=header(metric), title=title,
-                                                 logy=metric.endswith("per_s"), requirements=lines,
-                                                 marked={k: v for k, v in marked.items() if v[0]})}
+    """Heatmap over the first two parameters and lines against the first, one per second value;
+    one pair of figures per combination of the values of the further parameters, named in the
+    title and the file name (key as written, value rounded). Requirement lines on the line plots,
+    the passing cells marked on the heatmap, points whose route differs from the base ringed."""
+    figures: dict[str, Figure] = {}
+    for fixed in parameter_groups(records, params[2:]):
+        chosen = [r for r in records if all(r.get(k) == v for k, v in fixed.items())]
+        if not chosen:
+            continue
+        where = fixed_label(fixed)
+        x, y, z = grid(chosen, metric, params[0], params[1])
+        stem = file_stem(f"{metric}-{name}{where}")
+        curves = {param_value_label(params[1], v): series(
+            [r for r in chosen if r.get(params[1]) == v], metric, params[0], ci_key=ci) for v in y}
+        marked = {param_value_label(params[1], v): _changed_points(
+            [r for r in chosen if r.get(params[1]) == v], metric, params[0]) for v in y}
+        title = f"demand {name}{where}"
+        held = f"; held at {where[2:]}" if where else ""
+        lines = requirement_lines(chosen, metric)
+        passing = None
+        if len(lines) == 1:
+            passing = np.where(np.isfinite(z), z >= next(iter(lines.values())), False)
+        changed = np.zeros(z.shape, dtype=bool)
+        for r in chosen:
+            if r.get("route_changed"):
+                changed[np.searchsorted(y, float(r[params[1]])), np.searchsorted(x, float(r[params[0]]))] = True
+        heat = heatmap(x, y, z, xlabel=param_label(params[0]), ylabel=param_label(params[1]),
+                       zlabel=header(metric), title=title, passing=passing,
+                       passing_label=f"meets {next(iter(lines), '')}",
+                       marked=changed if changed.any() else None)
+        heat.set_label(f"{header(metric)} of demand {name} over {params[0]} and {params[1]}{held} "
+                       "(mean over repeats at each sweep point).")
+        line_fig = metric_vs_parameter(curves, xlabel=param_label(params[0]), ylabel=header(metric),
+                                       title=title, logy=metric.endswith("per_s"), requirements=lines,
+                                       marked={k: v for k, v in marked.items() if v[0]})
+        line_fig.set_label(f"{header(metric)} of demand {name} against {params[0]}, one line per value of "
+                           f"{params[1]}{held}; shaded: 95 % intervals.")
+        figures[f"heatmap-{stem}"] = heat
+        figures[f"lines-{stem}"] = line_fig
+    return figures
 
 
 def sweep_figures(data: ReportData, params: Sequence[str],
                   metrics: Mapping[str, str | None] | None = None) -> dict[str, Figure]:
     """Each metric against the first swept parameter with 95 % bands (one line per demand);
     with two or more parameters, per demand a heatmap over the first two and lines against the
-    first (further parameters held at their first value)."""
+    first, for every combination of the values of the further parameters."""
     metrics = metrics or {"rate_per_s": "rate_ci95", "fidelity_mean": "fidelity_ci95",
                           "useful_rate_per_s": "useful_rate_ci95"}
     demands = [r for r in data.records if r.get("kind") == "demand"]
@@ -174,9 +181,11 @@ def sweep_figures(data: ReportData, params: Sequence[str],
             elif mine:
                 figures.update(_demand_figures(mine, name, metric, ci, params))
         if curves:
-            figures[file_stem(f"{metric}-vs-{params[0]}")] = metric_vs_parameter(
+            fig = metric_vs_parameter(
                 curves, xlabel=param_label(params[0]), ylabel=header(metric),
                 logy=metric.endswith("per_s"),
                 requirements=requirement_lines([r for r in demands if r.get(metric) is not None], metric),
                 marked=marked)
+            fig.set_label(f"{header(metric)} against {params[0]}, one line per demand; shaded: 95 % intervals.")
+            figures[file_stem(f"{metric}-vs-{params[0]}")] = fig
     return figures

@@ -17,7 +17,7 @@ from typing import Any
 
 from netsim.errors import NetsimError, ParameterError
 
-__all__ = ["SOURCE_SUFFIXES", "ReportData", "load_source", "mark_route_changes", "source_kind",
+__all__ = ["SOURCE_SUFFIXES", "ReportData", "from_run_result", "load_source", "mark_route_changes", "source_kind",
            "store_records"]
 
 SOURCE_SUFFIXES = {".toml": "scenario", ".json": "run", ".sqlite": "store", ".db": "store",
@@ -190,6 +190,22 @@ def _from_run(path: Path, scenario_path: str | Path | None = None) -> ReportData
     scenario = _scenario_of_run(run, path, scenario_path)
     name = _run_name(run) or (scenario.name if scenario else path.parent.name)
     slug = scenario.slug if scenario else path.resolve().parent.name
+    data = ReportData("run", slug, name, run=run, scenario=scenario)
+    if scenario is not None:
+        data.links, data.demands = _budget_rows(scenario)
+    else:
+        data.links, data.demands = data.run_links, data.run_demands
+    return data
+
+
+def from_run_result(result: Any, scenario: Any = None) -> ReportData:
+    """:class:`ReportData` of a run held in memory (an ``engine.run`` result, or its
+    ``to_dict()``), with the budget's analytic columns when its ``scenario`` is given."""
+    run = result.to_dict() if hasattr(result, "to_dict") else dict(result)
+    name = _run_name(run) or (scenario.name if scenario is not None else "run")
+    slug = scenario.slug if scenario is not None else str(getattr(result, "slug", "") or "run")
+    if scenario is not None and scenario.name != name:
+        raise ParameterError("scenario", scenario.name, f"the scenario the run was made from (named {name!r})")
     data = ReportData("run", slug, name, run=run, scenario=scenario)
     if scenario is not None:
         data.links, data.demands = _budget_rows(scenario)

@@ -31,9 +31,11 @@ from netsim.scenario.model import Costs, Protocol, Scenario
 
 __all__ = ["TOP_LEVEL_KEYS", "content_hash", "load", "load_data"]
 
-#: The tables a scenario file may hold. ``sweep`` is kept untouched for the sweep layer.
+#: The tables a scenario file may hold. ``sweep`` and ``sensitivity`` are kept untouched for the
+#: sweep layer (parameter sweeps; ranges of the sensitivity ranking), which checks them.
 TOP_LEVEL_KEYS: tuple[str, ...] = (
     "network", "encoding", "protocol", "defaults", "sites", "links", "demands", "sweep", "costs",
+    "sensitivity",
 )
 
 

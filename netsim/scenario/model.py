@@ -18,6 +18,7 @@ Scenario file layout (TOML)::
     [[demands]]        users = [site, site], pairs or duration_s, min_fidelity, min_rate_per_s
     [costs]            currency, fibre_per_km, repeater_site, memory_slot, mode, ...
     [sweep]            kept untouched in Scenario.data for the sweep layer
+    [sensitivity]      kept untouched in Scenario.data: ranges of the sensitivity ranking
 
 The full reference (every key, unit, default and allowed range) is the README's scenario reference.
 """

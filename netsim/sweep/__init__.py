@@ -47,6 +47,11 @@ Reading a store (the API for reports)
 is documented in :mod:`netsim.sweep.store`. A missing, foreign or corrupt file raises
 :class:`netsim.errors.StoreError` with a one-line message.
 
+Which parameter matters most
+----------------------------
+:func:`rank_parameters` (:mod:`netsim.sweep.sensitivity`) varies the uncertain parameters of a
+scenario together and ranks them by Sobol' indices or Morris screening per demand and figure.
+
 Running
 -------
 ``run_sweep(make_plan(scenario, vary), make_executor(point_function, workers, cluster),
@@ -56,6 +61,7 @@ store_path=...)``; the point function defaults to :func:`netsim.sweep.worker.eng
 from netsim.sweep.executors import DaskPool, LocalPool, make_executor
 from netsim.sweep.plan import SweepPlan, make_plan
 from netsim.sweep.runner import SweepSummary, default_store_path, run_sweep
+from netsim.sweep.sensitivity import Sensitivity, rank_parameters
 from netsim.sweep.spec import Point, SweepSpec, build_spec
 from netsim.sweep.store import SweepStore, open_store
 from netsim.sweep.worker import PointTask, engine_point
@@ -65,6 +71,7 @@ __all__ = [
     "LocalPool",
     "Point",
     "PointTask",
+    "Sensitivity",
     "SweepPlan",
     "SweepSpec",
     "SweepStore",
@@ -75,5 +82,6 @@ __all__ = [
     "make_executor",
     "make_plan",
     "open_store",
+    "rank_parameters",
     "run_sweep",
 ]
