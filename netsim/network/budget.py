@@ -20,7 +20,6 @@ from netsim.errors import ParameterError
 from netsim.hardware.fibre import loss_db
 from netsim.network.bounds import (
     MAX_EXACT_SWAP_HOPS,
-    chain_fidelity,
     multipath_capacity,
     single_path_capacity,
 )
