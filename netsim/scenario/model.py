@@ -98,8 +98,6 @@ class Site:
     photon_indistinguishability: float = 0.8  # limits the interference visibility of two sites' photons
     attempt_dephasing: float = 1e-3       # dephasing p of stored qubits per attempt the site makes
     profile: str | None = None            # the hardware profile the values came from (own or defaults)
-    gate_error: float = 0.0               # depolarizing p applied to the swapped pair
-    attempt_prep_time_s: float = 1e-6     # memory initialisation and emission per attempt
     candidate: bool = False               # exists only if a design chooses it (netsim design)
     cost: float | None = None             # own price of building the site (replaces [costs])
 
