@@ -1,7 +1,11 @@
-"""The closed-form estimate of one route: expected rate and fidelity of delivered pairs.
+"""The closed-form estimate of one route that the design reads: expected rate and fidelity.
 
-This is the only place the design reads rates and fidelities from, so a refined closed form (for
-example one that counts memory decay while hops wait) replaces this one function.
+The design reads rates and fidelities from this one function. It is the planning estimate every
+other command uses (:func:`netsim.network.estimate_route`): swap as soon as possible, the exact
+expected delivery time (failed Bell measurements included), and each hop's heralded state
+decohered in memory for the expected storage times of its qubits, then swapped with the gate
+errors. So a design meets ``min_fidelity`` in the same estimate that ``netsim check`` and
+``netsim budget`` show, memory decay included.
 """
 
 from __future__ import annotations
@@ -12,7 +16,7 @@ from dataclasses import dataclass
 
 import networkx as nx
 
-from netsim.network.bounds import chain_fidelity, expected_wait_s
+from netsim.network.estimate import estimate_hops
 from netsim.network.routing import route_hops
 
 __all__ = ["RouteEstimate", "route_estimate"]
@@ -30,18 +34,11 @@ class RouteEstimate:
 def route_estimate(graph: nx.Graph, route: Sequence[str]) -> RouteEstimate:
     """Closed-form rate and fidelity of ``route`` in ``graph`` (from :func:`netsim.network.build_graph`).
 
-    Swap as soon as possible with unlimited memory time: the expected time until every hop holds
-    a pair (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019; hops clocked at the slowest
-    attempt period) times the product of the inner sites' Bell-state-measurement success gives
-    the rate; hop pairs twirled to Werner states and swapped (w multiplies, gate errors
-    depolarize) give the fidelity (:func:`netsim.network.bounds.chain_fidelity`). Memory decay is
-    not counted, as in ``netsim budget``.
+    :func:`netsim.network.estimate.estimate_hops` (its module docstring derives it and says what
+    it leaves out: cut-off, purification, contention with other demands). A route whose fidelity
+    cannot be estimated (a hop that never succeeds) gets rate 0 and fidelity 0.
     """
     hops = route_hops(graph, list(route))
-    inner = [graph.nodes[h.b]["site"] for h in hops[:-1]]
-    wait = expected_wait_s([h.physics.round_success_probability for h in hops],
-                           [h.physics.attempt_period_s for h in hops])
-    bsm = math.prod(s.bsm_success_probability for s in inner)
-    rate = bsm / wait if wait > 0 and math.isfinite(wait) else 0.0
-    fidelity = chain_fidelity([h.physics.fidelity for h in hops], [s.gate_error for s in inner])
-    return RouteEstimate(rate, fidelity, len(hops))
+    estimate = estimate_hops(graph, hops)
+    fidelity = estimate.fidelity if math.isfinite(estimate.fidelity) else 0.0
+    return RouteEstimate(float(estimate.rate_per_s), float(fidelity), len(hops))
