@@ -67,9 +67,9 @@ def _single_photon_distinguishable(alpha: float, eta: float, ca: float, cb: floa
     over both ports, fidelity to the better of Psi+ and Psi-).
     """
     qutip = pytest.importorskip("qutip")
-    # spin a, spin b, a_common, a_own_a, a_own_b, b_common, b_own_a, b_own_b; an own mode holds at
-    # most one photon (only its site emits into it), a common mode up to two
-    dims = [2, 2, 3, 2, 2, 3, 2, 2]
+    # spin a, spin b, then per internal mode its spatial modes a and b: common (up to two photons),
+    # own-a and own-b (one photon at most: only their own site emits into them)
+    dims = [2, 2, 3, 3, 2, 2, 2, 2]
 
     def op(slot: int, o):  # type: ignore[no-untyped-def]
         parts = [qutip.qeye(d) for d in dims]
@@ -78,20 +78,21 @@ def _single_photon_distinguishable(alpha: float, eta: float, ca: float, cb: floa
 
     raise_spin = qutip.basis(2, 1) * qutip.basis(2, 0).dag()
     keep_zero = qutip.basis(2, 0) * qutip.basis(2, 0).dag()
-    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(3, qutip.create(2))
-    photon_b = math.sqrt(cb) * op(5, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
+    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
+    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
     emit_a = math.sqrt(1 - alpha) * op(0, keep_zero) + math.sqrt(alpha) * op(0, raise_spin) * photon_a
     emit_b = math.sqrt(1 - alpha) * op(1, keep_zero) + math.sqrt(alpha) * op(1, raise_spin) * photon_b
     psi = emit_b * emit_a * qutip.tensor(*[qutip.basis(d, 0) for d in dims])
-    for sa, sb in ((2, 5), (3, 6), (4, 7)):
-        a, b = op(sa, qutip.destroy(dims[sa])), op(sb, qutip.destroy(dims[sb]))
-        psi = (math.pi / 4 * (a.dag() * b - a * b.dag())).expm() * psi
-    no_a = op(2, qutip.qdiags([(1 - eta) ** k for k in range(3)], 0))
-    no_b = op(5, qutip.qdiags([(1 - eta) ** k for k in range(3)], 0))
-    for s in (3, 4):
-        no_a = no_a * op(s, qutip.qdiags([1.0, 1 - eta], 0))
-    for s in (6, 7):
-        no_b = no_b * op(s, qutip.qdiags([1.0, 1 - eta], 0))
+    splitters = []
+    for d in (3, 2, 2):                # 50:50 beam splitter on (a, b) of one internal mode
+        a = qutip.tensor(qutip.destroy(d), qutip.qeye(d))
+        b = qutip.tensor(qutip.qeye(d), qutip.destroy(d))
+        splitters.append((math.pi / 4 * (a.dag() * b - a * b.dag())).expm())
+    psi = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *splitters) * psi
+    silent = [qutip.qdiags([(1 - eta) ** k for k in range(d)], 0) for d in dims[2:]]
+    eye = [qutip.qeye(d) for d in dims[2:]]
+    no_a = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 0 else eye[k] for k in range(6)])
+    no_b = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 1 else eye[k] for k in range(6)])
     herald = (op(0, qutip.qeye(2)) - no_a) * no_b        # diagonal in the Fock basis: a POVM element
     spins = (herald * qutip.ket2dm(psi)).ptrace([0, 1])
     prob = float(spins.tr().real)
