@@ -11,9 +11,13 @@ exp(-sigma^2 / 2), the characteristic function of the normal distribution (commo
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
+from conftest import assert_probability, assert_valid_state
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from netsim.hardware import link_physics
 from netsim.hardware.schemes import PHI_PLUS, pair_visibility
@@ -268,3 +272,20 @@ def test_coherence_factor_acts_only_on_the_target_coherence() -> None:
     physics = link_physics(link(scheme="two_photon"), *sites(0.0))
     np.testing.assert_allclose(physics.state, np.diag([0.5, 0, 0, 0.5]), atol=1e-12)
     assert float(np.trace(PHI_PLUS @ physics.state).real) == pytest.approx(0.5)
+
+
+@settings(max_examples=60, deadline=None)
+@given(scheme=st.sampled_from(["two_photon", "single_photon"]), va=st.floats(0.0, 1.0), vb=st.floats(0.0, 1.0),
+       sigma=st.floats(0.0, 6.0), alpha=st.floats(0.01, 0.5), dark=st.floats(0.0, 0.01),
+       length=st.floats(0.5, 150.0), fraction=st.floats(0.0, 1.0))
+def test_states_stay_valid_and_fidelity_never_rises(scheme: str, va: float, vb: float, sigma: float, alpha: float,
+                                                    dark: float, length: float, fraction: float) -> None:
+    """Invariants over the whole allowed range: a density matrix, and lowering the visibility or
+    adding phase noise never raises the heralded fidelity (both only shrink a coherence)."""
+    lk = link(scheme=scheme, length_km=length, midpoint_fraction=fraction, bright_state_population=alpha,
+              dark_count_probability=dark, phase_noise_rad=sigma)
+    physics = link_physics(lk, *sites(va, vb))
+    assert_valid_state(physics.state)
+    assert_probability([physics.success_probability, physics.fidelity])
+    ideal = link_physics(replace(lk, phase_noise_rad=0.0), *sites())
+    assert physics.fidelity <= ideal.fidelity + 1e-12
