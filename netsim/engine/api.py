@@ -77,8 +77,9 @@ def _need(chain: Chain, per_end: int) -> dict[str, int]:
 
 
 def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
-    """Group demands that contend: they share a site whose slots cannot hold all their
-    reservations at once, or a fibre link (which carries one attempt sequence at a time).
+    """Group demands that contend: they share a site whose slots (or optical interfaces) cannot
+    hold all their reservations at once, or a fibre link (which carries one attempt sequence at a
+    time).
     Demands on sites with room for everyone and on separate fibres run independently."""
     needs = [_need(c, per_end) for c in chains]
     capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
@@ -94,6 +95,20 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
         if sum(needs[k][site] for k in users) > slots:
             for k in users[1:]:
                 parent[root(k)] = root(users[0])
+    # a site's optical interfaces (communication_qubits) are shared like its slots: demands whose
+    # hops there outnumber them take turns, so they run together
+    interfaces = {s.name: s.communication_qubits for c in chains for s in c.sites if s.communication_qubits}
+    for site, count in interfaces.items():
+        users = [k for k, c in enumerate(chains) if site in c.site_names]
+        ends = sum(sum(1 for i in range(c.n_hops) if site in c.site_names[i:i + 2]) for c in (chains[k] for k in users))
+        if len(users) > 1 and ends > count:
+            for k in users[1:]:
+                parent[root(k)] = root(users[0])
+    # one demand's attempts dephase another's qubits stored at a site with attempt_dephasing
+    for site in {s.name for c in chains for s in c.sites if s.attempt_dephasing > 0}:
+        users = [k for k, c in enumerate(chains) if site in c.site_names]
+        for k in users[1:]:
+            parent[root(k)] = root(users[0])
     fibres = [{name for hop in c.hops for name in hop.links} for c in chains]
     for k in range(1, len(chains)):
         for j in range(k):

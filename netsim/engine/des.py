@@ -13,6 +13,15 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
   that sequence): a hop whose light path uses a link another demand is attempting on starts once
   that sequence has heralded, first come, first served. A link's busy time therefore never
   exceeds the simulated time.
+- **Communication qubits.** A site with ``communication_qubits`` c has c optical interfaces: a
+  hop attempts only while it holds one at each such end, from the start of its attempts until
+  its pair is heralded and moved to memory (``memory_transfer_s``, the larger of the two ends;
+  the pair is usable from then on). Interfaces are granted atomically (all of a hop's ends at
+  once, so no deadlock), greedily in request order: a request that fits is granted at once even
+  when an earlier one still waits.
+- **Attempt dephasing.** Every attempt sequence is logged at its two sites; a qubit stored at a
+  site with ``attempt_dephasing`` is dephased per attempt started there while it waits, by any
+  hop of any demand (:mod:`netsim.engine.history`).
 - **Storage.** A qubit's storage time runs from the start of its successful round (the memory
   holds it while the herald travels) until it is Bell-measured or delivered. Decoherence is
   lazy: only the times are recorded and states are computed once, in
@@ -37,6 +46,7 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 
 from __future__ import annotations
 
+import bisect
 import math
 from collections.abc import Callable, Generator
 from dataclasses import dataclass, field
@@ -48,7 +58,7 @@ from numpy.typing import NDArray
 
 from netsim import qinfo
 from netsim.engine.chain import Chain
-from netsim.engine.history import History, pair_states
+from netsim.engine.history import History, dephase, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
 from netsim.engine.policies import (
     SchedulingPolicy,
@@ -63,6 +73,8 @@ __all__ = ["DesOptions", "simulate_des"]
 LEFT, RIGHT = 0, 1
 #: Recorded histories are turned into states in batches of this many (bounded memory).
 FLUSH_ROWS = 20_000
+#: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
+PRUNE_SEQUENCES = 50_000
 
 
 @dataclass(frozen=True)
@@ -117,10 +129,11 @@ class _Lane:
         self.left_seg: list[_Seg | None] = [None] * (n + 1)
         self.right_seg: list[_Seg | None] = [None] * (n + 1)
         self.cycle_done: simpy.Event | None = None
-        self.rows: list[tuple[float, list[float], list[float], list[int]]] = []
+        self.rows: list[tuple[float, list[float], list[float], list[int], list[float]]] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
         self.log: list[_Pair] = []
         self.need = _path_need(chain, slots_per_end)
+        self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
 
 
 def _path_need(chain: Chain, per_end: int) -> dict[str, int]:
@@ -147,6 +160,14 @@ class _Des:
         self.lanes = [_Lane(c, r, self.rounds + 1) for c, r in zip(chains, rngs)]
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
+        sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
+        self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
+                           if site.communication_qubits is not None}
+        self.iface_queue: list[tuple[list[str], simpy.Event]] = []
+        #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
+        self.sequences: dict[str, list[tuple[float, float, int]]] = {
+            name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
+        self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
 
     # -- cycles -----------------------------------------------------------------------------
     def demand(self, lane: _Lane) -> Generator[simpy.Event, Any, None]:
@@ -164,9 +185,17 @@ class _Des:
         """Generate (and purify) until hop ``i`` hands a pair to the chain."""
         lane.attempting[i] = True
         stack: dict[int, tuple[_Pair, NDArray[np.complex128]]] = {}
+        lane.stacks[i] = stack
         pair: _Pair | None = None
+        ends = [site.name for site in lane.chain.sites[i:i + 2] if site.name in self.iface_free]
         while pair is None:
+            if ends:
+                yield self.acquire(ends)
             raw = yield from self.attempt(lane, i)
+            if lane.chain.transfer_s[i] > 0:
+                yield self.env.timeout(float(lane.chain.transfer_s[i]))
+            if ends:
+                self.release(ends)
             pair = raw if not self.rounds else (yield from self.climb(lane, i, raw, stack))
         lane.attempting[i] = False
         lane.need_pair[i] = False
@@ -182,6 +211,10 @@ class _Des:
         born = start + (k - 1) * float(c.period_s[i])
         for name in links:
             self.link_free_s[name] = born + float(c.period_s[i])
+        for site in c.sites[i:i + 2]:
+            if site.name in self.sequences:
+                bisect.insort(self.sequences[site.name], (start, float(c.period_s[i]), k))
+                self.longest_s[site.name] = max(self.longest_s[site.name], (k - 1) * float(c.period_s[i]))
         yield self.env.timeout(born + float(c.herald_s[i]) - self.env.now)
         lane.next_round[i] = born + float(c.period_s[i])
         lane.run.hop_attempts[i] += k
@@ -191,6 +224,42 @@ class _Des:
         if self.opt.log_pairs:
             lane.log.append(pair)
         return pair
+
+    # -- optical interfaces and attempt counts -------------------------------------------------
+    def acquire(self, ends: list[str]) -> simpy.Event:
+        """An event granted when one interface at every site of ``ends`` is free (atomically)."""
+        event = self.env.event()
+        self.iface_queue.append((ends, event))
+        self._grant()
+        return event
+
+    def release(self, ends: list[str]) -> None:
+        for name in ends:
+            self.iface_free[name] += 1
+        self._grant()
+
+    def _grant(self) -> None:
+        waiting = []
+        for ends, event in self.iface_queue:
+            if all(self.iface_free[name] > 0 for name in ends):
+                for name in ends:
+                    self.iface_free[name] -= 1
+                event.succeed()
+            else:
+                waiting.append((ends, event))
+        self.iface_queue = waiting
+
+    def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
+        """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
+        seqs = self.sequences.get(site)
+        if not seqs:
+            return 0
+        lo = bisect.bisect_left(seqs, (after_s - self.longest_s[site] - 1e-9,))
+        hi = bisect.bisect_right(seqs, (until_s, math.inf, math.inf))
+        if hi <= lo:
+            return 0
+        arr = np.array(seqs[lo:hi], dtype=float)
+        return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
 
     # -- segments, swaps, delivery ------------------------------------------------------------
     def add_segment(self, lane: _Lane, seg: _Seg) -> None:
@@ -299,7 +368,8 @@ class _Des:
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
         lane.rows.append((t_d, [p.end[LEFT] - p.start for p in seg.pairs],
-                          [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs]))
+                          [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
+                          [p.start for p in seg.pairs]))
         self.env.process(self._close_cycle(lane, t_d))
 
     def _close_cycle(self, lane: _Lane, t_d: float) -> Generator[simpy.Event, Any, None]:
@@ -330,8 +400,8 @@ class _Des:
         while level in stack:
             other, other_rho = stack.pop(level)
             now = self.env.now
-            p, out = self.purify(self.bring(c, i, other_rho, now - other.start),  # type: ignore[misc]
-                                 self.bring(c, i, rho, now - item.start))
+            p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
+                                 self.bring(c, i, rho, item.start, now))
             yield self.env.timeout(c.delay_s(i, i + 1))
             self.held(lane, item, now, now)  # pair 2 is measured at once
             if lane.rng.random() >= float(p):
@@ -347,12 +417,17 @@ class _Des:
         stack[level] = (item, rho)
         return None
 
-    @staticmethod
-    def bring(c: Chain, i: int, rho: NDArray[np.complex128], elapsed_s: float) -> NDArray[np.complex128]:
-        """Hop ``i``'s pair brought up to date after ``elapsed_s`` in memory (exact)."""
+    def bring(self, c: Chain, i: int, rho: NDArray[np.complex128], start_s: float, now_s: float) -> NDArray[np.complex128]:
+        """Hop ``i``'s pair, valid from ``start_s``, brought up to date at ``now_s`` (exact): memory
+        decay and the attempt dephasing of both ends."""
         left, right = c.sites[i], c.sites[i + 1]
-        rho = qinfo.decohere(rho, elapsed_s, left.t1_s, left.t2_s, qubit=0)
-        return qinfo.decohere(rho, elapsed_s, right.t1_s, right.t2_s, qubit=1)
+        rho = qinfo.decohere(rho, now_s - start_s, left.t1_s, left.t2_s, qubit=0)
+        rho = qinfo.decohere(rho, now_s - start_s, right.t1_s, right.t2_s, qubit=1)
+        for qubit, site in ((0, left), (1, right)):
+            if site.attempt_dephasing > 0:
+                k = self.attempts_at(site.name, start_s, now_s)
+                rho = dephase(np.asarray(rho)[None], (1.0 - site.attempt_dephasing) ** k, qubit)[0]
+        return rho
 
     # -- running ------------------------------------------------------------------------------
     def run(self) -> list[ChainRun]:
@@ -388,9 +463,42 @@ class _Des:
             hist = History(np.array([r[0] for r in part]), np.array([r[1] for r in part]),
                            np.array([r[2] for r in part]), np.array([r[3] for r in part], dtype=np.int64),
                            lane.extra)
+            self.count_attempts(lane, hist, [r[4] for r in part])
             run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
             run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
+        self.prune_sequences()
+
+
+    def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
+        """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
+        flush time every attempt up to the deliveries is logged)."""
+        c = lane.chain
+        if not any(site.name in self.sequences for site in c.sites):
+            return
+        left, right = np.zeros(hist.store_left_s.shape), np.zeros(hist.store_right_s.shape)
+        for row, begin in enumerate(starts):
+            for i, t0 in enumerate(begin):
+                left[row, i] = self.attempts_at(c.sites[i].name, t0, t0 + hist.store_left_s[row, i])
+                right[row, i] = self.attempts_at(c.sites[i + 1].name, t0, t0 + hist.store_right_s[row, i])
+        hist.attempts_left, hist.attempts_right = left, right
+
+    def prune_sequences(self) -> None:
+        """Forget attempt sequences that ended before the oldest qubit still stored anywhere
+        (in a segment, a purification stack, a row not yet flushed; or between those while it is
+        moved to memory or a purification outcome travels: younger than herald + transfer + the
+        chain's end-to-end message time)."""
+        if not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+            return
+        oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
+        for ln in self.lanes:
+            segs = [seg for seg in ln.left_seg + ln.right_seg if seg is not None]
+            starts = [p.start for seg in segs for p in seg.pairs]
+            starts += [t for row in ln.rows for t in row[4]]
+            starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
+            oldest = min([oldest, *starts])
+        for site, seqs in self.sequences.items():
+            self.sequences[site] = [q for q in seqs if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
 
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
