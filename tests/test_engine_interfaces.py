@@ -51,7 +51,7 @@ def _fidelity(run) -> tuple[float, float]:  # type: ignore[no-untyped-def]
     return mean, (ci[1] - mean) / 1.96
 
 
-def _both(chain: Chain, pairs: int = 4000) -> list:  # type: ignore[type-arg]
+def _both(chain: Chain, pairs: int = 2500) -> list:  # type: ignore[type-arg]
     vec = simulate_chain_vector(chain, StopRule(pairs=4 * pairs), np.random.default_rng(11))
     (des,), _ = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(12)])
     return [vec, des]
@@ -116,8 +116,8 @@ def test_vector_engine_matches_event_engine_with_the_new_physics(interfaces: int
              "attempt_dephasing": 0.004}
     chain = _chain(3, 0.08, 2e-4, herald=1.2e-4, length_km=25.0, inner=inner, t1=0.2, t2=0.05,
                    state=qinfo.werner_state(0.97), ends={"memory_transfer_s": 1e-5})
-    vec = simulate_chain_vector(chain, StopRule(pairs=20_000), np.random.default_rng(5))
-    (des,), _ = simulate_des([chain], StopRule(pairs=3_000), [np.random.default_rng(6)])
+    vec = simulate_chain_vector(chain, StopRule(pairs=12_000), np.random.default_rng(5))
+    (des,), _ = simulate_des([chain], StopRule(pairs=2_000), [np.random.default_rng(6)])
     for measure in (_rate, _fidelity):
         (v, sv), (d, sd) = measure(vec), measure(des)
         assert abs(v - d) < Z * math.hypot(sv, sd), measure.__name__
