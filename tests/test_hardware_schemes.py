@@ -506,3 +506,20 @@ def test_dark_counts_match_an_enumeration_of_click_patterns(d: float, length_km:
     direct = link_physics(replace(lk, scheme="direct"), *sites())
     p_store = 10 ** (-0.2 * length_km / 10) * eff
     assert direct.success_probability == pytest.approx(1 - (1 - p_store) * (1 - d), rel=1e-12)
+
+
+@pytest.mark.parametrize(("eta", "ia", "ib", "d"), [(0.3, 0.8, 0.8, 1e-2), (0.1, 0.6, 0.9, 5e-2)])
+def test_two_photon_dark_counts_with_distinguishable_photons_against_qutip(eta: float, ia: float, ib: float,
+                                                                           d: float) -> None:
+    """Exact dark-count terms with partly distinguishable photons (two photons of one round bunch
+    with (1 + V) / 2, Hong, Ou & Mandel 1987) against the first-principles QuTiP model of
+    tests/test_hardware_interference.py with dark-firing threshold detectors."""
+    from test_hardware_interference import _barrett_kok_distinguishable
+
+    lk = link(scheme="two_photon", length_km=1.0, attenuation_db_per_km=0.0, detector_efficiency=eta,
+              dark_count_probability=d)
+    a, b = sites()
+    physics = link_physics(lk, replace(a, photon_indistinguishability=ia), replace(b, photon_indistinguishability=ib))
+    prob, fid = _barrett_kok_distinguishable(eta, math.sqrt(ia), math.sqrt(ib), d)
+    assert physics.success_probability == pytest.approx(prob, rel=1e-9)
+    assert physics.fidelity == pytest.approx(fid, abs=1e-9)
