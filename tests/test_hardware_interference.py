@@ -120,15 +120,16 @@ def test_single_photon_with_distinguishable_photons_against_qutip(alpha: float, 
     assert physics.fidelity == pytest.approx(fid, abs=1e-9)
 
 
-def _barrett_kok_distinguishable(eta: float, ca: float, cb: float) -> tuple[float, float]:
+def _barrett_kok_distinguishable(eta: float, ca: float, cb: float, dark: float = 0.0) -> tuple[float, float]:
     """Two-photon (Barrett-Kok) heralding with partly distinguishable photons, from first
     principles (QuTiP), with the photon model of :func:`_single_photon_distinguishable`.
 
     Spins start in |+>|+>; in each of two rounds a spin in |1> emits one photon into its arm, with
     X on both spins between the rounds; per round a 50:50 beam splitter per internal mode and two
-    threshold detectors of efficiency eta that do not resolve internal modes. A herald is exactly
-    one click in each round. Returns (herald probability, fidelity to the Psi state the click
-    pattern announces).
+    threshold detectors of efficiency eta that do not resolve internal modes, each firing dark
+    with probability ``dark`` per round (no click: (1 - dark) x no photon detected in any internal
+    mode). A herald is exactly one click in each round. Returns (herald probability, fidelity to
+    the Psi state the click pattern announces).
     """
     qutip = pytest.importorskip("qutip")
     dims = [2, 2, 3, 3, 2, 2, 2, 2]
@@ -155,6 +156,7 @@ def _barrett_kok_distinguishable(eta: float, ca: float, cb: float) -> tuple[floa
     no_a = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 0 else eye[k] for k in range(6)])
     no_b = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 1 else eye[k] for k in range(6)])
     one = op(0, qutip.qeye(2))
+    no_a, no_b = (1 - dark) * no_a, (1 - dark) * no_b
     patterns = {"a": (one - no_a) * no_b, "b": (one - no_b) * no_a}
     vacuum = [qutip.basis(d, 0) for d in dims[2:]]
 

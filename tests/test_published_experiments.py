@@ -121,6 +121,30 @@ def test_the_suite_spans_platforms_and_distances() -> None:
         assert head.startswith("# ") and e.label.split(" et al.")[0].split()[-1] in head
 
 
+SOURCE_MARK = re.compile(r"\((paper|memory|derived|common practice)[^)]*\)")
+STRUCTURE_KEYS = {"name", "role", "ends", "users", "pairs", "purpose"}
+
+
+@pytest.mark.parametrize("stem", sorted(BY_STEM))
+def test_every_value_says_where_it_comes_from(stem: str) -> None:
+    """Every physical value carries "(paper)", "(memory, ...)", "(derived ...)" or "(common
+    practice)" on its line or in the comment block just above it (the house rule for check
+    values); names, roles, ends and pair counts are structure, not values."""
+    lines = (FOLDER / f"{stem}.toml").read_text(encoding="utf-8").splitlines()
+    unmarked = []
+    for i, line in enumerate(lines):
+        key = re.match(r"^(\w+)\s*=", line)
+        if not key or key.group(1) in STRUCTURE_KEYS:
+            continue
+        block, j = [line], i - 1
+        while j >= 0 and lines[j].startswith("#"):
+            block.append(lines[j])
+            j -= 1
+        if not any(SOURCE_MARK.search(b) for b in block):
+            unmarked.append(f"line {i + 1}: {line}")
+    assert not unmarked, unmarked
+
+
 def _marks(reason: str) -> list[pytest.MarkDecorator]:
     return [pytest.mark.xfail(reason=reason, strict=True)] if reason else []
 
