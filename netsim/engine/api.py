@@ -17,7 +17,7 @@ import numpy as np
 
 from netsim import qinfo
 from netsim.engine.chain import Chain, HopSpec
-from netsim.engine.des import DesOptions, simulate_des
+from netsim.engine.des import DesOptions, path_need, simulate_des
 from netsim.engine.ensemble import send_ensemble
 from netsim.engine.metrics import Z95, ChainRun, StopRule
 from netsim.engine.result import RunResult
@@ -68,19 +68,11 @@ class Component:
     chains: list[Chain]
 
 
-def _need(chain: Chain, per_end: int) -> dict[str, int]:
-    need: dict[str, int] = {}
-    for i in range(chain.n_hops):
-        for s in (chain.sites[i], chain.sites[i + 1]):
-            need[s.name] = need.get(s.name, 0) + per_end
-    return need
-
-
 def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
     """Group demands that contend: they share a site whose slots cannot hold all their
     reservations at once, or a fibre link (which carries one attempt sequence at a time).
     Demands on sites with room for everyone and on separate fibres run independently."""
-    needs = [_need(c, per_end) for c in chains]
+    needs = [path_need(c, per_end) for c in chains]
     capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
     parent = list(range(len(chains)))
 
@@ -146,7 +138,7 @@ def _interrupted(chain: Chain) -> ChainRun:
 
 def _slots_ok(chain: Chain) -> bool:
     """A lone chain fits the vectorised engine only if its path reservation fits the slots."""
-    need = _need(chain, 1)
+    need = path_need(chain, 1)
     return all(s.memory_slots >= need[s.name] for s in chain.sites)
 
 
@@ -235,7 +227,7 @@ def check_memory(scenario: Scenario) -> None:
 def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
     index = {s.name: k for k, s in enumerate(scenario.sites)}
     for c in chains:
-        need = _need(c, rounds + 1)
+        need = path_need(c, rounds + 1)
         for s in c.sites:
             if s.memory_slots < need[s.name]:
                 raise ParameterError(f"sites[{index[s.name]}].memory_slots", s.memory_slots,

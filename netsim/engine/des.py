@@ -38,7 +38,7 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 from __future__ import annotations
 
 import math
-from collections.abc import Callable, Generator
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -105,25 +105,37 @@ class _Seg:
 class _Lane:
     """One demand's state inside an event-engine run."""
 
-    def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int) -> None:
+    def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int, rule: StopRule) -> None:
         n = chain.n_hops
-        self.chain, self.rng = chain, rng
+        self.chain, self.rng, self.rule = chain, rng, rule
         self.run = ChainRun.zeros(n, engine="des")
-        self.next_round = np.zeros(n)
+        self.next_round = [0.0] * n
         self.busy = [[False, False] for _ in range(n)]
         self.attempting = [False] * n
         self.need_pair = [True] * n
         self.last_delivery_s = 0.0
         self.left_seg: list[_Seg | None] = [None] * (n + 1)
         self.right_seg: list[_Seg | None] = [None] * (n + 1)
-        self.cycle_done: simpy.Event | None = None
+        self.active = False  # a cycle is running under a granted reservation
         self.rows: list[tuple[float, list[float], list[float], list[int]]] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
+        self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
-        self.need = _path_need(chain, slots_per_end)
+        self.need = path_need(chain, slots_per_end)
+        self.cut_token = 0  # identifies the one pending cut-off timer of this lane
+        self.cut_at = math.inf
+        # plain floats: numpy scalars are slow in the per-event arithmetic
+        self.p = [float(v) for v in chain.p]
+        self.period = [float(v) for v in chain.period_s]
+        self.herald = [float(v) for v in chain.herald_s]
+        self.links = [hop.links for hop in chain.hops]
+        self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
+        pos = [float(v) for v in chain.position_s]
+        self.pos = pos
 
 
-def _path_need(chain: Chain, per_end: int) -> dict[str, int]:
+def path_need(chain: Chain, per_end: int) -> dict[str, int]:
+    """Memory slots a path reservation of ``chain`` takes per site (``per_end`` per hop end)."""
     need: dict[str, int] = {}
     for i in range(chain.n_hops):
         for site in (chain.sites[i], chain.sites[i + 1]):
@@ -132,7 +144,12 @@ def _path_need(chain: Chain, per_end: int) -> dict[str, int]:
 
 
 class _Des:
-    """One event-engine run over a group of demands that share memory sites."""
+    """One event-engine run over a group of demands that share memory sites.
+
+    Every model step is a plain callback on a simpy event (no generator process per hop, swap or
+    timer): the model is the one described above, one simpy event per heralded link pair, per
+    delivery, per delayed slot release and per cut-off deadline of a lane.
+    """
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
                  rules: list[StopRule], options: DesOptions) -> None:
@@ -143,89 +160,103 @@ class _Des:
         self.purify: Callable[..., Any] | None = (
             qinfo.purify_dejmps if options.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
         self.swapping = swap_policy(options.swap_policy)
-        self.broker = SlotBroker(self.env, capacity, scheduling_policy(options.scheduling))
-        self.lanes = [_Lane(c, r, self.rounds + 1) for c, r in zip(chains, rngs)]
+        self.asap = self.swapping.name == "asap"
+        self.broker = SlotBroker(capacity, scheduling_policy(options.scheduling), lambda: self.env.now)
+        self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
+        self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
+
+    def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
+        """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
+        self.env.timeout(t - self.env.now).callbacks.append(lambda _event: fn(*args))
 
     # -- cycles -----------------------------------------------------------------------------
-    def demand(self, lane: _Lane) -> Generator[simpy.Event, Any, None]:
-        while True:
-            yield self.broker.request(lane.chain.index, lane.need)
-            lane.cycle_done = self.env.event()
-            lane.busy = [[False, False] for _ in range(lane.chain.n_hops)]
-            lane.need_pair = [True] * lane.chain.n_hops
-            for i in range(lane.chain.n_hops):
-                self.maybe_start(lane, i)
-            yield lane.cycle_done
-            self.broker.release(lane.need)
+    def request(self, lane: _Lane) -> None:
+        self.broker.request(lane.chain.index, lane.need, lambda: self.start_cycle(lane))
 
-    def hop(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, None]:
-        """Generate (and purify) until hop ``i`` hands a pair to the chain."""
+    def start_cycle(self, lane: _Lane) -> None:
+        lane.active = True
+        n = lane.chain.n_hops
+        lane.busy = [[False, False] for _ in range(n)]
+        lane.need_pair = [True] * n
+        for i in range(n):
+            self.maybe_start(lane, i)
+
+    def attempt(self, lane: _Lane, i: int) -> None:
+        """Hop ``i`` attempts until its next success; the clock jumps to the herald."""
         lane.attempting[i] = True
-        stack: dict[int, tuple[_Pair, NDArray[np.complex128]]] = {}
-        pair: _Pair | None = None
-        while pair is None:
-            raw = yield from self.attempt(lane, i)
-            pair = raw if not self.rounds else (yield from self.climb(lane, i, raw, stack))
-        lane.attempting[i] = False
-        lane.need_pair[i] = False
-        lane.busy[i] = [True, True]
-        seg = _Seg(i, i + 1, [pair], self.env.now, self.env.now, pair.start + self.cutoff)
-        self.add_segment(lane, seg)
-
-    def attempt(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, _Pair]:
-        c = lane.chain
-        links = c.hops[i].links
-        start = max(self.env.now, float(lane.next_round[i]), *(self.link_free_s.get(name, 0.0) for name in links))
-        k = int(lane.rng.geometric(c.p[i]))
-        born = start + (k - 1) * float(c.period_s[i])
+        links, period = lane.links[i], lane.period[i]
+        start = max(self.env.now, lane.next_round[i])
         for name in links:
-            self.link_free_s[name] = born + float(c.period_s[i])
-        yield self.env.timeout(born + float(c.herald_s[i]) - self.env.now)
-        lane.next_round[i] = born + float(c.period_s[i])
-        lane.run.hop_attempts[i] += k
-        lane.run.hop_successes[i] += 1
-        lane.run.hop_busy_s[i] += k * float(c.period_s[i])
+            free = self.link_free_s.get(name, 0.0)
+            if free > start:
+                start = free
+        k = int(lane.rng.geometric(lane.p[i]))
+        born = start + (k - 1) * period
+        for name in links:
+            self.link_free_s[name] = born + period
+        self.at(born + lane.herald[i], self.heralded, lane, i, born, k)
+
+    def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
+        period = lane.period[i]
+        lane.next_round[i] = born + period
+        run = lane.run
+        run.hop_attempts[i] += k
+        run.hop_successes[i] += 1
+        run.hop_busy_s[i] += k * period
         pair = _Pair(i, born, self.env.now)
         if self.opt.log_pairs:
             lane.log.append(pair)
-        return pair
+        if self.rounds:
+            self.climb(lane, i, pair, lane.chain.link_states[i], 0)
+        else:
+            self.hand_over(lane, i, pair)
+
+    def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
+        """Hop ``i`` gives its (purified) pair to the chain."""
+        lane.attempting[i] = False
+        lane.need_pair[i] = False
+        lane.busy[i] = [True, True]
+        self.add_segment(lane, _Seg(i, i + 1, [pair], self.env.now, self.env.now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
     def add_segment(self, lane: _Lane, seg: _Seg) -> None:
+        n = lane.chain.n_hops
         lane.right_seg[seg.lo] = seg
         lane.left_seg[seg.hi] = seg
-        if seg.lo == 0 and seg.hi == lane.chain.n_hops:
+        if seg.lo == 0 and seg.hi == n:
             self.deliver(lane, seg)
             return
-        if math.isfinite(seg.deadline):
-            self.env.process(self.cutoff_watch(lane, seg))
-        for j in (seg.lo, seg.hi):
-            if 0 < j < lane.chain.n_hops and lane.left_seg[j] and lane.right_seg[j]:
-                delay = self.swapping.swap_delay_s(j, lane.chain.n_hops, self.env.now)
-                self.env.process(self.swap(lane, j, delay))
+        if seg.deadline < lane.cut_at:
+            self.arm_cutoff(lane, seg.deadline)
+        ready = [j for j in (seg.lo, seg.hi) if 0 < j < n and lane.left_seg[j] and lane.right_seg[j]]
+        for j in ready:
+            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env.now)
+            if delay > 0:
+                self.at(self.env.now + delay, self.swap, lane, j)
+            else:
+                self.swap(lane, j)
 
-    def swap(self, lane: _Lane, j: int, delay: float) -> Generator[simpy.Event, Any, None]:
-        if delay > 0:
-            yield self.env.timeout(delay)
+    def swap(self, lane: _Lane, j: int) -> None:
         left, right = lane.left_seg[j], lane.right_seg[j]
         if not (left and right and left.alive and right.alive):
             return
-        now, c = self.env.now, lane.chain
+        now = self.env.now
         left.alive = right.alive = False
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = bool(lane.rng.random() < c.swap_success(j))
+        success = bool(lane.rng.random() < lane.swap_p[j])
         if not success:
             self.mark_lost(lane, left.pairs + right.pairs)
         self.free_slot(lane, j - 1, RIGHT, now)
         self.free_slot(lane, j, LEFT, now)
+        pos = lane.pos
+        to_lo, to_hi = pos[j] - pos[left.lo], pos[right.hi] - pos[j]
         if success:
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
-            to_lo, to_hi = c.delay_s(j, left.lo), c.delay_s(j, right.hi)
             joined = _Seg(left.lo, right.hi, left.pairs + right.pairs,
                           max(left.info_lo, now + to_lo, right.info_lo + to_lo),
                           max(right.info_hi, now + to_hi, left.info_hi + to_hi),
@@ -235,8 +266,8 @@ class _Des:
         lane.run.swap_failures[j] += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
-        self.drop(lane, left, now + c.delay_s(j, left.lo), None)
-        self.drop(lane, right, None, now + c.delay_s(j, right.hi))
+        self.drop(lane, left, now + to_lo, None)
+        self.drop(lane, right, None, now + to_hi)
 
     def drop(self, lane: _Lane, seg: _Seg, lo_time: float | None, hi_time: float | None) -> None:
         """Forget ``seg``; its end slots free at the given times (None: not this end)."""
@@ -258,15 +289,27 @@ class _Des:
         lane.run.site_qubit_s[pair.hop] += left_until - pair.start
         lane.run.site_qubit_s[pair.hop + 1] += right_until - pair.start
 
-    def cutoff_watch(self, lane: _Lane, seg: _Seg) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(max(0.0, seg.deadline - self.env.now))
-        if not seg.alive:
+    def arm_cutoff(self, lane: _Lane, deadline: float) -> None:
+        """One pending cut-off timer per lane, at the earliest deadline of its live segments."""
+        lane.cut_token += 1
+        lane.cut_at = deadline
+        self.at(deadline, self.cutoff_due, lane, lane.cut_token)
+
+    def cutoff_due(self, lane: _Lane, token: int) -> None:
+        if token != lane.cut_token:  # superseded by an earlier deadline
             return
-        for p in seg.pairs:
-            p.fate = "discarded"
-            lane.run.hop_discards[p.hop] += 1
-        self.mark_lost(lane, seg.pairs)
-        self.drop(lane, seg, self.env.now, self.env.now)
+        lane.cut_at = math.inf
+        now = self.env.now
+        for seg in list(lane.right_seg):
+            if seg is not None and seg.alive and seg.deadline <= now:
+                for p in seg.pairs:
+                    p.fate = "discarded"
+                    lane.run.hop_discards[p.hop] += 1
+                self.mark_lost(lane, seg.pairs)
+                self.drop(lane, seg, now, now)
+        nxt = min((s.deadline for s in lane.right_seg if s is not None and s.alive), default=math.inf)
+        if nxt < lane.cut_at:
+            self.arm_cutoff(lane, nxt)
 
     def mark_lost(self, lane: _Lane, pairs: list[_Pair]) -> None:
         """The hops of lost pairs must make new ones (once their slots are free)."""
@@ -276,20 +319,15 @@ class _Des:
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
         if when > self.env.now:
-            self.env.process(self._free_later(lane, i, side, when))
+            self.at(when, self.free_slot, lane, i, side, when)
             return
         lane.busy[i][side] = False
         self.maybe_start(lane, i)
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
-        active = lane.cycle_done is not None and not lane.cycle_done.triggered
-        if active and lane.need_pair[i] and not any(lane.busy[i]) and not lane.attempting[i]:
-            self.env.process(self.hop(lane, i))
-
-    def _free_later(self, lane: _Lane, i: int, side: int, when: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(when - self.env.now)
-        self.free_slot(lane, i, side, when)
+        if lane.active and lane.need_pair[i] and not lane.attempting[i] and not (lane.busy[i][0] or lane.busy[i][1]):
+            self.attempt(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
         t_d = max(seg.info_lo, seg.info_hi)
@@ -300,52 +338,63 @@ class _Des:
             p.fate = p.fate or "delivered"
         lane.rows.append((t_d, [p.end[LEFT] - p.start for p in seg.pairs],
                           [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs]))
-        self.env.process(self._close_cycle(lane, t_d))
+        self.at(t_d, self.close_cycle, lane, t_d)
 
-    def _close_cycle(self, lane: _Lane, t_d: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(t_d - self.env.now)
-        lane.run.add_intervals(np.array([t_d]), lane.last_delivery_s)
+    def close_cycle(self, lane: _Lane, t_d: float) -> None:
+        rule, run = lane.rule, lane.run
+        was_done = rule.pairs is not None and rule.done(run, self.env.now)
+        run.add_interval(t_d, lane.last_delivery_s)
         lane.last_delivery_s = t_d
         if len(lane.rows) >= FLUSH_ROWS:
-            limit = self.rules[self.lanes.index(lane)].time_s
+            limit = rule.time_s
             self.flush(lane, min(self.env.now, math.inf if limit is None else float(limit)))
-        if lane.cycle_done is not None:
-            lane.cycle_done.succeed()
-        self.check_finished()
+        lane.active = False
+        self.broker.release(lane.need)
+        self.request(lane)
+        if rule.pairs is not None:  # a pairs rule, once met, stays met
+            if not was_done and rule.done(run, self.env.now):
+                self.pending -= 1
+                self.check_finished()
+        elif rule.time_s is None:  # precision: may be met and lost again
+            self.check_finished()
 
     def check_finished(self) -> None:
-        if not self.finished.triggered and all(r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
+        """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
+        if self.pending <= 0 and not self.finished.triggered and all(
+                r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
             self.finished.succeed()
 
-    def timer(self, t: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(t)
-        self.check_finished()
-
     # -- purification -------------------------------------------------------------------------
-    def climb(self, lane: _Lane, i: int, raw: _Pair,
-              stack: dict[int, tuple[_Pair, NDArray[np.complex128]]]) -> Generator[simpy.Event, Any, _Pair | None]:
-        """Put a raw pair on hop ``i``'s recurrence stack; return a level-r pair when one forms."""
-        c = lane.chain
-        item, rho, level = raw, c.link_states[i], 0
-        while level in stack:
-            other, other_rho = stack.pop(level)
-            now = self.env.now
-            p, out = self.purify(self.bring(c, i, other_rho, now - other.start),  # type: ignore[misc]
-                                 self.bring(c, i, rho, now - item.start))
-            yield self.env.timeout(c.delay_s(i, i + 1))
-            self.held(lane, item, now, now)  # pair 2 is measured at once
-            if lane.rng.random() >= float(p):
-                lane.run.purification_failures[i] += 1
-                self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
-                return None
-            self.held(lane, other, now, now)  # the kept pair lives on as a new pair from now
-            item, rho, level = _Pair(i, now, self.env.now), np.asarray(out), level + 1
-            if level == self.rounds:
-                lane.extra[i].append(rho)
-                item.state_id = len(lane.extra[i])
-                return item
-        stack[level] = (item, rho)
-        return None
+    def climb(self, lane: _Lane, i: int, item: _Pair, rho: NDArray[np.complex128], level: int) -> None:
+        """Put a pair of ``level`` on hop ``i``'s recurrence stack, or purify it with the one
+        waiting there; a level-r pair goes to the chain, anything else means a new attempt."""
+        stack = lane.stacks[i]
+        if level not in stack:
+            stack[level] = (item, rho)
+            self.attempt(lane, i)
+            return
+        other, other_rho = stack.pop(level)
+        c, now = lane.chain, self.env.now
+        p, out = self.purify(self.bring(c, i, other_rho, now - other.start),  # type: ignore[misc]
+                             self.bring(c, i, rho, now - item.start))
+        self.held(lane, item, now, now)  # pair 2 is measured at once
+        self.at(now + c.delay_s(i, i + 1), self.purified, lane, i, other, float(p), np.asarray(out), level, now)
+
+    def purified(self, lane: _Lane, i: int, other: _Pair, p: float, out: NDArray[np.complex128], level: int,
+                 measured: float) -> None:
+        if lane.rng.random() >= p:
+            lane.run.purification_failures[i] += 1
+            self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
+            self.attempt(lane, i)
+            return
+        self.held(lane, other, measured, measured)  # the kept pair lives on as a new pair from then
+        item = _Pair(i, measured, self.env.now)
+        if level + 1 == self.rounds:
+            lane.extra[i].append(out)
+            item.state_id = len(lane.extra[i])
+            self.hand_over(lane, i, item)
+            return
+        self.climb(lane, i, item, out, level + 1)
 
     @staticmethod
     def bring(c: Chain, i: int, rho: NDArray[np.complex128], elapsed_s: float) -> NDArray[np.complex128]:
@@ -357,10 +406,9 @@ class _Des:
     # -- running ------------------------------------------------------------------------------
     def run(self) -> list[ChainRun]:
         for lane in self.lanes:
-            self.env.process(self.demand(lane))
-        for rule in self.rules:
-            if rule.time_s is not None:
-                self.env.process(self.timer(float(rule.time_s)))
+            self.request(lane)
+        for t in sorted({float(rule.time_s) for rule in self.rules if rule.time_s is not None}):
+            self.at(t, self.check_finished)
         interrupted = False
         try:
             self.env.run(until=self.finished)

@@ -26,11 +26,10 @@ its Bell measurement. ``asap`` (default) swaps at once.
 
 from __future__ import annotations
 
+import bisect
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Protocol
-
-import simpy
 
 from netsim.errors import ParameterError
 
@@ -128,38 +127,100 @@ def swap_policy(name: str | SwapPolicy) -> SwapPolicy:
 
 
 class SlotBroker:
-    """Grants path reservations of memory slots in the order a scheduling policy gives."""
+    """Grants path reservations of memory slots in the order a scheduling policy gives.
 
-    def __init__(self, env: simpy.Environment, capacity: dict[str, int], policy: SchedulingPolicy) -> None:
-        self.env, self.free, self.policy = env, dict(capacity), policy
-        self.waiting: list[tuple[Request, simpy.Event]] = []
+    ``request(demand_index, need, on_grant)`` queues a reservation; ``on_grant()`` is called once
+    its slots are taken (at once when they are free). ``release(need)`` returns slots.
+
+    The rule is the one in the module docstring. In one grant pass the slots a request may use at
+    a site are ``max(0, free - needs of every waiting request ordered before it)``: a request
+    ahead either takes its slots or earmarks them, the same number either way. So whether a
+    request fits depends only on the free slots and the requests ahead of it at its own sites,
+    and after a release only requests needing a released site can newly fit (for the others
+    nothing they look at has changed since the last pass, after which none fitted). For the
+    policies of :data:`SCHEDULING` the broker keeps one queue per site in policy order and tests
+    only those requests; a plug-in policy without a sort key gets the plain full pass.
+    """
+
+    def __init__(self, capacity: dict[str, int], policy: SchedulingPolicy,
+                 clock: Callable[[], float] = lambda: 0.0) -> None:
+        self.free, self.policy, self.clock = dict(capacity), policy, clock
+        self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
+        self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
         self._sequence = 0
+        self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
 
-    def request(self, demand_index: int, need: dict[str, int]) -> simpy.Event:
-        event = self.env.event()
+    def request(self, demand_index: int, need: dict[str, int], on_grant: Callable[[], None]) -> None:
         self._sequence += 1
-        self.waiting.append((Request(demand_index, self.env.now, self._sequence, need), event))
-        self._grant()
-        return event
+        req = Request(demand_index, self.clock(), self._sequence, need)
+        self.waiting[req.sequence] = (req, on_grant)
+        key = self._key
+        if key is None:
+            self._full_pass()
+            return
+        for site in need:
+            queue = self.queues[site]
+            if queue and key(queue[-1]) > key(req):
+                bisect.insort(queue, req, key=key)
+            else:
+                queue.append(req)
+        self._pass(need)
 
     def release(self, need: dict[str, int]) -> None:
         for site, k in need.items():
             self.free[site] += k
-        self._grant()
+        if not self.waiting:
+            return
+        if self._key is None:
+            self._full_pass()
+        else:
+            self._pass(need)
 
-    def _grant(self) -> None:
+    def _fits(self, req: Request) -> bool:
+        free, queues = self.free, self.queues
+        for site, k in req.need.items():
+            room = free[site]
+            for other in queues[site]:
+                if other is req:
+                    break
+                room -= other.need[site]
+            if room < k:
+                return False
+        return True
+
+    def _pass(self, changed: dict[str, int]) -> None:
+        """Grant every waiting request that needs a site in ``changed`` and fits."""
+        seen: set[int] = set()
+        fitting: list[Request] = []
+        for site in changed:
+            for req in self.queues[site]:
+                if req.sequence not in seen:
+                    seen.add(req.sequence)
+                    if self._fits(req):
+                        fitting.append(req)
+        if fitting:
+            self._grant_all(sorted(fitting, key=self._key))
+
+    def _full_pass(self) -> None:
         """Grant in policy order. A request that cannot be served earmarks what it needs, so
         later requests may use only slots it does not need (no demand starves: the slots it
         waits for can only accumulate)."""
-        events = {id(r): e for r, e in self.waiting}
-        spare = dict(self.free)
-        for req in self.policy.order([r for r, _ in self.waiting]):
-            if all(spare[s] >= k for s, k in req.need.items()):
-                for s, k in req.need.items():
-                    self.free[s] -= k
-                    spare[s] -= k
-                self.waiting = [(r, e) for r, e in self.waiting if r is not req]
-                events[id(req)].succeed()
-            else:
-                for s, k in req.need.items():
-                    spare[s] = max(0, spare[s] - k)
+        used: dict[str, int] = {}
+        fitting = []
+        for req in self.policy.order([r for r, _ in self.waiting.values()]):
+            if all(self.free[s] - used.get(s, 0) >= k for s, k in req.need.items()):
+                fitting.append(req)
+            for s, k in req.need.items():
+                used[s] = used.get(s, 0) + k
+        self._grant_all(fitting)
+
+    def _grant_all(self, granted: list[Request]) -> None:
+        """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
+        for req in granted:
+            for s, k in req.need.items():
+                self.free[s] -= k
+                if self._key is not None:
+                    self.queues[s].remove(req)
+        for req in granted:
+            _, on_grant = self.waiting.pop(req.sequence)
+            on_grant()

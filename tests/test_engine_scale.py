@@ -1,0 +1,141 @@
+"""The event engine at metro scale: same statistics as before its speed work, seeded generated
+networks, determinism, and the slot broker's grant rule against a plain full pass.
+
+``tests/data/engine_reference_figures.json`` holds per-demand rates and fidelities (with their
+95 % intervals), site occupancies and link utilisations measured with the event engine as it was
+before it moved from one generator process per hop, swap and timer to plain callbacks with an
+incremental slot broker (same seeds, same stop rules). A figure now must agree with the recorded
+one within the two runs' intervals: equal statistics, whatever the internal event order.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from netsim.engine import run
+from netsim.engine.policies import SCHEDULING, Request, SlotBroker
+from netsim.scenario import load
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests" / "benchmarks"))
+from metro import geometric_metro, grid_metro, metro_scenario  # noqa: E402
+
+REFERENCE = json.loads((ROOT / "tests" / "data" / "engine_reference_figures.json").read_text())
+Z_SPLIT = 4.0  # two independent estimates differ by more than 4 combined standard errors with p < 1e-4 (common practice)
+
+
+def _scenario(name: str):  # type: ignore[no-untyped-def]
+    if name == "grid-4x4-8-demands-slots-2-seed-3":
+        return metro_scenario(grid_metro(4, 4, 8, 2, seed=3))
+    if name == "geometric-16-8-demands-slots-4-seed-5":
+        return metro_scenario(geometric_metro(16, 8, 4, seed=5))
+    return load(ROOT / "scenarios" / f"{name}.toml")
+
+
+def _se(ci: list[float]) -> float:
+    return (ci[1] - ci[0]) / 2 / 1.96
+
+
+CASES = [pytest.param(name, marks=pytest.mark.slow) if name.startswith("geometric") else name for name in REFERENCE]
+
+
+@pytest.mark.parametrize("name", CASES)
+def test_figures_agree_with_those_recorded_before_the_speed_work(name: str) -> None:
+    ref = REFERENCE[name]
+    result = run(_scenario(name), pairs=ref["pairs"], seed=ref["seed"] + 1, ensembles=False)
+    rel_rate = []
+    for row in result.demands:
+        old = ref["demands"][row["demand"]]
+        assert row["engine"] == old["engine"]
+        for key, ci in (("rate_per_s", "rate_ci95"), ("fidelity_mean", "fidelity_ci95")):
+            se = math.hypot(_se(row[ci]), _se(old[ci]))
+            assert abs(row[key] - old[key]) <= Z_SPLIT * se, (row["demand"], key, row[key], old[key], se)
+        rel_rate.append(_se(row["rate_ci95"]) / row["rate_per_s"])
+    # occupancy and utilisation are throughput x time held: their relative error is about that of
+    # the rate (taken as the worst demand's, times the same split factor, doubled for two runs)
+    tol = 2 * Z_SPLIT * max(rel_rate)
+    for site in result.sites:
+        old = ref["sites"][site["site"]]
+        assert abs(site["memory_occupancy"] - old) <= tol * max(old, 1e-3), (site["site"], site["memory_occupancy"], old)
+    for link in result.links:
+        old = ref["links"][link["link"]]
+        assert abs(link["utilisation"] - old) <= tol * max(old, 1e-3), (link["link"], link["utilisation"], old)
+
+
+def test_same_seed_gives_the_same_numbers_on_a_generated_grid() -> None:
+    scenario = metro_scenario(grid_metro(3, 3, 5, 2, seed=7))
+    a = run(scenario, pairs=60, seed=4, ensembles=False).to_dict()
+    b = run(scenario, pairs=60, seed=4, ensembles=False).to_dict()
+    c = run(scenario, pairs=60, seed=5, ensembles=False).to_dict()
+    assert a["demands"] == b["demands"] and a["sites"] == b["sites"]
+    assert a["demands"] != c["demands"]
+
+
+def test_generator_is_seeded_and_builds_the_asked_network() -> None:
+    one, two = grid_metro(4, 5, 6, 3, seed=2), grid_metro(4, 5, 6, 3, seed=2)
+    assert one == two and grid_metro(4, 5, 6, 3, seed=3) != one
+    scenario = metro_scenario(one)
+    assert sum(s.role == "repeater" for s in scenario.sites) == 20
+    assert sum(s.role == "user" for s in scenario.sites) == 20
+    assert len(scenario.demands) == 6
+    # a grid of R x C has R (C - 1) + C (R - 1) inner links, plus one access link per exchange
+    assert len(scenario.links) == 4 * 4 + 5 * 3 + 20
+    assert all(s.memory_slots == 3 for s in scenario.sites)
+    geo = metro_scenario(geometric_metro(25, 10, 2, seed=4))
+    assert len(geo.demands) == 10 and sum(s.role == "repeater" for s in geo.sites) == 25
+
+
+def _plain_pass(free: dict[str, int], order: list[dict[str, int]]) -> list[int]:
+    """The grant rule written out the obvious way (one full pass with a spare-slot copy)."""
+    spare, granted = dict(free), []
+    for k, need in enumerate(order):
+        if all(spare[s] >= n for s, n in need.items()):
+            for s, n in need.items():
+                free[s] -= n
+                spare[s] -= n
+            granted.append(k)
+        else:
+            for s, n in need.items():
+                spare[s] = max(0, spare[s] - n)
+    return granted
+
+
+@pytest.mark.parametrize("policy", sorted(SCHEDULING))
+def test_incremental_broker_grants_what_a_full_pass_grants(policy: str) -> None:
+    rng = np.random.default_rng(9)
+    sites = [f"S{k}" for k in range(6)]
+    capacity = {s: int(rng.integers(1, 4)) for s in sites}
+    now = [0.0]
+    broker = SlotBroker(capacity, SCHEDULING[policy], lambda: now[0])
+    free = dict(capacity)
+    waiting: list[tuple[Request, int]] = []
+    held: list[dict[str, int]] = []
+    by_broker: list[int] = []
+    by_reference: list[int] = []
+    for step in range(600):
+        now[0] = float(step // 3)  # several requests at one time: ties go by arrival
+        if held and rng.random() < 0.45:
+            need = held.pop(int(rng.integers(len(held))))
+            broker.release(need)
+            for s, n in need.items():
+                free[s] += n
+        else:
+            chosen = rng.choice(sites, size=int(rng.integers(1, 4)), replace=False)
+            need = {str(s): int(min(capacity[str(s)], rng.integers(1, 3))) for s in chosen}
+            req = Request(int(rng.integers(5)), now[0], step, need)
+            waiting.append((req, step))
+            broker.request(req.demand_index, need, lambda step=step: by_broker.append(step))
+        order = SCHEDULING[policy].order([r for r, _ in waiting])
+        for k in _plain_pass(free, [r.need for r in order]):
+            held.append(order[k].need)
+            by_reference.append(next(s for r, s in waiting if r is order[k]))
+        waiting = [(r, s) for r, s in waiting if s not in by_reference]
+        assert by_broker == by_reference, step
+        assert broker.free == free
+    assert len(by_broker) > 100 and len(waiting) > 0  # the sequence exercised both grants and waits
