@@ -190,6 +190,10 @@ class SlotBroker:
 
     def _pass(self, changed: dict[str, int]) -> None:
         """Grant every waiting request that needs a site in ``changed`` and fits."""
+        key = self._key
+        if key is None:
+            self._full_pass()
+            return
         seen: set[int] = set()
         fitting: list[Request] = []
         for site in changed:
@@ -199,7 +203,7 @@ class SlotBroker:
                     if self._fits(req):
                         fitting.append(req)
         if fitting:
-            self._grant_all(sorted(fitting, key=self._key))
+            self._grant_all(sorted(fitting, key=key))
 
     def _full_pass(self) -> None:
         """Grant in policy order. A request that cannot be served earmarks what it needs, so
