@@ -44,6 +44,7 @@ from typing import Any
 
 import numpy as np
 import simpy
+from simpy.events import NORMAL
 from numpy.typing import NDArray
 
 from netsim import qinfo
@@ -63,6 +64,8 @@ __all__ = ["DesOptions", "simulate_des"]
 LEFT, RIGHT = 0, 1
 #: Recorded histories are turned into states in batches of this many (bounded memory).
 FLUSH_ROWS = 20_000
+#: Uniform draws are taken from a lane's stream this many at a time.
+UNIFORM_BLOCK = 1024
 
 
 @dataclass(frozen=True)
@@ -77,7 +80,7 @@ class DesOptions:
     log_pairs: bool = False
 
 
-@dataclass
+@dataclass(slots=True)
 class _Pair:
     """A heralded link pair of hop ``hop`` whose state is valid from ``start``."""
 
@@ -89,7 +92,7 @@ class _Pair:
     fate: str = ""
 
 
-@dataclass
+@dataclass(slots=True)
 class _Seg:
     """A run of joined link pairs from site ``lo`` to site ``hi``."""
 
@@ -102,12 +105,44 @@ class _Seg:
     alive: bool = True
 
 
+class _Call:
+    """A bare simpy event that only runs its callbacks (scheduled with ``Environment.schedule``)."""
+
+    __slots__ = ("callbacks",)
+    _ok = True
+    _value = None
+
+    def __init__(self, callback: Callable[[Any], None]) -> None:
+        self.callbacks: list[Callable[[Any], None]] | None = [callback]
+
+
+class _Counts:
+    """Per-lane counters in plain lists (numpy scalar updates are slow per event)."""
+
+    def __init__(self, n: int) -> None:
+        self.attempts, self.successes, self.busy_s, self.discards = [0] * n, [0] * n, [0.0] * n, [0] * n
+        self.purification_failures = [0] * n
+        self.swap_failures, self.site_qubit_s = [0] * (n + 1), [0.0] * (n + 1)
+
+    def add_to(self, run: ChainRun) -> None:
+        run.hop_attempts += self.attempts
+        run.hop_successes += self.successes
+        run.hop_busy_s += self.busy_s
+        run.hop_discards += self.discards
+        run.purification_failures += self.purification_failures
+        run.swap_failures += self.swap_failures
+        run.site_qubit_s += self.site_qubit_s
+
+
 class _Lane:
     """One demand's state inside an event-engine run."""
 
     def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int, rule: StopRule) -> None:
         n = chain.n_hops
-        self.chain, self.rng, self.rule = chain, rng, rule
+        self.chain, self.rng, self.rule, self.n = chain, rng, rule, n
+        self.count = _Counts(n)
+        self._uniforms: list[float] = []
+        self._next_uniform = 0
         self.run = ChainRun.zeros(n, engine="des")
         self.next_round = [0.0] * n
         self.busy = [[False, False] for _ in range(n)]
@@ -130,8 +165,22 @@ class _Lane:
         self.herald = [float(v) for v in chain.herald_s]
         self.links = [hop.links for hop in chain.hops]
         self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
-        pos = [float(v) for v in chain.position_s]
-        self.pos = pos
+        self.pos = [float(v) for v in chain.position_s]
+        self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
+
+    def uniform(self) -> float:
+        """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
+        if self._next_uniform >= len(self._uniforms):
+            self._uniforms = self.rng.random(UNIFORM_BLOCK).tolist()
+            self._next_uniform = 0
+        self._next_uniform += 1
+        return self._uniforms[self._next_uniform - 1]
+
+    def rounds_to_success(self, i: int) -> int:
+        """K ~ Geometric(p_i) on {1, 2, ...} by inversion: P(K > m) = (1 - p)^m."""
+        if self.p[i] >= 1.0:
+            return 1
+        return int(math.log(1.0 - self.uniform()) / self.log_fail[i]) + 1
 
 
 def path_need(chain: Chain, per_end: int) -> dict[str, int]:
@@ -169,7 +218,7 @@ class _Des:
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
-        self.env.timeout(t - self.env.now).callbacks.append(lambda _event: fn(*args))
+        self.env.schedule(_Call(lambda _event: fn(*args)), NORMAL, t - self.env.now)  # type: ignore[arg-type]
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -177,7 +226,7 @@ class _Des:
 
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
-        n = lane.chain.n_hops
+        n = lane.n
         lane.busy = [[False, False] for _ in range(n)]
         lane.need_pair = [True] * n
         for i in range(n):
@@ -192,7 +241,7 @@ class _Des:
             free = self.link_free_s.get(name, 0.0)
             if free > start:
                 start = free
-        k = int(lane.rng.geometric(lane.p[i]))
+        k = lane.rounds_to_success(i)
         born = start + (k - 1) * period
         for name in links:
             self.link_free_s[name] = born + period
@@ -201,10 +250,10 @@ class _Des:
     def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
         period = lane.period[i]
         lane.next_round[i] = born + period
-        run = lane.run
-        run.hop_attempts[i] += k
-        run.hop_successes[i] += 1
-        run.hop_busy_s[i] += k * period
+        count = lane.count
+        count.attempts[i] += k
+        count.successes[i] += 1
+        count.busy_s[i] += k * period
         pair = _Pair(i, born, self.env.now)
         if self.opt.log_pairs:
             lane.log.append(pair)
@@ -218,19 +267,25 @@ class _Des:
         lane.attempting[i] = False
         lane.need_pair[i] = False
         lane.busy[i] = [True, True]
-        self.add_segment(lane, _Seg(i, i + 1, [pair], self.env.now, self.env.now, pair.start + self.cutoff))
+        now = self.env.now
+        self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
     def add_segment(self, lane: _Lane, seg: _Seg) -> None:
-        n = lane.chain.n_hops
-        lane.right_seg[seg.lo] = seg
-        lane.left_seg[seg.hi] = seg
-        if seg.lo == 0 and seg.hi == n:
+        n, lo, hi = lane.n, seg.lo, seg.hi
+        left_seg, right_seg = lane.left_seg, lane.right_seg
+        right_seg[lo] = seg
+        left_seg[hi] = seg
+        if lo == 0 and hi == n:
             self.deliver(lane, seg)
             return
         if seg.deadline < lane.cut_at:
             self.arm_cutoff(lane, seg.deadline)
-        ready = [j for j in (seg.lo, seg.hi) if 0 < j < n and lane.left_seg[j] and lane.right_seg[j]]
+        ready = []
+        if lo > 0 and left_seg[lo] is not None:
+            ready.append(lo)
+        if hi < n and right_seg[hi] is not None:
+            ready.append(hi)
         for j in ready:
             delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env.now)
             if delay > 0:
@@ -246,7 +301,7 @@ class _Des:
         left.alive = right.alive = False
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = bool(lane.rng.random() < lane.swap_p[j])
+        success = lane.uniform() < lane.swap_p[j]
         if not success:
             self.mark_lost(lane, left.pairs + right.pairs)
         self.free_slot(lane, j - 1, RIGHT, now)
@@ -263,7 +318,7 @@ class _Des:
                           min(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
-        lane.run.swap_failures[j] += 1
+        lane.count.swap_failures[j] += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
         self.drop(lane, left, now + to_lo, None)
@@ -286,8 +341,9 @@ class _Des:
     @staticmethod
     def held(lane: _Lane, pair: _Pair, left_until: float, right_until: float) -> None:
         """Add the qubit-seconds ``pair`` spent in its two memories to the site occupancy."""
-        lane.run.site_qubit_s[pair.hop] += left_until - pair.start
-        lane.run.site_qubit_s[pair.hop + 1] += right_until - pair.start
+        qubit_s = lane.count.site_qubit_s
+        qubit_s[pair.hop] += left_until - pair.start
+        qubit_s[pair.hop + 1] += right_until - pair.start
 
     def arm_cutoff(self, lane: _Lane, deadline: float) -> None:
         """One pending cut-off timer per lane, at the earliest deadline of its live segments."""
@@ -304,7 +360,7 @@ class _Des:
             if seg is not None and seg.alive and seg.deadline <= now:
                 for p in seg.pairs:
                     p.fate = "discarded"
-                    lane.run.hop_discards[p.hop] += 1
+                    lane.count.discards[p.hop] += 1
                 self.mark_lost(lane, seg.pairs)
                 self.drop(lane, seg, now, now)
         nxt = min((s.deadline for s in lane.right_seg if s is not None and s.alive), default=math.inf)
@@ -326,13 +382,15 @@ class _Des:
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
-        if lane.active and lane.need_pair[i] and not lane.attempting[i] and not (lane.busy[i][0] or lane.busy[i][1]):
-            self.attempt(lane, i)
+        if lane.active and lane.need_pair[i] and not lane.attempting[i]:
+            busy = lane.busy[i]
+            if not (busy[0] or busy[1]):
+                self.attempt(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
         t_d = max(seg.info_lo, seg.info_hi)
         seg.alive = False
-        lane.right_seg[0] = lane.left_seg[lane.chain.n_hops] = None
+        lane.right_seg[0] = lane.left_seg[lane.n] = None
         seg.pairs[0].end[LEFT] = seg.pairs[-1].end[RIGHT] = t_d
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
@@ -382,8 +440,8 @@ class _Des:
 
     def purified(self, lane: _Lane, i: int, other: _Pair, p: float, out: NDArray[np.complex128], level: int,
                  measured: float) -> None:
-        if lane.rng.random() >= p:
-            lane.run.purification_failures[i] += 1
+        if lane.uniform() >= p:
+            lane.count.purification_failures[i] += 1
             self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
             self.attempt(lane, i)
             return
@@ -421,6 +479,7 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
+        lane.count.add_to(lane.run)
         self.flush(lane, now)
         lane.run.simulated_time_s = now
         lane.run.interrupted = interrupted
