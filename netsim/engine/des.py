@@ -157,6 +157,7 @@ class _Lane:
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
         self.need = path_need(chain, slots_per_end)
+        self.position = 0
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
         # plain floats: numpy scalars are slow in the per-event arithmetic
@@ -212,6 +213,8 @@ class _Des:
         self.asap = self.swapping.name == "asap"
         self.broker = SlotBroker(capacity, scheduling_policy(options.scheduling), lambda: self.env.now)
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
+        for k, lane in enumerate(self.lanes):
+            lane.position = k  # the order ``demand_order`` scheduling gives priority by
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
         self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
@@ -222,7 +225,7 @@ class _Des:
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
-        self.broker.request(lane.chain.index, lane.need, lambda: self.start_cycle(lane))
+        self.broker.request(lane.position, lane.need, lambda: self.start_cycle(lane))
 
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
