@@ -15,9 +15,9 @@ sampled at once with numpy:
   cycle's offset is o_i = max(0, b_i + T_i - t_D).
 
 This is exactly the timeline the event engine (:mod:`netsim.engine.des`) produces for one demand
-with path reservation; ``tests/test_engine_vector.py`` checks the two agree statistically. The
-offsets couple consecutive cycles; they are found by fixed-point iteration over whole arrays
-(each pass makes at least one more cycle exact; usually two passes suffice).
+with path reservation; ``tests/test_engine_timing.py`` checks the two agree statistically. The
+offsets couple consecutive cycles: a few whole-array passes settle them in the usual case, and
+cycles still changing after those are solved one after another (:func:`_solve_offsets`).
 """
 
 from __future__ import annotations
@@ -34,6 +34,8 @@ from netsim.engine.metrics import ChainRun, StopRule
 __all__ = ["cycle_timeline", "simulate_chain_vector", "vector_applicable"]
 
 CHUNK = 20_000
+#: Whole-array passes of the offset solver before it finishes cycle by cycle.
+VECTOR_PASSES = 6
 
 
 def vector_applicable(chain: Chain, cutoff_s: float | None, purification_rounds: int) -> bool:
@@ -63,20 +65,57 @@ def cycle_timeline(chain: Chain, k: NDArray[np.float64], offset: NDArray[np.floa
 
 
 def _solve_offsets(chain: Chain, k: NDArray[np.float64], carry: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
-    """Find the coupled offsets of consecutive cycles by fixed-point iteration."""
+    """Find the coupled offsets of consecutive cycles (exactly, in at most O(N n) work).
+
+    Cycle c's offsets depend only on cycle c - 1's timeline. A few whole-array passes settle the
+    usual case (each pass makes at least one more cycle exact, and in practice the coupling dies
+    out after a cycle or two). If cycles are still changing after :data:`VECTOR_PASSES` passes
+    (short hops whose next round waits long after delivery, e.g. zero-length hops with p near 1),
+    the cycles from the first one that changed on are solved one after another with the scalar
+    recurrence below, which ends by construction.
+    """
     offset = np.zeros_like(k)
     offset[0] = carry
-    for _ in range(len(k) + 1):
+    first = 0
+    for _ in range(VECTOR_PASSES):
         tl = cycle_timeline(chain, k, offset)
         new = np.empty_like(offset)
         new[0] = carry
         new[1:] = np.maximum(0.0, tl["born"][:-1] + chain.period_s - tl["delivered"][:-1, None])
-        if np.array_equal(new, offset):
+        changed = np.flatnonzero((new != offset).any(axis=1))
+        if len(changed) == 0:
             return tl
         offset = new
-    return tl
+        first = int(changed[0])  # cycles before ``first`` formed a self-consistent (exact) prefix
+    offset[first:] = _sequential_offsets(chain, k[first:], offset[first])
+    return cycle_timeline(chain, k, offset)
 
 
+def _sequential_offsets(chain: Chain, k: NDArray[np.float64], start: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Offsets cycle by cycle from ``start`` (the first cycle's offsets, exact).
+
+    With H_i = o_i + (K_i - 1) T_i + h_i the herald of hop i, a cycle's delivery is
+    t_D = max_i (H_i + w_i), w_i the longest message time from a swap next to hop i to a user (0
+    for the end hops, which deliver at their herald), as in :func:`cycle_timeline`; the next
+    cycle's offsets are o'_i = max(0, o_i + K_i T_i - t_D).
+    """
+    n = chain.n_hops
+    w = np.zeros(n)
+    if n > 1:
+        pos = chain.position_s
+        tell = np.maximum(pos[1:-1] - pos[0], pos[-1] - pos[1:-1])  # per inner site, as in cycle_timeline
+        w[1:] = np.maximum(w[1:], tell)
+        w[:-1] = np.maximum(w[:-1], tell)
+    reach = ((k - 1.0) * chain.period_s + chain.herald_s + w).tolist()
+    step = (k * chain.period_s).tolist()
+    out = np.empty_like(k)
+    o = [float(v) for v in start]
+    for c in range(len(k)):
+        out[c] = o
+        r, st = reach[c], step[c]
+        t_d = max(o[i] + r[i] for i in range(n))
+        o = [max(0.0, o[i] + st[i] - t_d) for i in range(n)]
+    return out
 def _next_carry(chain: Chain, tl: dict[str, NDArray[np.float64]]) -> NDArray[np.float64]:
     return np.maximum(0.0, tl["born"][-1] + chain.period_s - tl["delivered"][-1])
 
