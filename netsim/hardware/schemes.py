@@ -29,6 +29,31 @@ P. C. Humphreys et al., Nature 558, 268 (2018).
 J. Calsamiglia and N. Lütkenhaus, Appl. Phys. B 72, 67 (2001).
 N. Sangouard, C. Simon, H. de Riedmatten and N. Gisin, Rev. Mod. Phys. 83, 33 (2011).
 O. A. Collins, S. D. Jenkins, A. Kuzmich and T. A. B. Kennedy, Phys. Rev. Lett. 98, 060502 (2007).
+H. Bernien et al., Nature 497, 86 (2013); B. Hensen et al., Nature 526, 682 (2015), supplementary
+information (two-photon heralding with partly distinguishable photons).
+S. L. N. Hermans et al., Nature 605, 663 (2022) (single-photon heralding: visibility and phase).
+C. K. Hong, Z. Y. Ou and L. Mandel, Phys. Rev. Lett. 59, 2044 (1987).
+
+Photon indistinguishability and optical phase (shared by the two interfering schemes)
+------------------------------------------------------------------------------------
+Derived here. Model the photon of site x as sqrt(c_x)|common> + sqrt(1 - c_x)|own_x>, with
+the ``own`` modes orthogonal to each other and to the common mode. Two sites' photons overlap
+by gamma = sqrt(c_a c_b), and their two-photon (Hong-Ou-Mandel) interference visibility is
+V = |gamma|^2 = c_a c_b (Hong, Ou & Mandel 1987). ``photon_indistinguishability`` I_x is what
+two sites identical to x show, I_x = c_x^2; so the pair's visibility is the geometric mean
+V = sqrt(I_a I_b) (:func:`pair_visibility`): a site's value is the visibility measured
+between two nodes of its kind, as published experiments report it.
+
+A detector that does not resolve the ``own`` modes leaves the which-path information in them:
+each heralded photon multiplies the spin-spin coherence by gamma = sqrt(V). Single-photon
+heralding detects one photon: coherence x sqrt(V) (Humphreys et al. 2018; Hermans et al. 2022).
+Two-photon heralding detects one photon in each of two rounds: coherence x V, so F = (1 + V) / 2
+for an otherwise perfect link (Bernien et al. 2013; Hensen et al. 2015, SI (memory)). An rms
+optical phase error sigma between the arms of single-photon heralding (Gaussian, zero mean)
+multiplies the coherence by E[exp(i phi)] = exp(-sigma^2 / 2) (Hermans et al. 2022, Methods
+(memory)); two-photon heralding cancels the optical phase between its two rounds (Barrett & Kok
+2005) and the other schemes do not interfere photons of two sites, so ``phase_noise_rad`` and
+``photon_indistinguishability`` leave them unchanged.
 """
 
 from __future__ import annotations
@@ -55,6 +80,7 @@ __all__ = [
     "link_physics",
     "midpoint_source",
     "midpoint_source_herald",
+    "pair_visibility",
     "path_physics",
     "single_photon",
     "single_photon_herald",
@@ -87,6 +113,23 @@ def _arm_efficiencies(path: LightPath, source_a: float, source_b: float) -> tupl
     loss_a, loss_b = path.arm_losses_db()
     eta_d = path.first.detector_efficiency
     return source_a * db_to_transmissivity(loss_a) * eta_d, source_b * db_to_transmissivity(loss_b) * eta_d
+
+
+def pair_visibility(site_a: Site, site_b: Site) -> float:
+    """Two-photon interference visibility of two sites' photons: sqrt(I_a I_b).
+
+    Derived in the module docstring (common mode plus orthogonal own modes); two identical sites
+    give their own ``photon_indistinguishability``.
+    """
+    return float(np.sqrt(site_a.photon_indistinguishability * site_b.photon_indistinguishability))
+
+
+def _scale_coherence(rho: np.ndarray, i: int, j: int, factor: float) -> np.ndarray:
+    """``rho`` with the coherence between basis states ``i`` and ``j`` multiplied by ``factor``."""
+    out = np.array(rho, dtype=float, copy=True)
+    out[i, j] *= factor
+    out[j, i] *= factor
+    return out
 
 
 def _station_timing(path: LightPath, preparations: int = 1) -> float:
@@ -127,6 +170,12 @@ def two_photon_herald(path: LightPath) -> Herald:
 
     States are written after the Psi -> Phi+ correction. Two preparations per attempt (one per
     round).
+
+    Partly distinguishable photons (module docstring): the coherence of the true herald is
+    multiplied by the pair visibility V, rho_true = (|00><00| + |11><11| + V (|00><11| + h.c.)) / 2,
+    F = (1 + V) / 2 (Bernien et al. 2013; Hensen et al. 2015, SI (memory)). p_true does not
+    depend on V: in each round exactly one spin emits, so no two photons meet at the beam
+    splitter.
     """
     pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
     d2 = 2.0 * path.first.dark_count_probability
@@ -136,7 +185,8 @@ def two_photon_herald(path: LightPath) -> Herald:
     raw_false = (w_anti * np.diag([0.5, 0.0, 0.0, 0.5]) + w_corr * np.diag([0.0, 0.5, 0.5, 0.0])
                  + w_none * MIXED)
     period = _station_timing(path, preparations=2)
-    return Herald(pa * pb / 2.0 * (1 - d2), PHI_PLUS, w_anti + w_corr + w_none, _normalised(raw_false),
+    rho_true = _scale_coherence(PHI_PLUS, 0, 3, pair_visibility(path.site_a, path.site_b))
+    return Herald(pa * pb / 2.0 * (1 - d2), rho_true, w_anti + w_corr + w_none, _normalised(raw_false),
                   period, period)
 
 
@@ -153,28 +203,40 @@ def single_photon_herald(path: LightPath) -> Herald:
 
     so p_true = 1 - (1 - alpha P_a)(1 - alpha P_b) ~ 2 alpha eta and, for equal arms,
     F = (1 - alpha) / (1 - alpha P / 2) ~ 1 - alpha (Humphreys et al. 2018: p ~ 2 alpha eta,
-    F ~ 1 - alpha). Optical phase drift between the arms is not modelled.
+    F ~ 1 - alpha).
+
+    Partly distinguishable photons and phase noise (module docstring): the one-photon term's
+    coherence is multiplied by c = sqrt(V) exp(-sigma^2 / 2), V the pair visibility and sigma the
+    link's ``phase_noise_rad``. Two emitted photons that are both detected leave by the same
+    port only through two-photon interference: with probability (1 + V) / 2 (Hong, Ou & Mandel
+    1987); otherwise both detectors click and the herald is rejected, so the two-photon weight is
+    alpha^2 (P_a + P_b - P_a P_b (3 - V) / 2). For equal arms P:
+    F = (1 - alpha)(1 + c) / (2 - alpha P (3 - V) / 2), to first order in P
+    F ~ (1 - alpha)(1 + c) / 2 (Hermans et al. 2022, Methods (memory)).
 
     Dark counts: a true herald is rejected when the other detector fires too (factor 1 - d);
-    with no photon detected, one of the two detectors fires dark, p_false = 2 d (1 - p_true)
-    (leading order in d); the memories are
+    with no photon detected ((1 - alpha P_a)(1 - alpha P_b)), one of the two detectors fires
+    dark, p_false = 2 d (1 - alpha P_a)(1 - alpha P_b) (leading order in d); the memories are
     then in the no-click state, diagonal with weights (1 - alpha)^2 |00>,
     alpha (1 - alpha)(1 - P_a) |10>, alpha (1 - alpha)(1 - P_b) |01>,
     alpha^2 (1 - P_a)(1 - P_b) |11> (derived here).
     """
     alpha = path.first.bright_state_population
     pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
-    w_one, w_two = alpha * (1 - alpha) * (pa + pb), alpha ** 2 * (pa + pb - pa * pb)
+    vis = pair_visibility(path.site_a, path.site_b)
+    coherence = float(np.sqrt(vis) * np.exp(-path.first.phase_noise_rad ** 2 / 2.0))
+    w_one, w_two = alpha * (1 - alpha) * (pa + pb), alpha ** 2 * (pa + pb - pa * pb * (3.0 - vis) / 2.0)
     p_true = w_one + w_two
     psi = np.zeros(4)
     psi[2], psi[1] = np.sqrt(pa), np.sqrt(pb)          # |10> and |01> before correction
     psi = psi / np.linalg.norm(psi) if pa + pb > 0 else psi
-    raw_true = w_one * np.outer(psi, psi) + w_two * np.diag([0.0, 0.0, 0.0, 1.0])
+    raw_true = (w_one * _scale_coherence(np.outer(psi, psi), 1, 2, coherence)
+                + w_two * np.diag([0.0, 0.0, 0.0, 1.0]))
     no_click = np.diag([(1 - alpha) ** 2, alpha * (1 - alpha) * (1 - pb),
                         alpha * (1 - alpha) * (1 - pa), alpha ** 2 * (1 - pa) * (1 - pb)])
     d = path.first.dark_count_probability
     period = _station_timing(path)
-    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * (1 - p_true),
+    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * float(np.trace(no_click)),
                   _flip_b(_normalised(no_click)),
                   period, period)
 

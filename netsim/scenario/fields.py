@@ -169,6 +169,11 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "bsm_success_probability": _prob(low_open=True),
     "gate_error": _prob(),
     "attempt_prep_time_s": Spec("real", 0.0, None, unit="s"),
+    "communication_qubits": Spec("int", 1, None),
+    "memory_transfer_s": Spec("real", 0.0, None, unit="s"),
+    "memory_transfer_error": _prob(),
+    "photon_indistinguishability": _prob(),
+    "attempt_dephasing": _prob(),
 }
 
 #: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
@@ -183,6 +188,7 @@ LINK_FIELDS: Mapping[str, Spec] = {
     "midpoint_fraction": _prob(),
     "bright_state_population": _prob(low_open=True, high_open=True),
     "pair_probability": _prob(low_open=True, high_open=True),
+    "phase_noise_rad": Spec("real", 0.0, None, unit="rad"),
 }
 
 #: Keys of a ``[[demands]]`` table (``users`` is checked apart: two site names).

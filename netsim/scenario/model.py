@@ -81,6 +81,11 @@ class Site:
     bsm_success_probability: float = 1.0  # Bell-state measurement success (swapping here)
     gate_error: float = 0.0               # depolarizing p applied to the swapped pair
     attempt_prep_time_s: float = 1e-6     # memory initialisation and emission per attempt
+    communication_qubits: int | None = None  # optical interfaces; None: every slot may attempt
+    memory_transfer_s: float = 0.0        # moving a heralded qubit from the interface to memory
+    memory_transfer_error: float = 0.0    # depolarizing p of that transfer
+    photon_indistinguishability: float = 1.0  # two-photon visibility of two sites like this one
+    attempt_dephasing: float = 0.0        # stored coherence x (1 - this) per attempt of the site
 
 
 @dataclass(frozen=True)
@@ -104,6 +109,7 @@ class Link:
     midpoint_fraction: float = 0.5        # position of the midpoint station from a (0..1)
     bright_state_population: float = 0.1  # alpha for single-photon heralding
     pair_probability: float = 0.01        # mean pairs per pulse of a midpoint source
+    phase_noise_rad: float = 0.0          # rms optical phase error (single-photon heralding)
 
     @property
     def name(self) -> str:
