@@ -139,7 +139,9 @@ class SlotBroker:
     and after a release only requests needing a released site can newly fit (for the others
     nothing they look at has changed since the last pass, after which none fitted). For the
     policies of :data:`SCHEDULING` the broker keeps one queue per site in policy order and tests
-    only those requests; a plug-in policy without a sort key gets the plain full pass.
+    only those requests (each waiting request is filed under one site where it does not fit and is
+    tested again when that site frees slots); a plug-in policy without a sort key gets the plain
+    full pass.
     """
 
     def __init__(self, capacity: dict[str, int], policy: SchedulingPolicy,
@@ -147,6 +149,7 @@ class SlotBroker:
         self.free, self.policy, self.clock = dict(capacity), policy, clock
         self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
         self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
+        self.blocked: dict[str, list[Request]] = {site: [] for site in capacity}
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
 
@@ -164,7 +167,11 @@ class SlotBroker:
                 bisect.insort(queue, req, key=key)
             else:
                 queue.append(req)
-        self._pass(need)
+        blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
+        if blocker is None:
+            self._grant_all([req])
+        else:
+            self.blocked[blocker].append(req)
 
     def release(self, need: dict[str, int]) -> None:
         for site, k in need.items():
@@ -176,7 +183,8 @@ class SlotBroker:
         else:
             self._pass(need)
 
-    def _fits(self, req: Request) -> bool:
+    def _blocker(self, req: Request) -> str | None:
+        """A site where ``req`` does not fit behind the requests ahead of it, or None if it fits."""
         free, queues = self.free, self.queues
         for site, k in req.need.items():
             room = free[site]
@@ -185,23 +193,28 @@ class SlotBroker:
                     break
                 room -= other.need[site]
             if room < k:
-                return False
-        return True
+                return site
+        return None
 
     def _pass(self, changed: dict[str, int]) -> None:
-        """Grant every waiting request that needs a site in ``changed`` and fits."""
+        """Grant every waiting request that fits after slots at ``changed`` were freed.
+
+        A waiting request is filed under a site where it did not fit; its room there can only
+        grow when that site frees slots (requests ahead leave only by taking their slots), so
+        only the requests filed under ``changed`` are tested again."""
         key = self._key
         if key is None:
             self._full_pass()
             return
-        seen: set[int] = set()
         fitting: list[Request] = []
         for site in changed:
-            for req in self.queues[site]:
-                if req.sequence not in seen:
-                    seen.add(req.sequence)
-                    if self._fits(req):
-                        fitting.append(req)
+            filed, self.blocked[site] = self.blocked[site], []
+            for req in filed:
+                blocker = self._blocker(req)
+                if blocker is None:
+                    fitting.append(req)
+                else:
+                    self.blocked[blocker].append(req)
         if fitting:
             self._grant_all(sorted(fitting, key=key))
 
