@@ -70,9 +70,10 @@ class Component:
 
 
 def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
-    """Group demands that contend: they share a site whose slots cannot hold all their
-    reservations at once, or a fibre link (which carries one attempt sequence at a time).
-    Demands on sites with room for everyone and on separate fibres run independently.
+    """Group demands that contend: they share a site whose slots (or optical interfaces) cannot
+    hold all their reservations at once, a site with attempt dephasing (one demand's attempts
+    dephase another's stored qubits), or a fibre link (which carries one attempt sequence at a
+    time). Demands on sites with room for everyone and on separate fibres run independently.
     Returns groups of positions in ``chains``, each in increasing order."""
     needs = [path_need(c, per_end) for c in chains]
     capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
@@ -90,6 +91,20 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
             users.setdefault(site, []).append(k)
     for site, ks in users.items():
         if sum(needs[k][site] for k in ks) > capacity[site]:
+            for k in ks[1:]:
+                parent[root(k)] = root(ks[0])
+    # a site's optical interfaces (communication_qubits) are shared like its slots: demands whose
+    # hops there outnumber them take turns, so they run together
+    sites = {s.name: s for c in chains for s in c.sites}
+    for site, ks in users.items():
+        count = sites[site].communication_qubits
+        if count and len(ks) > 1:
+            ends = sum(sum(1 for i in range(chains[k].n_hops) if site in chains[k].site_names[i:i + 2]) for k in ks)
+            if ends > count:
+                for k in ks[1:]:
+                    parent[root(k)] = root(ks[0])
+        # one demand's attempts dephase another's qubits stored at a site with attempt_dephasing
+        if sites[site].attempt_dephasing > 0:
             for k in ks[1:]:
                 parent[root(k)] = root(ks[0])
     on_fibre: dict[str, int] = {}

@@ -120,9 +120,61 @@ class Chain:
         return float(abs(self.position_s[k] - self.position_s[j]))
 
     @cached_property
+    def transfer_s(self) -> NDArray[np.float64]:
+        """Per hop: the larger ``memory_transfer_s`` of its two ends, shape (n_hops,).
+
+        After the herald each end moves its qubit from the optical interface to a memory qubit;
+        the hop's pair counts as made (usable for swapping or delivery, interfaces free) once
+        both ends have done so.
+        """
+        return np.array([max(self.sites[i].memory_transfer_s, self.sites[i + 1].memory_transfer_s)
+                         for i in range(self.n_hops)], dtype=float)
+
+    @cached_property
+    def ready_s(self) -> NDArray[np.float64]:
+        """From the start of a successful round until the hop's pair is usable: herald delay plus
+        :attr:`transfer_s`, shape (n_hops,)."""
+        return self.herald_s + self.transfer_s
+
+    @cached_property
     def link_states(self) -> NDArray[np.complex128]:
-        """Heralded state of each hop, shape (n_hops, 4, 4), qubit 0 at the left site."""
-        return np.stack([np.asarray(h.physics.state, dtype=complex) for h in self.hops])
+        """Heralded state of each hop, shape (n_hops, 4, 4), qubit 0 at the left site.
+
+        Each end's ``memory_transfer_error`` p depolarizes its qubit (rho -> (1 - p) rho + p I/2;
+        :func:`netsim.qinfo.depolarizing`). It is applied to the heralded state, before memory
+        decay: exact for pure dephasing, and off by at most p (1 - exp(-t/T1)) otherwise.
+        """
+        from netsim import qinfo
+
+        states = []
+        for i, h in enumerate(self.hops):
+            rho = np.asarray(h.physics.state, dtype=complex)
+            for qubit, site in ((0, self.sites[i]), (1, self.sites[i + 1])):
+                if site.memory_transfer_error > 0:
+                    rho = qinfo.depolarizing(site.memory_transfer_error).apply(rho, qubit=qubit)
+            states.append(rho)
+        return np.stack(states)
+
+    @cached_property
+    def interface_waits(self) -> tuple[tuple[int, tuple[int, ...]], ...]:
+        """For a lone chain: the hops that wait for a site's optical interface, and for whom.
+
+        An inner site with ``communication_qubits == 1`` cannot attempt on both of its hops at
+        once (an end user has one hop here, so it never waits). Consecutive hops that share such
+        a site form a run; the event engine grants the interfaces atomically in hop order at the
+        start of a cycle, so in each run the 1st, 3rd, ... hop start at once and the 2nd, 4th, ...
+        start when both neighbours have made their pairs (heralded and transferred). Returns
+        ``((i, (neighbours...)), ...)`` for the waiting hops.
+        """
+        shared = [self.sites[j].communication_qubits == 1 for j in range(1, self.n_hops)]
+        waits: list[tuple[int, tuple[int, ...]]] = []
+        position = 0                      # position of hop i within its run
+        for i in range(self.n_hops):
+            position = position + 1 if i > 0 and shared[i - 1] else 0
+            if position % 2 == 1:
+                nbrs = (i - 1,) + ((i + 1,) if i + 1 < self.n_hops and shared[i] else ())
+                waits.append((i, nbrs))
+        return tuple(waits)
 
     @property
     def site_names(self) -> tuple[str, ...]:

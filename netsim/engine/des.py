@@ -13,6 +13,15 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
   that sequence): a hop whose light path uses a link another demand is attempting on starts once
   that sequence has heralded, first come, first served. A link's busy time therefore never
   exceeds the simulated time.
+- **Communication qubits.** A site with ``communication_qubits`` c has c optical interfaces: a
+  hop attempts only while it holds one at each such end, from the start of its attempts until
+  its pair is heralded and moved to memory (``memory_transfer_s``, the larger of the two ends;
+  the pair is usable from then on). Interfaces are granted atomically (all of a hop's ends at
+  once, so no deadlock), greedily in request order: a request that fits is granted at once even
+  when an earlier one still waits.
+- **Attempt dephasing.** Every attempt sequence is logged at its two sites; a qubit stored at a
+  site with ``attempt_dephasing`` is dephased per attempt started there while it waits, by any
+  hop of any demand (:mod:`netsim.engine.history`).
 - **Storage.** A qubit's storage time runs from the start of its successful round (the memory
   holds it while the herald travels) until it is Bell-measured or delivered. Decoherence is
   lazy: only the times are recorded and states are computed once, in
@@ -37,6 +46,7 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 
 from __future__ import annotations
 
+import bisect
 import math
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -49,7 +59,7 @@ from numpy.typing import NDArray
 
 from netsim import qinfo
 from netsim.engine.chain import Chain
-from netsim.engine.history import History, pair_states
+from netsim.engine.history import History, dephase, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
 from netsim.engine.policies import (
     SchedulingPolicy,
@@ -152,12 +162,15 @@ class _Lane:
         self.left_seg: list[_Seg | None] = [None] * (n + 1)
         self.right_seg: list[_Seg | None] = [None] * (n + 1)
         self.active = False  # a cycle is running under a granted reservation
-        self.rows: list[tuple[float, list[float], list[float], list[int]]] = []
+        self.rows: list[tuple[float, list[float], list[float], list[int], list[float]]] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
         self.need = path_need(chain, slots_per_end)
         self.position = 0
+        self.iface_ends: list[list[str]] = [[] for _ in range(n)]
+        self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
+        self.transfer = [float(v) for v in chain.transfer_s]
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
         # plain floats: numpy scalars are slow in the per-event arithmetic
@@ -218,6 +231,20 @@ class _Des:
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
         self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
+        sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
+        self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
+                           if site.communication_qubits is not None}
+        self.iface_queue: list[tuple[list[str], Callable[[], None]]] = []
+        #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
+        self.sequences: dict[str, list[tuple[float, float, int]]] = {
+            name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
+        self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
+        for lane in self.lanes:
+            c = lane.chain
+            lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
+                               for i in range(c.n_hops)]
+            lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
+                                   for i in range(c.n_hops)]
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
@@ -235,9 +262,18 @@ class _Des:
         for i in range(n):
             self.maybe_start(lane, i)
 
+    def begin(self, lane: _Lane, i: int) -> None:
+        """Hop ``i`` starts making a pair: it takes an optical interface at each limited end, then
+        attempts."""
+        lane.attempting[i] = True
+        ends = lane.iface_ends[i]
+        if ends:
+            self.acquire(ends, lambda: self.attempt(lane, i))
+        else:
+            self.attempt(lane, i)
+
     def attempt(self, lane: _Lane, i: int) -> None:
         """Hop ``i`` attempts until its next success; the clock jumps to the herald."""
-        lane.attempting[i] = True
         links, period = lane.links[i], lane.period[i]
         start = max(self.env.now, lane.next_round[i])
         for name in links:
@@ -248,6 +284,9 @@ class _Des:
         born = start + (k - 1) * period
         for name in links:
             self.link_free_s[name] = born + period
+        for name in lane.dephasing_ends[i]:
+            bisect.insort(self.sequences[name], (start, period, k))
+            self.longest_s[name] = max(self.longest_s[name], (k - 1) * period)
         self.at(born + lane.herald[i], self.heralded, lane, i, born, k)
 
     def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
@@ -260,10 +299,55 @@ class _Des:
         pair = _Pair(i, born, self.env.now)
         if self.opt.log_pairs:
             lane.log.append(pair)
+        if lane.transfer[i] > 0:
+            self.at(self.env.now + lane.transfer[i], self.transferred, lane, i, pair)
+        else:
+            self.transferred(lane, i, pair)
+
+    def transferred(self, lane: _Lane, i: int, pair: _Pair) -> None:
+        """Both ends hold hop ``i``'s new pair in memory: interfaces free, the pair usable."""
+        if lane.iface_ends[i]:
+            self.release_interfaces(lane.iface_ends[i])
         if self.rounds:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
         else:
             self.hand_over(lane, i, pair)
+
+    # -- optical interfaces and attempt counts -------------------------------------------------
+    def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
+        """Call ``then`` once one interface at every site of ``ends`` is free (taken atomically)."""
+        self.iface_queue.append((ends, then))
+        self._grant_interfaces()
+
+    def release_interfaces(self, ends: list[str]) -> None:
+        for name in ends:
+            self.iface_free[name] += 1
+        self._grant_interfaces()
+
+    def _grant_interfaces(self) -> None:
+        waiting, granted = [], []
+        for ends, then in self.iface_queue:
+            if all(self.iface_free[name] > 0 for name in ends):
+                for name in ends:
+                    self.iface_free[name] -= 1
+                granted.append(then)
+            else:
+                waiting.append((ends, then))
+        self.iface_queue = waiting
+        for then in granted:
+            then()
+
+    def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
+        """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
+        seqs = self.sequences.get(site)
+        if not seqs:
+            return 0
+        lo = bisect.bisect_left(seqs, (after_s - self.longest_s[site] - 1e-9,))
+        hi = bisect.bisect_right(seqs, (until_s, math.inf, math.inf))
+        if hi <= lo:
+            return 0
+        arr = np.array(seqs[lo:hi], dtype=float)
+        return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
         """Hop ``i`` gives its (purified) pair to the chain."""
@@ -388,7 +472,7 @@ class _Des:
         if lane.active and lane.need_pair[i] and not lane.attempting[i]:
             busy = lane.busy[i]
             if not (busy[0] or busy[1]):
-                self.attempt(lane, i)
+                self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
         t_d = max(seg.info_lo, seg.info_hi)
@@ -398,7 +482,8 @@ class _Des:
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
         lane.rows.append((t_d, [p.end[LEFT] - p.start for p in seg.pairs],
-                          [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs]))
+                          [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
+                          [p.start for p in seg.pairs]))
         self.at(t_d, self.close_cycle, lane, t_d)
 
     def close_cycle(self, lane: _Lane, t_d: float) -> None:
@@ -432,12 +517,12 @@ class _Des:
         stack = lane.stacks[i]
         if level not in stack:
             stack[level] = (item, rho)
-            self.attempt(lane, i)
+            self.begin(lane, i)
             return
         other, other_rho = stack.pop(level)
         c, now = lane.chain, self.env.now
-        p, out = self.purify(self.bring(c, i, other_rho, now - other.start),  # type: ignore[misc]
-                             self.bring(c, i, rho, now - item.start))
+        p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
+                             self.bring(c, i, rho, item.start, now))
         self.held(lane, item, now, now)  # pair 2 is measured at once
         self.at(now + c.delay_s(i, i + 1), self.purified, lane, i, other, float(p), np.asarray(out), level, now)
 
@@ -446,7 +531,7 @@ class _Des:
         if lane.uniform() >= p:
             lane.count.purification_failures[i] += 1
             self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
-            self.attempt(lane, i)
+            self.begin(lane, i)
             return
         self.held(lane, other, measured, measured)  # the kept pair lives on as a new pair from then
         item = _Pair(i, measured, self.env.now)
@@ -457,12 +542,17 @@ class _Des:
             return
         self.climb(lane, i, item, out, level + 1)
 
-    @staticmethod
-    def bring(c: Chain, i: int, rho: NDArray[np.complex128], elapsed_s: float) -> NDArray[np.complex128]:
-        """Hop ``i``'s pair brought up to date after ``elapsed_s`` in memory (exact)."""
+    def bring(self, c: Chain, i: int, rho: NDArray[np.complex128], start_s: float, now_s: float) -> NDArray[np.complex128]:
+        """Hop ``i``'s pair, valid from ``start_s``, brought up to date at ``now_s`` (exact): memory
+        decay and the attempt dephasing of both ends."""
         left, right = c.sites[i], c.sites[i + 1]
-        rho = qinfo.decohere(rho, elapsed_s, left.t1_s, left.t2_s, qubit=0)
-        return qinfo.decohere(rho, elapsed_s, right.t1_s, right.t2_s, qubit=1)
+        rho = qinfo.decohere(rho, now_s - start_s, left.t1_s, left.t2_s, qubit=0)
+        rho = qinfo.decohere(rho, now_s - start_s, right.t1_s, right.t2_s, qubit=1)
+        for qubit, site in ((0, left), (1, right)):
+            if site.attempt_dephasing > 0:
+                k = self.attempts_at(site.name, start_s, now_s)
+                rho = dephase(np.asarray(rho)[None], (1.0 - site.attempt_dephasing) ** k, qubit)[0]
+        return rho
 
     # -- running ------------------------------------------------------------------------------
     def run(self) -> list[ChainRun]:
@@ -498,10 +588,24 @@ class _Des:
             hist = History(np.array([r[0] for r in part]), np.array([r[1] for r in part]),
                            np.array([r[2] for r in part]), np.array([r[3] for r in part], dtype=np.int64),
                            lane.extra)
+            self.count_attempts(lane, hist, [r[4] for r in part])
             run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
             run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
 
+
+    def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
+        """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
+        flush time every attempt up to the deliveries is logged)."""
+        c = lane.chain
+        if not any(site.name in self.sequences for site in c.sites):
+            return
+        left, right = np.zeros(hist.store_left_s.shape), np.zeros(hist.store_right_s.shape)
+        for row, begin in enumerate(starts):
+            for i, t0 in enumerate(begin):
+                left[row, i] = self.attempts_at(c.sites[i].name, t0, t0 + hist.store_left_s[row, i])
+                right[row, i] = self.attempts_at(c.sites[i + 1].name, t0, t0 + hist.store_right_s[row, i])
+        hist.attempts_left, hist.attempts_right = left, right
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:

@@ -20,6 +20,14 @@ A site's ``gate_error`` q depolarizes the two measured qubits before an ideal Be
 it is not damped by that qubit's later T1 decay, which misstates the state by at most
 q (1 - exp(-t/T1)) for a far qubit stored a further time t after the swap (a documented
 approximation; exact when ``gate_error == 0`` or T1 is infinite).
+
+Attempt dephasing: a qubit stored at a site whose ``attempt_dephasing`` is a has its coherence
+multiplied by (1 - a) per entanglement attempt the site starts while the qubit waits (after the
+start of the qubit's own successful round, up to its Bell measurement or delivery), i.e.
+:func:`netsim.qinfo.dephasing` with p = 1 - (1 - a)^k for k such attempts (Kalb et al., Nat.
+Commun. 9, 1089 (2018); Reiserer et al., PRX 6, 021040 (2016)). The engines count k from the
+geometric attempt counts they draw (:func:`rounds_between`); dephasing commutes with the memory
+decay of the same qubit, so applying it after :func:`netsim.qinfo.decohere` is exact.
 """
 
 from __future__ import annotations
@@ -32,7 +40,7 @@ from numpy.typing import NDArray
 from netsim import qinfo
 from netsim.engine.chain import Chain
 
-__all__ = ["History", "pair_states"]
+__all__ = ["History", "dephase", "pair_states", "rounds_between"]
 
 
 @dataclass
@@ -49,6 +57,9 @@ class History:
     state_id : array (N, n) of int
         0: the hop's heralded state; k >= 1: ``extra_states[i][k - 1]`` (a purified pair).
     extra_states : list of n lists of (4, 4) arrays
+    attempts_left, attempts_right : arrays (N, n) of int, optional
+        Attempts the left (right) site of hop i started while hop i's qubit waited there (for
+        ``attempt_dephasing``); None: none counted.
     """
 
     delivered_s: NDArray[np.float64]
@@ -56,6 +67,8 @@ class History:
     store_right_s: NDArray[np.float64]
     state_id: NDArray[np.int64]
     extra_states: list[list[NDArray[np.complex128]]] = field(default_factory=list)
+    attempts_left: NDArray[np.float64] | None = None
+    attempts_right: NDArray[np.float64] | None = None
 
     def __len__(self) -> int:
         return int(self.delivered_s.shape[0])
@@ -94,4 +107,32 @@ def pair_states(chain: Chain, hist: History) -> NDArray[np.complex128]:
 def _decohered_hop(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
     left, right = chain.sites[i], chain.sites[i + 1]
     rho = qinfo.decohere(_hop_states(chain, hist, i), hist.store_left_s[:, i], left.t1_s, left.t2_s, qubit=0)
-    return qinfo.decohere(rho, hist.store_right_s[:, i], right.t1_s, right.t2_s, qubit=1)
+    rho = qinfo.decohere(rho, hist.store_right_s[:, i], right.t1_s, right.t2_s, qubit=1)
+    if left.attempt_dephasing > 0 and hist.attempts_left is not None:
+        rho = dephase(rho, (1.0 - left.attempt_dephasing) ** hist.attempts_left[:, i], 0)
+    if right.attempt_dephasing > 0 and hist.attempts_right is not None:
+        rho = dephase(rho, (1.0 - right.attempt_dephasing) ** hist.attempts_right[:, i], 1)
+    return rho
+
+
+_OFF = {q: np.array([[((r >> (1 - q)) & 1) != ((c >> (1 - q)) & 1) for c in range(4)] for r in range(4)])
+        for q in (0, 1)}
+
+
+def dephase(rho: NDArray[np.complex128], factor: NDArray[np.float64] | float, qubit: int) -> NDArray[np.complex128]:
+    """Multiply the coherences of ``qubit`` of two-qubit states (N, 4, 4) by ``factor`` (per state):
+    :func:`netsim.qinfo.dephasing` with p = 1 - factor, batched."""
+    f = np.asarray(factor, dtype=float).reshape(-1, 1, 1)
+    return np.where(_OFF[qubit], rho * f, rho)
+
+
+def rounds_between(start_s: NDArray[np.float64], period_s: NDArray[np.float64] | float, k: NDArray[np.float64],
+                   after_s: NDArray[np.float64] | float, until_s: NDArray[np.float64] | float) -> NDArray[np.float64]:
+    """How many of the rounds start + m period (m = 0 .. k - 1) begin in (after, until) (batched).
+
+    Rounds starting at the same time as ``after`` or ``until`` (to 1e-9 of a period) do not count:
+    the qubit's own round, and a round started as the qubit is measured or handed over.
+    """
+    lo = np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0)
+    hi = np.minimum(k - 1.0, np.ceil((until_s - start_s) / period_s - 1e-9) - 1.0)
+    return np.maximum(0.0, hi - lo + 1.0)

@@ -5,12 +5,18 @@ In that case nothing during a run depends on a quantum state, and the timeline o
 end-to-end cycle is a closed formula of the hops' geometric attempt counts. Many cycles are
 sampled at once with numpy:
 
-- hop i needs K_i ~ Geometric(p_i) rounds (p_i the per-round success 1 - (1 - p)^M); its
-  successful round starts at b_i = o_i + (K_i - 1) T_i and both ends know at H_i = b_i + h_i;
+- hop i needs K_i ~ Geometric(p_i) rounds (p_i the per-round success 1 - (1 - p)^M); it starts
+  at s_i = o_i, its successful round starts at b_i = s_i + (K_i - 1) T_i, both ends know at
+  b_i + h_i and the pair is usable at H_i = b_i + h_i + tau_i (tau_i the memory transfer time,
+  :attr:`Chain.ready_s`);
+- communication qubits: where an inner site has one optical interface, its two hops take turns
+  (:attr:`Chain.interface_waits`): a waiting hop starts at s_i = max(o_i, H of its neighbours);
 - inner site j swaps as soon as it holds both its qubits: t_j = max(H_{j-1}, H_j)
   (swap as soon as possible; the Pauli correction is tracked in a frame);
 - the pair is delivered when both users know every herald and outcome:
   t_D = max(H_0, H_{n-1}, max_j (t_j + max(d(j, 0), d(j, n)))), d the classical message time;
+- attempt dephasing: the attempts a site starts while a qubit waits there are counted from the
+  same rounds (:func:`netsim.engine.history.rounds_between`);
 - all slots are free again at t_D; hop i's next round may not start before b_i + T_i, so the next
   cycle's offset is o_i = max(0, b_i + T_i - t_D).
 
@@ -28,7 +34,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from netsim.engine.chain import Chain
-from netsim.engine.history import History, pair_states
+from netsim.engine.history import History, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
 
 __all__ = ["cycle_timeline", "simulate_chain_vector", "vector_applicable"]
@@ -53,21 +59,28 @@ def vector_applicable(chain: Chain, cutoff_s: float | None, purification_rounds:
 def cycle_timeline(chain: Chain, k: NDArray[np.float64], offset: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
     """Timeline of cycles relative to each cycle's start, from attempt counts ``k`` (N, n).
 
-    Returns arrays ``born`` (N, n), ``delivered`` (N,), ``end_left`` and ``end_right`` (N, n):
-    when hop i's qubit at its left (right) site is Bell-measured or delivered.
+    Returns arrays ``start`` and ``born`` (N, n) (first and successful round of each hop),
+    ``delivered`` (N,), ``end_left`` and ``end_right`` (N, n): when hop i's qubit at its left
+    (right) site is Bell-measured or delivered.
     """
-    born = offset + (k - 1.0) * chain.period_s
-    herald = born + chain.herald_s
+    start = np.array(offset, dtype=float, copy=True)
+    born = start + (k - 1.0) * chain.period_s
+    herald = born + chain.ready_s
+    for i, nbrs in chain.interface_waits:
+        start[:, i] = np.maximum(start[:, i], herald[:, list(nbrs)].max(axis=1))
+        born[:, i] = start[:, i] + (k[:, i] - 1.0) * chain.period_s[i]
+        herald[:, i] = born[:, i] + chain.ready_s[i]
     if chain.n_hops == 1:
         delivered = herald[:, 0]
-        return {"born": born, "delivered": delivered, "end_left": delivered[:, None], "end_right": delivered[:, None]}
+        return {"start": start, "born": born, "delivered": delivered, "end_left": delivered[:, None],
+                "end_right": delivered[:, None]}
     swap = np.maximum(herald[:, :-1], herald[:, 1:])
     pos = chain.position_s
     tell = np.maximum(pos[1:-1] - pos[0], pos[-1] - pos[1:-1])
     delivered = np.maximum(np.maximum(herald[:, 0], herald[:, -1]), (swap + tell).max(axis=1))
     end_left = np.concatenate([delivered[:, None], swap], axis=1)
     end_right = np.concatenate([swap, delivered[:, None]], axis=1)
-    return {"born": born, "delivered": delivered, "end_left": end_left, "end_right": end_right}
+    return {"start": start, "born": born, "delivered": delivered, "end_left": end_left, "end_right": end_right}
 
 
 def _solve_offsets(chain: Chain, k: NDArray[np.float64], carry: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
@@ -98,30 +111,18 @@ def _solve_offsets(chain: Chain, k: NDArray[np.float64], carry: NDArray[np.float
 
 
 def _sequential_offsets(chain: Chain, k: NDArray[np.float64], start: NDArray[np.float64]) -> NDArray[np.float64]:
-    """Offsets cycle by cycle from ``start`` (the first cycle's offsets, exact).
-
-    With H_i = o_i + (K_i - 1) T_i + h_i the herald of hop i, a cycle's delivery is
-    t_D = max_i (H_i + w_i), w_i the longest message time from a swap next to hop i to a user (0
-    for the end hops, which deliver at their herald), as in :func:`cycle_timeline`; the next
-    cycle's offsets are o'_i = max(0, o_i + K_i T_i - t_D).
-    """
-    n = chain.n_hops
-    w = np.zeros(n)
-    if n > 1:
-        pos = chain.position_s
-        tell = np.maximum(pos[1:-1] - pos[0], pos[-1] - pos[1:-1])  # per inner site, as in cycle_timeline
-        w[1:] = np.maximum(w[1:], tell)
-        w[:-1] = np.maximum(w[:-1], tell)
-    reach = ((k - 1.0) * chain.period_s + chain.herald_s + w).tolist()
-    step = (k * chain.period_s).tolist()
+    """Offsets cycle by cycle from ``start`` (the first cycle's offsets, exact): the recurrence of
+    the whole-array passes, o' = max(0, born + T - t_D), one cycle of :func:`cycle_timeline` at a
+    time (linear in the number of cycles)."""
     out = np.empty_like(k)
-    o = [float(v) for v in start]
+    o = np.array(start, dtype=float)
     for c in range(len(k)):
         out[c] = o
-        r, st = reach[c], step[c]
-        t_d = max(o[i] + r[i] for i in range(n))
-        o = [max(0.0, o[i] + st[i] - t_d) for i in range(n)]
+        tl = cycle_timeline(chain, k[c:c + 1], o[None, :])
+        o = np.maximum(0.0, tl["born"][0] + chain.period_s - tl["delivered"][0])
     return out
+
+
 def _next_carry(chain: Chain, tl: dict[str, NDArray[np.float64]]) -> NDArray[np.float64]:
     return np.maximum(0.0, tl["born"][-1] + chain.period_s - tl["delivered"][-1])
 
@@ -133,6 +134,7 @@ def _record_chunk(run: ChainRun, chain: Chain, k: NDArray[np.float64], tl: dict[
     left = tl["end_left"] - tl["born"]
     right = tl["end_right"] - tl["born"]
     hist = History(delivered, left, right, np.zeros(k.shape, dtype=np.int64), [])
+    hist.attempts_left, hist.attempts_right = _attempts_while_stored(chain, k, tl)
     run.metrics.add(pair_states(chain, hist), delivered)
     run.add_intervals(delivered, start_s)
     run.hop_attempts += k.sum(axis=0)
@@ -141,6 +143,25 @@ def _record_chunk(run: ChainRun, chain: Chain, k: NDArray[np.float64], tl: dict[
     run.site_qubit_s[:-1] += left.sum(axis=0)
     run.site_qubit_s[1:] += right.sum(axis=0)
     return delivered
+
+
+def _attempts_while_stored(chain: Chain, k: NDArray[np.float64], tl: dict[str, NDArray[np.float64]]
+                           ) -> tuple[NDArray[np.float64] | None, NDArray[np.float64] | None]:
+    """Attempts each hop's neighbour at a shared site starts while the hop's qubit waits there.
+
+    In a lone chain only hops i - 1 and i attempt at site i. Returns (left, right), None when no
+    site of the chain has ``attempt_dephasing``.
+    """
+    if not any(s.attempt_dephasing > 0 for s in chain.sites):
+        return None, None
+    left, right = np.zeros_like(k), np.zeros_like(k)
+    start, born, period = tl["start"], tl["born"], chain.period_s
+    for i in range(chain.n_hops):
+        if i > 0:
+            left[:, i] = rounds_between(start[:, i - 1], period[i - 1], k[:, i - 1], born[:, i], tl["end_left"][:, i])
+        if i + 1 < chain.n_hops:
+            right[:, i] = rounds_between(start[:, i + 1], period[i + 1], k[:, i + 1], born[:, i], tl["end_right"][:, i])
+    return left, right
 
 
 def _chunk_size(rule: StopRule, run: ChainRun, now_s: float) -> int:

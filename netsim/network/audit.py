@@ -27,7 +27,7 @@ MAX_DARK_COUNT_FRACTION: float = 0.1
 
 #: Link settings that must agree along a light path through switches (the first link's apply).
 _HERALD_KEYS = ("scheme", "modes", "detector_efficiency", "dark_count_probability",
-                "midpoint_fraction", "bright_state_population", "pair_probability")
+                "midpoint_fraction", "bright_state_population", "pair_probability", "phase_noise_rad")
 
 
 def summary(scenario: Scenario) -> dict[str, Any]:

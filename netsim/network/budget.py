@@ -72,6 +72,12 @@ DEMAND_NOTES = (
     "ignored, hop pairs twirled to Werner states (waiting time after Shchukin, Schmidt & van "
     "Loock, PRA 100, 032322, 2019; times the product of BSM success probabilities); the time "
     "to signal swap outcomes is not counted."),
+    ("Photon indistinguishability and phase noise are in the link fidelity; memory transfer "
+    "errors in the expected fidelity (each multiplies the Werner parameter by 1 - p). Not in "
+    "these closed forms (simulate for them): hops that take turns at a site with fewer "
+    "communication qubits than hops (the rate assumes parallel generation, up to twice the "
+    "sequential rate for two hops), memory transfer time, and attempt dephasing (like memory "
+    "decay)."),
     ("Route bound: weakest hop of the route (a light path through passive switches counts as one "
     "channel, split by its midpoint station if it has one); single-path: widest path; multipath: "
     "minimum cut over the links' bounds as heralded, per second (Pirandola, Commun. Phys. 2, 51, "
@@ -196,7 +202,10 @@ def _chain_figures(graph: nx.Graph, route: list[str], hops: list[Hop]) -> dict[s
     wait = expected_wait_s([h.physics.round_success_probability for h in hops],
                            [h.physics.attempt_period_s for h in hops])
     bsm = math.prod(s.bsm_success_probability for s in inner)
-    fidelity = chain_fidelity([h.physics.fidelity for h in hops], [s.gate_error for s in inner])
+    # a memory transfer depolarizes its qubit: on a Werner pair it multiplies w by (1 - p) like a gate error
+    ends = [graph.nodes[site]["site"] for h in hops for site in (h.a, h.b)]
+    errors = [s.gate_error for s in inner] + [s.memory_transfer_error for s in ends]
+    fidelity = chain_fidelity([h.physics.fidelity for h in hops], errors)
     edges = [graph.edges[u, v] for u, v in itertools.pairwise(route)]
     return {
         "route": " > ".join(route), "route_sites": list(route), "hops": len(hops),
