@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import bisect
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Protocol
 
 from netsim.errors import ParameterError
@@ -54,6 +54,8 @@ class Request:
     time_s: float
     sequence: int
     need: dict[str, int]
+    #: per site: slots needed by the requests queued ahead of this one (kept by the broker)
+    ahead: dict[str, int] = field(default_factory=dict, compare=False, repr=False)
 
 
 class SchedulingPolicy(Protocol):
@@ -150,6 +152,7 @@ class SlotBroker:
         self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
         self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
         self.blocked: dict[str, list[Request]] = {site: [] for site in capacity}
+        self.total: dict[str, int] = dict.fromkeys(capacity, 0)  # slots needed by the waiting, per site
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
 
@@ -161,12 +164,18 @@ class SlotBroker:
         if key is None:
             self._full_pass()
             return
-        for site in need:
+        for site, k in need.items():
             queue = self.queues[site]
             if queue and key(queue[-1]) > key(req):
-                bisect.insort(queue, req, key=key)
+                at = bisect.bisect_right(queue, key(req), key=key)
+                queue.insert(at, req)
+                req.ahead[site] = sum(other.need[site] for other in queue[:at])
+                for other in queue[at + 1:]:
+                    other.ahead[site] += k
             else:
+                req.ahead[site] = self.total[site]
                 queue.append(req)
+            self.total[site] += k
         blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
         if blocker is None:
             self._grant_all([req])
@@ -185,14 +194,9 @@ class SlotBroker:
 
     def _blocker(self, req: Request) -> str | None:
         """A site where ``req`` does not fit behind the requests ahead of it, or None if it fits."""
-        free, queues = self.free, self.queues
+        free, ahead = self.free, req.ahead
         for site, k in req.need.items():
-            room = free[site]
-            for other in queues[site]:
-                if other is req:
-                    break
-                room -= other.need[site]
-            if room < k:
+            if free[site] - ahead[site] < k:
                 return site
         return None
 
@@ -237,7 +241,12 @@ class SlotBroker:
             for s, k in req.need.items():
                 self.free[s] -= k
                 if self._key is not None:
-                    self.queues[s].remove(req)
+                    queue = self.queues[s]
+                    at = queue.index(req)
+                    del queue[at]
+                    for other in queue[at:]:
+                        other.ahead[s] -= k
+                    self.total[s] -= k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
             on_grant()
