@@ -316,26 +316,35 @@ class _Des:
     # -- optical interfaces and attempt counts -------------------------------------------------
     def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
         """Call ``then`` once one interface at every site of ``ends`` is free (taken atomically)."""
+        free = self.iface_free
+        if all(free[name] > 0 for name in ends):  # nothing else can fit now: only this one is new
+            for name in ends:
+                free[name] -= 1
+            then()
+            return
         self.iface_queue.append((ends, then))
-        self._grant_interfaces()
 
     def release_interfaces(self, ends: list[str]) -> None:
+        """Free one interface at each site of ``ends``; grant waiting requests greedily in request
+        order (only those needing one of these sites can fit now: the others did not before)."""
+        free = self.iface_free
         for name in ends:
-            self.iface_free[name] += 1
-        self._grant_interfaces()
-
-    def _grant_interfaces(self) -> None:
-        waiting, granted = [], []
-        for ends, then in self.iface_queue:
-            if all(self.iface_free[name] > 0 for name in ends):
-                for name in ends:
-                    self.iface_free[name] -= 1
-                granted.append(then)
+            free[name] += 1
+        if not self.iface_queue:
+            return
+        waiting, granted, released = [], [], set(ends)
+        for item in self.iface_queue:
+            need = item[0]
+            if not released.isdisjoint(need) and all(free[name] > 0 for name in need):
+                for name in need:
+                    free[name] -= 1
+                granted.append(item[1])
             else:
-                waiting.append((ends, then))
-        self.iface_queue = waiting
-        for then in granted:
-            then()
+                waiting.append(item)
+        if granted:
+            self.iface_queue = waiting
+            for then in granted:
+                then()
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
