@@ -84,7 +84,7 @@ def test_generator_is_seeded_and_builds_the_asked_network() -> None:
     assert sum(s.role == "repeater" for s in scenario.sites) == 20
     assert sum(s.role == "user" for s in scenario.sites) == 20
     assert len(scenario.demands) == 6
-    # a grid of R x C has R (C - 1) + C (R - 1) inner links, plus one access link per exchange
+    # an R x C grid graph has R (C - 1) + C (R - 1) edges (common practice), plus one access link per exchange
     assert len(scenario.links) == 4 * 4 + 5 * 3 + 20
     assert all(s.memory_slots == 3 for s in scenario.sites)
     geo = metro_scenario(geometric_metro(25, 10, 2, seed=4))
