@@ -157,20 +157,20 @@ def test_offset_solver_is_exact_and_quick_at_the_extreme(monkeypatch: pytest.Mon
     passes = []
     monkeypatch.setattr(vector, "cycle_timeline", lambda *a: passes.append(len(a[1])) or cycle_timeline(*a))
     chain = line_chain(3, 0.999, 1e-5, herald_s=1e-9, length_km=0.0)
-    k = np.random.default_rng(5).geometric(chain.p, size=(5_000, chain.n_hops)).astype(float)
+    k = np.random.default_rng(5).geometric(chain.p, size=(2_000, chain.n_hops)).astype(float)
     tl = vector._solve_offsets(chain, k, np.zeros(chain.n_hops))
     whole = [n for n in passes if n > 1]
     assert len(whole) <= vector.VECTOR_PASSES + 1  # whole-array passes are bounded, not one per cycle
-    assert len(passes) - len(whole) <= len(k)  # then at most one single-cycle step per cycle
+    assert 0 < len(passes) - len(whole) <= len(k)  # the cycle-by-cycle tail ran, one step per cycle at most
     # the model cycle by cycle: herald H_i = o_i + (K_i - 1) T_i + h_i; delivery at the last
     # herald (zero-length hops: messages take no time); next offsets o'_i = max(0, o_i + K_i T_i - t_D)
-    o = np.zeros(chain.n_hops)
+    o, born, delivered = np.zeros(chain.n_hops), np.empty_like(k), np.empty(len(k))
     for c in range(len(k)):
-        born = o + (k[c] - 1) * chain.period_s
-        delivered = (born + chain.herald_s).max()
-        assert tl["delivered"][c] == pytest.approx(delivered, rel=1e-12, abs=1e-18)
-        np.testing.assert_allclose(tl["born"][c], born, rtol=1e-12, atol=1e-18)
-        o = np.maximum(0.0, born + chain.period_s - delivered)
+        born[c] = o + (k[c] - 1) * chain.period_s
+        delivered[c] = (born[c] + chain.herald_s).max()
+        o = np.maximum(0.0, born[c] + chain.period_s - delivered[c])
+    np.testing.assert_allclose(tl["delivered"], delivered, rtol=1e-12, atol=1e-18)
+    np.testing.assert_allclose(tl["born"], born, rtol=1e-12, atol=1e-18)
 
 
 def test_one_hop_chain_with_a_cutoff_takes_the_fast_path_with_the_same_statistics() -> None:
