@@ -51,7 +51,7 @@ def _fidelity(run) -> tuple[float, float]:  # type: ignore[no-untyped-def]
     return mean, (ci[1] - mean) / 1.96
 
 
-def _both(chain: Chain, pairs: int = 4000) -> list:  # type: ignore[type-arg]
+def _both(chain: Chain, pairs: int = 2500) -> list:  # type: ignore[type-arg]
     vec = simulate_chain_vector(chain, StopRule(pairs=4 * pairs), np.random.default_rng(11))
     (des,), _ = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(12)])
     return [vec, des]
@@ -116,8 +116,8 @@ def test_vector_engine_matches_event_engine_with_the_new_physics(interfaces: int
              "attempt_dephasing": 0.004}
     chain = _chain(3, 0.08, 2e-4, herald=1.2e-4, length_km=25.0, inner=inner, t1=0.2, t2=0.05,
                    state=qinfo.werner_state(0.97), ends={"memory_transfer_s": 1e-5})
-    vec = simulate_chain_vector(chain, StopRule(pairs=20_000), np.random.default_rng(5))
-    (des,), _ = simulate_des([chain], StopRule(pairs=3_000), [np.random.default_rng(6)])
+    vec = simulate_chain_vector(chain, StopRule(pairs=12_000), np.random.default_rng(5))
+    (des,), _ = simulate_des([chain], StopRule(pairs=2_000), [np.random.default_rng(6)])
     for measure in (_rate, _fidelity):
         (v, sv), (d, sd) = measure(vec), measure(des)
         assert abs(v - d) < Z * math.hypot(sv, sd), measure.__name__
@@ -227,3 +227,41 @@ def test_budget_expected_fidelity_counts_transfer_errors() -> None:
     noisy = budget(scenario(0.02, 0.05)).demands[0]["expected_fidelity"]  # type: ignore[arg-type]
     w = (4 * clean - 1) / 3
     assert noisy == pytest.approx((1 + 3 * w * 0.98**2 * 0.95**2) / 4, abs=1e-12)
+
+
+def test_pruning_the_attempt_log_changes_nothing(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The event engine forgets attempt sequences older than every stored qubit; pruning after every
+    few deliveries must give exactly the numbers of a run that keeps them all (same seed). Two
+    demands share a dephasing hub, so one flushes while the other holds qubits there, and
+    purification stacks hold qubits too (invariant of the implementation)."""
+    from netsim.engine import DesOptions
+    from netsim.engine import des as des_module
+
+    def site(name: str, role: str) -> Site:
+        return Site(name, role, memory_slots=8 if role == "repeater" else 2, t1_s=1.0, t2_s=0.5,  # type: ignore[arg-type]
+                    attempt_dephasing=0.01)
+
+    hub, ends = site("Fenwick Hub", "repeater"), [site(n, "user") for n in ("Gale", "Holm", "Irby", "Jessop")]
+    hop = synthetic_physics(0.1, 1e-4, qinfo.werner_state(0.9))
+    chains = [Chain("Gale-Irby", (ends[0], hub, ends[2]), (HopSpec("g", hop), HopSpec("i", hop)), index=0),
+              Chain("Holm-Jessop", (ends[1], hub, ends[3]), (HopSpec("h", hop), HopSpec("j", hop)), index=1)]
+    options = DesOptions(purification="bbpssw", purification_rounds=1)
+
+    def fidelity_sums() -> list[float]:
+        runs, _ = simulate_des(chains, StopRule(pairs=100), [np.random.default_rng(9), np.random.default_rng(10)],
+                               options)
+        return [float(r.metrics.sum_fidelity) for r in runs]
+
+    kept = fidelity_sums()
+    sizes: list[int] = []
+    original = des_module._Des.prune_sequences
+
+    def spy(self: des_module._Des) -> None:
+        original(self)
+        sizes.append(sum(len(v) for v in self.sequences.values()))
+
+    monkeypatch.setattr(des_module, "FLUSH_ROWS", 5)
+    monkeypatch.setattr(des_module, "PRUNE_SEQUENCES", 10)
+    monkeypatch.setattr(des_module._Des, "prune_sequences", spy)
+    assert fidelity_sums() == pytest.approx(kept, rel=1e-12)
+    assert sizes and max(sizes) < 300        # without pruning the log ends with about 1900 sequences

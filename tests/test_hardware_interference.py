@@ -11,9 +11,13 @@ exp(-sigma^2 / 2), the characteristic function of the normal distribution (commo
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
+from conftest import assert_probability, assert_valid_state
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from netsim.hardware import link_physics
 from netsim.hardware.schemes import PHI_PLUS, pair_visibility
@@ -67,9 +71,9 @@ def _single_photon_distinguishable(alpha: float, eta: float, ca: float, cb: floa
     over both ports, fidelity to the better of Psi+ and Psi-).
     """
     qutip = pytest.importorskip("qutip")
-    # spin a, spin b, a_common, a_own_a, a_own_b, b_common, b_own_a, b_own_b; an own mode holds at
-    # most one photon (only its site emits into it), a common mode up to two
-    dims = [2, 2, 3, 2, 2, 3, 2, 2]
+    # spin a, spin b, then per internal mode its spatial modes a and b: common (up to two photons),
+    # own-a and own-b (one photon at most: only their own site emits into them)
+    dims = [2, 2, 3, 3, 2, 2, 2, 2]
 
     def op(slot: int, o):  # type: ignore[no-untyped-def]
         parts = [qutip.qeye(d) for d in dims]
@@ -78,20 +82,21 @@ def _single_photon_distinguishable(alpha: float, eta: float, ca: float, cb: floa
 
     raise_spin = qutip.basis(2, 1) * qutip.basis(2, 0).dag()
     keep_zero = qutip.basis(2, 0) * qutip.basis(2, 0).dag()
-    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(3, qutip.create(2))
-    photon_b = math.sqrt(cb) * op(5, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
+    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
+    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
     emit_a = math.sqrt(1 - alpha) * op(0, keep_zero) + math.sqrt(alpha) * op(0, raise_spin) * photon_a
     emit_b = math.sqrt(1 - alpha) * op(1, keep_zero) + math.sqrt(alpha) * op(1, raise_spin) * photon_b
     psi = emit_b * emit_a * qutip.tensor(*[qutip.basis(d, 0) for d in dims])
-    for sa, sb in ((2, 5), (3, 6), (4, 7)):
-        a, b = op(sa, qutip.destroy(dims[sa])), op(sb, qutip.destroy(dims[sb]))
-        psi = (math.pi / 4 * (a.dag() * b - a * b.dag())).expm() * psi
-    no_a = op(2, qutip.qdiags([(1 - eta) ** k for k in range(3)], 0))
-    no_b = op(5, qutip.qdiags([(1 - eta) ** k for k in range(3)], 0))
-    for s in (3, 4):
-        no_a = no_a * op(s, qutip.qdiags([1.0, 1 - eta], 0))
-    for s in (6, 7):
-        no_b = no_b * op(s, qutip.qdiags([1.0, 1 - eta], 0))
+    splitters = []
+    for d in (3, 2, 2):                # 50:50 beam splitter on (a, b) of one internal mode
+        a = qutip.tensor(qutip.destroy(d), qutip.qeye(d))
+        b = qutip.tensor(qutip.qeye(d), qutip.destroy(d))
+        splitters.append((math.pi / 4 * (a.dag() * b - a * b.dag())).expm())
+    psi = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *splitters) * psi
+    silent = [qutip.qdiags([(1 - eta) ** k for k in range(d)], 0) for d in dims[2:]]
+    eye = [qutip.qeye(d) for d in dims[2:]]
+    no_a = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 0 else eye[k] for k in range(6)])
+    no_b = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 1 else eye[k] for k in range(6)])
     herald = (op(0, qutip.qeye(2)) - no_a) * no_b        # diagonal in the Fock basis: a POVM element
     spins = (herald * qutip.ket2dm(psi)).ptrace([0, 1])
     prob = float(spins.tr().real)
@@ -113,6 +118,85 @@ def test_single_photon_with_distinguishable_photons_against_qutip(alpha: float, 
     prob, fid = _single_photon_distinguishable(alpha, eta, math.sqrt(ia), math.sqrt(ib))
     assert physics.success_probability == pytest.approx(prob, rel=1e-9)
     assert physics.fidelity == pytest.approx(fid, abs=1e-9)
+
+
+def _barrett_kok_distinguishable(eta: float, ca: float, cb: float) -> tuple[float, float]:
+    """Two-photon (Barrett-Kok) heralding with partly distinguishable photons, from first
+    principles (QuTiP), with the photon model of :func:`_single_photon_distinguishable`.
+
+    Spins start in |+>|+>; in each of two rounds a spin in |1> emits one photon into its arm, with
+    X on both spins between the rounds; per round a 50:50 beam splitter per internal mode and two
+    threshold detectors of efficiency eta that do not resolve internal modes. A herald is exactly
+    one click in each round. Returns (herald probability, fidelity to the Psi state the click
+    pattern announces).
+    """
+    qutip = pytest.importorskip("qutip")
+    dims = [2, 2, 3, 3, 2, 2, 2, 2]
+
+    def op(slot: int, o):  # type: ignore[no-untyped-def]
+        parts = [qutip.qeye(d) for d in dims]
+        parts[slot] = o
+        return qutip.tensor(*parts)
+
+    up_proj = qutip.basis(2, 1) * qutip.basis(2, 1).dag()
+    down_proj = qutip.basis(2, 0) * qutip.basis(2, 0).dag()
+    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
+    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
+    emit = ((op(1, up_proj) * photon_b + op(1, down_proj))
+            * (op(0, up_proj) * photon_a + op(0, down_proj)))
+    splitters = []
+    for d in (3, 2, 2):
+        a = qutip.tensor(qutip.destroy(d), qutip.qeye(d))
+        b = qutip.tensor(qutip.qeye(d), qutip.destroy(d))
+        splitters.append((math.pi / 4 * (a.dag() * b - a * b.dag())).expm())
+    mix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *splitters)
+    silent = [qutip.qdiags([(1 - eta) ** k for k in range(d)], 0) for d in dims[2:]]
+    eye = [qutip.qeye(d) for d in dims[2:]]
+    no_a = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 0 else eye[k] for k in range(6)])
+    no_b = qutip.tensor(qutip.qeye(2), qutip.qeye(2), *[silent[k] if k % 2 == 1 else eye[k] for k in range(6)])
+    one = op(0, qutip.qeye(2))
+    patterns = {"a": (one - no_a) * no_b, "b": (one - no_b) * no_a}
+    vacuum = [qutip.basis(d, 0) for d in dims[2:]]
+
+    def one_round(spins):  # type: ignore[no-untyped-def]
+        """Spin density matrix -> {click port: unnormalised spin density matrix}."""
+        values, vectors = spins.eigenstates()
+        out = {}
+        for port, element in patterns.items():
+            total = 0 * spins
+            for w, vec in zip(values, vectors):
+                if w > 1e-15:
+                    psi = mix * emit * qutip.tensor(vec, *vacuum)
+                    total += w * (element * qutip.ket2dm(psi)).ptrace([0, 1])
+            out[port] = total
+        return out
+
+    plus = (qutip.basis(2, 0) + qutip.basis(2, 1)).unit()
+    flip = qutip.tensor(qutip.sigmax(), qutip.sigmax())
+    start = qutip.ket2dm(qutip.tensor(plus, plus))
+    up, down = qutip.basis(2, 1), qutip.basis(2, 0)
+    psi_plus = (qutip.tensor(up, down) + qutip.tensor(down, up)).unit()
+    psi_minus = (qutip.tensor(up, down) - qutip.tensor(down, up)).unit()
+    prob = weighted = 0.0
+    for first in one_round(start).values():
+        for second in one_round(flip * first * flip).values():
+            p = float(second.tr().real)
+            prob += p
+            weighted += max(float(qutip.expect(second, psi_plus)), float(qutip.expect(second, psi_minus)))
+    return prob, weighted / prob
+
+
+@pytest.mark.parametrize(("eta", "ia", "ib"), [(0.7, 0.8, 0.8), (0.9, 0.5, 0.95)])
+def test_two_photon_with_distinguishable_photons_against_qutip(eta: float, ia: float, ib: float) -> None:
+    """The closed form (p = eta^2 / 2, coherence x V with V = sqrt(I_a I_b)) against the
+    first-principles QuTiP model above; F = (1 + V) / 2 is the published form (Bernien et al. 2013;
+    Hensen et al. 2015, SI (memory))."""
+    lk = link(scheme="two_photon", length_km=1.0, attenuation_db_per_km=0.0, detector_efficiency=eta)
+    physics = link_physics(lk, *sites(ia, ib))
+    prob, fid = _barrett_kok_distinguishable(eta, math.sqrt(ia), math.sqrt(ib))
+    assert physics.success_probability == pytest.approx(prob, rel=1e-9)
+    assert physics.fidelity == pytest.approx(fid, abs=1e-9)
+    assert fid == pytest.approx((1 + math.sqrt(ia * ib)) / 2, abs=1e-9)
 
 
 @pytest.mark.parametrize(("v", "sigma"), [(1.0, 0.0), (0.9, 0.0), (1.0, 0.4), (0.8, 0.3)])
@@ -188,3 +272,20 @@ def test_coherence_factor_acts_only_on_the_target_coherence() -> None:
     physics = link_physics(link(scheme="two_photon"), *sites(0.0))
     np.testing.assert_allclose(physics.state, np.diag([0.5, 0, 0, 0.5]), atol=1e-12)
     assert float(np.trace(PHI_PLUS @ physics.state).real) == pytest.approx(0.5)
+
+
+@settings(max_examples=60, deadline=None)
+@given(scheme=st.sampled_from(["two_photon", "single_photon"]), va=st.floats(0.0, 1.0), vb=st.floats(0.0, 1.0),
+       sigma=st.floats(0.0, 6.0), alpha=st.floats(0.01, 0.5), dark=st.floats(0.0, 0.01),
+       length=st.floats(0.5, 150.0), fraction=st.floats(0.0, 1.0))
+def test_states_stay_valid_and_fidelity_never_rises(scheme: str, va: float, vb: float, sigma: float, alpha: float,
+                                                    dark: float, length: float, fraction: float) -> None:
+    """Invariants over the whole allowed range: a density matrix, and lowering the visibility or
+    adding phase noise never raises the heralded fidelity (both only shrink a coherence)."""
+    lk = link(scheme=scheme, length_km=length, midpoint_fraction=fraction, bright_state_population=alpha,
+              dark_count_probability=dark, phase_noise_rad=sigma)
+    physics = link_physics(lk, *sites(va, vb))
+    assert_valid_state(physics.state)
+    assert_probability([physics.success_probability, physics.fidelity])
+    ideal = link_physics(replace(lk, phase_noise_rad=0.0), *sites())
+    assert physics.fidelity <= ideal.fidelity + 1e-12

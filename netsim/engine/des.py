@@ -74,6 +74,8 @@ __all__ = ["DesOptions", "simulate_des"]
 LEFT, RIGHT = 0, 1
 #: Recorded histories are turned into states in batches of this many (bounded memory).
 FLUSH_ROWS = 20_000
+#: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
+PRUNE_SEQUENCES = 50_000
 #: Uniform draws are taken from a lane's stream this many at a time.
 UNIFORM_BLOCK = 1024
 
@@ -601,7 +603,7 @@ class _Des:
             run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
             run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
-
+        self.prune_sequences()
 
     def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
         """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
@@ -615,6 +617,23 @@ class _Des:
                 left[row, i] = self.attempts_at(c.sites[i].name, t0, t0 + hist.store_left_s[row, i])
                 right[row, i] = self.attempts_at(c.sites[i + 1].name, t0, t0 + hist.store_right_s[row, i])
         hist.attempts_left, hist.attempts_right = left, right
+
+    def prune_sequences(self) -> None:
+        """Forget attempt sequences that ended before the oldest qubit still stored anywhere
+        (in a segment, a purification stack, a row not yet flushed; or between those while it is
+        moved to memory or a purification outcome travels: younger than herald + transfer + the
+        chain's end-to-end message time)."""
+        if not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+            return
+        oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
+        for ln in self.lanes:
+            segs = [seg for seg in ln.left_seg + ln.right_seg if seg is not None]
+            starts = [p.start for seg in segs for p in seg.pairs]
+            starts += [t for row in ln.rows for t in row[4]]
+            starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
+            oldest = min([oldest, *starts])
+        for site, seqs in self.sequences.items():
+            self.sequences[site] = [q for q in seqs if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
