@@ -221,16 +221,18 @@ def _metro_run(rows: int, cols: int, demands: int, slots: int = 4, pairs: int = 
 def mesh_event_pairs_per_s() -> list[dict[str, Any]]:
     """7x7 grid, 24 demands, 4 slots, 200 pairs each, end to end (best of two)."""
     _metro_run(2, 2, 2, pairs=10)  # imports and caches warm
-    best, pairs, engines, sim = math.inf, 0, "", math.inf
+    best, pairs, engines, sim, cpu = math.inf, 0, "", math.inf, math.inf
     for _ in range(2):
+        cpu_start = time.process_time()
         wall, pairs, _, engines, sim_s = _metro_run(7, 7, 24)
-        best, sim = min(best, wall), min(sim, sim_s)
+        best, sim, cpu = min(best, wall), min(sim, sim_s), min(cpu, time.process_time() - cpu_start)
     chain_wall, chain = _best_time(lambda: _des(bench_chain(25.0), CHAIN_PAIRS, 1), repeats=1)
     rate = pairs / best
     return [{"name": "mesh_event_pairs_per_s", "value": rate, "unit": "pairs/s", "target": 10_000,
              "higher_is_better": True, "baseline": "event engine on the lone 4-link chain",
              "ratio": rate / (chain.metrics.n / chain_wall), "engine": engines, "wall_s": best,
-             "simulation_wall_s": sim, "simulation_pairs_per_s": pairs / sim, "delivered_pairs": pairs}]
+             "simulation_wall_s": sim, "simulation_pairs_per_s": pairs / sim, "delivered_pairs": pairs,
+             "cpu_s": cpu, "pairs_per_cpu_s": pairs / cpu}]  # CPU time shows what a loaded machine hides
 
 
 #: Colour-centre node physics for the full-physics variant: one optical interface (the electron
