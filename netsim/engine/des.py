@@ -233,6 +233,7 @@ class _Des:
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
         self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
+        self.ended = False
         sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
         self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
                            if site.communication_qubits is not None}
@@ -576,6 +577,7 @@ class _Des:
             self.env.run(until=self.finished)
         except KeyboardInterrupt:
             interrupted = True
+        self.ended = True  # no more attempts: the final flushes need not prune the attempt log
         out = []
         for rule, lane in zip(self.rules, self.lanes):
             timed = rule.time_s is not None and not interrupted
@@ -607,23 +609,47 @@ class _Des:
 
     def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
         """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
-        flush time every attempt up to the deliveries is logged)."""
+        flush time every attempt up to the deliveries is logged). Same count as :meth:`attempts_at`
+        for every stored qubit, in one batched pass per hop end."""
         c = lane.chain
         if not any(site.name in self.sequences for site in c.sites):
             return
-        left, right = np.zeros(hist.store_left_s.shape), np.zeros(hist.store_right_s.shape)
-        for row, begin in enumerate(starts):
-            for i, t0 in enumerate(begin):
-                left[row, i] = self.attempts_at(c.sites[i].name, t0, t0 + hist.store_left_s[row, i])
-                right[row, i] = self.attempts_at(c.sites[i + 1].name, t0, t0 + hist.store_right_s[row, i])
-        hist.attempts_left, hist.attempts_right = left, right
+        begin = np.asarray(starts, dtype=float).reshape(len(hist), c.n_hops)
+        logs: dict[str, NDArray[np.float64]] = {}
+        out = []
+        for store, offset in ((hist.store_left_s, 0), (hist.store_right_s, 1)):
+            counts = np.zeros(store.shape)
+            for i in range(c.n_hops):
+                name = c.sites[i + offset].name
+                if name in self.sequences:
+                    if name not in logs:
+                        logs[name] = np.array(self.sequences[name], dtype=float).reshape(-1, 3)
+                    counts[:, i] = self.attempts_many(name, logs[name], begin[:, i], begin[:, i] + store[:, i])
+            out.append(counts)
+        hist.attempts_left, hist.attempts_right = out
+
+    def attempts_many(self, site: str, log: NDArray[np.float64], after_s: NDArray[np.float64],
+                      until_s: NDArray[np.float64]) -> NDArray[np.float64]:
+        """:meth:`attempts_at` for many intervals at once (``log``: the site's sequences as an
+        (M, 3) array, sorted by start)."""
+        lo = np.searchsorted(log[:, 0], after_s - self.longest_s[site] - 1e-9, side="left")
+        hi = np.searchsorted(log[:, 0], until_s, side="right")
+        width = np.maximum(hi - lo, 0)
+        total = int(width.sum())
+        if total == 0:
+            return np.zeros(len(after_s))
+        query = np.repeat(np.arange(len(after_s)), width)
+        first = np.cumsum(width) - width
+        seq = np.repeat(lo, width) + (np.arange(total) - np.repeat(first, width))
+        rounds = rounds_between(log[seq, 0], log[seq, 1], log[seq, 2], after_s[query], until_s[query])
+        return np.bincount(query, weights=rounds, minlength=len(after_s)).astype(float)
 
     def prune_sequences(self) -> None:
         """Forget attempt sequences that ended before the oldest qubit still stored anywhere
         (in a segment, a purification stack, a row not yet flushed; or between those while it is
         moved to memory or a purification outcome travels: younger than herald + transfer + the
         chain's end-to-end message time)."""
-        if not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+        if self.ended or not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
