@@ -38,6 +38,17 @@ def test_loss_budget_adds_in_db(length_km: float, alpha: float, extra: float, ex
 )
 def test_transmissivity_from_db(loss: float, eta: float) -> None:
     assert fibre.transmissivity(loss, 1.0, 0.0) == pytest.approx(eta, rel=1e-6)
+    assert fibre.db_to_transmissivity(loss) == pytest.approx(eta, rel=1e-6)
+
+
+def test_link_physics_uses_the_one_db_conversion() -> None:
+    """The heralding schemes and `netsim link` convert dB with fibre.db_to_transmissivity: a
+    link's reported transmissivity is 10^(-loss/10) of its reported loss (common practice)."""
+    from netsim.cli.link_cmd import link_rows
+
+    row = link_rows([17.0], 0.2, 0.4)[0]
+    assert row["transmissivity"] == pytest.approx(0.416869, rel=1e-5)  # 3.8 dB (common practice)
+    assert row["transmissivity"] == pytest.approx(fibre.db_to_transmissivity(row["loss_db"]), rel=1e-15)
 
 
 def test_transmissivities_of_spans_multiply() -> None:

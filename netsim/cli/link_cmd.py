@@ -102,7 +102,7 @@ def link_rows(lengths_km: list[float], attenuation_db_per_km: float, extra_loss_
     rows = []
     for length in lengths_km:
         loss = fibre.loss_db(length, attenuation_db_per_km, extra_loss_db)
-        eta = 10.0 ** (-loss / 10.0)
+        eta = fibre.db_to_transmissivity(loss)
         channel = fibre.qubit_channel(eta, depolarizing, loss_model)
         pair = channel.apply(bell, qubit=1)
         rows.append({

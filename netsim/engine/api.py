@@ -4,7 +4,8 @@ Demands that share no memory site are independent: each runs alone, with the vec
 when nothing in it needs the event engine (sure swaps, no cut-off, no purification), else with
 the simpy engine. Demands that share a site run together in one simpy run and contend for slots.
 Randomness: ``numpy.random.SeedSequence(seed).spawn`` gives each demand its own stream (by its
-position in the scenario), so the same seed gives the same numbers.
+position in the scenario, or in the list given to :func:`simulate`), so the same seed gives the
+same numbers and no two demands share a stream.
 """
 
 from __future__ import annotations
@@ -17,7 +18,7 @@ import numpy as np
 
 from netsim import qinfo
 from netsim.engine.chain import Chain, HopSpec
-from netsim.engine.des import DesOptions, simulate_des
+from netsim.engine.des import DesOptions, path_need, simulate_des
 from netsim.engine.ensemble import send_ensemble
 from netsim.engine.metrics import Z95, ChainRun, StopRule
 from netsim.engine.result import RunResult
@@ -70,56 +71,55 @@ class Component:
     chains: list[Chain]
 
 
-def _need(chain: Chain, per_end: int) -> dict[str, int]:
-    need: dict[str, int] = {}
-    for i in range(chain.n_hops):
-        for s in (chain.sites[i], chain.sites[i + 1]):
-            need[s.name] = need.get(s.name, 0) + per_end
-    return need
-
-
-def _components(chains: list[Chain], per_end: int = 1) -> list[list[Chain]]:
+def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
     """Group demands that contend: they share a site whose slots (or optical interfaces) cannot
-    hold all their reservations at once, or a fibre link (which carries one attempt sequence at a
-    time).
-    Demands on sites with room for everyone and on separate fibres run independently."""
-    needs = [_need(c, per_end) for c in chains]
+    hold all their reservations at once, a site with attempt dephasing (one demand's attempts
+    dephase another's stored qubits), or a fibre link (which carries one attempt sequence at a
+    time). Demands on sites with room for everyone and on separate fibres run independently.
+    Returns groups of positions in ``chains``, each in increasing order."""
+    needs = [path_need(c, per_end) for c in chains]
     capacity = {s.name: s.memory_slots for c in chains for s in c.sites}
     parent = list(range(len(chains)))
 
     def root(k: int) -> int:
         while parent[k] != k:
+            parent[k] = parent[parent[k]]
             k = parent[k]
         return k
 
-    for site, slots in capacity.items():
-        users = [k for k, need in enumerate(needs) if site in need]
-        if sum(needs[k][site] for k in users) > slots:
-            for k in users[1:]:
-                parent[root(k)] = root(users[0])
+    users: dict[str, list[int]] = {}
+    for k, need in enumerate(needs):
+        for site in need:
+            users.setdefault(site, []).append(k)
+    for site, ks in users.items():
+        if sum(needs[k][site] for k in ks) > capacity[site]:
+            for k in ks[1:]:
+                parent[root(k)] = root(ks[0])
     # a site's optical interfaces (communication_qubits) are shared like its slots: demands whose
     # hops there outnumber them take turns, so they run together
-    interfaces = {s.name: s.communication_qubits for c in chains for s in c.sites if s.communication_qubits}
-    for site, count in interfaces.items():
-        users = [k for k, c in enumerate(chains) if site in c.site_names]
-        ends = sum(sum(1 for i in range(c.n_hops) if site in c.site_names[i:i + 2]) for c in (chains[k] for k in users))
-        if len(users) > 1 and ends > count:
-            for k in users[1:]:
-                parent[root(k)] = root(users[0])
-    # one demand's attempts dephase another's qubits stored at a site with attempt_dephasing
-    for site in {s.name for c in chains for s in c.sites if s.attempt_dephasing > 0}:
-        users = [k for k, c in enumerate(chains) if site in c.site_names]
-        for k in users[1:]:
-            parent[root(k)] = root(users[0])
-    fibres = [{name for hop in c.hops for name in hop.links} for c in chains]
-    for k in range(1, len(chains)):
-        for j in range(k):
-            if fibres[k] & fibres[j]:
-                parent[root(k)] = root(j)
-    groups: dict[int, list[Chain]] = {}
+    sites = {s.name: s for c in chains for s in c.sites}
+    for site, ks in users.items():
+        count = sites[site].communication_qubits
+        if count and len(ks) > 1:
+            ends = sum(sum(1 for i in range(chains[k].n_hops) if site in chains[k].site_names[i:i + 2]) for k in ks)
+            if ends > count:
+                for k in ks[1:]:
+                    parent[root(k)] = root(ks[0])
+        # one demand's attempts dephase another's qubits stored at a site with attempt_dephasing
+        if sites[site].attempt_dephasing > 0:
+            for k in ks[1:]:
+                parent[root(k)] = root(ks[0])
+    on_fibre: dict[str, int] = {}
     for k, c in enumerate(chains):
-        groups.setdefault(root(k), []).append(c)
-    return [sorted(g, key=lambda c: c.index) for g in groups.values()]
+        for name in {name for hop in c.hops for name in hop.links}:
+            if name in on_fibre:
+                parent[root(k)] = root(on_fibre[name])
+            else:
+                on_fibre[name] = k
+    groups: dict[int, list[int]] = {}
+    for k in range(len(chains)):
+        groups.setdefault(root(k), []).append(k)
+    return list(groups.values())
 
 
 def _rule_for(chain: Chain, rule: StopRule | None) -> StopRule:
@@ -135,24 +135,31 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
     """Run built chains (the lower-level entry point tests and benchmarks drive).
 
     ``rule`` None: each chain's own ``pairs`` / ``duration_s``. Returns one :class:`ChainRun`
-    per chain, in the order given.
+    per chain, in the order given. Chain ``k`` of the list draws from the ``k``-th child stream
+    of ``SeedSequence(seed)``: chains are independent of one another (also two equal chains, or
+    one chain object given twice), and the same seed gives the same numbers.
     """
     options = options or DesOptions()
-    streams = np.random.SeedSequence(seed).spawn(max((c.index for c in chains), default=0) + 1)
-    runs: dict[int, ChainRun] = {}
+    streams = np.random.SeedSequence(seed).spawn(len(chains))
+    runs: list[ChainRun | None] = [None] * len(chains)
     rounds = options.purification_rounds if options.purification != "none" else 0
+    interrupted = False
     for group in _components(chains, rounds + 1):
-        if any(r.interrupted for r in runs.values()):  # Ctrl-C: keep what we have, run no more
-            runs.update({id(c): _interrupted(c) for c in group})
+        if interrupted:  # Ctrl-C: keep what we have, run no more
+            for k in group:
+                runs[k] = _interrupted(chains[k])
             continue
-        rngs = [np.random.default_rng(streams[c.index]) for c in group]
-        rules = [_rule_for(c, rule) for c in group]
-        if len(group) == 1 and vector_applicable(group[0], options.cutoff_s, rounds) and _slots_ok(group[0]):
-            runs[id(group[0])] = simulate_chain_vector(group[0], rules[0], rngs[0])
-            continue
-        group_runs, _ = simulate_des(group, rules, rngs, options)
-        runs.update({id(c): r for c, r in zip(group, group_runs)})
-    return [runs[id(c)] for c in chains]
+        members = [chains[k] for k in group]
+        rngs = [np.random.default_rng(streams[k]) for k in group]
+        rules = [_rule_for(c, rule) for c in members]
+        if len(group) == 1 and vector_applicable(members[0], options.cutoff_s, rounds) and _slots_ok(members[0]):
+            group_runs = [simulate_chain_vector(members[0], rules[0], rngs[0])]
+        else:
+            group_runs, _ = simulate_des(members, rules, rngs, options)
+        for k, r in zip(group, group_runs):
+            runs[k] = r
+        interrupted = any(r.interrupted for r in group_runs)
+    return [r for r in runs if r is not None]
 
 
 def _interrupted(chain: Chain) -> ChainRun:
@@ -163,7 +170,7 @@ def _interrupted(chain: Chain) -> ChainRun:
 
 def _slots_ok(chain: Chain) -> bool:
     """A lone chain fits the vectorised engine only if its path reservation fits the slots."""
-    need = _need(chain, 1)
+    need = path_need(chain, 1)
     return all(s.memory_slots >= need[s.name] for s in chain.sites)
 
 
@@ -276,7 +283,7 @@ def _slot_figures(rows: dict[str, dict[str, Any]], chains: list[Chain], runs: li
     """
     groups: dict[str, dict[int, dict[str, Any]]] = {}
     for c, r in zip(chains, runs):
-        need = _need(c, 1)
+        need = path_need(c, 1)
         for site in c.sites:
             if r.slot_stats is not None and site.name in r.slot_stats:
                 groups.setdefault(site.name, {})[id(r.slot_stats)] = r.slot_stats[site.name]
@@ -308,7 +315,7 @@ def check_memory(scenario: Scenario) -> None:
 def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
     index = {s.name: k for k, s in enumerate(scenario.sites)}
     for c in chains:
-        need = _need(c, rounds + 1)
+        need = path_need(c, rounds + 1)
         for s in c.sites:
             if s.memory_slots < need[s.name]:
                 raise ParameterError(f"sites[{index[s.name]}].memory_slots", s.memory_slots,

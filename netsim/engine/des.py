@@ -48,12 +48,13 @@ from __future__ import annotations
 
 import bisect
 import math
-from collections.abc import Callable, Generator
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import simpy
+from simpy.events import NORMAL
 from numpy.typing import NDArray
 
 from netsim import qinfo
@@ -75,6 +76,8 @@ LEFT, RIGHT = 0, 1
 FLUSH_ROWS = 20_000
 #: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
 PRUNE_SEQUENCES = 50_000
+#: Uniform draws are taken from a lane's stream this many at a time.
+UNIFORM_BLOCK = 1024
 
 
 @dataclass(frozen=True)
@@ -89,7 +92,7 @@ class DesOptions:
     log_pairs: bool = False
 
 
-@dataclass
+@dataclass(slots=True)
 class _Pair:
     """A heralded link pair of hop ``hop`` whose state is valid from ``start``."""
 
@@ -101,7 +104,7 @@ class _Pair:
     fate: str = ""
 
 
-@dataclass
+@dataclass(slots=True)
 class _Seg:
     """A run of joined link pairs from site ``lo`` to site ``hi``."""
 
@@ -114,29 +117,90 @@ class _Seg:
     alive: bool = True
 
 
+class _Call:
+    """A bare simpy event that only runs its callbacks (scheduled with ``Environment.schedule``)."""
+
+    __slots__ = ("callbacks",)
+    _ok = True
+    _value = None
+
+    def __init__(self, callback: Callable[[Any], None]) -> None:
+        self.callbacks: list[Callable[[Any], None]] | None = [callback]
+
+
+class _Counts:
+    """Per-lane counters in plain lists (numpy scalar updates are slow per event)."""
+
+    def __init__(self, n: int) -> None:
+        self.attempts, self.successes, self.busy_s, self.discards = [0] * n, [0] * n, [0.0] * n, [0] * n
+        self.purification_failures = [0] * n
+        self.swap_failures, self.site_qubit_s = [0] * (n + 1), [0.0] * (n + 1)
+
+    def add_to(self, run: ChainRun) -> None:
+        run.hop_attempts += self.attempts
+        run.hop_successes += self.successes
+        run.hop_busy_s += self.busy_s
+        run.hop_discards += self.discards
+        run.purification_failures += self.purification_failures
+        run.swap_failures += self.swap_failures
+        run.site_qubit_s += self.site_qubit_s
+
+
 class _Lane:
     """One demand's state inside an event-engine run."""
 
-    def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int) -> None:
+    def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int, rule: StopRule) -> None:
         n = chain.n_hops
-        self.chain, self.rng = chain, rng
+        self.chain, self.rng, self.rule, self.n = chain, rng, rule, n
+        self.count = _Counts(n)
+        self._uniforms: list[float] = []
+        self._next_uniform = 0
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
-        self.next_round = np.zeros(n)
+        self.next_round = [0.0] * n
         self.busy = [[False, False] for _ in range(n)]
         self.attempting = [False] * n
         self.need_pair = [True] * n
         self.last_delivery_s = 0.0
         self.left_seg: list[_Seg | None] = [None] * (n + 1)
         self.right_seg: list[_Seg | None] = [None] * (n + 1)
-        self.cycle_done: simpy.Event | None = None
+        self.active = False  # a cycle is running under a granted reservation
         self.rows: list[tuple[float, list[float], list[float], list[int], list[float]]] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
-        self.log: list[_Pair] = []
-        self.need = _path_need(chain, slots_per_end)
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
+        self.log: list[_Pair] = []
+        self.need = path_need(chain, slots_per_end)
+        self.position = 0
+        self.iface_ends: list[list[str]] = [[] for _ in range(n)]
+        self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
+        self.transfer = [float(v) for v in chain.transfer_s]
+        self.cut_token = 0  # identifies the one pending cut-off timer of this lane
+        self.cut_at = math.inf
+        # plain floats: numpy scalars are slow in the per-event arithmetic
+        self.p = [float(v) for v in chain.p]
+        self.period = [float(v) for v in chain.period_s]
+        self.herald = [float(v) for v in chain.herald_s]
+        self.links = [hop.links for hop in chain.hops]
+        self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
+        self.pos = [float(v) for v in chain.position_s]
+        self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
+
+    def uniform(self) -> float:
+        """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
+        if self._next_uniform >= len(self._uniforms):
+            self._uniforms = self.rng.random(UNIFORM_BLOCK).tolist()
+            self._next_uniform = 0
+        self._next_uniform += 1
+        return self._uniforms[self._next_uniform - 1]
+
+    def rounds_to_success(self, i: int) -> int:
+        """K ~ Geometric(p_i) on {1, 2, ...} by inversion: P(K > m) = (1 - p)^m."""
+        if self.p[i] >= 1.0:
+            return 1
+        return int(math.log(1.0 - self.uniform()) / self.log_fail[i]) + 1
 
 
-def _path_need(chain: Chain, per_end: int) -> dict[str, int]:
+def path_need(chain: Chain, per_end: int) -> dict[str, int]:
+    """Memory slots a path reservation of ``chain`` takes per site (``per_end`` per hop end)."""
     need: dict[str, int] = {}
     for i in range(chain.n_hops):
         for site in (chain.sites[i], chain.sites[i + 1]):
@@ -145,7 +209,12 @@ def _path_need(chain: Chain, per_end: int) -> dict[str, int]:
 
 
 class _Des:
-    """One event-engine run over a group of demands that share memory sites."""
+    """One event-engine run over a group of demands that share memory sites.
+
+    Every model step is a plain callback on a simpy event (no generator process per hop, swap or
+    timer): the model is the one described above, one simpy event per heralded link pair, per
+    delivery, per delayed slot release and per cut-off deadline of a lane.
+    """
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
                  rules: list[StopRule], options: DesOptions) -> None:
@@ -156,98 +225,129 @@ class _Des:
         self.purify: Callable[..., Any] | None = (
             qinfo.purify_dejmps if options.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
         self.swapping = swap_policy(options.swap_policy)
-        self.broker = SlotBroker(self.env, capacity, scheduling_policy(options.scheduling))
-        self.lanes = [_Lane(c, r, self.rounds + 1) for c, r in zip(chains, rngs)]
+        self.asap = self.swapping.name == "asap"
+        self.broker = SlotBroker(capacity, scheduling_policy(options.scheduling), lambda: self.env.now)
+        self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
+        for k, lane in enumerate(self.lanes):
+            lane.position = k  # the order ``demand_order`` scheduling gives priority by
         self.link_free_s: dict[str, float] = {}
         self.finished = self.env.event()
+        self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
+        self.ended = False
         sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
         self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
                            if site.communication_qubits is not None}
-        self.iface_queue: list[tuple[list[str], simpy.Event]] = []
+        self.iface_queue: list[tuple[list[str], Callable[[], None]]] = []
         #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
         self.sequences: dict[str, list[tuple[float, float, int]]] = {
             name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
+        for lane in self.lanes:
+            c = lane.chain
+            lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
+                               for i in range(c.n_hops)]
+            lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
+                                   for i in range(c.n_hops)]
+
+    def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
+        """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
+        self.env.schedule(_Call(lambda _event: fn(*args)), NORMAL, t - self.env.now)  # type: ignore[arg-type]
 
     # -- cycles -----------------------------------------------------------------------------
-    def demand(self, lane: _Lane) -> Generator[simpy.Event, Any, None]:
-        while True:
-            yield self.broker.request(lane.chain.index, lane.need)
-            lane.cycle_done = self.env.event()
-            lane.busy = [[False, False] for _ in range(lane.chain.n_hops)]
-            lane.need_pair = [True] * lane.chain.n_hops
-            for i in range(lane.chain.n_hops):
-                self.maybe_start(lane, i)
-            yield lane.cycle_done
-            self.broker.release(lane.need)
+    def request(self, lane: _Lane) -> None:
+        self.broker.request(lane.position, lane.need, lambda: self.start_cycle(lane))
 
-    def hop(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, None]:
-        """Generate (and purify) until hop ``i`` hands a pair to the chain."""
+    def start_cycle(self, lane: _Lane) -> None:
+        lane.active = True
+        n = lane.n
+        lane.busy = [[False, False] for _ in range(n)]
+        lane.need_pair = [True] * n
+        for i in range(n):
+            self.maybe_start(lane, i)
+
+    def begin(self, lane: _Lane, i: int) -> None:
+        """Hop ``i`` starts making a pair: it takes an optical interface at each limited end, then
+        attempts."""
         lane.attempting[i] = True
-        stack: dict[int, tuple[_Pair, NDArray[np.complex128]]] = {}
-        lane.stacks[i] = stack
-        pair: _Pair | None = None
-        ends = [site.name for site in lane.chain.sites[i:i + 2] if site.name in self.iface_free]
-        while pair is None:
-            if ends:
-                yield self.acquire(ends)
-            raw = yield from self.attempt(lane, i)
-            if lane.chain.transfer_s[i] > 0:
-                yield self.env.timeout(float(lane.chain.transfer_s[i]))
-            if ends:
-                self.release(ends)
-            pair = raw if not self.rounds else (yield from self.climb(lane, i, raw, stack))
-        lane.attempting[i] = False
-        lane.need_pair[i] = False
-        lane.busy[i] = [True, True]
-        seg = _Seg(i, i + 1, [pair], self.env.now, self.env.now, pair.start + self.cutoff)
-        self.add_segment(lane, seg)
+        ends = lane.iface_ends[i]
+        if ends:
+            self.acquire(ends, lambda: self.attempt(lane, i))
+        else:
+            self.attempt(lane, i)
 
-    def attempt(self, lane: _Lane, i: int) -> Generator[simpy.Event, Any, _Pair]:
-        c = lane.chain
-        links = c.hops[i].links
-        start = max(self.env.now, float(lane.next_round[i]), *(self.link_free_s.get(name, 0.0) for name in links))
-        k = int(lane.rng.geometric(c.p[i]))
-        born = start + (k - 1) * float(c.period_s[i])
+    def attempt(self, lane: _Lane, i: int) -> None:
+        """Hop ``i`` attempts until its next success; the clock jumps to the herald."""
+        links, period = lane.links[i], lane.period[i]
+        start = max(self.env.now, lane.next_round[i])
         for name in links:
-            self.link_free_s[name] = born + float(c.period_s[i])
-        for site in c.sites[i:i + 2]:
-            if site.name in self.sequences:
-                bisect.insort(self.sequences[site.name], (start, float(c.period_s[i]), k))
-                self.longest_s[site.name] = max(self.longest_s[site.name], (k - 1) * float(c.period_s[i]))
-        yield self.env.timeout(born + float(c.herald_s[i]) - self.env.now)
-        lane.next_round[i] = born + float(c.period_s[i])
-        lane.run.hop_attempts[i] += k
-        lane.run.hop_successes[i] += 1
-        lane.run.hop_busy_s[i] += k * float(c.period_s[i])
+            free = self.link_free_s.get(name, 0.0)
+            if free > start:
+                start = free
+        k = lane.rounds_to_success(i)
+        born = start + (k - 1) * period
+        for name in links:
+            self.link_free_s[name] = born + period
+        for name in lane.dephasing_ends[i]:
+            bisect.insort(self.sequences[name], (start, period, k))
+            self.longest_s[name] = max(self.longest_s[name], (k - 1) * period)
+        self.at(born + lane.herald[i], self.heralded, lane, i, born, k)
+
+    def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
+        period = lane.period[i]
+        lane.next_round[i] = born + period
+        count = lane.count
+        count.attempts[i] += k
+        count.successes[i] += 1
+        count.busy_s[i] += k * period
         pair = _Pair(i, born, self.env.now)
         if self.opt.log_pairs:
             lane.log.append(pair)
-        return pair
+        if lane.transfer[i] > 0:
+            self.at(self.env.now + lane.transfer[i], self.transferred, lane, i, pair)
+        else:
+            self.transferred(lane, i, pair)
+
+    def transferred(self, lane: _Lane, i: int, pair: _Pair) -> None:
+        """Both ends hold hop ``i``'s new pair in memory: interfaces free, the pair usable."""
+        if lane.iface_ends[i]:
+            self.release_interfaces(lane.iface_ends[i])
+        if self.rounds:
+            self.climb(lane, i, pair, lane.chain.link_states[i], 0)
+        else:
+            self.hand_over(lane, i, pair)
 
     # -- optical interfaces and attempt counts -------------------------------------------------
-    def acquire(self, ends: list[str]) -> simpy.Event:
-        """An event granted when one interface at every site of ``ends`` is free (atomically)."""
-        event = self.env.event()
-        self.iface_queue.append((ends, event))
-        self._grant()
-        return event
+    def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
+        """Call ``then`` once one interface at every site of ``ends`` is free (taken atomically)."""
+        free = self.iface_free
+        if all(free[name] > 0 for name in ends):  # nothing else can fit now: only this one is new
+            for name in ends:
+                free[name] -= 1
+            then()
+            return
+        self.iface_queue.append((ends, then))
 
-    def release(self, ends: list[str]) -> None:
+    def release_interfaces(self, ends: list[str]) -> None:
+        """Free one interface at each site of ``ends``; grant waiting requests greedily in request
+        order (only those needing one of these sites can fit now: the others did not before)."""
+        free = self.iface_free
         for name in ends:
-            self.iface_free[name] += 1
-        self._grant()
-
-    def _grant(self) -> None:
-        waiting = []
-        for ends, event in self.iface_queue:
-            if all(self.iface_free[name] > 0 for name in ends):
-                for name in ends:
-                    self.iface_free[name] -= 1
-                event.succeed()
+            free[name] += 1
+        if not self.iface_queue:
+            return
+        waiting, granted, released = [], [], set(ends)
+        for item in self.iface_queue:
+            need = item[0]
+            if not released.isdisjoint(need) and all(free[name] > 0 for name in need):
+                for name in need:
+                    free[name] -= 1
+                granted.append(item[1])
             else:
-                waiting.append((ends, event))
-        self.iface_queue = waiting
+                waiting.append(item)
+        if granted:
+            self.iface_queue = waiting
+            for then in granted:
+                then()
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
@@ -261,51 +361,67 @@ class _Des:
         arr = np.array(seqs[lo:hi], dtype=float)
         return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
 
+    def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
+        """Hop ``i`` gives its (purified) pair to the chain."""
+        lane.attempting[i] = False
+        lane.need_pair[i] = False
+        lane.busy[i] = [True, True]
+        now = self.env.now
+        self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
+
     # -- segments, swaps, delivery ------------------------------------------------------------
     def add_segment(self, lane: _Lane, seg: _Seg) -> None:
-        lane.right_seg[seg.lo] = seg
-        lane.left_seg[seg.hi] = seg
-        if seg.lo == 0 and seg.hi == lane.chain.n_hops:
+        n, lo, hi = lane.n, seg.lo, seg.hi
+        left_seg, right_seg = lane.left_seg, lane.right_seg
+        right_seg[lo] = seg
+        left_seg[hi] = seg
+        if lo == 0 and hi == n:
             self.deliver(lane, seg)
             return
-        if math.isfinite(seg.deadline):
-            self.env.process(self.cutoff_watch(lane, seg))
-        for j in (seg.lo, seg.hi):
-            if 0 < j < lane.chain.n_hops and lane.left_seg[j] and lane.right_seg[j]:
-                delay = self.swapping.swap_delay_s(j, lane.chain.n_hops, self.env.now)
-                self.env.process(self.swap(lane, j, delay))
+        if seg.deadline < lane.cut_at:
+            self.arm_cutoff(lane, seg.deadline)
+        ready = []
+        if lo > 0 and left_seg[lo] is not None:
+            ready.append(lo)
+        if hi < n and right_seg[hi] is not None:
+            ready.append(hi)
+        for j in ready:
+            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env.now)
+            if delay > 0:
+                self.at(self.env.now + delay, self.swap, lane, j)
+            else:
+                self.swap(lane, j)
 
-    def swap(self, lane: _Lane, j: int, delay: float) -> Generator[simpy.Event, Any, None]:
-        if delay > 0:
-            yield self.env.timeout(delay)
+    def swap(self, lane: _Lane, j: int) -> None:
         left, right = lane.left_seg[j], lane.right_seg[j]
         if not (left and right and left.alive and right.alive):
             return
-        now, c = self.env.now, lane.chain
+        now = self.env.now
         left.alive = right.alive = False
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = bool(lane.rng.random() < c.swap_success(j))
+        success = lane.uniform() < lane.swap_p[j]
         if not success:
             self.mark_lost(lane, left.pairs + right.pairs)
         self.free_slot(lane, j - 1, RIGHT, now)
         self.free_slot(lane, j, LEFT, now)
+        pos = lane.pos
+        to_lo, to_hi = pos[j] - pos[left.lo], pos[right.hi] - pos[j]
         if success:
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
-            to_lo, to_hi = c.delay_s(j, left.lo), c.delay_s(j, right.hi)
             joined = _Seg(left.lo, right.hi, left.pairs + right.pairs,
                           max(left.info_lo, now + to_lo, right.info_lo + to_lo),
                           max(right.info_hi, now + to_hi, left.info_hi + to_hi),
                           min(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
-        lane.run.swap_failures[j] += 1
+        lane.count.swap_failures[j] += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
-        self.drop(lane, left, now + c.delay_s(j, left.lo), None)
-        self.drop(lane, right, None, now + c.delay_s(j, right.hi))
+        self.drop(lane, left, now + to_lo, None)
+        self.drop(lane, right, None, now + to_hi)
 
     def drop(self, lane: _Lane, seg: _Seg, lo_time: float | None, hi_time: float | None) -> None:
         """Forget ``seg``; its end slots free at the given times (None: not this end)."""
@@ -324,18 +440,31 @@ class _Des:
     @staticmethod
     def held(lane: _Lane, pair: _Pair, left_until: float, right_until: float) -> None:
         """Add the qubit-seconds ``pair`` spent in its two memories to the site occupancy."""
-        lane.run.site_qubit_s[pair.hop] += left_until - pair.start
-        lane.run.site_qubit_s[pair.hop + 1] += right_until - pair.start
+        qubit_s = lane.count.site_qubit_s
+        qubit_s[pair.hop] += left_until - pair.start
+        qubit_s[pair.hop + 1] += right_until - pair.start
 
-    def cutoff_watch(self, lane: _Lane, seg: _Seg) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(max(0.0, seg.deadline - self.env.now))
-        if not seg.alive:
+    def arm_cutoff(self, lane: _Lane, deadline: float) -> None:
+        """One pending cut-off timer per lane, at the earliest deadline of its live segments."""
+        lane.cut_token += 1
+        lane.cut_at = deadline
+        self.at(deadline, self.cutoff_due, lane, lane.cut_token)
+
+    def cutoff_due(self, lane: _Lane, token: int) -> None:
+        if token != lane.cut_token:  # superseded by an earlier deadline
             return
-        for p in seg.pairs:
-            p.fate = "discarded"
-            lane.run.hop_discards[p.hop] += 1
-        self.mark_lost(lane, seg.pairs)
-        self.drop(lane, seg, self.env.now, self.env.now)
+        lane.cut_at = math.inf
+        now = self.env.now
+        for seg in list(lane.right_seg):
+            if seg is not None and seg.alive and seg.deadline <= now:
+                for p in seg.pairs:
+                    p.fate = "discarded"
+                    lane.count.discards[p.hop] += 1
+                self.mark_lost(lane, seg.pairs)
+                self.drop(lane, seg, now, now)
+        nxt = min((s.deadline for s in lane.right_seg if s is not None and s.alive), default=math.inf)
+        if nxt < lane.cut_at:
+            self.arm_cutoff(lane, nxt)
 
     def mark_lost(self, lane: _Lane, pairs: list[_Pair]) -> None:
         """The hops of lost pairs must make new ones (once their slots are free)."""
@@ -345,77 +474,85 @@ class _Des:
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
         if when > self.env.now:
-            self.env.process(self._free_later(lane, i, side, when))
+            self.at(when, self.free_slot, lane, i, side, when)
             return
         lane.busy[i][side] = False
         self.maybe_start(lane, i)
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
-        active = lane.cycle_done is not None and not lane.cycle_done.triggered
-        if active and lane.need_pair[i] and not any(lane.busy[i]) and not lane.attempting[i]:
-            self.env.process(self.hop(lane, i))
-
-    def _free_later(self, lane: _Lane, i: int, side: int, when: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(when - self.env.now)
-        self.free_slot(lane, i, side, when)
+        if lane.active and lane.need_pair[i] and not lane.attempting[i]:
+            busy = lane.busy[i]
+            if not (busy[0] or busy[1]):
+                self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
         t_d = max(seg.info_lo, seg.info_hi)
         seg.alive = False
-        lane.right_seg[0] = lane.left_seg[lane.chain.n_hops] = None
+        lane.right_seg[0] = lane.left_seg[lane.n] = None
         seg.pairs[0].end[LEFT] = seg.pairs[-1].end[RIGHT] = t_d
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
         lane.rows.append((t_d, [p.end[LEFT] - p.start for p in seg.pairs],
                           [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
                           [p.start for p in seg.pairs]))
-        self.env.process(self._close_cycle(lane, t_d))
+        self.at(t_d, self.close_cycle, lane, t_d)
 
-    def _close_cycle(self, lane: _Lane, t_d: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(t_d - self.env.now)
-        lane.run.add_intervals(np.array([t_d]), lane.last_delivery_s)
+    def close_cycle(self, lane: _Lane, t_d: float) -> None:
+        rule, run = lane.rule, lane.run
+        was_done = rule.pairs is not None and rule.done(run, self.env.now)
+        run.add_interval(t_d, lane.last_delivery_s)
         lane.last_delivery_s = t_d
         if len(lane.rows) >= FLUSH_ROWS:
-            limit = self.rules[self.lanes.index(lane)].time_s
+            limit = rule.time_s
             self.flush(lane, min(self.env.now, math.inf if limit is None else float(limit)))
-        if lane.cycle_done is not None:
-            lane.cycle_done.succeed()
-        self.check_finished()
+        lane.active = False
+        self.broker.release(lane.need)
+        self.request(lane)
+        if rule.pairs is not None:  # a pairs rule, once met, stays met
+            if not was_done and rule.done(run, self.env.now):
+                self.pending -= 1
+                self.check_finished()
+        elif rule.time_s is None:  # precision: may be met and lost again
+            self.check_finished()
 
     def check_finished(self) -> None:
-        if not self.finished.triggered and all(r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
+        """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
+        if self.pending <= 0 and not self.finished.triggered and all(
+                r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
             self.finished.succeed()
 
-    def timer(self, t: float) -> Generator[simpy.Event, Any, None]:
-        yield self.env.timeout(t)
-        self.check_finished()
-
     # -- purification -------------------------------------------------------------------------
-    def climb(self, lane: _Lane, i: int, raw: _Pair,
-              stack: dict[int, tuple[_Pair, NDArray[np.complex128]]]) -> Generator[simpy.Event, Any, _Pair | None]:
-        """Put a raw pair on hop ``i``'s recurrence stack; return a level-r pair when one forms."""
-        c = lane.chain
-        item, rho, level = raw, c.link_states[i], 0
-        while level in stack:
-            other, other_rho = stack.pop(level)
-            now = self.env.now
-            p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
-                                 self.bring(c, i, rho, item.start, now))
-            yield self.env.timeout(c.delay_s(i, i + 1))
-            self.held(lane, item, now, now)  # pair 2 is measured at once
-            if lane.rng.random() >= float(p):
-                lane.run.purification_failures[i] += 1
-                self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
-                return None
-            self.held(lane, other, now, now)  # the kept pair lives on as a new pair from now
-            item, rho, level = _Pair(i, now, self.env.now), np.asarray(out), level + 1
-            if level == self.rounds:
-                lane.extra[i].append(rho)
-                item.state_id = len(lane.extra[i])
-                return item
-        stack[level] = (item, rho)
-        return None
+    def climb(self, lane: _Lane, i: int, item: _Pair, rho: NDArray[np.complex128], level: int) -> None:
+        """Put a pair of ``level`` on hop ``i``'s recurrence stack, or purify it with the one
+        waiting there; a level-r pair goes to the chain, anything else means a new attempt."""
+        stack = lane.stacks[i]
+        if level not in stack:
+            stack[level] = (item, rho)
+            self.begin(lane, i)
+            return
+        other, other_rho = stack.pop(level)
+        c, now = lane.chain, self.env.now
+        p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
+                             self.bring(c, i, rho, item.start, now))
+        self.held(lane, item, now, now)  # pair 2 is measured at once
+        self.at(now + c.delay_s(i, i + 1), self.purified, lane, i, other, float(p), np.asarray(out), level, now)
+
+    def purified(self, lane: _Lane, i: int, other: _Pair, p: float, out: NDArray[np.complex128], level: int,
+                 measured: float) -> None:
+        if lane.uniform() >= p:
+            lane.count.purification_failures[i] += 1
+            self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
+            self.begin(lane, i)
+            return
+        self.held(lane, other, measured, measured)  # the kept pair lives on as a new pair from then
+        item = _Pair(i, measured, self.env.now)
+        if level + 1 == self.rounds:
+            lane.extra[i].append(out)
+            item.state_id = len(lane.extra[i])
+            self.hand_over(lane, i, item)
+            return
+        self.climb(lane, i, item, out, level + 1)
 
     def bring(self, c: Chain, i: int, rho: NDArray[np.complex128], start_s: float, now_s: float) -> NDArray[np.complex128]:
         """Hop ``i``'s pair, valid from ``start_s``, brought up to date at ``now_s`` (exact): memory
@@ -432,15 +569,15 @@ class _Des:
     # -- running ------------------------------------------------------------------------------
     def run(self) -> list[ChainRun]:
         for lane in self.lanes:
-            self.env.process(self.demand(lane))
-        for rule in self.rules:
-            if rule.time_s is not None:
-                self.env.process(self.timer(float(rule.time_s)))
+            self.request(lane)
+        for t in sorted({float(rule.time_s) for rule in self.rules if rule.time_s is not None}):
+            self.at(t, self.check_finished)
         interrupted = False
         try:
             self.env.run(until=self.finished)
         except KeyboardInterrupt:
             interrupted = True
+        self.ended = True  # no more attempts: the final flushes need not prune the attempt log
         out = []
         for rule, lane in zip(self.rules, self.lanes):
             timed = rule.time_s is not None and not interrupted
@@ -448,6 +585,7 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
+        lane.count.add_to(lane.run)
         self.flush(lane, now)
         lane.run.simulated_time_s = now
         lane.run.interrupted = interrupted
@@ -469,26 +607,49 @@ class _Des:
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
         self.prune_sequences()
 
-
     def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
         """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
-        flush time every attempt up to the deliveries is logged)."""
+        flush time every attempt up to the deliveries is logged). Same count as :meth:`attempts_at`
+        for every stored qubit, in one batched pass per hop end."""
         c = lane.chain
         if not any(site.name in self.sequences for site in c.sites):
             return
-        left, right = np.zeros(hist.store_left_s.shape), np.zeros(hist.store_right_s.shape)
-        for row, begin in enumerate(starts):
-            for i, t0 in enumerate(begin):
-                left[row, i] = self.attempts_at(c.sites[i].name, t0, t0 + hist.store_left_s[row, i])
-                right[row, i] = self.attempts_at(c.sites[i + 1].name, t0, t0 + hist.store_right_s[row, i])
-        hist.attempts_left, hist.attempts_right = left, right
+        begin = np.asarray(starts, dtype=float).reshape(len(hist), c.n_hops)
+        logs: dict[str, NDArray[np.float64]] = {}
+        out = []
+        for store, offset in ((hist.store_left_s, 0), (hist.store_right_s, 1)):
+            counts = np.zeros(store.shape)
+            for i in range(c.n_hops):
+                name = c.sites[i + offset].name
+                if name in self.sequences:
+                    if name not in logs:
+                        logs[name] = np.array(self.sequences[name], dtype=float).reshape(-1, 3)
+                    counts[:, i] = self.attempts_many(name, logs[name], begin[:, i], begin[:, i] + store[:, i])
+            out.append(counts)
+        hist.attempts_left, hist.attempts_right = out
+
+    def attempts_many(self, site: str, log: NDArray[np.float64], after_s: NDArray[np.float64],
+                      until_s: NDArray[np.float64]) -> NDArray[np.float64]:
+        """:meth:`attempts_at` for many intervals at once (``log``: the site's sequences as an
+        (M, 3) array, sorted by start)."""
+        lo = np.searchsorted(log[:, 0], after_s - self.longest_s[site] - 1e-9, side="left")
+        hi = np.searchsorted(log[:, 0], until_s, side="right")
+        width = np.maximum(hi - lo, 0)
+        total = int(width.sum())
+        if total == 0:
+            return np.zeros(len(after_s))
+        query = np.repeat(np.arange(len(after_s)), width)
+        first = np.cumsum(width) - width
+        seq = np.repeat(lo, width) + (np.arange(total) - np.repeat(first, width))
+        rounds = rounds_between(log[seq, 0], log[seq, 1], log[seq, 2], after_s[query], until_s[query])
+        return np.bincount(query, weights=rounds, minlength=len(after_s)).astype(float)
 
     def prune_sequences(self) -> None:
         """Forget attempt sequences that ended before the oldest qubit still stored anywhere
         (in a segment, a purification stack, a row not yet flushed; or between those while it is
         moved to memory or a purification outcome travels: younger than herald + transfer + the
         chain's end-to-end message time)."""
-        if not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+        if self.ended or not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
@@ -499,7 +660,6 @@ class _Des:
             oldest = min([oldest, *starts])
         for site, seqs in self.sequences.items():
             self.sequences[site] = [q for q in seqs if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
-
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:

@@ -40,7 +40,7 @@ from numpy.typing import NDArray
 from netsim import qinfo
 from netsim.engine.chain import Chain
 
-__all__ = ["History", "concat_histories", "dephase", "pair_states", "rounds_between"]
+__all__ = ["History", "dephase", "pair_states", "rounds_between"]
 
 
 @dataclass
@@ -78,17 +78,6 @@ class History:
         z = np.zeros((0, n_hops))
         return cls(np.zeros(0), z, z.copy(), np.zeros((0, n_hops), dtype=np.int64),
                    [[] for _ in range(n_hops)])
-
-
-def concat_histories(parts: list[History], n_hops: int) -> History:
-    """Join histories recorded in pieces (raw state ids only; used by the vector engine)."""
-    if not parts:
-        return History.empty(n_hops)
-    return History(np.concatenate([p.delivered_s for p in parts]),
-                   np.concatenate([p.store_left_s for p in parts]),
-                   np.concatenate([p.store_right_s for p in parts]),
-                   np.concatenate([p.state_id for p in parts]),
-                   parts[0].extra_states)
 
 
 def _hop_states(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:

@@ -174,6 +174,13 @@ class ChainRun:
         self.intervals_sum_sq_s += float((dt * dt).sum())
         self.intervals_n += len(dt)
 
+    def add_interval(self, delivered_s: float, previous_s: float) -> None:
+        """Record one inter-delivery time (the event engine's per-delivery form)."""
+        dt = delivered_s - previous_s
+        self.intervals_sum_s += dt
+        self.intervals_sum_sq_s += dt * dt
+        self.intervals_n += 1
+
     def rate_relative_halfwidth(self) -> float:
         """Relative 95 % half-width of the rate from the spread of inter-delivery times."""
         n = self.intervals_n

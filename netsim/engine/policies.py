@@ -26,11 +26,10 @@ its Bell measurement. ``asap`` (default) swaps at once.
 
 from __future__ import annotations
 
+import bisect
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Protocol
-
-import simpy
 
 from netsim.errors import ParameterError
 
@@ -55,6 +54,8 @@ class Request:
     time_s: float
     sequence: int
     need: dict[str, int]
+    #: per site: slots needed by the requests queued ahead of this one (kept by the broker)
+    ahead: dict[str, int] = field(default_factory=dict, compare=False, repr=False)
 
 
 class SchedulingPolicy(Protocol):
@@ -128,12 +129,32 @@ def swap_policy(name: str | SwapPolicy) -> SwapPolicy:
 
 
 class SlotBroker:
-    """Grants path reservations of memory slots in the order a scheduling policy gives."""
+    """Grants path reservations of memory slots in the order a scheduling policy gives.
 
-    def __init__(self, env: simpy.Environment, capacity: dict[str, int], policy: SchedulingPolicy) -> None:
-        self.env, self.free, self.policy = env, dict(capacity), policy
-        self.waiting: list[tuple[Request, simpy.Event]] = []
+    ``request(demand_index, need, on_grant)`` queues a reservation; ``on_grant()`` is called once
+    its slots are taken (at once when they are free). ``release(need)`` returns slots.
+
+    The rule is the one in the module docstring. In one grant pass the slots a request may use at
+    a site are ``max(0, free - needs of every waiting request ordered before it)``: a request
+    ahead either takes its slots or earmarks them, the same number either way. So whether a
+    request fits depends only on the free slots and the requests ahead of it at its own sites,
+    and after a release only requests needing a released site can newly fit (for the others
+    nothing they look at has changed since the last pass, after which none fitted). For the
+    policies of :data:`SCHEDULING` the broker keeps one queue per site in policy order and tests
+    only those requests (each waiting request is filed under one site where it does not fit and is
+    tested again when that site frees slots); a plug-in policy without a sort key gets the plain
+    full pass.
+    """
+
+    def __init__(self, capacity: dict[str, int], policy: SchedulingPolicy,
+                 clock: Callable[[], float] = lambda: 0.0) -> None:
+        self.free, self.policy, self.clock = dict(capacity), policy, clock
+        self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
+        self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
+        self.blocked: dict[str, list[Request]] = {site: [] for site in capacity}
+        self.total: dict[str, int] = dict.fromkeys(capacity, 0)  # slots needed by the waiting, per site
         self._sequence = 0
+        self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
         # occupancy statistics per site (see stats())
         self.capacity = dict(capacity)
         self._since = dict.fromkeys(capacity, 0.0)
@@ -143,35 +164,67 @@ class SlotBroker:
         self._waited = dict.fromkeys(capacity, 0)
         self._loads: dict[str, dict[int, int]] = {s: {} for s in capacity}
 
-    def request(self, demand_index: int, need: dict[str, int]) -> simpy.Event:
-        event = self.env.event()
+    def request(self, demand_index: int, need: dict[str, int], on_grant: Callable[[], None]) -> None:
         self._sequence += 1
+        short = self._count_request(need)
+        req = Request(demand_index, self.clock(), self._sequence, need)
+        self.waiting[req.sequence] = (req, on_grant)
+        key = self._key
+        if key is None:
+            self._full_pass()
+        else:
+            for site, k in need.items():
+                queue = self.queues[site]
+                if queue and key(queue[-1]) > key(req):
+                    at = bisect.bisect_right(queue, key(req), key=key)
+                    queue.insert(at, req)
+                    req.ahead[site] = sum(other.need[site] for other in queue[:at])
+                    for other in queue[at + 1:]:
+                        other.ahead[site] += k
+                else:
+                    req.ahead[site] = self.total[site]
+                    queue.append(req)
+                self.total[site] += k
+            blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
+            if blocker is None:
+                self._grant_all([req])
+            else:
+                self.blocked[blocker].append(req)
+        if req.sequence in self.waiting:
+            for site in short or list(need):
+                self._waited[site] += 1
+
+    def _count_request(self, need: dict[str, int]) -> list[str]:
+        """Record what a new request meets at each of its sites (slots in use + queued before it
+        + its own need) and return the sites where that exceeds the capacity."""
         short = []
-        for site, k in need.items():  # slots in use + queued before it + its own
-            load = self.capacity[site] - self.free[site] + sum(r.need.get(site, 0) for r, _ in self.waiting) + k
+        for site, k in need.items():
+            queued = (self.total[site] if self._key is not None
+                      else sum(r.need.get(site, 0) for r, _ in self.waiting.values()))
+            load = self.capacity[site] - self.free[site] + queued + k
             self._loads[site][load] = self._loads[site].get(load, 0) + 1
             self._requests[site] += 1
             if load > self.capacity[site]:
                 short.append(site)
-        self.waiting.append((Request(demand_index, self.env.now, self._sequence, need), event))
-        self._grant()
-        if not event.triggered:
-            for site in short or list(need):
-                self._waited[site] += 1
-        return event
+        return short
 
     def release(self, need: dict[str, int]) -> None:
         for site, k in need.items():
             self._tick(site)
             self.free[site] += k
-        self._grant()
+        if not self.waiting:
+            return
+        if self._key is None:
+            self._full_pass()
+        else:
+            self._pass(need)
 
     def _tick(self, site: str) -> None:
         """Credit the time since the last change to the current number of slots in use."""
         in_use = self.capacity[site] - self.free[site]
         spent = self._time_at[site]
-        spent[in_use] = spent.get(in_use, 0.0) + self.env.now - self._since[site]
-        self._since[site] = self.env.now
+        spent[in_use] = spent.get(in_use, 0.0) + self.clock() - self._since[site]
+        self._since[site] = self.clock()
 
     def stats(self) -> dict[str, dict[str, Any]]:
         """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
@@ -192,21 +245,63 @@ class SlotBroker:
                          "waited": self._waited[site], "loads": dict(self._loads[site])}
         return out
 
-    def _grant(self) -> None:
+    def _blocker(self, req: Request) -> str | None:
+        """A site where ``req`` does not fit behind the requests ahead of it, or None if it fits."""
+        free, ahead = self.free, req.ahead
+        for site, k in req.need.items():
+            if free[site] - ahead[site] < k:
+                return site
+        return None
+
+    def _pass(self, changed: dict[str, int]) -> None:
+        """Grant every waiting request that fits after slots at ``changed`` were freed.
+
+        A waiting request is filed under a site where it did not fit; its room there can only
+        grow when that site frees slots (requests ahead leave only by taking their slots), so
+        only the requests filed under ``changed`` are tested again."""
+        key = self._key
+        if key is None:
+            self._full_pass()
+            return
+        fitting: list[Request] = []
+        for site in changed:
+            filed, self.blocked[site] = self.blocked[site], []
+            for req in filed:
+                blocker = self._blocker(req)
+                if blocker is None:
+                    fitting.append(req)
+                else:
+                    self.blocked[blocker].append(req)
+        if fitting:
+            self._grant_all(sorted(fitting, key=key))
+
+    def _full_pass(self) -> None:
         """Grant in policy order. A request that cannot be served earmarks what it needs, so
         later requests may use only slots it does not need (no demand starves: the slots it
         waits for can only accumulate)."""
-        events = {id(r): e for r, e in self.waiting}
-        spare = dict(self.free)
-        for req in self.policy.order([r for r, _ in self.waiting]):
-            if all(spare[s] >= k for s, k in req.need.items()):
-                for s, k in req.need.items():
-                    self._tick(s)
-                    self.free[s] -= k
-                    self._peak[s] = max(self._peak[s], self.capacity[s] - self.free[s])
-                    spare[s] -= k
-                self.waiting = [(r, e) for r, e in self.waiting if r is not req]
-                events[id(req)].succeed()
-            else:
-                for s, k in req.need.items():
-                    spare[s] = max(0, spare[s] - k)
+        used: dict[str, int] = {}
+        fitting = []
+        for req in self.policy.order([r for r, _ in self.waiting.values()]):
+            if all(self.free[s] - used.get(s, 0) >= k for s, k in req.need.items()):
+                fitting.append(req)
+            for s, k in req.need.items():
+                used[s] = used.get(s, 0) + k
+        self._grant_all(fitting)
+
+    def _grant_all(self, granted: list[Request]) -> None:
+        """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
+        for req in granted:
+            for s, k in req.need.items():
+                self._tick(s)
+                self.free[s] -= k
+                self._peak[s] = max(self._peak[s], self.capacity[s] - self.free[s])
+                if self._key is not None:
+                    queue = self.queues[s]
+                    at = queue.index(req)
+                    del queue[at]
+                    for other in queue[at:]:
+                        other.ahead[s] -= k
+                    self.total[s] -= k
+        for req in granted:
+            _, on_grant = self.waiting.pop(req.sequence)
+            on_grant()

@@ -1,5 +1,5 @@
-"""Vectorised engine for the common case: one demand alone on its sites, sure swaps, no cut-off,
-no purification.
+"""Vectorised engine for the common case: one demand alone on its sites, sure swaps, no cut-off
+(or a single hop, on which a cut-off never acts), no purification.
 
 In that case nothing during a run depends on a quantum state, and the timeline of one
 end-to-end cycle is a closed formula of the hops' geometric attempt counts. Many cycles are
@@ -21,9 +21,9 @@ sampled at once with numpy:
   cycle's offset is o_i = max(0, b_i + T_i - t_D).
 
 This is exactly the timeline the event engine (:mod:`netsim.engine.des`) produces for one demand
-with path reservation; ``tests/test_engine_vector.py`` checks the two agree statistically. The
-offsets couple consecutive cycles; they are found by fixed-point iteration over whole arrays
-(each pass makes at least one more cycle exact; usually two passes suffice).
+with path reservation; ``tests/test_engine_timing.py`` checks the two agree statistically. The
+offsets couple consecutive cycles: a few whole-array passes settle them in the usual case, and
+cycles still changing after those are solved one after another (:func:`_solve_offsets`).
 """
 
 from __future__ import annotations
@@ -40,12 +40,20 @@ from netsim.engine.metrics import ChainRun, StopRule
 __all__ = ["cycle_timeline", "simulate_chain_vector", "vector_applicable"]
 
 CHUNK = 20_000
+#: Whole-array passes of the offset solver before it finishes cycle by cycle.
+VECTOR_PASSES = 6
 
 
 def vector_applicable(chain: Chain, cutoff_s: float | None, purification_rounds: int) -> bool:
-    """Whether the vectorised engine reproduces the event engine for this lone chain."""
+    """Whether the vectorised engine reproduces the event engine for this lone chain.
+
+    A cut-off discards only incomplete segments; a one-hop chain's pair is complete (delivered)
+    at its herald, so a cut-off never acts on it and such a chain takes the fast path with any
+    cut-off. Longer chains with a cut-off stay on the event engine.
+    """
     sure_swaps = all(chain.swap_success(j) >= 1.0 for j in range(1, chain.n_hops))
-    return sure_swaps and cutoff_s is None and purification_rounds == 0
+    no_cutoff = cutoff_s is None or chain.n_hops == 1
+    return sure_swaps and no_cutoff and purification_rounds == 0
 
 
 def cycle_timeline(chain: Chain, k: NDArray[np.float64], offset: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
@@ -76,18 +84,43 @@ def cycle_timeline(chain: Chain, k: NDArray[np.float64], offset: NDArray[np.floa
 
 
 def _solve_offsets(chain: Chain, k: NDArray[np.float64], carry: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
-    """Find the coupled offsets of consecutive cycles by fixed-point iteration."""
+    """Find the coupled offsets of consecutive cycles (exactly, in at most O(N n) work).
+
+    Cycle c's offsets depend only on cycle c - 1's timeline. A few whole-array passes settle the
+    usual case (each pass makes at least one more cycle exact, and in practice the coupling dies
+    out after a cycle or two). If cycles are still changing after :data:`VECTOR_PASSES` passes
+    (short hops whose next round waits long after delivery, e.g. zero-length hops with p near 1),
+    the cycles from the first one that changed on are solved one after another with the scalar
+    recurrence below, which ends by construction.
+    """
     offset = np.zeros_like(k)
     offset[0] = carry
-    for _ in range(len(k) + 1):
+    first = 0
+    for _ in range(VECTOR_PASSES):
         tl = cycle_timeline(chain, k, offset)
         new = np.empty_like(offset)
         new[0] = carry
         new[1:] = np.maximum(0.0, tl["born"][:-1] + chain.period_s - tl["delivered"][:-1, None])
-        if np.array_equal(new, offset):
+        changed = np.flatnonzero((new != offset).any(axis=1))
+        if len(changed) == 0:
             return tl
         offset = new
-    return tl
+        first = int(changed[0])  # cycles before ``first`` formed a self-consistent (exact) prefix
+    offset[first:] = _sequential_offsets(chain, k[first:], offset[first])
+    return cycle_timeline(chain, k, offset)
+
+
+def _sequential_offsets(chain: Chain, k: NDArray[np.float64], start: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Offsets cycle by cycle from ``start`` (the first cycle's offsets, exact): the recurrence of
+    the whole-array passes, o' = max(0, born + T - t_D), one cycle of :func:`cycle_timeline` at a
+    time (linear in the number of cycles)."""
+    out = np.empty_like(k)
+    o = np.array(start, dtype=float)
+    for c in range(len(k)):
+        out[c] = o
+        tl = cycle_timeline(chain, k[c:c + 1], o[None, :])
+        o = np.maximum(0.0, tl["born"][0] + chain.period_s - tl["delivered"][0])
+    return out
 
 
 def _next_carry(chain: Chain, tl: dict[str, NDArray[np.float64]]) -> NDArray[np.float64]:

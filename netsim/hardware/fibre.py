@@ -20,6 +20,7 @@ __all__ = [
     "GROUP_INDEX",
     "LOSS_MODELS",
     "SPEED_OF_LIGHT_KM_PER_S",
+    "db_to_transmissivity",
     "loss_db",
     "propagation_delay_s",
     "qubit_channel",
@@ -66,12 +67,17 @@ def loss_db(length_km: float, attenuation_db_per_km: float, extra_loss_db: float
     return alpha * length + extra
 
 
+def db_to_transmissivity(loss_db: float) -> float:
+    """eta = 10^(-loss_dB / 10): the one conversion from a loss in dB to a transmissivity."""
+    return float(10.0 ** (-loss_db / 10.0))
+
+
 def transmissivity(length_km: float, attenuation_db_per_km: float, extra_loss_db: float = 0.0) -> float:
     """Probability that a photon crosses the span: eta = 10^(-loss_dB / 10).
 
     Parameters are those of :func:`loss_db`. Returns a number in (0, 1].
     """
-    return 10.0 ** (-loss_db(length_km, attenuation_db_per_km, extra_loss_db) / 10.0)
+    return db_to_transmissivity(loss_db(length_km, attenuation_db_per_km, extra_loss_db))
 
 
 def propagation_delay_s(length_km: float) -> float:

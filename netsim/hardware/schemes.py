@@ -67,7 +67,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from netsim.errors import ParameterError
-from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S
+from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S, db_to_transmissivity
 from netsim.hardware.lightpath import LightPath
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import SCHEMES, Link, Site
@@ -111,15 +111,11 @@ class Herald:
 STATION_SCHEMES: tuple[str, ...] = ("two_photon", "single_photon", "midpoint_source")
 
 
-def _db_to_eta(db: float) -> float:
-    return float(10.0 ** (-db / 10.0))
-
-
 def _arm_efficiencies(path: LightPath, source_a: float, source_b: float) -> tuple[float, float]:
     """P_a, P_b: source (emission or memory) efficiency x arm transmissivity x detector efficiency."""
     loss_a, loss_b = path.arm_losses_db()
     eta_d = path.first.detector_efficiency
-    return source_a * _db_to_eta(loss_a) * eta_d, source_b * _db_to_eta(loss_b) * eta_d
+    return source_a * db_to_transmissivity(loss_a) * eta_d, source_b * db_to_transmissivity(loss_b) * eta_d
 
 
 def pair_visibility(site_a: Site, site_b: Site) -> float:
@@ -310,7 +306,7 @@ def direct_herald(path: LightPath) -> Herald:
     its ``a`` end as written in the scenario.
     """
     emitter, receiver = path.site_a, path.site_b  # path_physics calls this from the reference end
-    eta = _db_to_eta(path.loss_db)
+    eta = db_to_transmissivity(path.loss_db)
     p_true = emitter.emission_efficiency * eta * receiver.memory_efficiency * path.first.detector_efficiency
     p_false = path.first.dark_count_probability * (1 - p_true)
     period = emitter.attempt_prep_time_s + 2.0 * path.length_km / FIBRE_SPEED_KM_PER_S
@@ -376,12 +372,12 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
     bound_loss = max(path.arm_losses_db()) if path.first.scheme in STATION_SCHEMES else loss
     return LinkPhysics(
         scheme=path.first.scheme, length_km=path.length_km, loss_db=loss,
-        transmissivity=_db_to_eta(loss), success_probability=p, modes=modes,
+        transmissivity=db_to_transmissivity(loss), success_probability=p, modes=modes,
         round_success_probability=round_p, attempt_period_s=herald.attempt_period_s,
         herald_delay_s=herald.herald_delay_s, state=rho,
         fidelity=float(np.real(np.trace(PHI_PLUS @ rho))),
         dark_count_fraction=herald.p_false / p if p > 0 else 0.0,
-        bound_transmissivity=_db_to_eta(bound_loss),
+        bound_transmissivity=db_to_transmissivity(bound_loss),
     )
 
 

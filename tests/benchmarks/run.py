@@ -110,8 +110,8 @@ def table_text(records: list[dict[str, Any]]) -> str:
 
     columns = [Column("name", "figure"), Column("value", "value", 4), Column("unit", "unit"),
                Column("target", "target", 4), Column("met", "met?"), Column("ratio", "ratio", 3),
-               Column("baseline", "baseline")]
-    rows = [{**r, "met": met(r)} for r in records]
+               Column("engine", "engine"), Column("baseline", "baseline")]
+    rows = [{"engine": "", **r, "met": met(r)} for r in records]
     return render(Table("Benchmarks (one core)", columns, rows), "table")
 
 
