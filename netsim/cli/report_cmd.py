@@ -113,7 +113,7 @@ def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> 
 
         ranking = rank_parameters(data.scenario, method=args.ranking, seed=args.seed)
     figures = {} if args.no_figures else report_figures(data, tables, args.param)
-    command = "netsim " + " ".join(shlex.quote(a) for a in (args.argv or sys.argv[1:]))
+    command = "netsim " + " ".join(shlex.quote(a) for a in (getattr(args, "argv", None) or sys.argv[1:]))
     seed = args.seed if (args.simulate or ranking is not None) else None
     return write_proposal(path, data, tables, figures,
                           Provenance(command, str(args.source), seed, __version__), ranking)
