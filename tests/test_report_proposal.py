@@ -174,3 +174,16 @@ def test_verdict_fields_decide_met_and_missed_when_present() -> None:
     found = summary(data, {"demands": Table("d", columns, rows)})
     verdicts = {d["demand"]: (d["met"], d["why"]) for d in found["demands"]}
     assert verdicts == {"A-B": (False, "misses rate"), "C-D": (False, "fidelity below 0.6")}
+
+
+def test_pdf_beside_the_tables_reuses_the_saved_figures(tmp_path: Path) -> None:
+    """--pdf writes the tables and figures as before plus proposal.pdf, whose figures are the
+    PNG files just written (not drawn a second time); --ranking none leaves the ranking out."""
+    path = tmp_path / "quillon.toml"
+    path.write_text(SCENARIO)
+    out = tmp_path / "out"
+    assert main(["report", str(path), "--pdf", "--ranking", "none", "--out", str(out), "--quiet"]) == 0
+    names = {p.name for p in out.iterdir()}
+    assert {"links.md", "demands.md", "network-map.png", "rate-vs-distance.png", "proposal.pdf"} <= names
+    text = _flat(" ".join(p[0] for p in _pages(out / "proposal.pdf")))
+    assert "Figure 2:" in text and "Which parameter matters most" not in text

@@ -97,9 +97,10 @@ def default_out(source: str | Path, slug: str, simulate: bool) -> Path:
     return Path("results") / slug / f"report-{name}"
 
 
-def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> Path:
+def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path,
+               drawn: dict[str, Any]) -> Path:
     """The proposal document, with the sensitivity ranking on the closed forms when the
-    scenario is known."""
+    scenario is known; figures already drawn (and saved as PNG beside it) are used again."""
     import shlex
     import sys
 
@@ -112,11 +113,12 @@ def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> 
         from netsim.sweep.sensitivity import rank_parameters
 
         ranking = rank_parameters(data.scenario, method=args.ranking, seed=args.seed)
-    figures = {} if args.no_figures else report_figures(data, tables, args.param)
+    figures = drawn or ({} if args.no_figures else report_figures(data, tables, args.param))
+    saved = {stem: path.parent / f"{stem}.png" for stem in drawn if (path.parent / f"{stem}.png").is_file()}
     command = "netsim " + " ".join(shlex.quote(a) for a in (getattr(args, "argv", None) or sys.argv[1:]))
     seed = args.seed if (args.simulate or ranking is not None) else None
     return write_proposal(path, data, tables, figures,
-                          Provenance(command, str(args.source), seed, __version__), ranking)
+                          Provenance(command, str(args.source), seed, __version__), ranking, saved=saved)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -143,11 +145,13 @@ def run(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else default_out(args.source, data.slug, args.simulate)
     refuse_overwrite([out], args.force, "report")
     pdf_only = args.format == "pdf"
+    drawn: dict[str, Any] = {}
     tables, written = write_report(data, out, "md" if pdf_only else args.format,
                                    figures=not args.no_figures and not pdf_only,
-                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only)
+                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only,
+                                   drawn=drawn)
     if pdf_only or args.pdf:
-        written.append(_write_pdf(args, data, tables, out / "proposal.pdf"))
+        written.append(_write_pdf(args, data, tables, out / "proposal.pdf", drawn))
     if not args.quiet:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)

@@ -538,8 +538,11 @@ def file_stem_of(text: str) -> str:
 
 def write_proposal(path: str | Path, data: ReportData, tables: Mapping[str, Table],
                    figures: Mapping[str, Figure], provenance: Provenance, sensitivity: Any = None,
-                   dpi: int = 150) -> Path:
-    """Typeset the document to ``path`` (PDF) and return it."""
+                   dpi: int = 150, saved: Mapping[str, Path] | None = None) -> Path:
+    """Typeset the document to ``path`` (PDF) and return it. ``saved`` maps figure stems to PNG
+    files already written, which are used instead of drawing those figures again."""
+    import shutil
+
     import typst
 
     path = Path(path)
@@ -557,7 +560,10 @@ def write_proposal(path: str | Path, data: ReportData, tables: Mapping[str, Tabl
             charts.update(tornado_figures(sensitivity))
         for n, (stem, fig) in enumerate(charts.items()):
             name = f"figure-{n:03d}.png"
-            fig.savefig(root / name, dpi=dpi)
+            if saved and stem in saved:
+                shutil.copyfile(saved[stem], root / name)
+            else:
+                fig.savefig(root / name, dpi=dpi)
             files[stem] = name
         source = proposal_source(data, tables, figures, provenance, sensitivity, files)
         (root / "proposal.typ").write_text(source, encoding="utf-8")
