@@ -27,7 +27,8 @@ def register(subparsers: Any) -> None:
         description="Write the per-link capacity table, the per-demand table (simulated numbers "
                     "with 95% intervals beside their bounds) and figures for a scenario (.toml), "
                     "a run result (run.json) or a sweep store (.sqlite, pivot tables over the "
-                    "swept parameters). Tables go to one file each; figures as PNG and PDF.")
+                    "swept parameters). Tables go to one file each; figures as PNG and PDF; with --pdf or "
+                    "--format pdf, one proposal document (proposal.pdf) holding all of it.")
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
     parser.add_argument("--format", default="md",
                         help="table format: " + ", ".join(_FORMATS) + " (default md); pdf writes only "
@@ -47,7 +48,7 @@ def register(subparsers: Any) -> None:
                              "scenarios/<name>.toml when its name or content hash matches)")
     parser.add_argument("--pairs", type=int, default=None, help="with --simulate: pairs per demand (default 1000)")
     parser.add_argument("--time-s", type=float, default=None, help="with --simulate: simulated seconds instead")
-    parser.add_argument("--seed", type=int, default=0, help="with --simulate: random seed (default 0)")
+    parser.add_argument("--seed", type=int, default=0, help="random seed of the simulation (--simulate) and of the ranking in the PDF (default 0)")
     parser.add_argument("--metric", action="append", default=None,
                         help="store only: metric to pivot (repeatable; default rate_per_s and fidelity_mean)")
     parser.add_argument("--param", action="append", default=None,
