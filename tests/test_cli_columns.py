@@ -79,9 +79,9 @@ def test_run_text_is_compact_and_wide_restores(tmp_path: Path, capsys: pytest.Ca
     assert main(argv) == 0
     compact = capsys.readouterr().out
     assert max(len(line) for line in compact.splitlines()) <= TERMINAL
-    assert "rate 95% CI (pairs/s)" in compact and "Holevo information (bit/qubit)" not in compact
-    assert main([*argv, "--wide"]) == 0
-    assert "Holevo information (bit/qubit)" in capsys.readouterr().out
+    assert "rate 95% CI (pairs/s)" in compact and "Holevo information, simulated (bit/qubit)" not in compact
+    assert main([*argv, "--wide", "--force"]) == 0                    # replaces the earlier run
+    assert "Holevo information, simulated (bit/qubit)" in capsys.readouterr().out
     header = next(csv.reader((tmp_path / "run.csv").open()))
     assert any("chi" in h for h in header)  # the file keeps every field
 

@@ -394,3 +394,22 @@ def test_one_name_per_quantity_in_every_table() -> None:
     assert len({k for k, _ in seen}) >= 8
     assert [(k, h) for k, h in seen if h != canonical[k]] == []
     assert not any("PLOB" in c.header or "Holevo chi" in c.header for c in columns)
+
+
+def test_a_run_never_replaces_an_earlier_result_silently(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """A second run into the same directory (once a mistyped --pair 10 over a 3000-pair run)
+    is refused before it simulates, in one line saying how to proceed; the first result stays."""
+    path = tmp_path / "spur.toml"
+    path.write_text(CHAIN)
+    out = tmp_path / "out"
+    assert main(["run", str(path), "--pairs", "15", "--out", str(out)]) == 0
+    before = (out / "run.json").read_text()
+    capsys.readouterr()
+    assert main(["run", str(path), "--pairs", "5", "--out", str(out)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert err == [f"netsim run: error: {out / 'run.json'} already holds an earlier run result; "
+                   "pass --force to replace it, or --out DIR to keep both"]
+    assert (out / "run.json").read_text() == before
+    assert main(["report", str(path), "--no-figures", "--out", str(tmp_path / "r"), "--quiet"]) == 0
+    assert main(["report", str(path), "--no-figures", "--out", str(tmp_path / "r"), "--quiet"]) == 2
+    assert "already holds an earlier report" in capsys.readouterr().err

@@ -168,9 +168,24 @@ def test_verdict_fields_decide_met_and_missed_when_present() -> None:
                Column("expected_fidelity", "fidelity"), Column("meets_rate", "meets rate")]
     rows = [{"demand": "A-B", "expected_rate_per_s": 5.0, "expected_fidelity": 0.95, "meets_rate": False,
              "meets_fidelity": True},
-            {"demand": "C-D", "expected_rate_per_s": 50.0, "expected_fidelity": 0.55}]
+            {"demand": "C-D", "expected_rate_per_s": 50.0, "expected_fidelity": 0.55},
+            {"demand": "E-F", "expected_rate_per_s": 9.0, "expected_fidelity": 0.99}]
     data = ReportData("scenario", "t", "t", demands=[{"demand": "A-B", "min_fidelity": 0.9},
                                                      {"demand": "C-D", "min_fidelity": 0.6}])
     found = summary(data, {"demands": Table("d", columns, rows)})
     verdicts = {d["demand"]: (d["met"], d["why"]) for d in found["demands"]}
-    assert verdicts == {"A-B": (False, "misses rate"), "C-D": (False, "fidelity below 0.6")}
+    assert verdicts == {"A-B": (False, "misses rate"), "C-D": (False, "fidelity below 0.6"),
+                        "E-F": (None, "requirement not known (scenario not found)")}  # never "met" by default
+
+
+def test_pdf_beside_the_tables_reuses_the_saved_figures(tmp_path: Path) -> None:
+    """--pdf writes the tables and figures as before plus proposal.pdf, whose figures are the
+    PNG files just written (not drawn a second time); --ranking none leaves the ranking out."""
+    path = tmp_path / "quillon.toml"
+    path.write_text(SCENARIO)
+    out = tmp_path / "out"
+    assert main(["report", str(path), "--pdf", "--ranking", "none", "--out", str(out), "--quiet"]) == 0
+    names = {p.name for p in out.iterdir()}
+    assert {"links.md", "demands.md", "network-map.png", "rate-vs-distance.png", "proposal.pdf"} <= names
+    text = _flat(" ".join(p[0] for p in _pages(out / "proposal.pdf")))
+    assert "Figure 2:" in text and "Which parameter matters most" not in text

@@ -16,6 +16,8 @@ _STEMS = ("compare-demands", "compare-totals", "compare-bottlenecks")
 
 def register(subparsers: Any) -> None:
     """Add the ``compare`` subcommand."""
+    from netsim.cli.outputs import add_force_option
+
     parser = subparsers.add_parser(
         "compare", help="compare candidate topologies on the same demands",
         description="Run the engine on each scenario with the same seed and stop rule, then show "
@@ -33,6 +35,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--wide", action="store_true",
                         help="text format: also print each candidate's min-cut bound beside its rate "
                              "(default: rates and fidelities only; the bottleneck table gives the cuts)")
+    add_force_option(parser)
     parser.set_defaults(func=run)
 
 
@@ -68,6 +71,12 @@ def run(args: argparse.Namespace) -> int:
     from netsim.report.table import render
 
     _check(args)
+    if args.out:  # refused before any run, not after
+        from netsim.cli.outputs import refuse_overwrite
+
+        stems = [*_STEMS, "compare-rates"]
+        refuse_overwrite([Path(args.out) / (s + suffix) for s in stems for suffix in (_SUFFIX[args.format], ".png")],
+                         args.force, "comparison")
     if not args.no_simulate:
         from netsim.cli.check_cmd import check_memory_in
         from netsim.scenario import load

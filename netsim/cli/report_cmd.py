@@ -27,7 +27,8 @@ def register(subparsers: Any) -> None:
         description="Write the per-link capacity table, the per-demand table (simulated numbers "
                     "with 95% intervals beside their bounds) and figures for a scenario (.toml), "
                     "a run result (run.json) or a sweep store (.sqlite, pivot tables over the "
-                    "swept parameters). Tables go to one file each; figures as PNG and PDF.")
+                    "swept parameters). Tables go to one file each; figures as PNG and PDF; with --pdf or "
+                    "--format pdf, one proposal document (proposal.pdf) holding all of it.")
     parser.add_argument("source", metavar="SOURCE", help="scenario .toml, run .json or sweep .sqlite")
     parser.add_argument("--format", default="md",
                         help="table format: " + ", ".join(_FORMATS) + " (default md); pdf writes only "
@@ -47,7 +48,7 @@ def register(subparsers: Any) -> None:
                              "scenarios/<name>.toml when its name or content hash matches)")
     parser.add_argument("--pairs", type=int, default=None, help="with --simulate: pairs per demand (default 1000)")
     parser.add_argument("--time-s", type=float, default=None, help="with --simulate: simulated seconds instead")
-    parser.add_argument("--seed", type=int, default=0, help="with --simulate: random seed (default 0)")
+    parser.add_argument("--seed", type=int, default=0, help="random seed of the simulation (--simulate) and of the ranking in the PDF (default 0)")
     parser.add_argument("--metric", action="append", default=None,
                         help="store only: metric to pivot (repeatable; default rate_per_s and fidelity_mean)")
     parser.add_argument("--param", action="append", default=None,
@@ -97,9 +98,10 @@ def default_out(source: str | Path, slug: str, simulate: bool) -> Path:
     return Path("results") / slug / f"report-{name}"
 
 
-def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> Path:
+def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path,
+               drawn: dict[str, Any]) -> Path:
     """The proposal document, with the sensitivity ranking on the closed forms when the
-    scenario is known."""
+    scenario is known; figures already drawn (and saved as PNG beside it) are used again."""
     import shlex
     import sys
 
@@ -112,11 +114,12 @@ def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path) -> 
         from netsim.sweep.sensitivity import rank_parameters
 
         ranking = rank_parameters(data.scenario, method=args.ranking, seed=args.seed)
-    figures = {} if args.no_figures else report_figures(data, tables, args.param)
-    command = "netsim " + " ".join(shlex.quote(a) for a in (args.argv or sys.argv[1:]))
+    figures = drawn or ({} if args.no_figures else report_figures(data, tables, args.param))
+    saved = {stem: path.parent / f"{stem}.png" for stem in drawn if (path.parent / f"{stem}.png").is_file()}
+    command = "netsim " + " ".join(shlex.quote(a) for a in (getattr(args, "argv", None) or sys.argv[1:]))
     seed = args.seed if (args.simulate or ranking is not None) else None
     return write_proposal(path, data, tables, figures,
-                          Provenance(command, str(args.source), seed, __version__), ranking)
+                          Provenance(command, str(args.source), seed, __version__), ranking, saved=saved)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -143,11 +146,13 @@ def run(args: argparse.Namespace) -> int:
     out = Path(args.out) if args.out else default_out(args.source, data.slug, args.simulate)
     refuse_overwrite([out], args.force, "report")
     pdf_only = args.format == "pdf"
+    drawn: dict[str, Any] = {}
     tables, written = write_report(data, out, "md" if pdf_only else args.format,
                                    figures=not args.no_figures and not pdf_only,
-                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only)
+                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only,
+                                   drawn=drawn)
     if pdf_only or args.pdf:
-        written.append(_write_pdf(args, data, tables, out / "proposal.pdf"))
+        written.append(_write_pdf(args, data, tables, out / "proposal.pdf", drawn))
     if not args.quiet:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)

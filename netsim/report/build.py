@@ -204,9 +204,11 @@ def report_figures(data: ReportData, tables: Mapping[str, Table] | None = None,
 
 def write_report(data: ReportData, out_dir: str | Path, fmt: str = "md", *,
                  figures: bool = True, metrics: Mapping[str, str | None] | None = None,
-                 params: Sequence[str] | None = None, write: bool = True) -> tuple[dict[str, Table], list[Path]]:
+                 params: Sequence[str] | None = None, write: bool = True,
+                 drawn: dict[str, Figure] | None = None) -> tuple[dict[str, Table], list[Path]]:
     """Write every table (one file each, in ``fmt``) and figure (PNG and PDF) to ``out_dir``
-    (``write=False``: only build the tables)."""
+    (``write=False``: only build the tables). The figures are also put into ``drawn`` (by
+    stem) when it is given, for a caller that uses them again."""
     out = Path(out_dir)
     tables = report_tables(data, metrics=metrics, params=params)  # bad options fail before any file
     written: list[Path] = []
@@ -222,5 +224,7 @@ def write_report(data: ReportData, out_dir: str | Path, fmt: str = "md", *,
 
         for stem, fig in report_figures(data, tables, params).items():
             written += save_figure(fig, out / stem)
+            if drawn is not None:
+                drawn[stem] = fig
     return tables, written
 

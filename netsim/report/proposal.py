@@ -210,6 +210,8 @@ def _met(row: Mapping[str, Any], need: Mapping[str, Any], rate: float | None,
     if verdicts:
         missed = [k.replace("meets_", "") for k, v in verdicts.items() if not v]
         return not missed, ("misses " + " and ".join(missed)) if missed else ""
+    if need.get("min_fidelity") is None and need.get("min_rate_per_s") is None:
+        return None, "requirement not known (scenario not found)"
     reasons = []
     if need.get("min_fidelity") is not None and fidelity is not None and fidelity < need["min_fidelity"]:
         reasons.append(f"fidelity below {need['min_fidelity']:g}")
@@ -379,7 +381,7 @@ ASSUMPTION_COLUMNS = (Column("parameter", "parameter"), Column("value", "value")
 def _figure_caption(stem: str, fig: Figure, data: ReportData, assumptions: str) -> str:
     """What the figure shows (its label, set where it was drawn, or a description by name)
     and under which assumptions."""
-    text = fig.get_label() or ""
+    text = str(fig.get_label() or "")
     if stem == "network-map":
         return (f"Map of {data.title}: sites at their map coordinates (x_km, y_km) and the fibre links "
                 f"between them, shaded as the colour bar states. {assumptions}")
@@ -409,6 +411,9 @@ def proposal_source(data: ReportData, tables: Mapping[str, Table], figures: Mapp
                     figure_files: Mapping[str, str] | None = None) -> str:
     """The Typst source of the document (figures referenced by ``figure_files``: stem -> file)."""
     figure_files = figure_files or {}
+    if provenance.seed is None and data.run and data.run.get("seed") is not None:
+        provenance = Provenance(provenance.command, provenance.source, int(data.run["seed"]),
+                                provenance.version, provenance.created_utc)
     purpose = getattr(data.scenario, "purpose", "") if data.scenario is not None else ""
     parts = [
         '#set document(title: ' + _s(f"{data.title}: planning estimates") + ')\n',
@@ -421,7 +426,10 @@ def proposal_source(data: ReportData, tables: Mapping[str, Table], figures: Mapp
         '#show figure.caption: set text(size: 8pt)\n',
         f"#align(center, text(size: 17pt, weight: \"bold\", {_s(data.title)}))\n",
         f"#align(center, text(size: 11pt, {_s('Quantum network planning estimates')}))\n",
-        _para(f"Purpose: {purpose}" if purpose else "Purpose: not stated in the scenario ([network] purpose)."),
+        _para(f"Purpose: {purpose}" if purpose else
+              "Purpose: not stated in the scenario ([network] purpose)." if data.scenario is not None else
+              "Purpose, assumptions and requirements unknown: the scenario file was not found "
+              "(give it with --scenario FILE)."),
         _para(f"Produced by netsim {provenance.version} with the command: {provenance.command}"),
         _para(f"Source: {provenance.source} ({_source_kind(data)})"
               + (f"; seed {provenance.seed}" if provenance.seed is not None else "")
@@ -538,8 +546,11 @@ def file_stem_of(text: str) -> str:
 
 def write_proposal(path: str | Path, data: ReportData, tables: Mapping[str, Table],
                    figures: Mapping[str, Figure], provenance: Provenance, sensitivity: Any = None,
-                   dpi: int = 150) -> Path:
-    """Typeset the document to ``path`` (PDF) and return it."""
+                   dpi: int = 150, saved: Mapping[str, Path] | None = None) -> Path:
+    """Typeset the document to ``path`` (PDF) and return it. ``saved`` maps figure stems to PNG
+    files already written, which are used instead of drawing those figures again."""
+    import shutil
+
     import typst
 
     path = Path(path)
@@ -557,7 +568,10 @@ def write_proposal(path: str | Path, data: ReportData, tables: Mapping[str, Tabl
             charts.update(tornado_figures(sensitivity))
         for n, (stem, fig) in enumerate(charts.items()):
             name = f"figure-{n:03d}.png"
-            fig.savefig(root / name, dpi=dpi)
+            if saved and stem in saved:
+                shutil.copyfile(saved[stem], root / name)
+            else:
+                fig.savefig(root / name, dpi=dpi)
             files[stem] = name
         source = proposal_source(data, tables, figures, provenance, sensitivity, files)
         (root / "proposal.typ").write_text(source, encoding="utf-8")
