@@ -209,7 +209,8 @@ def single_photon_herald(path: LightPath) -> Herald:
 
     Each memory is prepared in sqrt(1 - alpha)|0>|vac> + sqrt(alpha)|1>|photon>; the photons
     meet on a beam splitter at the station and one click heralds. Derived here for arm
-    efficiencies P_a, P_b and non-photon-number-resolving detectors:
+    efficiencies P_a, P_b and non-photon-number-resolving detectors (indistinguishable photons
+    first; V < 1 below):
 
     - one emitted photon detected: weight alpha (1 - alpha)(P_a + P_b), state
       (sqrt(P_a)|10> + sqrt(P_b)|01>) / sqrt(P_a + P_b) (Psi+ for equal arms);
