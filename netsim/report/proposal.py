@@ -379,7 +379,7 @@ ASSUMPTION_COLUMNS = (Column("parameter", "parameter"), Column("value", "value")
 def _figure_caption(stem: str, fig: Figure, data: ReportData, assumptions: str) -> str:
     """What the figure shows (its label, set where it was drawn, or a description by name)
     and under which assumptions."""
-    text = fig.get_label() or ""
+    text = str(fig.get_label() or "")
     if stem == "network-map":
         return (f"Map of {data.title}: sites at their map coordinates (x_km, y_km) and the fibre links "
                 f"between them, shaded as the colour bar states. {assumptions}")
