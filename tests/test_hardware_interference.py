@@ -36,7 +36,8 @@ def sites(va: float = 1.0, vb: float | None = None) -> tuple[Site, Site]:
 
 def link(**overrides: object) -> Link:
     base = {"index": 0, "a": "Ashgrove", "b": "Brookend", "length_km": 20.0, "attenuation_db_per_km": 0.2,
-            "extra_loss_db": 0.0, "detector_efficiency": 1.0, "dark_count_probability": 0.0}
+            "extra_loss_db": 0.0, "detector_efficiency": 1.0, "dark_count_probability": 0.0,
+            "phase_noise_rad": 0.0}  # stated: no phase noise unless a test sets it (built-in default 0.25 rad)
     return Link(**{**base, **overrides})  # type: ignore[arg-type]
 
 

@@ -24,7 +24,11 @@ from netsim.scenario.model import SCHEMES, Link, Site
 
 V = FIBRE_SPEED_KM_PER_S
 PREP = 1e-6
-IDEAL = {"emission_efficiency": 1.0, "memory_efficiency": 1.0, "attempt_prep_time_s": PREP}
+# The formulas below are the ideal-interference cases of their sources, so the fixtures state
+# perfect photon indistinguishability and no optical phase noise (the built-in defaults are the
+# demonstrated NV values, I = 0.8 and 0.25 rad); tests of those two effects set them explicitly.
+IDEAL = {"emission_efficiency": 1.0, "memory_efficiency": 1.0, "attempt_prep_time_s": PREP,
+         "photon_indistinguishability": 1.0}
 
 
 def sites(**overrides: float) -> tuple[Site, Site]:
@@ -34,7 +38,8 @@ def sites(**overrides: float) -> tuple[Site, Site]:
 
 def link(**overrides: object) -> Link:
     base = {"index": 0, "a": "Ashgrove", "b": "Brookend", "length_km": 20.0, "attenuation_db_per_km": 0.2,
-                "extra_loss_db": 0.0, "detector_efficiency": 1.0, "dark_count_probability": 0.0}
+                "extra_loss_db": 0.0, "detector_efficiency": 1.0, "dark_count_probability": 0.0,
+            "phase_noise_rad": 0.0}
     return Link(**{**base, **overrides})  # type: ignore[arg-type]
 
 

@@ -6,6 +6,7 @@ import json
 import math
 from pathlib import Path
 
+import numpy as np
 import pytest
 from conftest import assert_probability, assert_within_bound
 
@@ -21,6 +22,11 @@ def chain(bsm: float = 0.5, gate: float = 0.02, encoding: object = "bb84", min_f
     return load_data({
         "network": {"name": "Hollin chain"},
         "encoding": {"states": encoding},
+        # The worked point is the textbook swap of two hops without transfer errors, on fast
+        # hardware with long coherence: stated here (the built-in defaults are demonstrated NV values).
+        "defaults": {"site": {"memory_transfer_error": 0.0, "memory_transfer_s": 0.0, "attempt_dephasing": 0.0,
+                              "communication_qubits": 2, "emission_efficiency": 0.5, "t2_s": 1.0,
+                              "attempt_prep_time_s": 1e-6}},
         "sites": [{"name": "Hollin Lab", "role": "user"},
                   {"name": "Ives Relay", "role": "repeater", "bsm_success_probability": bsm, "gate_error": gate},
                   {"name": "Jura Lab", "role": "user"}],
@@ -66,17 +72,26 @@ def test_holevo_through_the_erasure_channel(encoding: object, noiseless_chi: flo
 def test_demand_expectation_at_a_worked_point() -> None:
     """Two equal hops, BSM success 1/2, gate error 0.02:
     rate = p_bsm / (tau (3 - 2q) / (q (2 - q))) (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019)
-    and F = (1 + 3 w^2 (1 - 0.02)) / 4 with w = (4 F_hop - 1) / 3 (Werner swapping, (memory))."""
+    and, swapping Bell-diagonal parts, F = sum_k p1_k p2_k over the four Bell weights, then
+    F' = (1 - 0.02) F + 0.02 / 4 for the depolarizing gate error (Duer, Briegel, Cirac & Zoller,
+    PRA 59, 169, 1999 (memory)); for Werner hops this is (1 + 3 w^2 (1 - 0.02)) / 4. The estimate
+    swaps the heralded states themselves, which are not Werner (their Psi+- weights differ from
+    Phi-), so the Werner form is only within ~3e-4 of it."""
     scenario = chain()
     graph = build_graph(scenario)
     hop = graph.edges["Hollin Lab", "Ives Relay"]["physics"]
     q, tau = hop.round_success_probability, hop.attempt_period_s
     w = (4 * hop.fidelity - 1) / 3
+    s = 2 ** -0.5
+    bell = [np.array(v) * s for v in ([1, 0, 0, 1], [1, 0, 0, -1], [0, 1, 1, 0], [0, 1, -1, 0])]
+    other = graph.edges["Ives Relay", "Jura Lab"]["physics"].state
+    swapped = sum(float(np.real(v @ hop.state @ v)) * float(np.real(v @ other @ v)) for v in bell)
     row = budget(scenario).demands[0]
     assert row["route"] == "Hollin Lab > Ives Relay > Jura Lab"
     assert row["hops"] == 2
     assert row["expected_rate_per_s"] == pytest.approx(0.5 / (tau * (3 - 2 * q) / (q * (2 - q))), rel=1e-9)
-    assert row["expected_fidelity_no_decay"] == pytest.approx((1 + 3 * w * w * 0.98) / 4, rel=1e-12)
+    assert row["expected_fidelity_no_decay"] == pytest.approx(0.98 * swapped + 0.02 / 4, rel=1e-12)
+    assert row["expected_fidelity_no_decay"] == pytest.approx((1 + 3 * w * w * 0.98) / 4, abs=3e-4)
     # Wootters (PRL 80, 2245, 1998): a Werner state with F > 1/2 has C = 2F - 1.
     c = 2 * row["expected_fidelity"] - 1
     h = (1 + math.sqrt(1 - c * c)) / 2

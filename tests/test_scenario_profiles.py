@@ -189,7 +189,8 @@ DIRECTION = {
     "bright_state_population": 0, "pair_probability": 0, "phase_noise_rad": -1,
 }
 NOT_HARDWARE = {"name", "role", "x_km", "y_km", "memory_slots", "profile", "index", "a", "b", "length_km",
-                "attenuation_db_per_km", "extra_loss_db", "midpoint_fraction"}
+                "attenuation_db_per_km", "extra_loss_db", "midpoint_fraction",
+                "candidate", "cost"}  # design choices (netsim design), not hardware
 
 
 def _no_more_optimistic(key: str, built_in: Any, shown: Any) -> bool:

@@ -214,15 +214,21 @@ def line_chain(n_hops: int, p: float, period_s: float, state: NDArray[np.complex
                herald_s: float | None = None, length_km: float = 0.0, t1_s: float = math.inf,
                t2_s: float = math.inf, bsm_success_probability: float = 1.0, gate_error: float = 0.0,
                memory_slots: int | None = None, name: str = "line", index: int = 0,
-               site_prefix: str = "N") -> Chain:
+               site_prefix: str = "N", communication_qubits: int | None = None,
+               memory_transfer_s: float = 0.0, memory_transfer_error: float = 0.0,
+               attempt_dephasing: float = 0.0) -> Chain:
     """A chain of ``n_hops`` identical hops with identical memories (tests and benchmarks).
 
     Sites are named ``f"{site_prefix}{k}"``; the ends are users, the inner sites repeaters.
+    The memories are ideal unless told otherwise: every slot may attempt, no transfer time or
+    error and no attempt dephasing (not the built-in site defaults, which are demonstrated values).
     """
     sites = tuple(
         Site(f"{site_prefix}{k}", "user" if k in (0, n_hops) else "repeater", t1_s=t1_s, t2_s=t2_s,
              bsm_success_probability=bsm_success_probability, gate_error=gate_error,
-             memory_slots=memory_slots if memory_slots is not None else (1 if k in (0, n_hops) else 2))
+             memory_slots=memory_slots if memory_slots is not None else (1 if k in (0, n_hops) else 2),
+             communication_qubits=communication_qubits, memory_transfer_s=memory_transfer_s,
+             memory_transfer_error=memory_transfer_error, attempt_dephasing=attempt_dephasing)
         for k in range(n_hops + 1))
     physics = synthetic_physics(p, period_s, state, herald_s=herald_s, length_km=length_km)
     hops = tuple(HopSpec(f"{sites[k].name}-{sites[k + 1].name}", physics) for k in range(n_hops))

@@ -208,8 +208,15 @@ def _met(row: Mapping[str, Any], need: Mapping[str, Any], rate: float | None,
     fidelity (and rate, where a minimum is set) compared with the demand's requirement."""
     verdicts = {k: row[k] for k in ("meets_fidelity", "meets_rate") if row.get(k) is not None}
     if verdicts:
-        missed = [k.replace("meets_", "") for k, v in verdicts.items() if not v]
-        return not missed, ("misses " + " and ".join(missed)) if missed else ""
+        # the verdicts decide; the reason names the requirement missed, as without verdicts
+        missed = []
+        if verdicts.get("meets_fidelity") is False:
+            bar = need.get("min_fidelity", row.get("min_fidelity"))
+            missed.append(f"fidelity below {bar:g}" if bar is not None else "misses fidelity")
+        if verdicts.get("meets_rate") is False:
+            bar = need.get("min_rate_per_s", row.get("min_rate_per_s"))
+            missed.append(f"rate below {bar:g} pairs/s" if bar is not None else "misses rate")
+        return not missed, "; ".join(missed)
     if need.get("min_fidelity") is None and need.get("min_rate_per_s") is None:
         return None, "requirement not known (scenario not found)"
     reasons = []
