@@ -45,7 +45,7 @@ from numpy.typing import NDArray
 __all__ = ["CYCLES", "SEED", "CycleSample", "sample_cycles"]
 
 #: Cycles sampled per estimate: the standard error of a mean fidelity is about 0.1 / sqrt(N).
-CYCLES = 2000
+CYCLES = 1200
 #: Fixed seed: the estimate is deterministic.
 SEED = 20230523
 
