@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+from typing import Any
 
 import networkx as nx
 import numpy as np
@@ -15,7 +16,7 @@ from netsim.engine.chain import Chain, line_chain, synthetic_physics
 from netsim.engine.des import DesOptions
 from netsim.engine.metrics import StopRule
 from netsim.network.cutoff import sample_cycles
-from netsim.network.estimate import estimate_hops
+from netsim.network.estimate import RouteEstimate, estimate_hops
 from netsim.network.routing import Hop
 from netsim.scenario.model import Site
 
@@ -73,7 +74,7 @@ def test_the_sampler_is_deterministic_and_one_hop_is_left_to_the_closed_form() -
 
 
 def _engine_and_estimate(n: int, p: float, t2_s: float, cutoff_s: float, comm: int | None, pairs: int,
-                         seed: int, bsm: float = 1.0) -> tuple[dict, object]:
+                         seed: int, bsm: float = 1.0) -> tuple[dict[str, Any], RouteEstimate]:
     chain = line_chain(n, p, 1e-4, herald_s=1e-4, t1_s=100.0, t2_s=t2_s, bsm_success_probability=bsm)
     sites = tuple(_bare(s, comm) for s in chain.sites)
     chain = Chain(chain.name, sites, chain.hops)
