@@ -21,9 +21,10 @@ from netsim.network.routing import Hop
 from netsim.scenario.model import Site
 
 
-def _bare(site: Site, comm: int | None) -> Site:
-    """A memory without the extra hardware effects, so that only the timeline and T1/T2 act."""
-    return dataclasses.replace(site, communication_qubits=comm, attempt_dephasing=0.0,
+def _bare(site: Site, comm: int | None, dephasing: float = 0.0) -> Site:
+    """A memory without the extra hardware effects (but ``dephasing`` per neighbouring attempt),
+    so that only the timeline and T1/T2 act."""
+    return dataclasses.replace(site, communication_qubits=comm, attempt_dephasing=dephasing,
                                memory_transfer_error=0.0, memory_transfer_s=0.0, gate_error=0.0)
 
 
@@ -74,25 +75,26 @@ def test_the_sampler_is_deterministic_and_one_hop_is_left_to_the_closed_form() -
 
 
 def _engine_and_estimate(n: int, p: float, t2_s: float, cutoff_s: float, comm: int | None, pairs: int,
-                         seed: int, bsm: float = 1.0) -> tuple[dict[str, Any], RouteEstimate]:
+                         seed: int, bsm: float = 1.0, dephasing: float = 0.0) -> tuple[dict[str, Any], RouteEstimate]:
     chain = line_chain(n, p, 1e-4, herald_s=1e-4, t1_s=100.0, t2_s=t2_s, bsm_success_probability=bsm)
-    sites = tuple(_bare(s, comm) for s in chain.sites)
+    sites = tuple(_bare(s, comm, dephasing) for s in chain.sites)
     chain = Chain(chain.name, sites, chain.hops)
     run = simulate([chain], rule=StopRule(pairs=pairs), seed=seed, options=DesOptions(cutoff_s=cutoff_s))[0]
     hops = [Hop(sites[i].name, sites[i + 1].name, (), h.physics) for i, h in enumerate(chain.hops)]
     return demand_row(chain, run), estimate_hops(nx.Graph(), hops, list(sites), cutoff_s=cutoff_s)
 
 
-@pytest.mark.parametrize(("n", "p", "t2_s", "cutoff_s", "comm"), [
-    (2, 2e-4, 1.0, 0.5, 1),      # the bundled regime: one interface at the repeater, cut-off T2/2
-    (2, 5e-4, 0.5, 0.1, None),   # parallel hops, a tight cut-off (T2/5)
+@pytest.mark.parametrize(("n", "p", "t2_s", "cutoff_s", "comm", "dephasing"), [
+    (2, 2e-4, 1.0, 0.5, 1, 0.0),      # the bundled regime: one interface at the repeater, cut-off T2/2
+    (2, 5e-4, 0.5, 0.1, None, 0.0),   # parallel hops, a tight cut-off (T2/5)
+    (2, 5e-4, 0.5, 0.1, None, 3e-4),  # and attempt dephasing (costs ~0.05 of fidelity here)
 ])
 def test_two_hops_with_a_cut_off_follow_the_event_engine(n: int, p: float, t2_s: float, cutoff_s: float,
-                                                        comm: int | None) -> None:
+                                                        comm: int | None, dephasing: float) -> None:
     """The engine (its states checked against QuTiP in tests/test_engine_states.py) runs 1500
     pairs: the estimate's fidelity within 0.02 and its rate within 10 % (the engine's own rate
     interval is about +-5 % at this size)."""
-    row, est = _engine_and_estimate(n, p, t2_s, cutoff_s, comm, pairs=1500, seed=2)
+    row, est = _engine_and_estimate(n, p, t2_s, cutoff_s, comm, pairs=1500, seed=2, dephasing=dephasing)
     assert abs(est.fidelity - row["fidelity_mean"]) < 0.02
     assert est.rate_per_s == pytest.approx(row["rate_per_s"], rel=0.10)
     # the cut-off acts here: the estimate without it misses both figures by far

@@ -58,13 +58,18 @@ class CycleSample:
 
     ``delivered_s`` (N,) is each cycle's duration; ``store_left_s`` and ``store_right_s`` (N, n)
     the storage times of the delivered pairs' qubits; ``discards`` (N,) the runs discarded by
-    the cut-off in each cycle.
+    the cut-off in each cycle; ``attempts_left`` and ``attempts_right`` (N, n) the attempt rounds
+    the neighbouring hop starts at the same site while each of those qubits waits there (the
+    only attempts at that site in a lone chain: while hop i's pair waits unswapped at a site, its
+    neighbour there holds no pair, so they all belong to the neighbour's last sequence).
     """
 
     delivered_s: NDArray[np.float64]
     store_left_s: NDArray[np.float64]
     store_right_s: NDArray[np.float64]
     discards: NDArray[np.float64]
+    attempts_left: NDArray[np.float64]
+    attempts_right: NDArray[np.float64]
 
 
 def sample_cycles(q: tuple[float, ...], period_s: tuple[float, ...], ready_s: tuple[float, ...],
@@ -102,6 +107,8 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
     out_left = np.empty((cycles, n))
     out_right = np.empty((cycles, n))
     out_disc = np.empty(cycles)
+    out_att_left = np.zeros((cycles, n))
+    out_att_right = np.zeros((cycles, n))
 
     ids = np.arange(cycles)
     m = cycles
@@ -109,6 +116,8 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
     mode = np.zeros((m, n), dtype=np.int8)
     born = np.zeros((m, n))
     rdy = np.full((m, n), np.inf)
+    first = np.zeros((m, n))
+    rounds = np.ones((m, n))
     prio = np.tile(np.arange(n, dtype=float), (m, 1))
     swap_t = np.zeros((m, n + 1))
     disc = np.zeros(m)
@@ -130,6 +139,7 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
             if go.any():
                 r, h = rows[go], i[go]
                 k = rng.geometric(qa[h])
+                first[r, h], rounds[r, h] = now[r], k
                 born[r, h] = now[r] + (k - 1) * ta[h]
                 rdy[r, h] = born[r, h] + ra[h]
                 mode[r, h] = _TRY
@@ -198,13 +208,29 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
             out_left[ids[d]] = end_left - born[d]
             out_right[ids[d]] = end_right - born[d]
             out_disc[ids[d]] = disc[d]
+            for i in range(n):
+                if i > 0:
+                    out_att_left[ids[d], i] = _rounds_between(first[d, i - 1], ta[i - 1], rounds[d, i - 1],
+                                                              born[d, i], end_left[:, i])
+                if i < n - 1:
+                    out_att_right[ids[d], i] = _rounds_between(first[d, i + 1], ta[i + 1], rounds[d, i + 1],
+                                                               born[d, i], end_right[:, i])
             keep = ~done
-            ids, now, mode, born, rdy, prio, swap_t, disc = (
-                ids[keep], now[keep], mode[keep], born[keep], rdy[keep], prio[keep], swap_t[keep], disc[keep])
+            ids, now, mode, born, rdy, prio, swap_t, disc, first, rounds = (
+                ids[keep], now[keep], mode[keep], born[keep], rdy[keep], prio[keep], swap_t[keep], disc[keep],
+                first[keep], rounds[keep])
             m = len(ids)
     if m:
         return None  # cycles that never finish: treat as no delivery
-    return CycleSample(out_t, out_left, out_right, out_disc)
+    return CycleSample(out_t, out_left, out_right, out_disc, out_att_left, out_att_right)
+
+
+def _rounds_between(start_s: NDArray[np.float64], period_s: float, k: NDArray[np.float64],
+                    after_s: NDArray[np.float64], until_s: NDArray[np.float64]) -> NDArray[np.float64]:
+    """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly inside (after, until)."""
+    lo = np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0)
+    hi = np.minimum(k - 1.0, np.ceil((until_s - start_s) / period_s - 1e-9) - 1.0)
+    return np.maximum(0.0, hi - lo + 1.0)
 
 
 def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], n: int) -> NDArray[np.bool_]:

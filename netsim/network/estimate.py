@@ -65,6 +65,9 @@ from netsim.scenario.model import Site
 __all__ = ["HighestRate", "RouteEstimate", "estimate_hops", "estimate_route", "expected_storage_s"]
 
 _PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
+#: Per qubit of a pair: the entries of a 4 x 4 state that are coherences of that qubit.
+_OFF_DIAGONAL = {q: np.array([[((r >> (1 - q)) & 1) != ((c >> (1 - q)) & 1) for c in range(4)] for r in range(4)])
+                 for q in (0, 1)}
 #: entanglement_swap(E_k, E_l) without gate error for the 16 matrix units E_k of 4 x 4 (bilinear).
 _SWAP_BASIS = np.asarray(qinfo.entanglement_swap(np.eye(16, dtype=complex).reshape(16, 1, 4, 4),
                                                  np.eye(16, dtype=complex).reshape(1, 16, 4, 4)))
@@ -205,7 +208,8 @@ def _with_cutoff(hops: Sequence[Hop], sites: Sequence[Site], cutoff_s: float, q:
     if sample is None:
         nan_state = np.full((4, 4), np.nan, dtype=complex)
         return RouteEstimate(0.0, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops), nan_state, True, True)
-    state = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s)
+    state = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s,
+                            sample.attempts_left, sample.attempts_right)
     storage = tuple((float(a), float(b)) for a, b in zip(sample.store_left_s.mean(axis=0),
                                                          sample.store_right_s.mean(axis=0)))
     rate = 1.0 / float(sample.delivered_s.mean())
@@ -238,11 +242,14 @@ def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tup
     return np.asarray(out)
 
 
-def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray) -> np.ndarray:
+def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
+                    attempts_left: np.ndarray, attempts_right: np.ndarray) -> np.ndarray:
     """Mean delivered state over sampled storage times ``left_s``, ``right_s`` (N, n).
 
     As the engine does, each end's memory transfer error is applied to the heralded state before
-    the decay (exact for pure dephasing); the mean is then over the swapped per-cycle states.
+    the decay (exact for pure dephasing), and a site's ``attempt_dephasing`` d multiplies a
+    stored qubit's coherences by (1 - d)^a for the a attempts its neighbour starts there while
+    it waits; the mean is then over the swapped per-cycle states.
     """
     out = None
     for i, hop in enumerate(hops):
@@ -253,6 +260,10 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
                 rho = qinfo.depolarizing(float(site.memory_transfer_error)).apply(rho, qubit=qubit, dims=(2, 2))
         rho = qinfo.decohere(rho, left_s[:, i], left.t1_s, left.t2_s, qubit=0)
         rho = qinfo.decohere(rho, right_s[:, i], right.t1_s, right.t2_s, qubit=1)
+        for qubit, site, attempts in ((0, left, attempts_left[:, i]), (1, right, attempts_right[:, i])):
+            if site.attempt_dephasing > 0:
+                factor = (1.0 - float(site.attempt_dephasing)) ** attempts
+                rho = np.where(_OFF_DIAGONAL[qubit], rho * factor[:, None, None], rho)
         if out is None:
             out = rho
         elif i < len(hops) - 1:
