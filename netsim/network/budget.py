@@ -24,7 +24,7 @@ from netsim.network.bounds import (
     single_path_capacity,
 )
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
-from netsim.network.estimate import estimate_hops
+from netsim.network.estimate import estimate_hops, graph_cutoff_s
 from netsim.network.graph import build_graph
 from netsim.network.routing import Hop, find_route, relay_graph, route_hops
 from netsim.table import Column, Table
@@ -233,7 +233,8 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
         problems.append(f"no expected rate: {len(hops)} hops with Bell measurements that can fail (exact up "
                         f"to {MAX_EXACT_SWAP_HOPS}); simulate it")
     if not row["meets_fidelity"]:
-        problems.append(f"expected fidelity {fid:.3g} (memory decay included) is below min_fidelity "
+        included = "memory decay and the cut-off" if graph_cutoff_s(graph) is not None and len(hops) > 1 else "memory decay"
+        problems.append(f"expected fidelity {fid:.3g} ({included} included) is below min_fidelity "
                         f"{demand.min_fidelity:g}")
     if row.get("meets_rate") is False:
         useful = rate if row["meets_fidelity"] else 0.0
