@@ -1,11 +1,11 @@
-"""The closed-form estimate of one route that the design reads: expected rate and fidelity.
+"""The planning estimate of one route that the design reads: expected rate and fidelity.
 
 The design reads rates and fidelities from this one function. It is the planning estimate every
 other command uses (:func:`netsim.network.estimate_route`): swap as soon as possible, the exact
 expected delivery time (failed Bell measurements included), and each hop's heralded state
 decohered in memory for the expected storage times of its qubits, then swapped with the gate
 errors. So a design meets ``min_fidelity`` in the same estimate that ``netsim check`` and
-``netsim budget`` show, memory decay included.
+``netsim budget`` show, memory decay and the scenario's cut-off included.
 """
 
 from __future__ import annotations
@@ -32,10 +32,11 @@ class RouteEstimate:
 
 
 def route_estimate(graph: nx.Graph, route: Sequence[str]) -> RouteEstimate:
-    """Closed-form rate and fidelity of ``route`` in ``graph`` (from :func:`netsim.network.build_graph`).
+    """Planning rate and fidelity of ``route`` in ``graph`` (from :func:`netsim.network.build_graph`).
 
     :func:`netsim.network.estimate.estimate_hops` (its module docstring derives it and says what
-    it leaves out: cut-off, purification, contention with other demands). A route whose fidelity
+    it leaves out: purification, contention with other demands); the scenario's cut-off is in it
+    (a sampled timeline, not a closed form, when it acts). A route whose fidelity
     cannot be estimated (a hop that never succeeds) gets rate 0 and fidelity 0.
     """
     hops = route_hops(graph, list(route))
