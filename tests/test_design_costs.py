@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import copy
 from typing import Any
 
 import pytest
+from test_design_milp import FAST
 
 from netsim.design import cost_table, network_cost
 from netsim.errors import ScenarioError
@@ -16,6 +18,7 @@ def data(**extra: Any) -> dict[str, Any]:
     """Invented two-lab line through one relay (Yarrow, Zenna)."""
     base: dict[str, Any] = {
         "network": {"name": "Yarrow line"},
+        "defaults": copy.deepcopy(FAST),  # stated: the fast hypothetical platform of test_design_milp
         "costs": {"currency": "kEUR", "fibre_per_km": 3.5, "repeater_site": 150.0, "user_site": 20.0,
                   "memory_slot": 8.0, "mode": 0.75, "detector": 30.0, "heralding_station": 45.0},
         "sites": [{"name": "Yarrow Lab", "role": "user"},

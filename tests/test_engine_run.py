@@ -27,7 +27,10 @@ def _data(cutoff: float | None = None, hub_slots: int = 4) -> dict[str, Any]:
              for n, km in (("Tamsin Yard", 8.0), ("Wexcombe", 11.0), ("Hollin Mill", 6.0), ("Carrow Fen", 9.0))]
     data: dict[str, Any] = {
         "network": {"name": "Orrin test star"},
-        "defaults": {"site": {"t1_s": 10.0, "t2_s": 1.0, "emission_efficiency": 0.3}},
+        # stated: the closed form beside the run models neither shared optical interfaces, nor
+        # transfer time, nor attempt dephasing (the built-in defaults are demonstrated NV values)
+        "defaults": {"site": {"t1_s": 10.0, "t2_s": 1.0, "emission_efficiency": 0.3, "communication_qubits": 8,
+                              "memory_transfer_s": 0.0, "memory_transfer_error": 0.0, "attempt_dephasing": 0.0}},
         "sites": sites, "links": links,
         "demands": [{"users": ["Tamsin Yard", "Wexcombe"], "pairs": 50},
                     {"users": ["Hollin Mill", "Carrow Fen"], "pairs": 50}],
@@ -174,6 +177,11 @@ def test_coherent_information_does_not_depend_on_which_user_is_written_first() -
     Here one user's memory decays fast (T1 = 0.5 ms), so the two directions differ by about 3x."""
     def scenario(users: list[str]) -> Any:
         return load_data({"network": {"name": "either end"},
+                          # stated: a bright emitter, ideal interference and memories apart from the decay compared
+                          "defaults": {"site": {"photon_indistinguishability": 1.0, "memory_transfer_s": 0.0,
+                                                "emission_efficiency": 0.5, "attempt_prep_time_s": 1e-6,
+                                                "memory_transfer_error": 0.0, "attempt_dephasing": 0.0},
+                                       "link": {"phase_noise_rad": 0.0}},
                           "sites": [{"name": "Fenwick", "role": "user", "t1_s": 0.0005, "t2_s": 0.001},
                                     {"name": "Garrow", "role": "user", "t1_s": 100.0, "t2_s": 1.0}],
                           "links": [{"ends": ["Fenwick", "Garrow"], "length_km": 20.0, "scheme": "single_photon",
