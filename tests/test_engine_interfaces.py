@@ -27,6 +27,13 @@ from netsim.scenario.model import Site
 Z = 4.5   # wide acceptance for statistical comparisons (z-score; common practice)
 
 
+#: Ideal memories unless a test says otherwise (stated: the built-in site defaults are now
+#: demonstrated NV values): every slot may attempt, no transfer time or error, no attempt
+#: dephasing, no gate error at the swaps; each test's ``inner``/``ends`` override these.
+IDEAL_MEMORY: dict[str, object] = {"communication_qubits": None, "memory_transfer_s": 0.0,
+                                   "memory_transfer_error": 0.0, "attempt_dephasing": 0.0, "gate_error": 0.0}
+
+
 def _chain(n_hops: int, p: float, period: float, *, herald: float | None = None, length_km: float = 0.0,
            inner: dict[str, object] | None = None, ends: dict[str, object] | None = None,
            t1: float = math.inf, t2: float = math.inf, state: np.ndarray | None = None,
@@ -34,7 +41,7 @@ def _chain(n_hops: int, p: float, period: float, *, herald: float | None = None,
     """An invented line of sites Tarn0 .. Tarn<n> with identical hops."""
     sites = tuple(Site(f"{prefix}{k}", "user" if k in (0, n_hops) else "repeater", t1_s=t1, t2_s=t2,
                        memory_slots=1 if k in (0, n_hops) else 2,
-                       **((ends or {}) if k in (0, n_hops) else (inner or {})))  # type: ignore[arg-type]
+                       **{**IDEAL_MEMORY, **((ends or {}) if k in (0, n_hops) else (inner or {}))})  # type: ignore[arg-type]
                   for k in range(n_hops + 1))
     physics = synthetic_physics(p, period, state, herald_s=herald, length_km=length_km)
     hops = tuple(HopSpec(f"{sites[k].name}-{sites[k + 1].name}", physics) for k in range(n_hops))
