@@ -27,7 +27,14 @@ def _data(cutoff: float | None = None, hub_slots: int = 4) -> dict[str, Any]:
              for n, km in (("Tamsin Yard", 8.0), ("Wexcombe", 11.0), ("Hollin Mill", 6.0), ("Carrow Fen", 9.0))]
     data: dict[str, Any] = {
         "network": {"name": "Orrin test star"},
-        "defaults": {"site": {"t1_s": 10.0, "t2_s": 1.0, "emission_efficiency": 0.3}},
+        # Hardware stated (the built-in defaults are now demonstrated NV values): memories whose
+        # slots all attempt at once, with no transfer time or error, attempt dephasing or gate
+        # error, and ideal interference, as the closed-form budget compared below assumes.
+        "defaults": {"site": {"t1_s": 10.0, "t2_s": 1.0, "emission_efficiency": 0.3, "gate_error": 0.0,
+                              "attempt_prep_time_s": 1e-6, "communication_qubits": 1000,
+                              "memory_transfer_s": 0.0, "memory_transfer_error": 0.0,
+                              "photon_indistinguishability": 1.0, "attempt_dephasing": 0.0},
+                     "link": {"phase_noise_rad": 0.0}},
         "sites": sites, "links": links,
         "demands": [{"users": ["Tamsin Yard", "Wexcombe"], "pairs": 50},
                     {"users": ["Hollin Mill", "Carrow Fen"], "pairs": 50}],
@@ -173,7 +180,14 @@ def test_coherent_information_does_not_depend_on_which_user_is_written_first() -
     2005), so a demand written A-B or B-A reports the same coherent information: the better end.
     Here one user's memory decays fast (T1 = 0.5 ms), so the two directions differ by about 3x."""
     def scenario(users: list[str]) -> Any:
+        # Hardware stated (the built-in defaults are now demonstrated NV values): the values the
+        # ~3x asymmetry was measured under (emission 0.5, ideal interference, no transfer or
+        # attempt errors), so only the two memories' decay differs between the ends.
+        hardware = {"emission_efficiency": 0.5, "gate_error": 0.0, "attempt_prep_time_s": 1e-6,
+                    "communication_qubits": 1000, "memory_transfer_s": 0.0, "memory_transfer_error": 0.0,
+                    "photon_indistinguishability": 1.0, "attempt_dephasing": 0.0}
         return load_data({"network": {"name": "either end"},
+                          "defaults": {"site": hardware, "link": {"phase_noise_rad": 0.0}},
                           "sites": [{"name": "Fenwick", "role": "user", "t1_s": 0.0005, "t2_s": 0.001},
                                     {"name": "Garrow", "role": "user", "t1_s": 100.0, "t2_s": 1.0}],
                           "links": [{"ends": ["Fenwick", "Garrow"], "length_km": 20.0, "scheme": "single_photon",
