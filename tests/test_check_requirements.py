@@ -15,7 +15,7 @@ from netsim.network import build_graph, estimate_route, find_route, route_hops
 from netsim.network.audit import one_round, purification_warnings
 from netsim.scenario import load, load_data
 
-CHAIN = Path(__file__).resolve().parent.parent / "scenarios" / "chain3.toml"
+CHAIN = Path(__file__).resolve().parent / "data" / "chain3-check.toml"  # hardware stated there
 
 
 def _chain(**protocol: object) -> object:
