@@ -51,7 +51,12 @@ def test_summary_of_a_bundled_scenario(capsys: pytest.CaptureFixture[str]) -> No
     assert "sites: 3 (2 user, 1 repeater, 0 switch)" in out
     assert "links: 2 (22 km of fibre)" in out
     assert "demands: 1" in out
-    assert "warnings: none" in out
+    # On demonstrated trapped-ion hardware the chain's one demand falls just short of its
+    # min_fidelity 0.7: the estimate (memory decay and the 0.5 s cut-off included) gives 0.685 and
+    # the simulation of the demand alone 0.684-0.70 (tests/test_network_estimate.py); check says
+    # so before any run, and nothing else.
+    assert "warnings: 1" in out or out.count("below min_fidelity 0.7") == 1
+    assert "expected fidelity 0.68" in out and "below min_fidelity 0.7" in out
 
 
 def test_a_link_beyond_its_scheme_is_flagged(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
@@ -105,11 +110,12 @@ def test_unentangled_heralds_are_flagged(tmp_path: Path, capsys: pytest.CaptureF
 
 
 def test_json_output(capsys: pytest.CaptureFixture[str]) -> None:
-    # The bundled chain (demonstrated trapped-ion values) draws no warning; a two-photon link on
-    # the built-in defaults (an emission efficiency of 1e-4) now would, as test_a_link_beyond_... shows.
+    # The bundled chain (demonstrated trapped-ion values) draws one warning: its demand falls
+    # just short of min_fidelity 0.7 (see test_summary_of_a_bundled_scenario).
     assert main(["check", "--format", "json", str(CHAIN)]) == 0
     data = json.loads(capsys.readouterr().out)
-    assert data["valid"] is True and data["sites"] == 3 and data["users"] == 2 and data["warnings"] == []
+    assert data["valid"] is True and data["sites"] == 3 and data["users"] == 2
+    assert len(data["warnings"]) == 1 and "below min_fidelity 0.7" in data["warnings"][0]
     assert [u["profile"] for u in data["profiles"]] == ["trapped-ion-demonstrated"]
 
 
