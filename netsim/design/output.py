@@ -64,9 +64,10 @@ def memory_table(rows: list[dict[str, Any]], target: float) -> Table:
 
 VERDICT_COLUMNS = (
     Column("demand", "demand"), Column("min_rate_per_s", "min rate (pairs/s)"),
-    Column("expected_rate_per_s", "design rate, closed form (pairs/s)"),
+    Column("expected_rate_per_s", "design rate, estimate (pairs/s)"),
     Column("rate_per_s", "simulated rate (pairs/s)", ci_key="rate_ci95"),
-    Column("rate_ci95", "rate 95% CI", ci_key="rate_ci95"), Column("min_fidelity", "min fidelity"),
+    Column("rate_ci95", "rate 95% CI", ci_key="rate_ci95"),
+    Column("useful_rate_per_s", "simulated useful rate (pairs/s)"), Column("min_fidelity", "min fidelity"),
     Column("expected_fidelity", "design fidelity"), Column("fidelity_mean", "simulated fidelity"),
     Column("verdict", "verdict"), Column("reason", "why"),
 )

@@ -50,9 +50,12 @@ def verdicts(designed: Scenario, design: Design, result: dict[str, Any]) -> list
         planned = design.routes.get(demand.name, {})
         need_rate = demand.min_rate_per_s or 0.0
         rate, fidelity = sim["rate_per_s"] or 0.0, sim["fidelity_mean"] or 0.0
+        # min_rate_per_s asks for useful pairs (each reaching min_fidelity), as every verdict does
+        useful = sim.get("useful_rate_per_s")
+        useful = rate if useful is None else float(useful)
         reasons = []
-        if rate < need_rate:
-            reasons.append(f"rate {rate:.4g} < {need_rate:g} pairs/s")
+        if useful < need_rate:
+            reasons.append(f"useful rate {useful:.4g} < {need_rate:g} pairs/s")
         if fidelity < demand.min_fidelity:
             reasons.append(f"fidelity {fidelity:.4f} < {demand.min_fidelity:g}")
         route = sim.get("route") or []
@@ -61,6 +64,7 @@ def verdicts(designed: Scenario, design: Design, result: dict[str, Any]) -> list
         rows.append({
             "demand": demand.name, "index": demand.index, "min_rate_per_s": demand.min_rate_per_s,
             "expected_rate_per_s": planned.get("expected_rate_per_s"), "rate_per_s": rate,
+            "useful_rate_per_s": useful,
             "rate_ci95": sim.get("rate_ci95"), "min_fidelity": demand.min_fidelity,
             "expected_fidelity": planned.get("expected_fidelity"), "fidelity_mean": fidelity,
             "planned_route": planned_route, "simulated_route": simulated_route,
@@ -139,11 +143,11 @@ def _tightened(options: DesignOptions, missed: list[dict[str, Any]], design: Des
         i = v["index"]
         need = v["min_rate_per_s"] or 0.0
         route = v["simulated_route"].split(" > ") if v["simulated_route"] else []
-        blocked = blocked_sites(design, designed, route) if need > 0 and v["rate_per_s"] < need else {}
+        blocked = blocked_sites(design, designed, route) if need > 0 and v["useful_rate_per_s"] < need else {}
         for site, slots in blocked.items():
             slot_floor[site] = max(slot_floor.get(site, 0), slots)
-        if need > 0 and v["rate_per_s"] < need and not blocked:
-            shortfall = need / max(v["rate_per_s"], need * 1e-3)
+        if need > 0 and v["useful_rate_per_s"] < need and not blocked:
+            shortfall = need / max(v["useful_rate_per_s"], need * 1e-3)
             factors[i] = factors.get(i, 1.0) * shortfall * TIGHTEN_MARGIN
         if v["fidelity_mean"] < v["min_fidelity"]:
             gap = v["min_fidelity"] - v["fidelity_mean"]
