@@ -190,6 +190,11 @@ def _from_run(path: Path, scenario_path: str | Path | None = None) -> ReportData
     scenario = _scenario_of_run(run, path, scenario_path)
     name = _run_name(run) or (scenario.name if scenario else path.parent.name)
     slug = scenario.slug if scenario else path.resolve().parent.name
+    return _run_data(run, scenario, name, slug)
+
+
+def _run_data(run: dict[str, Any], scenario: Any, name: str, slug: str) -> ReportData:
+    """A run's ReportData: the budget's analytic rows when its scenario is known, else the run's."""
     data = ReportData("run", slug, name, run=run, scenario=scenario)
     if scenario is not None:
         data.links, data.demands = _budget_rows(scenario)
@@ -206,12 +211,7 @@ def from_run_result(result: Any, scenario: Any = None) -> ReportData:
     slug = scenario.slug if scenario is not None else str(getattr(result, "slug", "") or "run")
     if scenario is not None and scenario.name != name:
         raise ParameterError("scenario", scenario.name, f"the scenario the run was made from (named {name!r})")
-    data = ReportData("run", slug, name, run=run, scenario=scenario)
-    if scenario is not None:
-        data.links, data.demands = _budget_rows(scenario)
-    else:
-        data.links, data.demands = data.run_links, data.run_demands
-    return data
+    return _run_data(run, scenario, name, slug)
 
 
 def store_records(store: Any) -> list[dict[str, Any]]:
