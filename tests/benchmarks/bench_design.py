@@ -62,12 +62,15 @@ def metro_instance(seed: int = 11, sites: int = 40, links: int = 80, demands: in
             wanted.append((a, b))
     return {
         "network": {"name": "Generated metro"},
-        "defaults": {"link": {"bright_state_population": 0.05}},
+        # projected trapped-ion hardware (a design for the hardware a proposal would buy; on today's
+        # demonstrated values the long routes of this instance cannot reach the fidelity asked)
+        "defaults": {"site": {"profile": "trapped-ion-projected"},
+                     "link": {"profile": "trapped-ion-projected"}},
         "costs": {"currency": "units", "fibre_per_km": 4.0, "repeater_site": 180.0, "memory_slot": 12.0,
                   "mode": 1.5, "detector": 25.0, "heralding_station": 40.0},
         "sites": table, "links": fibres,
-        "demands": [{"users": [names[a], names[b]], "min_rate_per_s": float(rng.uniform(20.0, 80.0)),
-                     "min_fidelity": 0.7} for a, b in wanted],
+        "demands": [{"users": [names[a], names[b]], "min_rate_per_s": float(rng.uniform(0.5, 2.0)),
+                     "min_fidelity": 0.6} for a, b in wanted],
     }
 
 
@@ -89,6 +92,8 @@ def design_time() -> list[dict[str, Any]]:
         design = design_network(scenario, options)
         best = min(best, time.perf_counter() - start)
         status = design.status
+    if status != "optimal":  # timing an infeasible answer would measure the easy path
+        raise RuntimeError(f"the generated instance should have an optimal design; got {status}")
     return [{"name": "design_s_40_sites", "value": best, "unit": "s", "target": TARGET_S,
              "higher_is_better": False,
              "baseline": f"route enumeration and closed forms alone ({base:.3g} s); design status {status}",
