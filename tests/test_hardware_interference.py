@@ -28,6 +28,25 @@ from netsim.scenario.model import Link, Site
 IDEAL = {"emission_efficiency": 1.0, "memory_efficiency": 1.0, "attempt_prep_time_s": 1e-6}
 
 
+
+def _two_site_modes(ca: float, cb: float):  # type: ignore[no-untyped-def]
+    """The mode space of the two-site models: spin a, spin b, then per internal mode its spatial
+    modes a and b: common (up to two photons), own-a and own-b (one photon at most: only their own
+    site emits into them). Returns qutip, the dimensions, an embedding ``op(slot, operator)`` and
+    the creation operators of site a's and site b's photon (a share ``ca``/``cb`` in the common
+    mode)."""
+    qutip = pytest.importorskip("qutip")
+    dims = [2, 2, 3, 3, 2, 2, 2, 2]
+
+    def op(slot: int, o):  # type: ignore[no-untyped-def]
+        parts = [qutip.qeye(d) for d in dims]
+        parts[slot] = o
+        return qutip.tensor(*parts)
+
+    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
+    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
+    return qutip, dims, op, photon_a, photon_b
+
 def sites(va: float = 1.0, vb: float | None = None) -> tuple[Site, Site]:
     vb = va if vb is None else vb
     return (Site("Ashgrove", "user", photon_indistinguishability=va, **IDEAL),  # type: ignore[arg-type]
@@ -71,20 +90,9 @@ def _single_photon_distinguishable(alpha: float, eta: float, ca: float, cb: floa
     element (1 - eta)^N). Herald: port a clicks and port b does not. Returns (herald probability
     over both ports, fidelity to the better of Psi+ and Psi-).
     """
-    qutip = pytest.importorskip("qutip")
-    # spin a, spin b, then per internal mode its spatial modes a and b: common (up to two photons),
-    # own-a and own-b (one photon at most: only their own site emits into them)
-    dims = [2, 2, 3, 3, 2, 2, 2, 2]
-
-    def op(slot: int, o):  # type: ignore[no-untyped-def]
-        parts = [qutip.qeye(d) for d in dims]
-        parts[slot] = o
-        return qutip.tensor(*parts)
-
+    qutip, dims, op, photon_a, photon_b = _two_site_modes(ca, cb)
     raise_spin = qutip.basis(2, 1) * qutip.basis(2, 0).dag()
     keep_zero = qutip.basis(2, 0) * qutip.basis(2, 0).dag()
-    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
-    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
     emit_a = math.sqrt(1 - alpha) * op(0, keep_zero) + math.sqrt(alpha) * op(0, raise_spin) * photon_a
     emit_b = math.sqrt(1 - alpha) * op(1, keep_zero) + math.sqrt(alpha) * op(1, raise_spin) * photon_b
     psi = emit_b * emit_a * qutip.tensor(*[qutip.basis(d, 0) for d in dims])
@@ -132,18 +140,9 @@ def _barrett_kok_distinguishable(eta: float, ca: float, cb: float, dark: float =
     mode). A herald is exactly one click in each round. Returns (herald probability, fidelity to
     the Psi state the click pattern announces).
     """
-    qutip = pytest.importorskip("qutip")
-    dims = [2, 2, 3, 3, 2, 2, 2, 2]
-
-    def op(slot: int, o):  # type: ignore[no-untyped-def]
-        parts = [qutip.qeye(d) for d in dims]
-        parts[slot] = o
-        return qutip.tensor(*parts)
-
+    qutip, dims, op, photon_a, photon_b = _two_site_modes(ca, cb)
     up_proj = qutip.basis(2, 1) * qutip.basis(2, 1).dag()
     down_proj = qutip.basis(2, 0) * qutip.basis(2, 0).dag()
-    photon_a = math.sqrt(ca) * op(2, qutip.create(3)) + math.sqrt(1 - ca) * op(4, qutip.create(2))
-    photon_b = math.sqrt(cb) * op(3, qutip.create(3)) + math.sqrt(1 - cb) * op(7, qutip.create(2))
     emit = ((op(1, up_proj) * photon_b + op(1, down_proj))
             * (op(0, up_proj) * photon_a + op(0, down_proj)))
     splitters = []
