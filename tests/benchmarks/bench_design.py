@@ -66,6 +66,8 @@ def metro_instance(seed: int = 11, sites: int = 40, links: int = 80, demands: in
         # demonstrated values the long routes of this instance cannot reach the fidelity asked)
         "defaults": {"site": {"profile": "trapped-ion-projected"},
                      "link": {"profile": "trapped-ion-projected"}},
+        # a cut-off, as the bundled scenarios set: the estimate then samples the cut-off timeline
+        "protocol": {"cutoff_s": 0.5},
         "costs": {"currency": "units", "fibre_per_km": 4.0, "repeater_site": 180.0, "memory_slot": 12.0,
                   "mode": 1.5, "detector": 25.0, "heralding_station": 40.0},
         "sites": table, "links": fibres,
