@@ -66,14 +66,30 @@ def _printed(tables: list[Any], args: argparse.Namespace) -> list[Any]:
     return [choose_columns(tables[0], args.format, args, compact, None), *tables[1:]]
 
 
+def _write_tables(out: Path, tables: list[Any], candidates: Any, args: argparse.Namespace) -> list[Path]:
+    from netsim.report.table import render
+
+    out.mkdir(parents=True, exist_ok=True)
+    written = [out / (stem + _SUFFIX[args.format]) for stem in _STEMS[:len(tables)]]
+    for path, table in zip(written, tables):
+        path.write_text(render(table, args.format), encoding="utf-8")
+    if not args.no_simulate:
+        from netsim.report.compare import comparison_figure
+        from netsim.report.figures import save_figure
+
+        written += save_figure(comparison_figure(candidates), out / "compare-rates")
+    return written
+
+
 def run(args: argparse.Namespace) -> int:
     from netsim.report.compare import comparison_tables, run_candidates
     from netsim.report.table import render
 
     _check(args)
     if args.out:  # refused before any run, not after
-        from netsim.cli.outputs import refuse_overwrite
+        from netsim.cli.outputs import check_output_dir, refuse_overwrite
 
+        check_output_dir("--out", args.out)
         stems = [*_STEMS, "compare-rates"]
         refuse_overwrite([Path(args.out) / (s + suffix) for s in stems for suffix in (_SUFFIX[args.format], ".png")],
                          args.force, "comparison")
@@ -89,16 +105,11 @@ def run(args: argparse.Namespace) -> int:
     tables = comparison_tables(candidates)
     print("\n".join(render(t, args.format) for t in _printed(tables, args)), end="")
     if args.out:
-        out = Path(args.out)
-        out.mkdir(parents=True, exist_ok=True)
-        written = [out / (stem + _SUFFIX[args.format]) for stem in _STEMS[:len(tables)]]
-        for path, table in zip(written, tables):
-            path.write_text(render(table, args.format), encoding="utf-8")
-        if not args.no_simulate:
-            from netsim.report.compare import comparison_figure
-            from netsim.report.figures import save_figure
+        from netsim.cli.outputs import writing
 
-            written += save_figure(comparison_figure(candidates), out / "compare-rates")
+        out = Path(args.out)
+        with writing("--out", out):
+            written = _write_tables(out, tables, candidates, args)
         print(f"wrote {len(written)} files to {out}:")
         for path in written:
             print(f"  {path}")

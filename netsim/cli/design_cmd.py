@@ -63,6 +63,7 @@ def _float(name: str, text: str, allowed: str, low: float, high: float, low_open
 
 
 def design(args: argparse.Namespace) -> int:
+    from netsim.cli.outputs import check_output_dir, writing
     from netsim.design.milp import DesignOptions
     from netsim.design.output import memory_rows, memory_table, verdict_table, write_design
     from netsim.design.verify import design_and_check
@@ -78,10 +79,12 @@ def design(args: argparse.Namespace) -> int:
     seed = _int("--seed", args.seed, 0)
     wait_target = _float("--wait-target", args.wait_target, "a number in [0, 1]", 0.0, 1.0, low_open=False)
     scenario = load(args.file)
+    option = "--out" if args.out else "--out (default)"
+    out = check_output_dir(option, args.out or Path("results") / scenario.slug / "design")
     checked = design_and_check(scenario, options, pairs=pairs, seed=seed, rounds=rounds,
                                simulate=not args.no_simulate)
-    out = Path(args.out) if args.out else Path("results") / scenario.slug / "design"
-    written = write_design(scenario, checked, out, wait_target)
+    with writing(option, out):
+        written = write_design(scenario, checked, out, wait_target)
     d = checked.design
     if d.status == "infeasible" or not d.routes:
         for line in d.problems:

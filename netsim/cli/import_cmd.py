@@ -55,6 +55,7 @@ def _template(path: str | None) -> dict[str, Any]:
 
 
 def import_map(args: argparse.Namespace) -> int:
+    from netsim.cli.outputs import check_output_file, writing
     from netsim.design.fibremap import FORMATS, import_fibre_map
     from netsim.design.tomlout import dumps
     from netsim.errors import ParameterError
@@ -68,7 +69,7 @@ def import_map(args: argparse.Namespace) -> int:
         raise ParameterError("--snap-m", args.snap_m, "a distance >= 0 in metres") from None
     if not snap_m >= 0 or snap_m == float("inf"):
         raise ParameterError("--snap-m", args.snap_m, "a distance >= 0 in metres")
-    out = Path(args.out)
+    out = check_output_file("--out", args.out)
     if out.exists() and not args.force:
         raise ParameterError("--out", args.out, "a file that does not exist yet (or add --force to replace it)")
     template = _template(args.template)
@@ -82,8 +83,9 @@ def import_map(args: argparse.Namespace) -> int:
     data = {k: data[k] for k in order if k in data}
     scenario = load_data(data, source=str(out))
     text = dumps(data, f"{scenario.name}: imported by netsim import from {Path(args.map).name}.")
-    out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_text(text, encoding="utf-8")
+    with writing("--out", out):
+        out.parent.mkdir(parents=True, exist_ok=True)
+        out.write_text(text, encoding="utf-8")
     n_sites, n_links = len(scenario.candidate_sites), len(scenario.candidate_links)
     print(f"wrote {out}: {len(scenario.sites) + n_sites} sites ({n_sites} candidates), "
           f"{len(scenario.links) + n_links} links ({n_links} candidates or ending at one), "

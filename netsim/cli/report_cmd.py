@@ -124,12 +124,14 @@ def _write_pdf(args: argparse.Namespace, data: Any, tables: Any, path: Path,
 
 def run(args: argparse.Namespace) -> int:
     from netsim.cli.columns import choose_columns
-    from netsim.cli.outputs import refuse_overwrite
+    from netsim.cli.outputs import check_output_dir, refuse_overwrite, writing
     from netsim.report.build import write_report
     from netsim.report.sources import load_source
     from netsim.report.table import render
 
     _check(args)
+    if args.out:  # before any work
+        check_output_dir("--out", args.out)
     if args.simulate and args.source.endswith(".toml"):
         from netsim.cli.check_cmd import check_memory_in
         from netsim.scenario import load
@@ -143,16 +145,18 @@ def run(args: argparse.Namespace) -> int:
     options.update({"time_s": args.time_s} if args.time_s is not None else {"pairs": args.pairs or 1000})
     data = load_source(args.source, simulate=args.simulate, run_options=options,
                        scenario_path=args.scenario)
-    out = Path(args.out) if args.out else default_out(args.source, data.slug, args.simulate)
+    option = "--out" if args.out else "--out (default)"
+    out = check_output_dir(option, args.out or default_out(args.source, data.slug, args.simulate))
     refuse_overwrite([out], args.force, "report")
     pdf_only = args.format == "pdf"
     drawn: dict[str, Any] = {}
-    tables, written = write_report(data, out, "md" if pdf_only else args.format,
-                                   figures=not args.no_figures and not pdf_only,
-                                   metrics=_metrics(args.metric), params=args.param, write=not pdf_only,
-                                   drawn=drawn)
-    if pdf_only or args.pdf:
-        written.append(_write_pdf(args, data, tables, out / "proposal.pdf", drawn))
+    with writing(option, out):
+        tables, written = write_report(data, out, "md" if pdf_only else args.format,
+                                       figures=not args.no_figures and not pdf_only,
+                                       metrics=_metrics(args.metric), params=args.param, write=not pdf_only,
+                                       drawn=drawn)
+        if pdf_only or args.pdf:
+            written.append(_write_pdf(args, data, tables, out / "proposal.pdf", drawn))
     if not args.quiet:
         first = next(iter(tables.values()), None)
         summary = first if data.kind == "store" else tables.get("demands", first)

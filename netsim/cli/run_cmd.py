@@ -62,7 +62,7 @@ def _number(name: str, text: str | None, kind: type, allowed: str) -> Any:
 def run(args: argparse.Namespace) -> int:
     from netsim.cli.check_cmd import check_memory_in
     from netsim.cli.columns import select_tables
-    from netsim.cli.outputs import refuse_overwrite
+    from netsim.cli.outputs import check_output_dir, refuse_overwrite, writing
     from netsim.engine import run as simulate
     from netsim.errors import ParameterError
     from netsim.report.table import render
@@ -78,10 +78,12 @@ def run(args: argparse.Namespace) -> int:
         raise ParameterError("--seed", seed, "an integer >= 0")
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
-    out = Path(args.out) if args.out else Path("results") / scenario.slug
+    option = "--out" if args.out else "--out (default)"
+    out = check_output_dir(option, args.out or Path("results") / scenario.slug)
     refuse_overwrite([out / "run.json", out / "run.csv"], args.force, "run result")  # before the run
     result = simulate(scenario, pairs=pairs, time_s=time_s, precision=precision, seed=seed)
-    written = result.write(out)
+    with writing(option, out):
+        written = result.write(out)
     chosen = select_tables(result.tables(), args.format, args, COMPACT)
     if args.format == "json":
         import json

@@ -47,7 +47,7 @@ def register(subparsers: Any) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from netsim.cli.outputs import refuse_overwrite
+    from netsim.cli.outputs import check_output_dir, refuse_overwrite, writing
     from netsim.errors import ParameterError
     from netsim.scenario import load
     from netsim.sweep.sensitivity import DEFAULT_SPREAD, rank_parameters
@@ -60,12 +60,14 @@ def run(args: argparse.Namespace) -> int:
     if args.spread is not None and not 0 < args.spread < 1:
         raise ParameterError("--spread", args.spread, "a number in (0, 1)")
     scenario = load(args.file)
-    out = Path(args.out) if args.out else Path("results") / scenario.slug / "sensitivity"
+    option = "--out" if args.out else "--out (default)"
+    out = check_output_dir(option, args.out or Path("results") / scenario.slug / "sensitivity")
     refuse_overwrite([out], args.force, "sensitivity ranking")
     spread = args.spread if args.spread is not None else DEFAULT_SPREAD
     result = rank_parameters(scenario, method=args.method, samples=args.samples, spread=spread,
                              seed=args.seed, simulate_pairs=args.simulate)
-    written = write_sensitivity(result, out, figures=not args.no_figures)
+    with writing(option, out):
+        written = write_sensitivity(result, out, figures=not args.no_figures)
     table = result.table()
     shown = Table(table.title, table.columns, [r for r in table.rows if r["rank"] <= args.top], table.notes)
     if args.format == "json":

@@ -192,6 +192,9 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     store = Path(args.store) if args.store else default_store_path(plan)
     if args.dry_run:
         return _dry_run(args, plan, point_function, store)
+    from netsim.cli.outputs import check_output_file
+
+    check_output_file("--store" if args.store else "--store (default)", store)
     _print_routes_and_overrides(plan, dry_run=False)
     executor = make_executor(point_function, args.workers, args.cluster)
     summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
