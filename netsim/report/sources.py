@@ -129,14 +129,9 @@ def _from_scenario(path: Path, simulate: bool, run_options: Mapping[str, Any]) -
 
 
 def _read_json(path: Path) -> dict[str, Any]:
-    try:
-        value = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, json.JSONDecodeError) as exc:
-        raise ParameterError("SOURCE", str(path), f"a readable run result in JSON ({exc})") from None
-    if not isinstance(value, dict) or "demands" not in value:
-        raise ParameterError("SOURCE", str(path), "a run result written by `netsim run` "
-                             "(a JSON object with 'demands')")
-    return value
+    from netsim.report.runfile import read_run_file
+
+    return read_run_file(path)
 
 
 def _run_name(run: Mapping[str, Any]) -> str | None:
