@@ -41,10 +41,16 @@ def _filled_store(path: Path, points: int = 200) -> None:
 
 def test_layout_meta_and_wal(tmp_path: Path) -> None:
     path = tmp_path / "deep" / "dir" / "s.sqlite"
+    with create_or_resume(path, META):  # WAL while the sweep writes
+        db = sqlite3.connect(path)
+        assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        db.close()
     _filled_store(path, 3)
     assert path.read_bytes()[:16] == b"SQLite format 3\x00"  # SQLite file format header
     db = sqlite3.connect(path)
-    assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+    # closed: the journal folded into the file, one self-contained file (sqlite.org/wal.html)
+    assert db.execute("PRAGMA journal_mode").fetchone()[0] == "delete"
+    assert not Path(f"{path}-wal").exists()
     db.close()
     with open_store(path) as store:
         meta = store.meta()

@@ -17,12 +17,29 @@ Schema (version 1)::
 
 Only the coordinating process writes. Each finished point (its row and all its metric rows) is
 committed in one transaction, so a store killed at any moment holds whole points only.
+
+Every open (for reading or for resuming) checks the rows, not only the file: the tables and
+columns of the schema, each column's type and range (``parameters`` a JSON object of numbers,
+``value`` a finite number or NULL, ``status`` and ``kind`` from their sets, counts >= 0) and
+the meta entries read later (``spec``, ``base_routes``). The first damaged cell is a one-line
+:class:`StoreError` naming the table, the row and the column; a sweep refuses to resume into a
+damaged store rather than carry on beside the damage.
+
+The writer keeps the store in WAL mode while it runs; when it closes it checkpoints the journal
+into the file and returns to rollback-journal mode, so a finished store is one self-contained
+file. Reading never writes: :func:`open_store` connects with ``mode=ro`` (which makes no files
+beside a finished store), and with ``immutable=1`` when the store's directory cannot be written
+(nobody can then write the store, and SQLite needs no ``-shm`` file); a ``-wal`` journal left
+with results in a read-only directory (a writer killed there) is refused in one line.
 """
 
 from __future__ import annotations
 
 import json
+import math
+import os
 import sqlite3
+from urllib.parse import quote
 from collections.abc import Iterable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -31,7 +48,7 @@ from typing import Any, Self
 
 from netsim.errors import StoreError
 
-__all__ = ["FORMAT", "SCHEMA_VERSION", "PointRecord", "SweepStore", "create_or_resume", "open_store",
+__all__ = ["FORMAT", "SCHEMA_VERSION", "PointRecord", "SweepStore", "check_rows", "create_or_resume", "open_store",
            "refuse_other"]
 
 SCHEMA_VERSION = 1
@@ -83,9 +100,10 @@ def _guard(path: Path) -> Iterator[None]:
 class SweepStore:
     """An open sweep store. Use :func:`open_store` to read and :func:`create_or_resume` to write."""
 
-    def __init__(self, path: Path, connection: sqlite3.Connection) -> None:
+    def __init__(self, path: Path, connection: sqlite3.Connection, read_only: bool = False) -> None:
         self.path = path
         self._db = connection
+        self.read_only = read_only
 
     # -- reading (the API for reports) ------------------------------------------------------
     def meta(self) -> dict[str, str]:
@@ -103,7 +121,7 @@ class SweepStore:
             rows = self._db.execute(sql + " ORDER BY ordinal", args).fetchall()
         records = [dict(zip(_POINT_COLUMNS, row)) for row in rows]
         for rec in records:
-            rec["parameters"] = json.loads(rec["parameters"])
+            rec["parameters"] = _parameters(self.path, rec["point_id"], rec["parameters"])
         return records
 
     def metrics(self, kind: str | None = None, metric: str | None = None) -> list[dict[str, Any]]:
@@ -122,8 +140,11 @@ class SweepStore:
             rows = self._db.execute(sql + " ORDER BY p.ordinal, m.kind, m.name, m.metric", args).fetchall()
         keys = ("point_id", "repeat", "parameters", "kind", "name", "metric", "value")
         out = [dict(zip(keys, row)) for row in rows]
+        decoded: dict[str, dict[str, Any]] = {}
         for rec in out:
-            rec["parameters"] = json.loads(rec["parameters"])
+            if rec["point_id"] not in decoded:
+                decoded[rec["point_id"]] = _parameters(self.path, rec["point_id"], rec["parameters"])
+            rec["parameters"] = decoded[rec["point_id"]]
         return out
 
     def counts(self) -> dict[str, int]:
@@ -156,6 +177,16 @@ class SweepStore:
         return True
 
     def close(self) -> None:
+        if not self.read_only:
+            # Fold the journal into the file and leave WAL mode (resuming sets it again): a
+            # finished store is one self-contained file, which readers open with mode=ro without
+            # making -wal or -shm files beside it. Another open connection keeps WAL; SQLite then
+            # checkpoints when the last one closes.
+            try:
+                self._db.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+                self._db.execute("PRAGMA journal_mode = DELETE")
+            except sqlite3.DatabaseError:
+                pass
         self._db.close()
 
     def __enter__(self) -> Self:
@@ -175,9 +206,15 @@ class SweepStore:
         self._db.execute("COMMIT")
 
 
-def _connect(path: Path) -> sqlite3.Connection:
+def _connect(path: Path, uri_mode: str | None = None) -> sqlite3.Connection:
+    """A connection that has passed SQLite's quick check; ``uri_mode`` (``"mode=ro"``,
+    ``"immutable=1"``) opens the file read-only."""
     with _guard(path):
-        db = sqlite3.connect(str(path), isolation_level=None, timeout=30.0)
+        if uri_mode is None:
+            db = sqlite3.connect(str(path), isolation_level=None, timeout=30.0)
+        else:
+            uri = f"file:{quote(str(path.resolve()))}?{uri_mode}"
+            db = sqlite3.connect(uri, uri=True, isolation_level=None, timeout=30.0)
         try:
             check = db.execute("PRAGMA quick_check").fetchone()
         except sqlite3.DatabaseError:
@@ -213,14 +250,109 @@ def open_store(path: str | Path) -> SweepStore:
     path = Path(path)
     if not path.is_file():
         raise StoreError(f"{path}: no sweep store at this path")
-    db = _connect(path)
+    db = _connect(path, _read_mode(path))
     try:
-        _check_format(path, db)
-        db.execute("PRAGMA query_only = ON")
+        with _guard(path):
+            db.execute("PRAGMA query_only = ON")
+        check_rows(path, db, _check_format(path, db))
     except BaseException:
         db.close()
         raise
-    return SweepStore(path, db)
+    return SweepStore(path, db, read_only=True)
+
+
+def _read_mode(path: Path) -> str:
+    """``mode=ro``, or ``immutable=1`` when no ``-shm`` file can be made beside the store (a
+    read-only directory) and no ``-wal`` journal is waiting (a store closed cleanly has none)."""
+    directory = path.parent if str(path.parent) else Path(".")
+    if os.access(directory, os.W_OK | os.X_OK) or os.path.exists(f"{path}-shm"):
+        return "mode=ro"
+    wal = Path(f"{path}-wal")
+    if wal.exists() and wal.stat().st_size > 0:
+        raise StoreError(f"{path}: the store's journal ({wal.name}) holds results not yet in the file and its "
+                         "directory is read-only; copy the store with its -wal file to a writable directory")
+    return "immutable=1"
+
+
+_RECOVER = "move the store aside (or give --store a new file) and run the sweep again"
+
+
+def _damaged(path: Path, table: str, row: str, column: str, value: Any, allowed: str) -> StoreError:
+    text = repr(value)
+    text = text if len(text) <= 60 else text[:57] + "..."
+    return StoreError(f"{path}: damaged store: table {table}, row {row}, column {column} = {text}; "
+                      f"expected {allowed}; {_RECOVER}")
+
+
+def _parameters(path: Path, point_id: Any, text: Any) -> dict[str, Any]:
+    """A point's ``parameters`` cell decoded: a JSON object of key path -> finite number."""
+    allowed = "a JSON object of swept key paths and their numbers"
+    try:
+        value = json.loads(text) if isinstance(text, str) else None
+    except (json.JSONDecodeError, RecursionError, ValueError):
+        value = None
+    if not isinstance(value, dict) or not all(
+            isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in value.values()):
+        raise _damaged(path, "points", f"point_id={point_id!r}", "parameters", text, allowed)
+    return value
+
+
+#: Columns of each table and the check of each: (SQL condition a sound cell meets, allowed text).
+_COLUMN_CHECKS: dict[str, tuple[tuple[str, str, str], ...]] = {
+    "meta": (("key", "typeof(key) = 'text'", "text"), ("value", "typeof(value) = 'text'", "text")),
+    "points": (
+        ("point_id", "typeof(point_id) = 'text' AND length(point_id) > 0", "non-empty text"),
+        ("ordinal", "typeof(ordinal) = 'integer' AND ordinal >= 0", "an integer >= 0"),
+        ("parameters", "typeof(parameters) = 'text'", "a JSON object (text)"),
+        ("repeat", "typeof(repeat) = 'integer' AND repeat >= 0", "an integer >= 0"),
+        ("seed", "typeof(seed) = 'integer' AND seed >= 0", "an integer >= 0"),
+        ("status", "status IN ('pending', 'done', 'failed')", "one of pending, done, failed"),
+        ("started_utc", "typeof(started_utc) IN ('text', 'null')", "text or NULL"),
+        ("finished_utc", "typeof(finished_utc) IN ('text', 'null')", "text or NULL"),
+        ("duration_s", "duration_s IS NULL OR (typeof(duration_s) IN ('real', 'integer') AND duration_s >= 0 "
+                       "AND duration_s < 9e999)", "a finite number of seconds >= 0, or NULL"),
+        ("attempts", "typeof(attempts) = 'integer' AND attempts >= 0", "an integer >= 0"),
+        ("error", "typeof(error) IN ('text', 'null')", "text or NULL"),
+    ),
+    "metrics": (
+        ("point_id", "typeof(point_id) = 'text'", "text"),
+        ("kind", "kind IN ('demand', 'link', 'site', 'run', 'route')", "one of demand, link, site, run, route"),
+        ("name", "typeof(name) = 'text'", "text"),
+        ("metric", "typeof(metric) = 'text'", "text"),
+        ("value", "value IS NULL OR (typeof(value) IN ('real', 'integer') AND value > -9e999 AND value < 9e999)",
+         "a finite number or NULL"),
+    ),
+}
+_ROW_NAME = {"meta": "key", "points": "point_id", "metrics": "point_id"}
+
+
+def check_rows(path: Path, db: sqlite3.Connection, meta: dict[str, str]) -> None:
+    """A one-line :class:`StoreError` at the first damaged table, column or cell (see the module
+    docstring); nothing when the store is sound."""
+    with _guard(path):
+        for table, checks in _COLUMN_CHECKS.items():
+            present = {row[1] for row in db.execute(f"PRAGMA table_info({table})")}
+            missing = [column for column, _, _ in checks if column not in present]
+            if missing:
+                raise StoreError(f"{path}: damaged store: table {table} has no column {missing[0]}; {_RECOVER}")
+            for column, condition, allowed in checks:
+                bad = db.execute(f"SELECT rowid, {_ROW_NAME[table]}, {column} FROM {table} "
+                                 f"WHERE NOT ({condition}) OR ({condition}) IS NULL LIMIT 1").fetchone()
+                if bad is not None:
+                    raise _damaged(path, table, f"{_ROW_NAME[table]}={bad[1]!r} (rowid {bad[0]})", column, bad[2],
+                                   allowed)
+        for point_id, text in db.execute("SELECT point_id, parameters FROM points"):
+            _parameters(path, point_id, text)
+    for key in ("spec", "base_routes"):
+        if key in meta:
+            try:
+                value = json.loads(meta[key])
+            except (json.JSONDecodeError, RecursionError, ValueError):
+                value = None
+            if not isinstance(value, dict) or (key == "base_routes" and not all(
+                    isinstance(v, str) for v in value.values())):
+                raise _damaged(path, "meta", f"key={key!r}", "value", meta[key],
+                               "a JSON object" + (" of demand -> route" if key == "base_routes" else ""))
 
 
 def _initialise(path: Path, db: sqlite3.Connection, meta: dict[str, str]) -> None:
@@ -268,7 +400,9 @@ def create_or_resume(path: str | Path, meta: dict[str, str]) -> SweepStore:
             db.execute("PRAGMA synchronous = FULL")
             if not _tables(db):
                 _initialise(path, db, meta)
-        refuse_other(path, _check_format(path, db), meta)
+        stored = _check_format(path, db)
+        refuse_other(path, stored, meta)
+        check_rows(path, db, stored)
     except BaseException:
         db.close()
         raise
