@@ -94,6 +94,10 @@ def _check_numbers(args: argparse.Namespace) -> None:
         raise ParameterError("--point-timeout-s", timeout, "a number of seconds > 0")
     if args.workers is not None and args.workers < 1:
         raise ParameterError("--workers", args.workers, "an integer >= 1")
+    if args.cluster is not None:
+        from netsim.sweep.executors import parse_cluster
+
+        parse_cluster(args.cluster)  # before the scenario is read or Dask imported
 
 
 def _plan(args: argparse.Namespace) -> Any:
@@ -182,7 +186,7 @@ def _duration(seconds: float) -> str:
 
 def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     """Run ``netsim sweep`` for parsed ``args``; ``point_function`` defaults to the engine."""
-    from netsim.sweep.executors import make_executor
+    from netsim.sweep.executors import DaskPool, make_executor
     from netsim.sweep.runner import default_store_path, run_sweep, summary_line
     from netsim.sweep.worker import engine_point
 
@@ -197,8 +201,14 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     check_output_file("--store" if args.store else "--store (default)", store)
     _print_routes_and_overrides(plan, dry_run=False)
     executor = make_executor(point_function, args.workers, args.cluster)
-    summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
-                        point_timeout_s=args.point_timeout_s, quiet=args.quiet)
+    if isinstance(executor, DaskPool) and executor.local_workers is None:
+        executor.connect()  # an unreachable scheduler is refused before the store is touched
+    try:
+        summary = run_sweep(plan, executor, store_path=store, retry_failed=args.retry_failed,
+                            point_timeout_s=args.point_timeout_s, quiet=args.quiet)
+    finally:
+        if isinstance(executor, DaskPool):
+            executor.close()
     print(summary_line(summary), file=sys.stdout)
     if summary.done and not summary.failed:
         print(f"tables and figures: netsim report {store}")

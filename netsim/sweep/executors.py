@@ -26,8 +26,10 @@ error, so the results depend only on the task (data and seed), never on the exec
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
+import re
 import signal
 import sys
 import threading
@@ -43,7 +45,7 @@ from netsim.errors import ParameterError
 from netsim.sweep.store import PointRecord
 from netsim.sweep.worker import PointFunction, PointTask, execute, utc_now
 
-__all__ = ["MAX_ATTEMPTS", "DaskPool", "LocalPool", "default_workers", "make_executor"]
+__all__ = ["MAX_ATTEMPTS", "DaskPool", "LocalPool", "default_workers", "make_executor", "parse_cluster"]
 
 #: A point whose worker dies this many times is recorded as failed.
 MAX_ATTEMPTS = 3
@@ -274,15 +276,37 @@ def _import_distributed() -> Any:
     return distributed
 
 
-def _parse_cluster(address: str) -> tuple[str, int | None]:
+#: Schemes of a Dask scheduler address (Dask's communication back-ends).
+CLUSTER_SCHEMES = ("tcp", "tls", "ws", "wss", "ucx")
+#: Dask's default scheduler port, used when an address names none.
+DEFAULT_SCHEDULER_PORT = 8786
+#: How long to wait for a scheduler to answer before refusing its address.
+CONNECT_TIMEOUT_S = 10.0
+_CLUSTER_ALLOWED = ("local:N with N in [1, 1024], or a scheduler address SCHEME://HOST:PORT (scheme "
+                    + ", ".join(CLUSTER_SCHEMES) + "; port 1-65535), e.g. tcp://10.0.0.5:8786")
+_HOST_PORT = re.compile(r"(?:\[(?P<ip6>[0-9A-Fa-f:.]+)\]|(?P<host>[A-Za-z0-9](?:[A-Za-z0-9._-]{0,252}[A-Za-z0-9])?))"
+                        r"(?::(?P<port>[0-9]{1,5}))?")
+
+
+def parse_cluster(address: str) -> tuple[str, int | None]:
+    """``("local", N)`` for ``local:N``, else ``(normalised address, None)``; the scheme, host and
+    port are checked here, before Dask sees them (a ParameterError naming ``--cluster``)."""
     if address.startswith("local:"):
         count = address[len("local:"):]
         if not count.isdigit() or not 1 <= int(count) <= 1024:
-            raise ParameterError("--cluster", address, "local:N with N an integer in [1, 1024], or a scheduler address")
+            raise ParameterError("--cluster", address, _CLUSTER_ALLOWED)
         return "local", int(count)
-    if not address.strip():
-        raise ParameterError("--cluster", address, "local:N or a scheduler address such as tcp://host:8786")
-    return address, None
+    scheme, sep, rest = address.partition("://")
+    if not sep:
+        scheme, rest = "tcp", address
+    match = _HOST_PORT.fullmatch(rest)
+    if scheme not in CLUSTER_SCHEMES or match is None:
+        raise ParameterError("--cluster", address, _CLUSTER_ALLOWED)
+    port = int(match["port"]) if match["port"] else DEFAULT_SCHEDULER_PORT
+    if not 1 <= port <= 65535:
+        raise ParameterError("--cluster", address, _CLUSTER_ALLOWED)
+    host = f"[{match['ip6']}]" if match["ip6"] else match["host"]
+    return f"{scheme}://{host}:{port}", None
 
 
 class DaskPool:
@@ -290,8 +314,24 @@ class DaskPool:
 
     def __init__(self, function: PointFunction, address: str) -> None:
         self.function = function
-        self.address, self.local_workers = _parse_cluster(address)
+        self.address, self.local_workers = parse_cluster(address)
         self._distributed = _import_distributed()
+        self._connected: tuple[Any, Any] | None = None
+
+    def connect(self) -> None:
+        """Connect now (a one-line ParameterError if the scheduler does not answer), so that a
+        wrong address is refused before the store is touched; :meth:`run` then uses this client."""
+        if self._connected is None:
+            self._connected = self._client()
+
+    def close(self) -> None:
+        """Close a connection :meth:`connect` made that no run used (nothing was left to run)."""
+        if self._connected is not None:
+            client, cluster = self._connected
+            self._connected = None
+            client.close()
+            if cluster is not None:
+                cluster.close()
 
     def _client(self) -> tuple[Any, Any]:
         dist = self._distributed
@@ -300,13 +340,17 @@ class DaskPool:
                                         dashboard_address=None, silence_logs=40)
             return dist.Client(cluster), cluster
         try:
-            return dist.Client(self.address, timeout=30), None
-        except (OSError, TimeoutError) as exc:
-            raise ParameterError("--cluster", self.address, f"a reachable Dask scheduler ({exc})") from None
+            with _quiet_dask_logs():
+                return dist.Client(self.address, timeout=CONNECT_TIMEOUT_S), None
+        except Exception as exc:  # any failure to connect (refused, time-out, handshake) is one line
+            reason = " ".join(str(exc).split())[:120] or type(exc).__name__
+            raise ParameterError("--cluster", self.address, f"a Dask scheduler that answers within "
+                                                            f"{CONNECT_TIMEOUT_S:g} s ({reason})") from None
 
     def run(self, tasks: Iterable[PointTask]) -> Generator[PointRecord, None, None]:
         """Yield one record per task, in completion order."""
-        client, cluster = self._client()
+        client, cluster = self._connected or self._client()
+        self._connected = None
         try:
             yield from self._drive(client, iter(tasks))
         finally:
@@ -343,6 +387,23 @@ class DaskPool:
             return future.result()
         except self._distributed.KilledWorker as exc:
             return _lost(task, f"WorkerDied: Dask lost the workers running this point ({exc})")
+
+
+@contextlib.contextmanager
+def _quiet_dask_logs() -> Iterator[None]:
+    """Dask logs its own connection errors; the command says it in one line instead."""
+    import logging
+
+    loggers = [logging.getLogger(name) for name in ("distributed", "distributed.client", "distributed.comm.tcp",
+                                                     "distributed.core")]
+    levels = [logger.level for logger in loggers]
+    for logger in loggers:
+        logger.setLevel(logging.CRITICAL)
+    try:
+        yield
+    finally:
+        for logger, level in zip(loggers, levels):
+            logger.setLevel(level)
 
 
 def make_executor(function: PointFunction, workers: int | None = None,
