@@ -90,6 +90,16 @@ def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; Ctrl-C while it is still starting (importing, parsing) exits 130
+    with one line, as Ctrl-C during a command does."""
+    try:
+        return _main(argv)
+    except KeyboardInterrupt:
+        print("netsim: interrupted", file=sys.stderr)
+        return 130
+
+
+def _main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     args, extra = parser.parse_known_args(argv)
     if extra:

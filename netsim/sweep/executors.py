@@ -76,6 +76,27 @@ def _init_worker(started: Any, coordinator_pid: int) -> None:
     threading.Thread(target=_watch, args=(coordinator_pid,), daemon=True, name="netsim-watch").start()
 
 
+def _start_forkserver() -> None:
+    """Start the fork server with SIGINT ignored, so that it and every worker forked from it
+    ignore Ctrl-C from their first instruction (an ignored signal stays ignored across exec, and
+    Python then installs no KeyboardInterrupt handler), not only once the pool initializer has
+    run: a Ctrl-C while the server imports numpy or a worker starts prints no traceback. The
+    coordinator blocks SIGINT meanwhile (Linux keeps a blocked signal pending even while it is
+    ignored), so a Ctrl-C in that moment still reaches it once the handler is restored."""
+    from multiprocessing import forkserver
+
+    if threading.current_thread() is not threading.main_thread():
+        forkserver.ensure_running()  # signal dispositions can only be changed in the main thread
+        return
+    signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        forkserver.ensure_running()
+    finally:
+        signal.signal(signal.SIGINT, previous)
+        signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
+
+
 def _watch(pid: int) -> None:
     while True:
         time.sleep(_POLL_S)
@@ -113,6 +134,7 @@ class LocalPool:
             self._context = multiprocessing.get_context("forkserver")
             # Workers fork from a server that has already imported the worker code and numpy.
             self._context.set_forkserver_preload(["netsim.sweep.worker", "numpy"])
+            _start_forkserver()
         else:
             self._context = multiprocessing.get_context("spawn")
 
