@@ -27,6 +27,8 @@ from collections.abc import Iterator
 from pathlib import Path
 
 import pytest
+from hypothesis import HealthCheck, assume, given, settings
+from hypothesis import strategies as st
 from test_sweep_support import write_scenario
 
 from netsim.cli import main
@@ -200,3 +202,43 @@ def test_journal_left_in_a_read_only_directory_is_one_line(copy: Path, monkeypat
     _deny_directory(monkeypatch, copy)
     with pytest.raises(StoreError, match=r"kept\.sqlite: the store's journal \(kept\.sqlite-wal\) holds results"):
         open_store(copy / "kept.sqlite")
+
+
+COLUMNS = {"points": ("point_id", "ordinal", "parameters", "repeat", "seed", "status", "started_utc", "finished_utc",
+                      "duration_s", "attempts", "error"),
+           "metrics": ("point_id", "kind", "name", "metric", "value"),
+           "meta": ("value",)}
+CELLS = (st.none() | st.integers(-10**12, 10**12) | st.floats(allow_nan=True, allow_infinity=True)
+         | st.text(max_size=12) | st.binary(max_size=6)
+         | st.sampled_from(["{}", "{\"a\": 1}", "[]", "null", "{\"links[*].length_km\": null}", "done", "route"]))
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(table=st.sampled_from(sorted(COLUMNS)), data=st.data())
+def test_random_damage_is_refused_in_one_line_or_harmless(table: str, data: st.DataObject, finished: Path,
+                                                         tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    """Any cell of any table overwritten with any value: `report` either works (exit 0) or
+    refuses in one line (exit 2); never a traceback."""
+    column = data.draw(st.sampled_from(COLUMNS[table]))
+    value = data.draw(CELLS)
+    directory = tmp_path / "fuzz"
+    shutil.rmtree(directory, ignore_errors=True)
+    shutil.copytree(finished, directory)
+    path = directory / "sweep.sqlite"
+    db = sqlite3.connect(path)
+    db.execute("PRAGMA ignore_check_constraints = ON")
+    row = data.draw(st.integers(1, db.execute(f"SELECT COUNT(*) FROM {table}").fetchone()[0]))
+    try:
+        db.execute(f"UPDATE {table} SET {column} = ? WHERE rowid = (SELECT rowid FROM {table} "
+                   f"ORDER BY rowid LIMIT 1 OFFSET ?)", (value, row - 1))
+        db.commit()
+    except sqlite3.IntegrityError:  # NOT NULL or a duplicate key: SQLite refuses the damage itself
+        assume(False)
+    finally:
+        db.close()
+    code = main(["report", str(path), "--no-figures", "--quiet", "--force", "--out", str(directory / "rep")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code in (0, 2), err
+    assert not any("Traceback" in line for line in err)
+    if code == 2:
+        assert len(err) == 1, err

@@ -138,8 +138,9 @@ def run(args: argparse.Namespace) -> int:
 
         scenario = load(args.source)
         check_memory_in(scenario, args.source)  # named with its file, before the run
-        refuse_overwrite([Path(args.out) if args.out else default_out(args.source, scenario.slug, True)],
-                         args.force, "report")
+        early = check_output_dir("--out" if args.out else "--out (default)",
+                                 args.out or default_out(args.source, scenario.slug, True))
+        refuse_overwrite([early], args.force, "report")
     started = time.perf_counter()
     options = {"seed": args.seed}
     options.update({"time_s": args.time_s} if args.time_s is not None else {"pairs": args.pairs or 1000})
