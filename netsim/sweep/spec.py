@@ -35,7 +35,7 @@ from typing import Any
 
 import numpy as np
 
-from netsim.errors import Problem, ScenarioError, format_value
+from netsim.errors import Problem, ScenarioError, format_value, shorten
 from netsim.sweep.keypath import KeyPath, assign, integer_keys, parse_key, resolve
 
 __all__ = [
@@ -200,7 +200,8 @@ def _table_axes(table: Mapping[str, Any], problems: list[Problem]) -> list[Axis]
         return []
     axes = []
     for key_text, raw in vary.items():
-        where = f'sweep.vary."{key_text}"' if str(key_text).isprintable() else f"sweep.vary.{key_text!r}"
+        where = (f'sweep.vary."{shorten(key_text)}"' if str(key_text).isprintable()
+                 else f"sweep.vary.{format_value(key_text)}")
         try:
             axes.append(_make_axis(key_text, raw, where))
         except ValueError as exc:
@@ -223,7 +224,7 @@ def _cli_axes(vary: Sequence[str], problems: list[Problem]) -> list[Axis]:
     for item in vary:
         key_text, sep, raw = _split_vary(item)
         shown = key_text.strip()
-        where = f"--vary {shown if shown.isprintable() else repr(shown)}"
+        where = f"--vary {shorten(shown) if shown.isprintable() else format_value(shown)}"
         if not sep:
             problems.append(Problem("--vary", f"{format_value(item)} is not allowed; expected KEY=VALUES"))
             continue
