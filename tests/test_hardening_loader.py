@@ -11,14 +11,20 @@ OverflowError.
 from __future__ import annotations
 
 import sys
+import tomllib
+import unittest.mock
 from pathlib import Path
 from typing import Any
 
 import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from netsim.cli import main
+from netsim.design.tomlout import dumps
 from netsim.errors import ScenarioError, format_value, shorten
 from netsim.scenario import load
+from netsim.scenario import limits
 from netsim.scenario.limits import MAX_DEPTH, MAX_FILE_BYTES, MAX_INTEGER_DIGITS, deepest, scan_text
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -273,3 +279,45 @@ def test_the_shortening_helper() -> None:
     assert format_value(10 ** 5000) == "an integer of 5001 digits"  # repr() would raise beyond 4300 digits
     assert format_value(-(10 ** 400)) == "a negative integer of 401 digits"
     assert format_value(12) == "12" and format_value(0.5) == "0.5"
+
+
+# --- fuzz-style: the scan never refuses valid TOML within the limits, and never lets a traceback out
+
+_TRICKY = st.text(alphabet='ab.[]{}#"\'\\=,\n 1e_-', max_size=40)
+_SCALARS = st.one_of(st.booleans(), st.integers(min_value=-10 ** 80, max_value=10 ** 80),
+                     st.floats(allow_nan=False, allow_infinity=False), _TRICKY)
+_DATA = st.recursive(
+    _SCALARS,
+    lambda inner: st.one_of(st.lists(inner, max_size=3), st.dictionaries(_TRICKY, inner, max_size=3)),
+    max_leaves=30,
+)
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.dictionaries(_TRICKY, _DATA, min_size=1, max_size=4))
+def test_the_scan_accepts_every_valid_file_within_the_limits(data: dict) -> None:
+    # TOML 1.0 (toml.io): strings, comments and quoted keys may hold brackets, dots, '#' and digits;
+    # the scan must skip them as the parser does (tomllib is the reference)
+    text = dumps(data)
+    assert tomllib.loads(text) == data
+    # with the limit lowered to the data's own depth, a bracket or dot counted inside a string,
+    # comment or quoted key would push the scan over it
+    with unittest.mock.patch.object(limits, "MAX_DEPTH", deepest(data)[0]):
+        assert scan_text(text) == [], text
+
+
+_TROUBLE = st.sampled_from(["[", "{a = ", "z.", "9", '"', "'''", "#", "]", "}", "\n"])
+
+
+@settings(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.integers(min_value=0, max_value=len(TWO)), _TROUBLE,
+                          st.integers(min_value=1, max_value=6000)), min_size=1, max_size=3))
+def test_mutated_files_never_raise_anything_but_a_scenario_error(edits: list) -> None:
+    # runs of brackets, inline tables, key parts, digits and quotes inserted anywhere in a valid file
+    text = TWO
+    for position, piece, count in sorted(edits, reverse=True):
+        text = text[:position] + piece * count + text[position:]
+    try:
+        load_text(text)
+    except ScenarioError as exc:
+        assert all(len(line) < 1000 for line in str(exc).splitlines())

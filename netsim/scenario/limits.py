@@ -83,7 +83,10 @@ def scan_text(text: str) -> list[Problem]:
             if depth == 0 and text[start:match.start()].strip() == "":
                 header_match = _HEADER.match(text, match.start())
                 if header_match:
-                    table, key = ".".join(_parts(header_match[2])), ""
+                    parts = _parts(header_match[2])
+                    if len(parts) > MAX_DEPTH:
+                        return [_long_key(parts, text, match.start())]
+                    table, key = ".".join(parts), ""
                     header = table
                     if header_match[1] == "[[":
                         arrays[table] = arrays.get(table, -1) + 1
@@ -97,16 +100,12 @@ def scan_text(text: str) -> list[Problem]:
                 return problems
         elif kind == "close":
             depth = max(0, depth - 1)
-        elif kind in ("assign", "dotted"):
+        elif kind == "assign":  # (a "dotted" token is a float or part of a header: not counted)
             parts = _parts(match.group(kind))
-            if kind == "assign" and depth == 0:  # a key of the table, not one inside an inline table
-                key = ".".join(parts)
             if len(parts) > MAX_DEPTH:
-                shown = shorten(".".join(parts))
-                problems.append(Problem(shown, f"a key of {len(parts)} parts (line "
-                                        f"{_line(text, match.start())}) is not allowed; expected at most "
-                                        f"{MAX_DEPTH} parts"))
-                return problems
+                return [_long_key(parts, text, match.start())]
+            if depth == 0:  # a key of the table, not one inside an inline table
+                key = ".".join(parts)
         elif kind == "integer":
             digits = sum(ch.isdigit() for ch in match.group(kind))
             if digits > MAX_INTEGER_DIGITS:
@@ -115,6 +114,11 @@ def scan_text(text: str) -> list[Problem]:
                                         f"{_line(text, match.start())}) is not allowed; expected at most "
                                         f"{MAX_INTEGER_DIGITS} digits{_allowed(table, key)}"))
     return problems
+
+
+def _long_key(parts: list[str], text: str, pos: int) -> Problem:
+    return Problem(shorten(".".join(parts)), f"a key of {len(parts)} parts (line {_line(text, pos)}) is not "
+                                             f"allowed; expected at most {MAX_DEPTH} parts")
 
 
 def _allowed(header: str, key: str) -> str:
