@@ -114,7 +114,7 @@ class ScenarioError(NetsimError):
     def __init__(self, problems: list[Problem], source: str | None = None) -> None:
         self.problems = list(problems)
         self.source = source
-        prefix = f"{source}: " if source else ""
+        prefix = f"{shorten(source, 4 * SHOWN_CHARACTERS)}: " if source else ""
         super().__init__("\n".join(prefix + str(p) for p in self.problems))
 
 

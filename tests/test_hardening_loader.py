@@ -321,3 +321,15 @@ def test_mutated_files_never_raise_anything_but_a_scenario_error(edits: list) ->
         load_text(text)
     except ScenarioError as exc:
         assert all(len(line) < 1000 for line in str(exc).splitlines())
+
+
+@pytest.mark.parametrize("argv", [
+    ["check", "f" * 100_000],                                   # a file name (not found)
+    ["check", str(ROOT / "scenarios" / "chain3.toml"), "x" * 100_000],  # an argument no option takes
+    ["check", str(ROOT / "scenarios" / "chain3.toml"), "--format", "x" * 100_000],
+    ["budget", str(ROOT / "scenarios" / "chain3.toml"), "--columns", "k" * 100_000],
+])
+def test_long_command_line_words_are_shortened(argv: list[str], capsys) -> None:
+    code, out, err = _cli(argv, capsys)
+    line = _one_line_refusal(code, out, err, argv[0])
+    assert len(line) < 1000 and "(100000 characters)" in line

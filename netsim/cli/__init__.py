@@ -19,7 +19,7 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from netsim import __version__
-from netsim.errors import NetsimError, format_value
+from netsim.errors import NetsimError, format_value, shorten
 
 __all__ = ["OneLineParser", "build_parser", "main", "seed_value"]
 
@@ -113,7 +113,7 @@ def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra:
     word = extra[0].split("=", 1)[0]
     close = difflib.get_close_matches(word, options, n=1) if word.startswith("-") else []
     hint = f"did you mean {close[0]}? " if close else ""
-    return (f"{prog}: error: {' '.join(extra)}: not an option or argument of {prog}; "
+    return (f"{prog}: error: {shorten(' '.join(extra))}: not an option or argument of {prog}; "
             f"{hint}see {prog} --help")
 
 
