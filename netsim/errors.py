@@ -22,21 +22,55 @@ __all__ = [
     "ScenarioError",
     "StoreError",
     "format_value",
+    "integer_digits",
+    "shorten",
 ]
+
+#: The longest value, key or name an error message shows whole; longer ones are cut by
+#: :func:`shorten` (the first characters, "..." and the full length), so that a line stays a line.
+SHOWN_CHARACTERS = 60
 
 
 class NetsimError(Exception):
     """Base class of every error netsim raises on bad input or an unusable file."""
 
 
+def shorten(text: str, limit: int = SHOWN_CHARACTERS) -> str:
+    """``text`` whole when it has at most ``limit`` characters, else its first ``limit``
+    characters, ``...`` and its length: ``'zzzz...' (5000 characters)``. Every message builder
+    passes values, keys and names through here (via :func:`format_value` and :class:`Problem`)."""
+    if len(text) <= limit:
+        return text
+    return f"{text[:limit]}... ({len(text)} characters)"
+
+
+def integer_digits(value: int) -> int:
+    """The number of decimal digits of ``value``, without converting it to text (Python refuses to
+    convert integers beyond 4300 digits)."""
+    magnitude = abs(value)
+    if magnitude < 10:
+        return 1
+    digits = int(math.log10(magnitude)) + 1
+    if 10 ** (digits - 1) > magnitude:
+        digits -= 1
+    elif 10 ** digits <= magnitude:
+        digits += 1
+    return digits
+
+
 def format_value(value: Any) -> str:
-    """Render a received value compactly for an error message."""
+    """Render a received value compactly for an error message (long ones shortened)."""
+    if isinstance(value, bool):
+        return repr(value)
     if isinstance(value, float):
         return repr(value) if not math.isfinite(value) else f"{value:g}"
     if isinstance(value, str):
-        return repr(value)
-    text = repr(value)
-    return text if len(text) <= 60 else text[:57] + "..."
+        if len(value) <= SHOWN_CHARACTERS:
+            return repr(value)
+        return f"{value[:SHOWN_CHARACTERS]!r}... ({len(value)} characters)"
+    if isinstance(value, int) and value.bit_length() > 200:
+        return f"{'a negative' if value < 0 else 'an'} integer of {integer_digits(value)} digits"
+    return shorten(repr(value))
 
 
 class ParameterError(NetsimError, ValueError):
@@ -56,7 +90,7 @@ class ParameterError(NetsimError, ValueError):
         self.name = name
         self.value = value
         self.allowed = allowed
-        super().__init__(f"{name} = {format_value(value)} is not allowed; expected {allowed}")
+        super().__init__(f"{shorten(name)} = {format_value(value)} is not allowed; expected {allowed}")
 
 
 @dataclass(frozen=True)
@@ -67,7 +101,8 @@ class Problem:
     message: str
 
     def __str__(self) -> str:
-        return f"{self.path}: {self.message}" if self.path else self.message
+        # the keys in a path are shortened where the path is built; this is the safety net
+        return f"{shorten(self.path, 4 * SHOWN_CHARACTERS)}: {self.message}" if self.path else self.message
 
 
 class ScenarioError(NetsimError):
@@ -79,7 +114,7 @@ class ScenarioError(NetsimError):
     def __init__(self, problems: list[Problem], source: str | None = None) -> None:
         self.problems = list(problems)
         self.source = source
-        prefix = f"{source}: " if source else ""
+        prefix = f"{shorten(source, 4 * SHOWN_CHARACTERS)}: " if source else ""
         super().__init__("\n".join(prefix + str(p) for p in self.problems))
 
 

@@ -170,7 +170,7 @@ def test_dephase_equals_the_dephasing_channel() -> None:
     ("sites", "photon_indistinguishability", -0.1, "a number in [0, 1]"),
     ("sites", "attempt_dephasing", 2, "a number in [0, 1]"),
     ("sites", "memory_transfer_s", -1e-3, "a number >= 0 (s)"),
-    ("links", "phase_noise_rad", -0.2, "a number >= 0 (rad)"),
+    ("links", "phase_noise_rad", -0.2, "a number in [0, 10] (rad)"),
 ])
 def test_bad_values_get_one_line_errors(where: str, key: str, value: object, allowed: str) -> None:
     """Each new key refuses values outside its range with a message naming the key, the value and

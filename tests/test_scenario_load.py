@@ -227,5 +227,5 @@ def test_error_lines_carry_the_source() -> None:
     with pytest.raises(ScenarioError) as info:
         load_data(data, source="wickford.toml")
     assert str(info.value) == ("wickford.toml: links[2].length_km: -1 is not allowed; "
-                               "expected a number > 0 (km)")
+                               "expected a number in [0.0001, 40000] (km)")
     assert info.value.source == "wickford.toml"

@@ -19,9 +19,9 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from netsim import __version__
-from netsim.errors import NetsimError
+from netsim.errors import NetsimError, format_value, shorten
 
-__all__ = ["OneLineParser", "build_parser", "main"]
+__all__ = ["OneLineParser", "build_parser", "main", "seed_value"]
 
 #: Subcommand modules, in the order ``netsim --help`` lists them.
 COMMANDS = ("link", "check", "budget", "run", "sweep", "sensitivity", "report", "compare", "profiles", "design",
@@ -52,12 +52,32 @@ def house_style(message: str) -> str:
     ``--pairs = 'ten' is not allowed; expected an integer``. Other messages pass unchanged."""
     match = re.fullmatch(r"argument (\S+?)(?:/\S+)?: invalid (int|float) value: '(.*)'", message)
     if match:
-        return f"{match[1]} = {match[3]!r} is not allowed; expected {_KINDS[match[2]]}"
+        return f"{match[1]} = {format_value(match[3])} is not allowed; expected {_KINDS[match[2]]}"
     match = re.fullmatch(r"argument (\S+?)(?:/\S+)?: invalid choice: '(.*)' \(choose from (.*)\)", message)
     if match:
         choices = ", ".join(c.strip().strip("'") for c in match[3].split(","))
-        return f"{match[1]} = {match[2]!r} is not allowed; expected one of {choices}"
+        return f"{match[1]} = {format_value(match[2])} is not allowed; expected one of {choices}"
+    match = re.fullmatch(r"argument (\S+?)(?:/\S+)?: (\1 = .*)", message, flags=re.DOTALL)
+    if match:  # a value refused by the option's own type (e.g. seed_value): already house style
+        return match[2]
     return message
+
+
+#: What ``--seed`` takes in every command.
+SEED_ALLOWED = "an integer >= 0"
+
+
+def seed_value(text: str) -> int:
+    """The ``type`` of every ``--seed`` option: an integer >= 0 (numpy's seeds are non-negative;
+    a negative one must not be echoed back as if it had been used)."""
+    try:
+        seed = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"--seed = {format_value(text)} is not allowed; "
+                                         f"expected {SEED_ALLOWED}") from None
+    if seed < 0:
+        raise argparse.ArgumentTypeError(f"--seed = {format_value(seed)} is not allowed; expected {SEED_ALLOWED}")
+    return seed
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -75,6 +95,14 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _command_names(parser: argparse.ArgumentParser) -> list[str]:
+    """The subcommands the parser knows, in the order ``netsim --help`` lists them."""
+    for action in parser._actions:
+        if isinstance(action, argparse._SubParsersAction):
+            return list(action.choices)
+    return []
+
+
 def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra: list[str]) -> str:
     """One line for arguments no option takes, naming the command, with the nearest option."""
     prog = f"netsim {command}" if command else "netsim"
@@ -85,7 +113,7 @@ def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra:
     word = extra[0].split("=", 1)[0]
     close = difflib.get_close_matches(word, options, n=1) if word.startswith("-") else []
     hint = f"did you mean {close[0]}? " if close else ""
-    return (f"{prog}: error: {' '.join(extra)}: not an option or argument of {prog}; "
+    return (f"{prog}: error: {shorten(' '.join(extra))}: not an option or argument of {prog}; "
             f"{hint}see {prog} --help")
 
 
@@ -106,7 +134,10 @@ def _main(argv: Sequence[str] | None = None) -> int:
         print(_unknown_option(parser, getattr(args, "command", None), extra), file=sys.stderr)
         return 2
     if not getattr(args, "func", None):
-        parser.print_help()
+        # as argparse does for a missing required argument: the usage and one line on stderr, exit 2
+        parser.print_usage(sys.stderr)
+        print(f"netsim: error: a command is required; one of {', '.join(_command_names(parser))} "
+              "(netsim --help describes them)", file=sys.stderr)
         return 2
     args.argv = list(argv) if argv is not None else None  # the command as typed, for provenance
     try:

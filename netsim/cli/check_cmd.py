@@ -81,7 +81,7 @@ def _needs_design(scenario: Any, path: str) -> None:
         return
     import networkx as nx
 
-    from netsim.errors import Problem, ScenarioError
+    from netsim.errors import Problem, ScenarioError, format_value
     from netsim.network import build_graph
     from netsim.network.routing import relay_graph
 
@@ -90,7 +90,7 @@ def _needs_design(scenario: Any, path: str) -> None:
     for d in scenario.demands:
         relays = relay_graph(graph, d.a, d.b)
         if not nx.has_path(relays, d.a, d.b):
-            problems.append(Problem(f"demands[{d.index}].users", f"[{d.a!r}, {d.b!r}] is not allowed here; only "
+            problems.append(Problem(f"demands[{d.index}].users", f"[{format_value(d.a)}, {format_value(d.b)}] is not allowed here; only "
                                     "candidate sites or links join them, which exist once a design chooses "
                                     "them; expected a built route (run netsim design FILE first)"))
     if problems:

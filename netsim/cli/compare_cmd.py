@@ -16,6 +16,7 @@ _STEMS = ("compare-demands", "compare-totals", "compare-bottlenecks")
 
 def register(subparsers: Any) -> None:
     """Add the ``compare`` subcommand."""
+    from netsim.cli import seed_value
     from netsim.cli.outputs import add_force_option
 
     parser = subparsers.add_parser(
@@ -27,7 +28,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("files", metavar="FILE", nargs="+", help="two or more scenario files (TOML)")
     parser.add_argument("--pairs", type=int, default=None, help="pairs per demand per run (default 200)")
     parser.add_argument("--time-s", type=float, default=None, help="simulated seconds per run instead")
-    parser.add_argument("--seed", type=int, default=0, help="the seed every candidate runs with (default 0)")
+    parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="the seed every candidate runs with (default 0)")
     parser.add_argument("--no-simulate", action="store_true", help="bounds and bottlenecks only")
     parser.add_argument("--format", default="table", help="one of " + ", ".join(_FORMATS) + " (default table)")
     parser.add_argument("--out", default=None,

@@ -12,6 +12,7 @@ __all__ = ["design", "register"]
 
 def register(subparsers: Any) -> None:
     """Add the ``design`` subcommand."""
+    from netsim.cli import seed_value
     parser = subparsers.add_parser(
         "design", help="choose candidate repeaters, fibres, memory slots and modes at least cost",
         description="Solve a mixed-integer linear program over candidate routes (closed-form rates "
@@ -29,7 +30,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--time-limit-s", metavar="T", default="60", help="solver time limit (default 60 s)")
     parser.add_argument("--pairs", metavar="N", default="500", help="pairs per demand simulated (default 500)")
     parser.add_argument("--rounds", metavar="R", default="3", help="simulate-and-tighten rounds (default 3)")
-    parser.add_argument("--seed", metavar="S", default="0", help="random seed of the simulation (default 0)")
+    parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="random seed of the simulation (default 0)")
     parser.add_argument("--wait-target", metavar="W", default="0.05",
                         help="share of slot requests allowed to wait, for the memory sizing (default 0.05)")
     parser.add_argument("--no-simulate", action="store_true", help="solve only; skip the simulation")
@@ -76,7 +77,7 @@ def design(args: argparse.Namespace) -> int:
         max_utilisation=_float("--max-utilisation", args.max_utilisation, "a number in (0, 1]", 0.0, 1.0),
         time_limit_s=_float("--time-limit-s", args.time_limit_s, "a number > 0 (s)", 0.0, float("inf")))
     pairs, rounds = _int("--pairs", args.pairs, 1), _int("--rounds", args.rounds, 1)
-    seed = _int("--seed", args.seed, 0)
+    seed = args.seed
     wait_target = _float("--wait-target", args.wait_target, "a number in [0, 1]", 0.0, 1.0, low_open=False)
     scenario = load(args.file)
     option = "--out" if args.out else "--out (default)"

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-import tomllib
 from pathlib import Path
 from typing import Any
 
@@ -38,15 +37,11 @@ def register(subparsers: Any) -> None:
 
 def _template(path: str | None) -> dict[str, Any]:
     from netsim.errors import Problem, ScenarioError
+    from netsim.scenario.loader import read_toml
 
     if path is None:
         return {}
-    try:
-        data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise ScenarioError([Problem("", f"cannot read the file: {exc.strerror or exc}")], source=path) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ScenarioError([Problem("", f"TOML syntax error: {exc}")], source=path) from None
+    data = read_toml(path)  # the limits and messages of a scenario file
     bad = [k for k in data if k not in TEMPLATE_TABLES]
     if bad:
         raise ScenarioError([Problem(k, "not allowed in a --with file; expected only "

@@ -20,6 +20,7 @@ COMPACT = {
 
 def register(subparsers: Any) -> None:
     """Add the ``report`` subcommand."""
+    from netsim.cli import seed_value
     from netsim.cli.outputs import add_force_option
 
     parser = subparsers.add_parser(
@@ -48,7 +49,7 @@ def register(subparsers: Any) -> None:
                              "scenarios/<name>.toml when its name or content hash matches)")
     parser.add_argument("--pairs", type=int, default=None, help="with --simulate: pairs per demand (default 1000)")
     parser.add_argument("--time-s", type=float, default=None, help="with --simulate: simulated seconds instead")
-    parser.add_argument("--seed", type=int, default=0, help="random seed of the simulation (--simulate) and of the ranking in the PDF (default 0)")
+    parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="random seed of the simulation (--simulate) and of the ranking in the PDF (default 0)")
     parser.add_argument("--metric", action="append", default=None,
                         help="store only: metric to pivot (repeatable; default rate_per_s and fidelity_mean)")
     parser.add_argument("--param", action="append", default=None,

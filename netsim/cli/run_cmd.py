@@ -23,6 +23,7 @@ COMPACT = {
 
 def register(subparsers: Any) -> None:
     """Add the ``run`` subcommand."""
+    from netsim.cli import seed_value
     from netsim.cli.columns import add_column_options
     from netsim.cli.outputs import add_force_option
 
@@ -37,7 +38,7 @@ def register(subparsers: Any) -> None:
     stop.add_argument("--time-s", metavar="T", help="stop after T simulated seconds")
     stop.add_argument("--precision", metavar="R",
                       help="stop once every rate is known to a relative 95%% half-width R (e.g. 0.05)")
-    parser.add_argument("--seed", metavar="S", default="0", help="random seed (default 0); same seed, same numbers")
+    parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="random seed (default 0); same seed, same numbers")
     parser.add_argument("--out", metavar="DIR", default=None, help="output directory (default results/<scenario>/)")
     parser.add_argument("--format", default="table", help="printed format: " + ", ".join(_FORMATS) + " (default table)")
     add_force_option(parser)
@@ -73,9 +74,7 @@ def run(args: argparse.Namespace) -> int:
     pairs = _number("--pairs", args.pairs, int, "an integer >= 1")
     time_s = _number("--time-s", args.time_s, float, "a finite time > 0 in seconds")
     precision = _number("--precision", args.precision, float, "a relative half-width in (0, 1), e.g. 0.05")
-    seed = _number("--seed", args.seed, int, "an integer >= 0")
-    if seed < 0:
-        raise ParameterError("--seed", seed, "an integer >= 0")
+    seed = args.seed
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
     option = "--out" if args.out else "--out (default)"

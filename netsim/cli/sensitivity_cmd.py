@@ -14,6 +14,7 @@ _FORMATS = ("table", "md", "csv", "json")
 
 def register(subparsers: Any) -> None:
     """Add the ``sensitivity`` subcommand."""
+    from netsim.cli import seed_value
     from netsim.cli.outputs import add_force_option
 
     parser = subparsers.add_parser(
@@ -35,7 +36,7 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--simulate", type=int, default=None, metavar="PAIRS",
                         help="evaluate every sample by a short engine run of PAIRS pairs per demand "
                              "instead of the closed forms (slow)")
-    parser.add_argument("--seed", type=int, default=0, help="seed of the sampling (default 0)")
+    parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="seed of the sampling (default 0)")
     parser.add_argument("--format", default="table", help="printed format: " + ", ".join(_FORMATS) + " (default table)")
     parser.add_argument("--top", type=int, default=3, metavar="K",
                         help="printed rows per demand and figure (default 3; the files hold every row)")

@@ -43,6 +43,8 @@ examples:
 
 
 def _add_spec_options(parser: argparse.ArgumentParser) -> None:
+    from netsim.cli import seed_value
+
     parser.add_argument("file", metavar="FILE", help="scenario file (TOML)")
     parser.add_argument("--vary", action="append", default=[], metavar="KEY=VALUES",
                         help="vary a numeric key (repeatable); replaces the file's axis with the same key")
@@ -50,7 +52,7 @@ def _add_spec_options(parser: argparse.ArgumentParser) -> None:
                         help="every combination of the axes (grid, default) or their i-th values together (zip)")
     parser.add_argument("--repeats", type=int, default=None, metavar="N",
                         help="independent repetitions of each combination (default 1)")
-    parser.add_argument("--seed", type=int, default=None, metavar="S", help="base seed (default 0)")
+    parser.add_argument("--seed", type=seed_value, default=None, metavar="S", help="base seed (default 0)")
     stop = parser.add_mutually_exclusive_group()
     stop.add_argument("--pairs", type=int, default=None, metavar="N", help="engine stop rule: N pairs per demand")
     stop.add_argument("--time-s", type=float, default=None, metavar="T", help="engine stop rule: T simulated seconds")

@@ -177,7 +177,7 @@ def _geojson(path: Path, snap_m: float, problems: list[Problem]) -> tuple[list[d
         props = dict(feature.get("properties") or {}) if isinstance(feature, dict) else {}
         kind = geometry.get("type") if isinstance(geometry, dict) else None
         name = props.get("name")
-        label = f"features[{i}]" + (f" ({name!r})" if isinstance(name, str) else "")
+        label = f"features[{i}]" + (f" ({format_value(name)})" if isinstance(name, str) else "")
         coords = geometry.get("coordinates") if isinstance(geometry, dict) else None
         if kind == "Point":
             point = _lonlat(label, coords, problems)
@@ -241,7 +241,7 @@ def _line_ends(label: str, props: dict[str, Any], points: list[tuple[float, floa
             if metres < best_m:
                 best, best_m = name, metres
         if best is None or best_m > snap_m:
-            near = f"; the nearest site, {best!r}, is {best_m:.0f} m away" if best else ""
+            near = f"; the nearest site, {format_value(best)}, is {best_m:.0f} m away" if best else ""
             problems.append(Problem(label, f"the {which} point [{lon:g}, {lat:g}] is not within {snap_m:g} m of a "
                                            f"site{near}; give properties a and b or move the point"))
             return None
@@ -260,7 +260,7 @@ def _read_csv(path: Path, label: str, problems: list[Problem]) -> list[tuple[str
     for i, row in enumerate(rows):
         name = row.get("name") or (f"{row.get('a')}-{row.get('b')}" if row.get("a") else None)
         extra = row.pop(None, None)  # type: ignore[call-overload]
-        tag = f"{path.name} row {i + 2}" + (f" ({name!r})" if name else "")
+        tag = f"{path.name} row {i + 2}" + (f" ({format_value(name)})" if name else "")
         if extra:
             problems.append(Problem(tag, f"{len(extra)} value(s) beyond the header's columns is not allowed"))
         out.append((tag, {k: v for k, v in row.items() if k is not None}))
@@ -319,14 +319,14 @@ def _graphml(path: Path, problems: list[Problem]) -> tuple[list[dict[str, Any]],
         props = {k: (str(v) if not isinstance(v, str) else v) if isinstance(v, bool) is False else v
                  for k, v in attrs.items()}
         props.setdefault("name", str(node))
-        label = f"node {node!r}"
+        label = f"node {format_value(node)}"
         ll, xy = _positioned(label, props, problems)
         raw_sites.append((label, props, ll, xy))
         ids[node] = props["name"]
     sites, site_labels = _site_entries(raw_sites, problems)
     rows = []
     for u, v, attrs in graph.edges(data=True):
-        rows.append((f"edge {u!r}-{v!r}", {"a": ids.get(u), "b": ids.get(v), **dict(attrs)}))
+        rows.append((f"edge {format_value(u)}-{format_value(v)}", {"a": ids.get(u), "b": ids.get(v), **dict(attrs)}))
     links, link_labels = _table_links(rows, set(ids.values()), problems)
     return sites, site_labels, links, link_labels
 
@@ -402,15 +402,15 @@ def _duplicates(sites: list[dict[str, Any]], site_labels: list[str], links: list
     pairs: dict[frozenset[str], str] = {}
     for site, label in zip(sites, site_labels):
         if site["name"] in seen:
-            out.append(Problem(label, f"name: {site['name']!r} is not allowed; {seen[site['name']]} has it already"))
+            out.append(Problem(label, f"name: {format_value(site['name'])} is not allowed; {seen[site['name']]} has it already"))
         seen.setdefault(site["name"], label)
     for link, label in zip(links, link_labels):
         key = frozenset(link["ends"])
         if len(key) == 1:
-            out.append(Problem(label, f"both ends are {link['ends'][0]!r}, which is not allowed; a fibre joins two "
+            out.append(Problem(label, f"both ends are {format_value(link['ends'][0])}, which is not allowed; a fibre joins two "
                                       "different sites"))
         elif key in pairs:
-            out.append(Problem(label, f"a second fibre between {link['ends'][0]!r} and {link['ends'][1]!r} is not "
+            out.append(Problem(label, f"a second fibre between {format_value(link['ends'][0])} and {format_value(link['ends'][1])} is not "
                                       f"allowed ({pairs[key]} joins them); merge them and give modes"))
         pairs.setdefault(key, label)
     return out

@@ -119,8 +119,9 @@ class LightPath:
                 total += link.extra_loss_db if distance_km > start else 0.0
                 continue
             inside = min(max(distance_km - start, 0.0), link.length_km)
-            per_km = link.attenuation_db_per_km + link.extra_loss_db / link.length_km
-            total += per_km * inside
+            # the extra loss spread evenly along the link, as a share of its length: dividing the
+            # loss by a subnormal length (5e-324 km) overflowed to inf and made the loss NaN
+            total += link.attenuation_db_per_km * inside + link.extra_loss_db * (inside / link.length_km)
             start += link.length_km
         return total
 

@@ -265,4 +265,7 @@ def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut
     """
     if not nx.has_path(graph, a, b):
         return 0.0
-    return float(nx.minimum_cut_value(graph, a, b, capacity=weight))
+    try:
+        return float(nx.minimum_cut_value(graph, a, b, capacity=weight))
+    except nx.NetworkXUnbounded:  # a path of lossless links (eta = 1): -log2(1 - eta) is unbounded
+        return math.inf

@@ -234,8 +234,12 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
                         f"to {MAX_EXACT_SWAP_HOPS}); simulate it")
     if not row["meets_fidelity"]:
         included = "memory decay and the cut-off" if graph_cutoff_s(graph) is not None and len(hops) > 1 else "memory decay"
-        problems.append(f"expected fidelity {fid:.3g} ({included} included) is below min_fidelity "
-                        f"{demand.min_fidelity:g}")
+        if math.isfinite(fid):
+            problems.append(f"expected fidelity {fid:.3g} ({included} included) is below min_fidelity "
+                            f"{demand.min_fidelity:g}")
+        else:  # the estimate delivers no pair at all (e.g. swaps that almost never succeed)
+            problems.append(f"no pair is expected to be delivered ({included} included), so min_fidelity "
+                            f"{demand.min_fidelity:g} cannot be met")
     if row.get("meets_rate") is False:
         useful = rate if row["meets_fidelity"] else 0.0
         problems.append(f"expected useful rate {useful:.3g} pairs/s is below min_rate_per_s "

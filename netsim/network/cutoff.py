@@ -37,6 +37,7 @@ user), its right qubit from b_i to s_{i+1} (t_D at the last user).
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,6 +51,8 @@ CYCLES = 1200
 SEED = 20230523
 
 _WAIT, _TRY, _HELD = 0, 1, 2
+#: Events sampled at most; cycles unfinished by then count as no delivery.
+_STEPS = 100_000
 
 
 @dataclass(frozen=True)
@@ -94,6 +97,10 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
     n = len(q)
     if n < 2 or any(r >= cutoff for r in ready) or any(p <= 0 for p in q) or any(p <= 0 for p in swap_p):
         return None  # one hop: the cut-off never acts (callers use the closed form); else no delivery
+    if math.prod(swap_p) * _STEPS < 10.0:
+        # a delivery needs every swap to succeed in one cycle, 1 / prod(p) tries on average: far
+        # beyond the steps below, no cycle would finish (swap success 1e-308 ran for minutes)
+        return None
     rng = np.random.default_rng(seed)
     qa, ta, ra = np.array(q), np.array(period), np.array(ready)
     tell_a = np.array(tell)
@@ -123,7 +130,7 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
     disc = np.zeros(m)
     counter = float(n)
     cols = np.arange(n)
-    for _step in range(100_000):
+    for _step in range(_STEPS):
         if m == 0:
             break
         rows = np.arange(m)

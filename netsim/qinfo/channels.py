@@ -237,8 +237,9 @@ def _memory_factors(t_s: ArrayLike, t1_s: float, t2_s: float) -> tuple[NDArray[n
     t2 = _positive_time("t2_s", t2_s)
     if t2 > 2 * t1:
         raise ParameterError("t2_s", t2_s, f"a time <= 2 * t1_s = {2 * t1:g} s (T2 <= 2 T1)")
-    gamma = -np.expm1(-t / t1)
-    coherence = np.exp(-t / t2)
+    with np.errstate(over="ignore"):  # t / T2 beyond the largest float (T2 = 5e-324 s): exp(-inf) = 0
+        gamma = -np.expm1(-t / t1)
+        coherence = np.exp(-t / t2)
     return gamma, coherence
 
 

@@ -11,7 +11,7 @@ import difflib
 from collections.abc import Iterable, Mapping, Sequence
 from typing import Any
 
-from netsim.errors import Problem, format_value
+from netsim.errors import Problem, format_value, shorten
 from netsim.scenario.fields import Spec
 
 __all__ = ["check_table", "join", "name_pair", "suggest", "table_list", "unknown_key"]
@@ -22,6 +22,7 @@ def join(path: str, key: Any) -> str:
     text = str(key)
     bare = text != "" and all(ch.isalnum() or ch in "_-" for ch in text)
     part = text if bare else '"' + text.replace('"', '\\"') + '"'
+    part = shorten(part)
     return f"{path}.{part}" if path else part
 
 

@@ -82,7 +82,7 @@ def _register(i: int, table: Mapping[str, Any], own: Mapping[str, Any], first_in
             problems.append(_missing(f"sites[{i}]", key, SITE_FIELDS[key]))
     name = own.get("name")
     if name is not None and name in first_index:
-        problems.append(Problem(f"sites[{i}].name", f"{name!r} is not allowed; it is already the "
+        problems.append(Problem(f"sites[{i}].name", f"{format_value(name)} is not allowed; it is already the "
                                 f"name of sites[{first_index[name]}]; site names must be unique"))
     elif name is not None:
         first_index[name] = i
@@ -122,7 +122,7 @@ def _default_coherence(defaults: Mapping[str, Any], problems: list[Problem]) -> 
     t1, t2 = base.get("t1_s", Site.t1_s), base.get("t2_s", Site.t2_s)
     if t2 > 2.0 * t1:
         key = "t2_s" if "t2_s" in defaults else "t1_s"
-        built_in = {k: "" if k in defaults else f" (from profile {defaults['profile']!r})" if k in from_profile
+        built_in = {k: "" if k in defaults else f" (from profile {format_value(defaults['profile'])})" if k in from_profile
                     else " (built-in default)" for k in ("t1_s", "t2_s")}
         problems.append(Problem(f"defaults.site.{key}", f"t2_s = {t2:g}{built_in['t2_s']} and "
                                 f"t1_s = {t1:g}{built_in['t1_s']} are not allowed together; "
@@ -171,7 +171,7 @@ def _ends(table: Mapping[str, Any], path: str, roles: Mapping[str, str] | None,
     for j, name in enumerate(pair):
         if name not in roles:
             known = False
-            problems.append(Problem(f"{path}[{j}]", f"{name!r} is not allowed; it is not the name "
+            problems.append(Problem(f"{path}[{j}]", f"{format_value(name)} is not allowed; it is not the name "
                                     f"of a site{suggest(name, roles)}"))
     return pair if known else None
 
@@ -181,10 +181,10 @@ def _pair_rules(path: str, ends: tuple[str, str], pairs: dict[frozenset[str], in
     a, b = ends
     key = frozenset(ends)
     if a == b:
-        problems.append(Problem(path, f"[{a!r}, {b!r}] is not allowed; a link joins two different "
+        problems.append(Problem(path, f"[{format_value(a)}, {format_value(b)}] is not allowed; a link joins two different "
                                       "sites (self-loop)"))
     elif key in pairs:
-        problems.append(Problem(path, f"[{a!r}, {b!r}] is not allowed; links[{pairs[key]}] already "
+        problems.append(Problem(path, f"[{format_value(a)}, {format_value(b)}] is not allowed; links[{pairs[key]}] already "
                                       "joins these sites (one link per pair; use modes for "
                                       "parallel fibres)"))
     else:
@@ -206,7 +206,7 @@ def parse_demands(value: Any, roles: Mapping[str, str] | None, edges: list[tuple
                                           "allowed; expected one of them (or neither: "
                                           f"{DEFAULT_DEMAND_PAIRS} pairs)"))
         if users is not None and roles is not None and not _relayed(users, neighbours, roles):
-            problems.append(Problem(f"{path}.users", f"[{users[0]!r}, {users[1]!r}] is not allowed; "
+            problems.append(Problem(f"{path}.users", f"[{format_value(users[0])}, {format_value(users[1])}] is not allowed; "
                                     "no path of links joins these sites through repeaters or "
                                     "switches (end users do not relay)"))
         if "pairs" not in table and "duration_s" not in table:
@@ -236,9 +236,9 @@ def _users(table: Mapping[str, Any], path: str, roles: Mapping[str, str] | None,
         else:
             continue
         ok = False
-        problems.append(Problem(f"{path}[{j}]", f"{name!r} is not allowed; {message}"))
+        problems.append(Problem(f"{path}[{j}]", f"{format_value(name)} is not allowed; {message}"))
     if ok and pair[0] == pair[1]:
-        problems.append(Problem(path, f"[{pair[0]!r}, {pair[1]!r}] is not allowed; a demand joins "
+        problems.append(Problem(path, f"[{format_value(pair[0])}, {format_value(pair[1])}] is not allowed; a demand joins "
                                       "two different user sites"))
         return None
     return pair if ok else None

@@ -185,7 +185,9 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "t2_s": _positive("s"),
     "emission_efficiency": _prob(low_open=True),
     "memory_efficiency": _prob(low_open=True),
-    "bsm_success_probability": _prob(low_open=True),
+    # 0.01: a linear-optics Bell-state measurement (1/2) with detectors of 14 % efficiency; below
+    # it a swap almost never succeeds and the cut-off estimate would sample for minutes
+    "bsm_success_probability": Spec("real", 0.01, 1.0),
     "gate_error": _prob(),
     "attempt_prep_time_s": Spec("real", 0.0, None, unit="s"),
     "communication_qubits": Spec("int", 1, None),
@@ -200,7 +202,8 @@ SITE_FIELDS: Mapping[str, Spec] = {
 
 #: Keys of a ``[[links]]`` table (``ends`` is checked apart: two site names).
 LINK_FIELDS: Mapping[str, Spec] = {
-    "length_km": Spec("real", 0.0, None, low_open=True, unit="km", required=True),
+    # 0.1 m of patch fibre to the Earth's circumference: a 5e-324 km fibre is no fibre (common practice)
+    "length_km": Spec("real", 1e-4, 40_000.0, unit="km", required=True),
     "attenuation_db_per_km": Spec("real", 0.0, None, unit="dB/km"),
     "extra_loss_db": Spec("real", 0.0, None, unit="dB"),
     "scheme": Spec("choice", choices=SCHEMES),
@@ -210,7 +213,8 @@ LINK_FIELDS: Mapping[str, Spec] = {
     "midpoint_fraction": _prob(),
     "bright_state_population": _prob(low_open=True, high_open=True),
     "pair_probability": _prob(low_open=True, high_open=True),
-    "phase_noise_rad": Spec("real", 0.0, None, unit="rad"),
+    # rms phase error; beyond a few rad no coherence is left (exp(-sigma^2 / 2) = 2e-22 at 10 rad)
+    "phase_noise_rad": Spec("real", 0.0, 10.0, unit="rad"),
     "profile": PROFILE_SPEC,
     "candidate": Spec("bool"),
     "cost": Spec("real", 0.0, None),

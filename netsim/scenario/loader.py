@@ -13,13 +13,13 @@ import numbers
 import tomllib
 from collections.abc import Mapping
 from os import PathLike
-from pathlib import Path
 from typing import Any
 
 from netsim.errors import Problem, ScenarioError, format_value
 from netsim.scenario.checks import check_table, join, unknown_key
 from netsim.scenario.elements import parse_demands, parse_links, parse_sites
 from netsim.scenario.encoding import parse_encoding
+from netsim.scenario.limits import MAX_FILE_BYTES, depth_problem, scan_text
 from netsim.scenario.fields import (
     COSTS_FIELDS,
     LINK_DEFAULTABLE,
@@ -29,7 +29,7 @@ from netsim.scenario.fields import (
 )
 from netsim.scenario.model import Costs, Protocol, Scenario
 
-__all__ = ["TOP_LEVEL_KEYS", "content_hash", "load", "load_data"]
+__all__ = ["TOP_LEVEL_KEYS", "content_hash", "load", "load_data", "read_toml"]
 
 #: The tables a scenario file may hold. ``sweep`` and ``sensitivity`` are kept untouched for the
 #: sweep layer (parameter sweeps; ranges of the sensitivity ranking), which checks them.
@@ -45,24 +45,45 @@ def load(path: str | PathLike[str]) -> Scenario:
     Raises
     ------
     ScenarioError
-        If the file cannot be read, is not valid TOML (the message gives the line and column),
+        If the file cannot be read, is too large or too deeply nested (see
+        :mod:`netsim.scenario.limits`), is not valid TOML (the message gives the line and column),
         or breaks any rule of the scenario reference; every problem is listed.
+    """
+    return load_data(read_toml(path), source=str(path))
+
+
+def read_toml(path: str | PathLike[str]) -> dict[str, Any]:
+    """The parsed TOML file at ``path``, within the limits of :mod:`netsim.scenario.limits`
+    (size, nesting, key parts, integer digits), which are checked before the parser runs.
+
+    Raises
+    ------
+    ScenarioError
+        One line per problem: unreadable, over a limit, not UTF-8 or not valid TOML.
     """
     source = str(path)
     try:
-        raw = Path(path).read_bytes()
+        with open(path, "rb") as handle:
+            raw = handle.read(MAX_FILE_BYTES + 1)
     except OSError as exc:
         raise ScenarioError([Problem("", f"cannot read the file: {exc.strerror or exc}")],
                             source=source) from None
+    if len(raw) > MAX_FILE_BYTES:
+        problem = Problem("", f"a file of more than {MAX_FILE_BYTES} bytes is not allowed; expected at most "
+                              f"{MAX_FILE_BYTES // 2**20} MiB (a scenario of a thousand sites is under 1 MiB)")
+        raise ScenarioError([problem], source=source)
     try:
         text = raw.decode("utf-8")
-        data = tomllib.loads(text)
     except UnicodeDecodeError as exc:
         problem = Problem("", f"not UTF-8 text (byte {exc.start}); save the file as UTF-8")
         raise ScenarioError([problem], source=source) from None
+    limits = scan_text(text)
+    if limits:
+        raise ScenarioError(limits, source=source)
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ScenarioError([_syntax_problem(exc, text)], source=source) from None
-    return load_data(data, source=source)
 
 
 def _syntax_problem(exc: tomllib.TOMLDecodeError, text: str) -> Problem:
@@ -97,6 +118,9 @@ def load_data(data: Mapping[str, Any], source: str | None = None) -> Scenario:
     if not isinstance(data, Mapping):
         problem = Problem("", f"{format_value(data)} is not allowed; expected a table of keys")
         raise ScenarioError([problem], source=source)
+    too_deep = depth_problem(data)
+    if too_deep is not None:  # before any recursive walk (_plain, the checks, content_hash)
+        raise ScenarioError([too_deep], source=source)
     plain = _plain(data)
     problems: list[Problem] = []
     if not plain:

@@ -23,6 +23,7 @@ import typing
 from dataclasses import dataclass, fields
 from typing import Any
 
+from netsim.errors import format_value
 from netsim.scenario.model import Demand, Link, Protocol, Site
 
 __all__ = ["KeyPath", "assign", "integer_keys", "numeric_keys", "parse_key", "resolve"]
@@ -84,14 +85,14 @@ def parse_key(text: str) -> KeyPath:
     """Parse a key path; raise ``ValueError`` with what is allowed when it is malformed."""
     match = _PATTERN.match(text)
     if match is None:
-        raise ValueError(f"{text.strip()!r} is not a sweep key; expected {_SYNTAX}")
+        raise ValueError(f"{format_value(text.strip())} is not a sweep key; expected {_SYNTAX}")
     section, raw, key = match["section"], match["selector"], match["key"]
     if (raw is None) != (section not in _LISTS):
         need = "needs a selector [*], [INDEX] or [KEY=VALUE]" if raw is None else "takes no selector"
         raise ValueError(f"{section} {need}")
     if key not in numeric_keys(section):
         allowed = ", ".join(numeric_keys(section))
-        raise ValueError(f"{key!r} is not a numeric key of {section}; expected one of {allowed}")
+        raise ValueError(f"{format_value(key)} is not a numeric key of {section}; expected one of {allowed}")
     return KeyPath(section, _parse_selector(text, raw), key)
 
 

@@ -38,7 +38,7 @@ from typing import Any
 
 import numpy as np
 
-from netsim.errors import NetsimError, ParameterError, ScenarioError
+from netsim.errors import NetsimError, ParameterError, ScenarioError, format_value
 from netsim.scenario.model import Scenario
 from netsim.sweep.keypath import assign, parse_key, resolve
 from netsim.table import Column, Table
@@ -183,7 +183,7 @@ def uncertain_parameters(scenario: Scenario, spread: float = DEFAULT_SPREAD) -> 
     """
     table = scenario.data.get("sensitivity") or {}
     if not isinstance(table, Mapping):
-        raise _problem(scenario, "sensitivity", f"{table!r} is not allowed; expected a table")
+        raise _problem(scenario, "sensitivity", f"{format_value(table)} is not allowed; expected a table")
     unknown = sorted(set(table) - {"ranges", "spread"})
     if unknown:
         raise _problem(scenario, f"sensitivity.{unknown[0]}", "unknown key; expected 'ranges' or 'spread'")
@@ -223,11 +223,11 @@ def uncertain_parameters(scenario: Scenario, spread: float = DEFAULT_SPREAD) -> 
 
 def _table_parameters(scenario: Scenario, ranges: Any) -> list[Uncertain]:
     if not isinstance(ranges, Mapping):
-        raise _problem(scenario, "sensitivity.ranges", f"{ranges!r} is not allowed; expected a table of "
+        raise _problem(scenario, "sensitivity.ranges", f"{format_value(ranges)} is not allowed; expected a table of "
                                    "key path = [low, high]")
     found = []
     for text, value in ranges.items():
-        where = f"sensitivity.ranges.{text!r}"
+        where = f"sensitivity.ranges.{format_value(text)}"
         try:
             path = parse_key(text)
             resolve(scenario.data, path)
@@ -237,7 +237,7 @@ def _table_parameters(scenario: Scenario, ranges: Any) -> list[Uncertain]:
               and all(isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) for v in value)
               and value[0] < value[1])
         if not ok:
-            raise _problem(scenario, where, f"{value!r} is not allowed; expected [low, high] with low < high")
+            raise _problem(scenario, where, f"{format_value(value)} is not allowed; expected [low, high] with low < high")
         spec = _spec(path.section, path.key)
         found.append(Uncertain(text, float(value[0]), float(value[1]), spec.unit if spec else "", origin="scenario"))
     return found

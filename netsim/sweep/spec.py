@@ -35,7 +35,8 @@ from typing import Any
 
 import numpy as np
 
-from netsim.errors import Problem, ScenarioError, format_value
+from netsim.errors import Problem, ScenarioError, format_value, shorten
+from netsim.scenario.fields import is_finite_number
 from netsim.sweep.keypath import KeyPath, assign, integer_keys, parse_key, resolve
 
 __all__ = [
@@ -145,13 +146,19 @@ def _values_from_table(table: Mapping[str, Any]) -> tuple[float, ...]:
     if extra or not {"from", "to", "points"} <= set(table):
         raise ValueError
     ends = [table["from"], table["to"]]
-    if not all(_is_real(v) and math.isfinite(v) for v in ends):
+    if not all(_is_finite(v) for v in ends):
         raise ValueError
     return _range(float(ends[0]), float(ends[1]), table["points"], table.get("scale", "linear"))
 
 
 def _is_real(v: Any) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def _is_finite(v: Any) -> bool:
+    """A finite number; an integer too large for a float is not (``math.isfinite`` would raise
+    OverflowError on it, as it did for a 400-digit integer in a file's [sweep.vary] list)."""
+    return _is_real(v) and is_finite_number(v)
 
 
 def parse_values(raw: Any) -> tuple[float | int, ...]:
@@ -161,7 +168,7 @@ def parse_values(raw: Any) -> tuple[float | int, ...]:
             values: tuple[float | int, ...] = _values_from_text(raw)
         elif isinstance(raw, Mapping):
             values = _values_from_table(raw)
-        elif isinstance(raw, (list, tuple)) and all(_is_real(v) and math.isfinite(v) for v in raw):
+        elif isinstance(raw, (list, tuple)) and all(_is_finite(v) for v in raw):
             values = tuple(raw)
         else:
             raise ValueError
@@ -200,7 +207,8 @@ def _table_axes(table: Mapping[str, Any], problems: list[Problem]) -> list[Axis]
         return []
     axes = []
     for key_text, raw in vary.items():
-        where = f'sweep.vary."{key_text}"' if str(key_text).isprintable() else f"sweep.vary.{key_text!r}"
+        where = (f'sweep.vary."{shorten(key_text)}"' if str(key_text).isprintable()
+                 else f"sweep.vary.{format_value(key_text)}")
         try:
             axes.append(_make_axis(key_text, raw, where))
         except ValueError as exc:
@@ -223,7 +231,7 @@ def _cli_axes(vary: Sequence[str], problems: list[Problem]) -> list[Axis]:
     for item in vary:
         key_text, sep, raw = _split_vary(item)
         shown = key_text.strip()
-        where = f"--vary {shown if shown.isprintable() else repr(shown)}"
+        where = f"--vary {shorten(shown) if shown.isprintable() else format_value(shown)}"
         if not sep:
             problems.append(Problem("--vary", f"{format_value(item)} is not allowed; expected KEY=VALUES"))
             continue
@@ -260,7 +268,7 @@ def _scalar_options(table: Mapping[str, Any], overrides: Mapping[str, Any],
     for name, (allowed, test) in checks.items():
         value = opts.get(name, 0.5)
         _check_choice(problems, where.get(name, ""), value,
-                      _is_real(value) and math.isfinite(value) and test(value), allowed)
+                      _is_finite(value) and test(value), allowed)
     stops = [k for k in STOP_KEYS if k in opts]
     if len(stops) > 1:
         problems.append(Problem("sweep", f"{', '.join(stops)} given together; expected at most one stop rule"))
