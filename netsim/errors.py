@@ -8,6 +8,7 @@ allowed. The command line prints that line and exits with code 2, without a trac
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import dataclass
 from collections.abc import Callable
 from typing import Any
@@ -29,6 +30,7 @@ __all__ = [
 #: The longest value, key or name an error message shows whole; longer ones are cut by
 #: :func:`shorten` (the first characters, "..." and the full length), so that a line stays a line.
 SHOWN_CHARACTERS = 60
+PATH_CHARACTERS = 4 * SHOWN_CHARACTERS
 
 
 class NetsimError(Exception):
@@ -39,6 +41,8 @@ def shorten(text: str, limit: int = SHOWN_CHARACTERS) -> str:
     """``text`` whole when it has at most ``limit`` characters, else its first ``limit``
     characters, ``...`` and its length: ``'zzzz...' (5000 characters)``. Every message builder
     passes values, keys and names through here (via :func:`format_value` and :class:`Problem`)."""
+    if not text.isprintable():  # a line break or control character in a key would split the line
+        text = "".join(c if c.isprintable() else repr(c)[1:-1] for c in text)
     if len(text) <= limit:
         return text
     return f"{text[:limit]}... ({len(text)} characters)"
@@ -64,6 +68,12 @@ def format_value(value: Any) -> str:
         return repr(value)
     if isinstance(value, float):
         return repr(value) if not math.isfinite(value) else f"{value:g}"
+    if isinstance(value, os.PathLike):
+        # a file path is what the user must find again: shown whole up to a longer limit
+        text = os.fspath(value)
+        if len(text) <= PATH_CHARACTERS:
+            return repr(str(text))
+        return f"{str(text)[:PATH_CHARACTERS]!r}... ({len(text)} characters)"
     if isinstance(value, str):
         if len(value) <= SHOWN_CHARACTERS:
             return repr(value)
@@ -90,7 +100,7 @@ class ParameterError(NetsimError, ValueError):
         self.name = name
         self.value = value
         self.allowed = allowed
-        super().__init__(f"{shorten(name)} = {format_value(value)} is not allowed; expected {allowed}")
+        super().__init__(f"{shorten(name, PATH_CHARACTERS)} = {format_value(value)} is not allowed; expected {allowed}")
 
 
 @dataclass(frozen=True)

@@ -68,9 +68,9 @@ def _check_ancestors(option: str, path: Path, allowed: str, start: Path) -> None
     """The nearest existing ancestor of ``start`` must be a directory this process may write to."""
     existing = _first_existing(start)
     if not existing.is_dir():
-        raise ParameterError(option, str(path), f"{allowed} ({existing} is a file, not a directory)")
+        raise ParameterError(option, Path(path), f"{allowed} ({existing} is a file, not a directory)")
     if not _writable(existing):
-        raise ParameterError(option, str(path), f"{allowed} ({existing} is not writable)")
+        raise ParameterError(option, Path(path), f"{allowed} ({existing} is not writable)")
 
 
 def check_output_dir(option: str, path: str | Path) -> Path:
@@ -82,7 +82,7 @@ def check_output_dir(option: str, path: str | Path) -> Path:
     path = Path(path)
     allowed = "a directory path that can be created and written to"
     if path.exists() and not path.is_dir():
-        raise ParameterError(option, str(path), f"{allowed} (it is an existing file)")
+        raise ParameterError(option, Path(path), f"{allowed} (it is an existing file)")
     _check_ancestors(option, path, allowed, path)
     return path
 
@@ -94,9 +94,9 @@ def check_output_file(option: str, path: str | Path) -> Path:
     path = Path(path)
     allowed = "a file path whose directory can be created and written to"
     if path.is_dir():
-        raise ParameterError(option, str(path), f"{allowed} (it is an existing directory)")
+        raise ParameterError(option, Path(path), f"{allowed} (it is an existing directory)")
     if path.exists() and not os.access(path, os.W_OK):
-        raise ParameterError(option, str(path), f"{allowed} (the file is read-only)")
+        raise ParameterError(option, Path(path), f"{allowed} (the file is read-only)")
     _check_ancestors(option, path, allowed, path.parent)
     return path
 
@@ -116,5 +116,5 @@ def writing(option: str, path: str | Path) -> Iterator[None]:
     except OSError as exc:
         why = _WHY.get(exc.errno or 0, exc.strerror or type(exc).__name__)
         where = f" at {exc.filename}" if exc.filename and str(exc.filename) != str(path) else ""
-        raise ParameterError(option, str(path), f"a location that can be written to (writing failed"
+        raise ParameterError(option, Path(path), f"a location that can be written to (writing failed"
                                                 f"{where}: {why})") from None
