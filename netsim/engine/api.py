@@ -111,7 +111,7 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
                 parent[root(k)] = root(ks[0])
     on_fibre: dict[str, int] = {}
     for k, c in enumerate(chains):
-        for name in {name for hop in c.hops for name in hop.links}:
+        for name in dict.fromkeys(name for hop in c.hops for name in hop.links):
             if name in on_fibre:
                 parent[root(k)] = root(on_fibre[name])
             else:

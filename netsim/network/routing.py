@@ -109,9 +109,14 @@ def widest_path(graph: nx.Graph, a: Hashable, b: Hashable, weight: str = "bound_
     Uses the property that a maximum spanning tree contains a widest path between every pair
     of nodes (T. C. Hu, "The maximum capacity route problem", Oper. Res. 9, 898, 1961).
     """
-    component = graph.subgraph(nx.node_connected_component(graph, a))
-    if b not in component:
+    reach = nx.node_connected_component(graph, a)
+    if b not in reach:
         raise nx.NetworkXNoPath(f"no path between {a} and {b}")
+    # the component rebuilt in the graph's own order: a subgraph view of a set iterates in the
+    # interpreter's hash order, which would break ties between equal edges differently per run
+    component = nx.Graph()
+    component.add_nodes_from(n for n in graph if n in reach)
+    component.add_edges_from((u, v, d) for u, v, d in graph.edges(data=True) if u in reach)
     tree = nx.maximum_spanning_tree(component, weight=weight)
     return list(nx.shortest_path(tree, a, b))
 
