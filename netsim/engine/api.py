@@ -30,7 +30,7 @@ from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
 from netsim.scenario.profiles import profile_label
 
-__all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule", "verdicts", "work_warnings"]
+__all__ = ["Component", "chains_from_scenario", "check_memory", "check_run", "demand_row", "run", "simulate", "stop_rule", "verdicts", "work_warnings"]
 
 
 def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:
@@ -320,6 +320,20 @@ def work_warnings(scenario: Scenario) -> list[str]:
     chains = chains_from_scenario(scenario)
     return run_work_warnings(scenario, expected_work(chains, _components(chains, rounds + 1), None,
                                                      proto.cutoff_s, rounds))
+
+
+def check_run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
+              precision: float | None = None, max_link_pairs: float = DEFAULT_MAX_LINK_PAIRS) -> None:
+    """What :func:`run` refuses before it starts, without running: too few memory slots
+    (ParameterError), a cut-off that discards every pair, or more expected link pairs than
+    ``max_link_pairs`` (ScenarioError, one line). Sweeps check every point with it at plan time."""
+    rule = stop_rule(pairs, time_s, precision)
+    proto = scenario.protocol
+    rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
+    chains = chains_from_scenario(scenario)
+    _check_slots(scenario, chains, rounds)
+    check_run_work(scenario, expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds),
+                   max_link_pairs)
 
 
 def check_memory(scenario: Scenario) -> None:
