@@ -169,3 +169,23 @@ def test_route_work_with_a_cutoff_counts_tries() -> None:
     # a subnormal success probability: finite logs, first-order tail k q
     tiny = route_work([5e-324, 5e-324], [period, period], [ready, ready], [1.0], cutoff)
     assert tiny.log_link_pairs == pytest.approx(math.log(2.0) - math.log(100.0) - math.log(5e-324), rel=1e-9)
+
+
+def test_design_check_by_simulation_obeys_the_limit(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    from test_design_milp import PRICES, ring
+
+    from netsim.cli import main
+    from netsim.design.tomlout import dumps
+
+    src = tmp_path / "ring.toml"
+    src.write_text(dumps(ring((40.0, 20.0), PRICES[0]).data), encoding="utf-8")
+    # 200 pairs per demand need at least 200 link pairs: refused at a limit of 10, in one line
+    assert main(["design", str(src), "--out", str(tmp_path / "o"), "--pairs", "200", "--max-link-pairs", "10"]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "above the limit of 10 link pairs" in err[0]
+
+
+def test_sensitivity_simulation_obeys_the_limit(tmp_path: Path) -> None:
+    line = _one_line(_netsim("sensitivity", str(ROOT / "scenarios" / "chain3.toml"), "--simulate", "50",
+                             "--samples", "2", "--max-link-pairs", "10", "--out", str(tmp_path / "s"), cwd=tmp_path))
+    assert "above the limit of 10 link pairs" in line

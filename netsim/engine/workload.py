@@ -138,7 +138,7 @@ def check_run_work(scenario: Scenario, works: list[RunWork], max_link_pairs: flo
     if worst.log_link_pairs > math.log(max_link_pairs):
         raise ScenarioError([Problem(worst.demand, (
             f"{worst.describe()}, above the limit of {max_link_pairs:.3g} link pairs per run; raise it with "
-            "--max-link-pairs (netsim run, netsim sweep) to run anyway, or ask for fewer pairs"))], scenario.source)
+            "--max-link-pairs (run, sweep, design, sensitivity) to run anyway, or ask for fewer pairs"))], scenario.source)
 
 
 def run_work_warnings(scenario: Scenario, works: list[RunWork],
