@@ -6,8 +6,9 @@ from one interpreter to the next (reported: the Vellmoor mesh's multipath bound 
 against 30488.954190345365). The reference here is the language's own rule (the Python
 documentation of ``PYTHONHASHSEED`` and ``object.__hash__``, (common practice)): a deterministic
 program gives byte-identical output under any two hash seeds. Each seed runs every bundled
-scenario through ``budget`` and a short ``run`` in one subprocess; the files are compared byte
-for byte.
+scenario through ``budget``, ``check`` and a short ``run``, and compares the two Vellmoor
+networks (minimum cuts, bottleneck links), in one subprocess; the files are compared byte for
+byte.
 """
 
 from __future__ import annotations
@@ -40,6 +41,20 @@ for path in sys.argv[2:]:
     with contextlib.redirect_stdout(io.StringIO()):
         code = main(["run", path, "--pairs", "4", "--seed", "3", "--out", str(out / name), "--format", "csv"])
     assert code == 0, (path, code)
+    buffer = io.StringIO()
+    with contextlib.redirect_stdout(buffer):
+        code = main(["check", path, "--format", "json", "--no-scan"])
+    assert code == 0, (path, code)
+    (out / f"{name}.check.json").write_text(buffer.getvalue())
+mesh, star = (p for p in sys.argv[2:] if Path(p).stem in ("vellmoor-mesh", "vellmoor-star"))
+buffer = io.StringIO()
+with contextlib.redirect_stdout(buffer):
+    code = main(["compare", mesh, star, "--no-simulate", "--format", "csv", "--out", str(out / "compare")])
+assert code == 0, code
+# the last lines name the files written (under each seed's own directory, compared below) and how
+# long the comparison took (wall clock): not results
+(out / "compare.csv").write_text("\\n".join(line for line in buffer.getvalue().splitlines()
+                                           if not line.startswith("compared ") and str(out) not in line))
 """
 
 
@@ -56,7 +71,8 @@ def _outputs(tmp: Path, hash_seed: str) -> dict[str, bytes]:
 def test_bundled_scenarios_same_bytes_under_two_hash_seeds(tmp_path: Path) -> None:
     first, second = _outputs(tmp_path, "1"), _outputs(tmp_path, "5")
     # every scenario wrote its three files (so the comparison below cannot pass on nothing)
-    assert len(first) == 3 * len(SCENARIOS) and len(SCENARIOS) >= 4
+    assert len([k for k in first if not k.startswith("compare")]) == 4 * len(SCENARIOS) and len(SCENARIOS) >= 4
+    assert "compare.csv" in first
     assert first.keys() == second.keys()
     differ = [name for name in first if first[name] != second[name]]
     assert not differ, f"outputs depend on the hash seed: {differ}"
@@ -82,3 +98,24 @@ def test_multipath_bound_independent_of_insertion_order() -> None:
         values.add(multipath_capacity(graph, "a", "e"))
     assert len(values) == 1
     assert values.pop() == pytest.approx(0.6, rel=1e-12)
+
+
+def test_relay_view_keeps_the_graph_order() -> None:
+    """The relays between two users of a star with many users walk in the graph's own order.
+
+    A networkx subgraph of fewer than half the nodes iterates its node *set* (hash order), which
+    feeds Dijkstra's and the spanning tree's tie-breaks; the relay view must not (the reference
+    is the graph's insertion order, which Python dicts keep by the language definition,
+    (common practice))."""
+    from netsim.network.routing import relay_graph
+    from netsim.scenario.model import Site
+
+    graph = nx.Graph()
+    relays = [f"relay {k}" for k in range(6)]
+    users = [f"user {k}" for k in range(20)]
+    for name in relays:
+        graph.add_node(name, site=Site(name=name, role="repeater"))
+    for name in users:
+        graph.add_node(name, site=Site(name=name, role="user"))
+    view = relay_graph(graph, "user 3", "user 11")
+    assert list(view) == [*relays, "user 3", "user 11"]

@@ -58,9 +58,10 @@ def register_policy(policy: RoutingPolicy) -> RoutingPolicy:
 
 def relay_graph(graph: nx.Graph, a: str, b: str) -> nx.Graph:
     """View of ``graph`` without the end users other than ``a`` and ``b``."""
-    keep = [n for n, data in graph.nodes(data=True)
-            if n in (a, b) or data["site"].role != "user"]
-    return graph.subgraph(keep)
+    keep = {n for n, data in graph.nodes(data=True) if n in (a, b) or data["site"].role != "user"}
+    # a filter function, not graph.subgraph(nodes): a subgraph of few nodes iterates its node set,
+    # in the interpreter's hash order; this view keeps the graph's own order
+    return nx.subgraph_view(graph, filter_node=keep.__contains__)
 
 
 class LeastLoss:
