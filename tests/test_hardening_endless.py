@@ -22,6 +22,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 ROOT = Path(__file__).resolve().parents[1]
 CHAIN3 = (ROOT / "scenarios" / "chain3.toml").read_text(encoding="utf-8")
@@ -189,3 +191,31 @@ def test_sensitivity_simulation_obeys_the_limit(tmp_path: Path) -> None:
     line = _one_line(_netsim("sensitivity", str(ROOT / "scenarios" / "chain3.toml"), "--simulate", "50",
                              "--samples", "2", "--max-link-pairs", "10", "--out", str(tmp_path / "s"), cwd=tmp_path))
     assert "above the limit of 10 link pairs" in line
+
+
+def test_command_line_default_is_the_engine_default() -> None:
+    from netsim.cli.run_cmd import DEFAULT_LIMIT
+    from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
+
+    assert DEFAULT_LIMIT == DEFAULT_MAX_LINK_PAIRS
+
+
+_PROBABILITY = st.one_of(st.sampled_from([5e-324, 1e-310, 1e-300, 1e-9, 1.0]), st.floats(5e-324, 1.0))
+_TIME = st.one_of(st.sampled_from([5e-324, 1e-300, 1e300]), st.floats(1e-9, 1e3))
+
+
+@settings(max_examples=300, deadline=None)
+@given(q=st.lists(_PROBABILITY, min_size=1, max_size=5), period=_TIME, ready=_TIME,
+       swap=_PROBABILITY, cutoff=st.one_of(st.none(), _TIME), shared=st.booleans(), rounds=st.integers(0, 3))
+def test_route_work_never_fails_at_the_extremes(q: list[float], period: float, ready: float, swap: float,
+                                                 cutoff: float | None, shared: bool, rounds: int) -> None:
+    """Fuzz over the ranges' extremes (subnormal, huge, boundary): never an exception or NaN, and
+    never fewer link pairs than the hops need (one per hop, doubled per purification round)."""
+    from netsim.network.workload import route_work
+
+    n = len(q)
+    work = route_work(q, [period] * n, [ready] * n, [swap] * (n - 1), cutoff, [shared] * (n - 1), rounds)
+    assert not math.isnan(work.log_link_pairs) and not math.isnan(work.log_seconds)
+    assert work.log_link_pairs >= math.log(n) + rounds * math.log(2.0) - 1e-9
+    if cutoff is not None and n > 1 and ready >= cutoff:
+        assert work.log_link_pairs == math.inf  # no pair is ever usable before its cut-off

@@ -14,6 +14,7 @@ byte.
 from __future__ import annotations
 
 import itertools
+import math
 import os
 import subprocess
 import sys
@@ -21,6 +22,8 @@ from pathlib import Path
 
 import networkx as nx
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIOS = sorted((ROOT / "scenarios").glob("*.toml")) + sorted((ROOT / "scenarios" / "published").glob("*.toml"))
@@ -119,3 +122,34 @@ def test_relay_view_keeps_the_graph_order() -> None:
         graph.add_node(name, site=Site(name=name, role="user"))
     view = relay_graph(graph, "user 3", "user 11")
     assert list(view) == [*relays, "user 3", "user 11"]
+
+
+@settings(max_examples=60, deadline=None)
+@given(data=st.data(), size=st.integers(3, 7))
+def test_multipath_bound_is_the_minimum_cut_in_any_order(data: st.DataObject, size: int) -> None:
+    """Against the definition (max-flow min-cut theorem, Ford & Fulkerson, Can. J. Math. 8, 399,
+    1956): the smallest sum over every vertex set holding a but not b, enumerated; and the same
+    float whichever order sites and links were added in."""
+    from netsim.network.bounds import multipath_capacity
+
+    names = [f"site {k}" for k in range(size)]
+    pairs = [(u, v) for i, u in enumerate(names) for v in names[i + 1:]]
+    chosen = data.draw(st.lists(st.sampled_from(pairs), min_size=1, unique=True))
+    weights = data.draw(st.lists(st.floats(1e-3, 1e3), min_size=len(chosen), max_size=len(chosen)))
+    a, b = names[0], names[-1]
+    inner = names[1:-1]
+    best = math.inf
+    for mask in range(2 ** len(inner)):
+        side = {a} | {n for k, n in enumerate(inner) if mask >> k & 1}
+        best = min(best, math.fsum(w for (u, v), w in zip(chosen, weights) if (u in side) != (v in side)))
+    values = set()
+    for order in (names, names[::-1], names[1:] + names[:1]):
+        graph = nx.Graph()
+        graph.add_nodes_from(order)
+        for (u, v), w in sorted(zip(chosen, weights), key=lambda e: order.index(e[0][1])):
+            graph.add_edge(u, v, bound_cut_bits_per_s=w)
+        values.add(multipath_capacity(graph, a, b))
+    assert len(values) == 1
+    value = values.pop()
+    expected = best if nx.has_path(graph, a, b) else 0.0
+    assert value == pytest.approx(expected, rel=1e-9, abs=1e-12)
