@@ -71,6 +71,11 @@ at its herald and the cut-off never acts on it. Left out: the message time befor
 swap frees the far ends (a few 10 us in a metro network) and the carry of at most one attempt
 period from one cycle to the next. The sample does not depend on T1/T2, so it is cached: a
 scan over coherence (``netsim check`` advice) samples once.
+Where a delivery needs more than ``MAX_SAMPLED_LINK_PAIRS`` link pairs
+(:func:`netsim.network.workload.route_work`: tries the cut-off discards, failing swaps), the
+sampler would step through every discarded try of every cycle; it is skipped, the rate is that
+order-of-magnitude figure and the fidelity is left unknown (NaN). A route on which the cut-off
+discards every pair is refused before any estimate (:func:`netsim.network.workload.cutoff_problems`).
 
 Not modelled: purification, contention with other demands; without a cut-off also failed Bell
 measurements beyond the rate factor prod_j p_BSM, turns at shared communication qubits, memory
