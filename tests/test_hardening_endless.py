@@ -219,3 +219,17 @@ def test_route_work_never_fails_at_the_extremes(q: list[float], period: float, r
     assert work.log_link_pairs >= math.log(n) + rounds * math.log(2.0) - 1e-9
     if cutoff is not None and n > 1 and ready >= cutoff:
         assert work.log_link_pairs == math.inf  # no pair is ever usable before its cut-off
+
+
+def test_subnormal_emission_without_dark_counts_is_refused(tmp_path: Path) -> None:
+    # emission 5e-324 at every site and almost no dark counts: a hop heralds about once in 1e12
+    # rounds, and both hops must herald within the 0.5 s cut-off of each other: the run would take
+    # ~1e10 link pairs. Refused in one line before it starts (it ran without end before).
+    text = CHAIN3.replace("memory_slots = 2              # qubits",
+                          "emission_efficiency = 5e-324\nmemory_slots = 2              # qubits")
+    text = text.replace("midpoint_fraction = 0.5", "dark_count_probability = 1e-12\nmidpoint_fraction = 0.5")
+    assert text.count("5e-324") == 1 and text.count("1e-12") == 1
+    path = tmp_path / "dark.toml"
+    path.write_text(text, encoding="utf-8")
+    line = _one_line(_netsim("run", str(path), "--pairs", "1", cwd=tmp_path))
+    assert "demands[0]" in line and "above the limit of 1e+06 link pairs" in line
