@@ -40,7 +40,9 @@ def run(args: argparse.Namespace) -> int:
 
     scenario = load(args.file)
     check_memory_in(scenario, args.file)
-    facts, warnings = summary(scenario), audit(scenario)
+    from netsim.engine.api import work_warnings
+
+    facts, warnings = summary(scenario), audit(scenario) + work_warnings(scenario)
     from netsim.engine.advice import demand_advice
 
     usage = scenario_usage(scenario)

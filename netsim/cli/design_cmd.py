@@ -34,6 +34,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--wait-target", metavar="W", default="0.05",
                         help="share of slot requests allowed to wait, for the memory sizing (default 0.05)")
     parser.add_argument("--no-simulate", action="store_true", help="solve only; skip the simulation")
+    parser.add_argument("--max-link-pairs", metavar="N", default=None,
+                        help="refuse a check by simulation expected to herald more than N link pairs "
+                             "(default 1e6, minutes); the engine stops at 4 x N")
     parser.set_defaults(func=design)
 
 
@@ -80,10 +83,12 @@ def design(args: argparse.Namespace) -> int:
     seed = args.seed
     wait_target = _float("--wait-target", args.wait_target, "a number in [0, 1]", 0.0, 1.0, low_open=False)
     scenario = load(args.file)
+    from netsim.cli.run_cmd import max_link_pairs
+
     option = "--out" if args.out else "--out (default)"
     out = check_output_dir(option, args.out or Path("results") / scenario.slug / "design")
     checked = design_and_check(scenario, options, pairs=pairs, seed=seed, rounds=rounds,
-                               simulate=not args.no_simulate)
+                               simulate=not args.no_simulate, max_link_pairs=max_link_pairs(args.max_link_pairs))
     with writing(option, out):
         written = write_design(scenario, checked, out, wait_target)
     d = checked.design

@@ -36,6 +36,9 @@ def register(subparsers: Any) -> None:
     parser.add_argument("--simulate", type=int, default=None, metavar="PAIRS",
                         help="evaluate every sample by a short engine run of PAIRS pairs per demand "
                              "instead of the closed forms (slow)")
+    parser.add_argument("--max-link-pairs", metavar="N", default=None,
+                        help="with --simulate: refuse a sample's run expected to herald more than N link pairs "
+                             "(default 1e6, minutes); the engine stops at 4 x N")
     parser.add_argument("--seed", type=seed_value, default=0, metavar="S", help="seed of the sampling (default 0)")
     parser.add_argument("--format", default="table", help="printed format: " + ", ".join(_FORMATS) + " (default table)")
     parser.add_argument("--top", type=int, default=3, metavar="K",
@@ -65,8 +68,11 @@ def run(args: argparse.Namespace) -> int:
     out = check_output_dir(option, args.out or Path("results") / scenario.slug / "sensitivity")
     refuse_overwrite([out], args.force, "sensitivity ranking")
     spread = args.spread if args.spread is not None else DEFAULT_SPREAD
+    from netsim.cli.run_cmd import max_link_pairs
+
+    limit = max_link_pairs(args.max_link_pairs)
     result = rank_parameters(scenario, method=args.method, samples=args.samples, spread=spread,
-                             seed=args.seed, simulate_pairs=args.simulate)
+                             seed=args.seed, simulate_pairs=args.simulate, max_link_pairs=limit)
     with writing(option, out):
         written = write_sensitivity(result, out, figures=not args.no_figures)
     table = result.table()

@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import argparse
+import functools
 import math
 import sys
 from pathlib import Path
 from typing import Any
 
+from netsim.cli.run_cmd import DEFAULT_LIMIT, max_link_pairs
 from netsim.errors import ParameterError
 
 __all__ = ["register", "run_command"]
@@ -18,7 +20,9 @@ file as soon as it finishes. Re-running the same command skips finished points, 
 was interrupted (Ctrl-C, a crash, a killed job) resumes where it stopped and ends with exactly
 the results of an uninterrupted run.
 Exit status: 0 every point done, 1 some points failed (see --retry-failed), 2 bad input,
-130 interrupted (finished points are kept)."""
+130 interrupted (finished points are kept). Every point is checked before the first one runs:
+a point whose run is expected to herald more link pairs than --max-link-pairs (or never to
+end) refuses the whole sweep at once, naming the points, rather than failing overnight."""
 
 _EPILOG = """\
 sweep keys (--vary KEY=VALUES, or KEY = VALUES in the file's [sweep.vary] table):
@@ -61,6 +65,10 @@ def _add_spec_options(parser: argparse.ArgumentParser) -> None:
 
 
 def _add_run_options(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--max-link-pairs", metavar="N", default=None,
+                        help="refuse the sweep, before any point runs, if a point's run is expected to herald "
+                             f"more than N link pairs (default {DEFAULT_LIMIT:g}, minutes per point); the engine "
+                             "stops a point at 4 x N")
     where = parser.add_mutually_exclusive_group()
     where.add_argument("--workers", type=int, default=None, metavar="N",
                        help="local worker processes (default: the number of cores)")
@@ -108,7 +116,8 @@ def _plan(args: argparse.Namespace) -> Any:
 
     scenario = load(args.file)
     return make_plan(scenario, args.vary, combine=args.combine, repeats=args.repeats, seed=args.seed,
-                     pairs=args.pairs, time_s=args.time_s, precision=args.precision)
+                     pairs=args.pairs, time_s=args.time_s, precision=args.precision,
+                     max_link_pairs=max_link_pairs(args.max_link_pairs))
 
 
 def _store_statuses(path: Path, plan: Any) -> dict[str, str]:
@@ -193,7 +202,9 @@ def run_command(args: argparse.Namespace, point_function: Any = None) -> int:
     from netsim.sweep.worker import engine_point
 
     _check_numbers(args)
-    point_function = point_function if point_function is not None else engine_point
+    if point_function is None:
+        limit = max_link_pairs(args.max_link_pairs)
+        point_function = functools.partial(engine_point, max_link_pairs=limit) if args.max_link_pairs else engine_point
     plan = _plan(args)
     store = Path(args.store) if args.store else default_store_path(plan)
     if args.dry_run:

@@ -145,12 +145,12 @@ def demand_cost_rows(scenario: Scenario, budget_demands: Sequence[Mapping[str, A
         sites = list(b.get("route_sites") or [])
         elements = sites + [f"{u}-{v}" if f"{u}-{v}" in price else f"{v}-{u}" for u, v in zip(sites, sites[1:])]
         routes.append(elements)
-        for e in set(elements):
+        for e in dict.fromkeys(elements):  # first-seen order, not the hash order of a set
             users_of[e] = users_of.get(e, 0) + 1
     out: list[dict[str, Any]] = []
     total_rate, origins = 0.0, set()
     for demand, elements, row in zip(scenario.demands, routes, rows):
-        share = sum(price.get(e, 0.0) / users_of[e] for e in set(elements))
+        share = sum(price.get(e, 0.0) / users_of[e] for e in dict.fromkeys(elements))
         rate, origin = useful_rate(row, demand.min_fidelity)
         origins.add(origin)
         total_rate += rate or 0.0

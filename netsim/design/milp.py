@@ -293,14 +293,14 @@ def _solve(scenario: Scenario, options: DesignOptions, kept: list[Option]) -> De
     # are valid and give a much tighter linear relaxation than one row per option.
     for d in scenario.demands:
         mine = [(i, o) for i, o in enumerate(kept) if o.demand == d.index]
-        for v in {v for _, o in mine for v in o.route}:
+        for v in dict.fromkeys(v for _, o in mine for v in o.route):  # rows in a fixed order
             through = [(i, o) for i, o in mine if v in o.route]
             if ("y", v) in index:
                 rows.append(({**{index["x", i]: 1.0 for i, _ in through}, index["y", v]: -1.0}, -np.inf, 0.0))
             if ("s", v) in index:
                 rows.append(({index["s", v]: 1.0, **{index["x", i]: -float(o.slots[v]) for i, o in through
                                                      if v in o.slots}}, 0.0, np.inf))
-        for n in {n for _, o in mine for n in o.links}:
+        for n in dict.fromkeys(n for _, o in mine for n in o.links):
             using = [(i, o) for i, o in mine if n in o.links]
             if ("z", n) in index:
                 rows.append(({**{index["x", i]: 1.0 for i, _ in using}, index["z", n]: -1.0}, -np.inf, 0.0))

@@ -73,15 +73,20 @@ def verdicts(designed: Scenario, design: Design, result: dict[str, Any]) -> list
     return rows
 
 
-def _simulate(designed: Scenario, pairs: int, seed: int) -> dict[str, Any]:
+def _simulate(designed: Scenario, pairs: int, seed: int, max_link_pairs: float | None = None) -> dict[str, Any]:
     from netsim.engine import run
+    from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
 
-    return run(designed, pairs=pairs, seed=seed, ensembles=False).to_dict()
+    limit = DEFAULT_MAX_LINK_PAIRS if max_link_pairs is None else float(max_link_pairs)
+    return run(designed, pairs=pairs, seed=seed, ensembles=False, max_link_pairs=limit).to_dict()
 
 
 def design_and_check(scenario: Scenario, options: DesignOptions, *, pairs: int = 500, seed: int = 0,
-                     rounds: int = 3, simulate: bool = True) -> Checked:
-    """Design, simulate, and re-design up to ``rounds`` times while a demand misses."""
+                     rounds: int = 3, simulate: bool = True, max_link_pairs: float | None = None) -> Checked:
+    """Design, simulate, and re-design up to ``rounds`` times while a demand misses.
+
+    ``max_link_pairs``: the engine's limit on a simulation's expected link pairs (None: its
+    default); a design whose check would take longer is refused in one line."""
     design = design_network(scenario, options)
     if design.status == "infeasible" or not design.routes:
         return Checked(design, None, history=[f"design: {design.status}"])
@@ -91,7 +96,7 @@ def design_and_check(scenario: Scenario, options: DesignOptions, *, pairs: int =
         return checked
     for round_no in range(1, rounds + 1):
         try:
-            result = _simulate(designed, pairs, seed)
+            result = _simulate(designed, pairs, seed, max_link_pairs)
         except KeyboardInterrupt:
             checked.interrupted = True
             checked.history.append(f"interrupted while simulating round {round_no}: the design of that round "

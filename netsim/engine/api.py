@@ -11,6 +11,7 @@ same numbers and no two demands share a stream.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -23,11 +24,13 @@ from netsim.engine.ensemble import send_ensemble
 from netsim.engine.metrics import Z95, ChainRun, StopRule
 from netsim.engine.result import RunResult
 from netsim.engine.vector import simulate_chain_vector, vector_applicable
+from netsim.engine.workload import GUARD_FACTOR, check_run_work, expected_work, run_work_warnings
 from netsim.errors import ParameterError
+from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
 from netsim.scenario.model import DEFAULT_DEMAND_PAIRS, Scenario
 from netsim.scenario.profiles import profile_label
 
-__all__ = ["Component", "chains_from_scenario", "check_memory", "demand_row", "run", "simulate", "stop_rule", "verdicts"]
+__all__ = ["Component", "chains_from_scenario", "check_memory", "check_run", "demand_row", "run", "simulate", "stop_rule", "verdicts", "work_warnings"]
 
 
 def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: float | None = None) -> StopRule | None:
@@ -50,7 +53,9 @@ def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: 
 
 def chains_from_scenario(scenario: Scenario) -> list[Chain]:
     """Route every demand (``protocol.routing``) and build its chain of heralded hops."""
+    from netsim.errors import ScenarioError
     from netsim.network import build_graph, find_route, route_hops
+    from netsim.network.workload import cutoff_problems
 
     graph = build_graph(scenario)
     chains = []
@@ -58,6 +63,9 @@ def chains_from_scenario(scenario: Scenario) -> list[Chain]:
         route = find_route(graph, d.a, d.b, scenario.protocol.routing)
         hops = route_hops(graph, route)
         sites = tuple(graph.nodes[h.a]["site"] for h in hops) + (graph.nodes[hops[-1].b]["site"],)
+        problems = cutoff_problems(scenario, f"demands[{d.index}] ({d.name})", hops, sites)
+        if problems:  # the cut-off discards every pair: the run would never end
+            raise ScenarioError(problems, scenario.source)
         specs = tuple(HopSpec(f"{h.a}-{h.b}", h.physics, tuple(link.name for link in h.links)) for h in hops)
         chains.append(Chain(d.name, sites, specs, index=d.index, pairs=d.pairs, duration_s=d.duration_s,
                             min_fidelity=d.min_fidelity, route=tuple(route)))
@@ -111,7 +119,7 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
                 parent[root(k)] = root(ks[0])
     on_fibre: dict[str, int] = {}
     for k, c in enumerate(chains):
-        for name in {name for hop in c.hops for name in hop.links}:
+        for name in dict.fromkeys(name for hop in c.hops for name in hop.links):
             if name in on_fibre:
                 parent[root(k)] = root(on_fibre[name])
             else:
@@ -304,6 +312,30 @@ def _slot_figures(rows: dict[str, dict[str, Any]], chains: list[Chain], runs: li
                           waited_share=waited / requests if requests else 0.0, slot_loads=loads)
 
 
+def work_warnings(scenario: Scenario) -> list[str]:
+    """``netsim check`` warnings for runs beyond reason with the scenario's own stop rules
+    (:func:`netsim.engine.workload.run_work_warnings`)."""
+    proto = scenario.protocol
+    rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
+    chains = chains_from_scenario(scenario)
+    return run_work_warnings(scenario, expected_work(chains, _components(chains, rounds + 1), None,
+                                                     proto.cutoff_s, rounds))
+
+
+def check_run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
+              precision: float | None = None, max_link_pairs: float = DEFAULT_MAX_LINK_PAIRS) -> None:
+    """What :func:`run` refuses before it starts, without running: too few memory slots
+    (ParameterError), a cut-off that discards every pair, or more expected link pairs than
+    ``max_link_pairs`` (ScenarioError, one line). Sweeps check every point with it at plan time."""
+    rule = stop_rule(pairs, time_s, precision)
+    proto = scenario.protocol
+    rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
+    chains = chains_from_scenario(scenario)
+    _check_slots(scenario, chains, rounds)
+    check_run_work(scenario, expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds),
+                   max_link_pairs)
+
+
 def check_memory(scenario: Scenario) -> None:
     """Raise the ParameterError :func:`run` would raise when a site on a demand's route has too
     few memory slots (so ``netsim check`` reports it before a run)."""
@@ -332,7 +364,8 @@ def _analytic(scenario: Scenario) -> list[dict[str, Any]]:
 
 
 def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
-        precision: float | None = None, seed: int = 0, ensembles: bool = True) -> RunResult:
+        precision: float | None = None, seed: int = 0, ensembles: bool = True,
+        max_link_pairs: float = DEFAULT_MAX_LINK_PAIRS, progress: Callable[[int], None] | None = None) -> RunResult:
     """Simulate every demand of ``scenario`` and return the figures with their intervals.
 
     Parameters
@@ -346,16 +379,26 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
         Same seed, same numbers.
     ensembles : bool
         Also send the scenario's encoding ensemble along each route (Holevo figures).
+    max_link_pairs : float
+        Refuse (:class:`~netsim.errors.ScenarioError`, one line) a run expected to herald more
+        link pairs than this; the event engine stops at 4 times it (:mod:`netsim.engine.workload`).
+    progress : callable, optional
+        Called with the number of link pairs heralded since its last call (every 4096).
     """
     rule = stop_rule(pairs, time_s, precision)
+    if isinstance(max_link_pairs, bool) or not isinstance(max_link_pairs, (int, float)) or not max_link_pairs >= 1:
+        raise ParameterError("--max-link-pairs", max_link_pairs, "a number of link pairs >= 1")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise ParameterError("seed", seed, "an integer >= 0")
     proto = scenario.protocol
     rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
     chains = chains_from_scenario(scenario)
     _check_slots(scenario, chains, rounds)
+    check_run_work(scenario, expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds),
+                   max_link_pairs)
     options = DesOptions(cutoff_s=proto.cutoff_s, purification=proto.purification,
-                         purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy)
+                         purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy,
+                         max_link_pairs=GUARD_FACTOR * float(max_link_pairs), progress=progress)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
     for row, extra, demand in zip(rows, _analytic(scenario), scenario.demands):

@@ -90,6 +90,10 @@ class DesOptions:
     scheduling: str | SchedulingPolicy = "fair"
     swap_policy: str | SwapPolicy = "asap"
     log_pairs: bool = False
+    #: Safety net: stop with a one-line error after heralding more link pairs than this
+    #: (:mod:`netsim.engine.workload`); ``progress(count)`` is told every 4096 heralded pairs.
+    max_link_pairs: float = math.inf
+    progress: Callable[[int], None] | None = None
 
 
 @dataclass(slots=True)
@@ -220,6 +224,7 @@ class _Des:
                  rules: list[StopRule], options: DesOptions) -> None:
         self.env = simpy.Environment()
         self.rules, self.opt = rules, options
+        self.heralds = 0
         self.cutoff = math.inf if options.cutoff_s is None else float(options.cutoff_s)
         self.rounds = int(options.purification_rounds) if options.purification != "none" else 0
         self.purify: Callable[..., Any] | None = (
@@ -298,6 +303,9 @@ class _Des:
         count = lane.count
         count.attempts[i] += k
         count.successes[i] += 1
+        self.heralds += 1
+        if not self.heralds & 4095:
+            self.guard()
         count.busy_s[i] += k * period
         pair = _Pair(i, born, self.env.now)
         if self.opt.log_pairs:
@@ -315,6 +323,17 @@ class _Des:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
         else:
             self.hand_over(lane, i, pair)
+
+    def guard(self) -> None:
+        """Every 4096 heralded link pairs: report progress; stop beyond ``max_link_pairs``."""
+        if self.opt.progress is not None:
+            self.opt.progress(4096)
+        if self.heralds > self.opt.max_link_pairs:
+            from netsim.engine.workload import RunLimitError
+
+            raise RunLimitError(f"the event engine stopped after heralding {self.heralds} link pairs, more than "
+                                f"{self.opt.max_link_pairs:.3g} (4 x --max-link-pairs); the run would take far "
+                                "longer than its estimate: raise --max-link-pairs or ask for fewer pairs")
 
     # -- optical interfaces and attempt counts -------------------------------------------------
     def acquire(self, ends: list[str], then: Callable[[], None]) -> None:

@@ -265,7 +265,15 @@ def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut
     """
     if not nx.has_path(graph, a, b):
         return 0.0
+    # networkx's preflow-push keeps its active nodes in sets; with site names as nodes their
+    # order (and so the float sums of the flow) follows the interpreter's hash seed. Integer
+    # nodes in sorted-name order make the computation the same on every interpreter.
+    order = {n: k for k, n in enumerate(sorted(graph, key=str))}
+    flow = nx.Graph()
+    flow.add_nodes_from(range(len(order)))
+    flow.add_edges_from(sorted((min(order[u], order[v]), max(order[u], order[v]), {"capacity": d[weight]})
+                               for u, v, d in graph.edges(data=True)))
     try:
-        return float(nx.minimum_cut_value(graph, a, b, capacity=weight))
+        return float(nx.minimum_cut_value(flow, order[a], order[b], capacity="capacity"))
     except nx.NetworkXUnbounded:  # a path of lossless links (eta = 1): -log2(1 - eta) is unbounded
         return math.inf

@@ -222,6 +222,7 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
         row["route"] = None
         return row, f"demands[{demand.index}] ({demand.name}): {exc}"
     hops = route_hops(graph, route)
+    _refuse_unreachable_cutoff(graph, demand, hops)
     row["profile"] = route_profiles(graph, route, hops)
     row.update(_chain_figures(graph, route, hops))
     fid, rate = row["expected_fidelity"], row["expected_rate_per_s"]
@@ -246,6 +247,19 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str,
                         f"{demand.min_rate_per_s:g}")
     warning = f"demands[{demand.index}] ({demand.name}): " + "; ".join(problems) if problems else ""
     return row, warning
+
+
+def _refuse_unreachable_cutoff(graph: nx.Graph, demand: Demand, hops: list[Hop]) -> None:
+    """A route on which the cut-off discards every pair is a scenario error (no pair is ever
+    delivered; :func:`netsim.network.workload.cutoff_problems`)."""
+    from netsim.errors import ScenarioError
+    from netsim.network.workload import cutoff_problems
+
+    scenario = graph.graph["scenario"]
+    sites = [graph.nodes[h.a]["site"] for h in hops] + [graph.nodes[hops[-1].b]["site"]]
+    problems = cutoff_problems(scenario, f"demands[{demand.index}] ({demand.name})", hops, sites)
+    if problems:
+        raise ScenarioError(problems, scenario.source)
 
 
 def route_profiles(graph: nx.Graph, route: list[str], hops: list[Hop]) -> str:

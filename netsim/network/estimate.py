@@ -71,6 +71,11 @@ at its herald and the cut-off never acts on it. Left out: the message time befor
 swap frees the far ends (a few 10 us in a metro network) and the carry of at most one attempt
 period from one cycle to the next. The sample does not depend on T1/T2, so it is cached: a
 scan over coherence (``netsim check`` advice) samples once.
+Where a delivery needs more than ``MAX_SAMPLED_LINK_PAIRS`` link pairs
+(:func:`netsim.network.workload.route_work`: tries the cut-off discards, failing swaps), the
+sampler would step through every discarded try of every cycle; it is skipped, the rate is that
+order-of-magnitude figure and the fidelity is left unknown (NaN). A route on which the cut-off
+discards every pair is refused before any estimate (:func:`netsim.network.workload.cutoff_problems`).
 
 Not modelled: purification, contention with other demands; without a cut-off also failed Bell
 measurements beyond the rate factor prod_j p_BSM, turns at shared communication qubits, memory
@@ -94,9 +99,15 @@ from netsim.hardware.fibre import propagation_delay_s
 from netsim.network.bounds import expected_delivery_s, expected_wait_s
 from netsim.network.cutoff import sample_cycles
 from netsim.network.routing import Hop, register_policy, route_hops
+from netsim.network.workload import route_work
 from netsim.scenario.model import Site
 
-__all__ = ["HighestRate", "RouteEstimate", "estimate_hops", "estimate_route", "expected_storage_s"]
+#: Above this many link pairs per delivered pair (:func:`netsim.network.workload.route_work`)
+#: the cut-off timeline is not sampled: the rate is then that order of magnitude, the
+#: fidelity unknown (NaN).
+MAX_SAMPLED_LINK_PAIRS = 2000.0
+
+__all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "estimate_hops", "estimate_route", "expected_storage_s"]
 
 _PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
 #: Per qubit of a pair: the entries of a 4 x 4 state that are coherences of that qubit.
@@ -238,6 +249,13 @@ def _with_cutoff(hops: Sequence[Hop], sites: Sequence[Site], cutoff_s: float, q:
     shared = [s.communication_qubits == 1 for s in sites[1:-1]]
     swaps = [s.bsm_success_probability for s in sites[1:-1]]
     fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
+    work = route_work(q, period, ready, swaps, cutoff_s, shared)
+    if work.link_pairs > MAX_SAMPLED_LINK_PAIRS:
+        # the sampler would step through every discarded try of 1200 cycles: far too long for
+        # a planning figure; the rate is the order of magnitude of netsim.network.workload
+        nan_state = np.full((4, 4), np.nan, dtype=complex)
+        return RouteEstimate(1.0 / work.seconds, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops),
+                             nan_state, True, False)
     sample = sample_cycles(tuple(q), tuple(period), tuple(ready), tuple(tell), cutoff_s, tuple(shared), tuple(swaps))
     if sample is None:
         nan_state = np.full((4, 4), np.nan, dtype=complex)

@@ -58,9 +58,10 @@ def register_policy(policy: RoutingPolicy) -> RoutingPolicy:
 
 def relay_graph(graph: nx.Graph, a: str, b: str) -> nx.Graph:
     """View of ``graph`` without the end users other than ``a`` and ``b``."""
-    keep = [n for n, data in graph.nodes(data=True)
-            if n in (a, b) or data["site"].role != "user"]
-    return graph.subgraph(keep)
+    keep = {n for n, data in graph.nodes(data=True) if n in (a, b) or data["site"].role != "user"}
+    # a filter function, not graph.subgraph(nodes): a subgraph of few nodes iterates its node set,
+    # in the interpreter's hash order; this view keeps the graph's own order
+    return nx.subgraph_view(graph, filter_node=keep.__contains__)
 
 
 class LeastLoss:
@@ -109,9 +110,14 @@ def widest_path(graph: nx.Graph, a: Hashable, b: Hashable, weight: str = "bound_
     Uses the property that a maximum spanning tree contains a widest path between every pair
     of nodes (T. C. Hu, "The maximum capacity route problem", Oper. Res. 9, 898, 1961).
     """
-    component = graph.subgraph(nx.node_connected_component(graph, a))
-    if b not in component:
+    reach = nx.node_connected_component(graph, a)
+    if b not in reach:
         raise nx.NetworkXNoPath(f"no path between {a} and {b}")
+    # the component rebuilt in the graph's own order: a subgraph view of a set iterates in the
+    # interpreter's hash order, which would break ties between equal edges differently per run
+    component = nx.Graph()
+    component.add_nodes_from(n for n in graph if n in reach)
+    component.add_edges_from((u, v, d) for u, v, d in graph.edges(data=True) if u in reach)
     tree = nx.maximum_spanning_tree(component, weight=weight)
     return list(nx.shortest_path(tree, a, b))
 

@@ -63,12 +63,18 @@ def bottleneck(graph: nx.Graph, a: str, b: str,
     Commun. Phys. 2, 51 (2019).
     """
     capacity = _capacity(graph, attribute)
+    # integer nodes in sorted-name order: networkx's preflow-push keeps active nodes in sets, whose
+    # order for site names would follow the interpreter's hash seed (the cut found, its float sum)
+    names = sorted(graph, key=str)
+    order = {n: k for k, n in enumerate(names)}
     flow = nx.DiGraph()
-    for u, v, data in graph.edges(data=True):
+    flow.add_nodes_from(range(len(names)))
+    for u, v, data in sorted(graph.edges(data=True), key=lambda e: (order[e[0]], order[e[1]])):
         c = float(data[capacity])
-        flow.add_edge(u, v, capacity=c)
-        flow.add_edge(v, u, capacity=c)
-    value, (side_a, _side_b) = nx.minimum_cut(flow, a, b)
+        flow.add_edge(order[u], order[v], capacity=c)
+        flow.add_edge(order[v], order[u], capacity=c)
+    value, (side, _side_b) = nx.minimum_cut(flow, order[a], order[b])
+    side_a = {names[k] for k in side}
     cut = sorted(tuple(sorted((u, v))) for u, v in graph.edges() if (u in side_a) != (v in side_a))
     return float(value), cut  # type: ignore[misc]
 

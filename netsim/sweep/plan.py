@@ -7,6 +7,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from netsim.errors import Problem, ScenarioError
+from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
 from netsim.scenario.model import Scenario
 from netsim.sweep.spec import (
     Point,
@@ -41,15 +42,19 @@ def describe_parameters(parameters: Mapping[str, Any]) -> str:
     return ", ".join(f"{k}={v:g}" if isinstance(v, float) else f"{k}={v}" for k, v in parameters.items())
 
 
-def _point_problems(data: dict[str, Any], source: str | None) -> list[Problem]:
-    """What is wrong with one point's scenario: the file checks, then the engine's memory check
-    (too few slots on a route), which would otherwise fail the point only when it runs."""
-    from netsim.engine.api import check_memory
+def _point_problems(data: dict[str, Any], source: str | None, stop: Mapping[str, Any],
+                    max_link_pairs: float) -> list[Problem]:
+    """What is wrong with one point's scenario: the file checks, then what the engine refuses
+    before a run (too few slots on a route, a cut-off that discards every pair, more expected
+    link pairs than ``max_link_pairs`` under the sweep's stop rule), which would otherwise fail
+    the point only when it runs -- or never end."""
+    from netsim.engine.api import check_run
     from netsim.errors import ParameterError, format_value
     from netsim.scenario import load_data
 
     try:
-        check_memory(load_data(data, source))
+        check_run(load_data(data, source), pairs=stop.get("pairs"), time_s=stop.get("time_s"),
+                  precision=stop.get("precision"), max_link_pairs=max_link_pairs)
     except ScenarioError as exc:
         return list(exc.problems)
     except ParameterError as exc:
@@ -57,7 +62,7 @@ def _point_problems(data: dict[str, Any], source: str | None) -> list[Problem]:
     return []
 
 
-def _validate_points(plan: SweepPlan) -> None:
+def _validate_points(plan: SweepPlan, max_link_pairs: float) -> None:
     problems: list[Problem] = []
     invalid = 0
     seen: set[str] = set()
@@ -65,7 +70,7 @@ def _validate_points(plan: SweepPlan) -> None:
         if point.repeat != 0 or point.point_id in seen:
             continue
         seen.add(point.point_id)
-        found = _point_problems(plan.data_for(point), plan.scenario.source)
+        found = _point_problems(plan.data_for(point), plan.scenario.source, plan.spec.stop, max_link_pairs)
         if found:
             invalid += 1
             if invalid <= _MAX_LISTED:
@@ -78,7 +83,7 @@ def _validate_points(plan: SweepPlan) -> None:
 
 
 def make_plan(scenario: Scenario, vary: Sequence[str] = (), *, validate: bool = True,
-              **overrides: Any) -> SweepPlan:
+              max_link_pairs: float = DEFAULT_MAX_LINK_PAIRS, **overrides: Any) -> SweepPlan:
     """Build and check the plan of a sweep over ``scenario``.
 
     Parameters
@@ -89,7 +94,10 @@ def make_plan(scenario: Scenario, vary: Sequence[str] = (), *, validate: bool = 
         ``KEY=VALUES`` items from the command line; they replace file axes of the same key.
     validate : bool
         Apply every point's overrides and load the result again (``load_data``), so that a point
-        making the scenario invalid is an error before any point runs.
+        making the scenario invalid is an error before any point runs. So is a point whose run
+        is expected to herald more than ``max_link_pairs`` link pairs (or never to end): the
+        whole sweep is refused before it starts, listing such points, rather than leaving them
+        to fail (or hang) mid-sweep (``netsim sweep --max-link-pairs`` raises the limit).
     **overrides
         ``combine``, ``repeats``, ``seed``, ``pairs``, ``time_s``, ``precision`` (None = not given).
 
@@ -105,5 +113,5 @@ def make_plan(scenario: Scenario, vary: Sequence[str] = (), *, validate: bool = 
         raise ScenarioError(exc.problems, exc.source or scenario.source) from None
     plan = SweepPlan(scenario, spec, tuple(expand(spec)))
     if validate:
-        _validate_points(plan)
+        _validate_points(plan, max_link_pairs)
     return plan

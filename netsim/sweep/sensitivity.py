@@ -290,11 +290,13 @@ def _closed_form(scenario: Scenario) -> list[dict[str, float]]:
     return out
 
 
-def _simulated(pairs: int, seed: int) -> Callable[[Scenario], list[dict[str, float]]]:
+def _simulated(pairs: int, seed: int, max_link_pairs: float | None = None) -> Callable[[Scenario], list[dict[str, float]]]:
     def evaluate(scenario: Scenario) -> list[dict[str, float]]:
         from netsim import engine
+        from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
 
-        result = engine.run(scenario, pairs=pairs, seed=seed).to_dict()
+        limit = DEFAULT_MAX_LINK_PAIRS if max_link_pairs is None else float(max_link_pairs)
+        result = engine.run(scenario, pairs=pairs, seed=seed, max_link_pairs=limit).to_dict()
         out = []
         for demand, row in zip(scenario.demands, _demand_rows(result)):
             rate = float(row.get("rate_per_s") or 0.0)
@@ -318,7 +320,8 @@ def _demand_rows(result: Mapping[str, Any]) -> list[Mapping[str, Any]]:
 
 def rank_parameters(scenario: Scenario, *, method: str = "sobol", samples: int | None = None,
                     spread: float = DEFAULT_SPREAD, seed: int = 0, simulate_pairs: int | None = None,
-                    progress: Callable[[int, int], None] | None = None) -> Sensitivity:
+                    progress: Callable[[int, int], None] | None = None,
+                    max_link_pairs: float | None = None) -> Sensitivity:
     """Rank the uncertain parameters of ``scenario`` for each demand's figures.
 
     Parameters
@@ -338,6 +341,9 @@ def rank_parameters(scenario: Scenario, *, method: str = "sobol", samples: int |
         closed forms (slow; noisy at small counts).
     progress : callable, optional
         Called with (evaluations done, evaluations planned).
+    max_link_pairs : float, optional
+        With ``simulate_pairs``: the engine's limit on a run's expected link pairs (None: its
+        default); a sample beyond it stops the ranking with one line.
     """
     if method not in METHODS:
         raise ParameterError("--method", method, "one of " + ", ".join(METHODS))
@@ -353,7 +359,7 @@ def rank_parameters(scenario: Scenario, *, method: str = "sobol", samples: int |
     parameters, notes = uncertain_parameters(scenario, spread)
     if not parameters:
         raise NetsimError(f"{scenario.name}: no parameter to vary; give [sensitivity.ranges] in the scenario")
-    evaluate = _simulated(simulate_pairs, seed) if simulate_pairs else _closed_form
+    evaluate = _simulated(simulate_pairs, seed, max_link_pairs) if simulate_pairs else _closed_form
     problem = {"num_vars": len(parameters), "names": [p.key for p in parameters],
                "bounds": [[p.low, p.high] for p in parameters]}
     X = _sample(problem, method, samples, seed)

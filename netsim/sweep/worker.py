@@ -68,17 +68,23 @@ def utc_now() -> str:
 
 
 def engine_point(data: dict[str, Any], *, source: str | None, seed: int,
-                 stop: Mapping[str, float | int]) -> Mapping[str, Any]:
-    """The default point function: load the data and run the engine with the point's seed."""
+                 stop: Mapping[str, float | int], max_link_pairs: float | None = None) -> Mapping[str, Any]:
+    """The default point function: load the data and run the engine with the point's seed
+    (``max_link_pairs``: the engine's limit on expected link pairs, None for its default;
+    bind it with ``functools.partial``, which pickles)."""
     from netsim import engine
     from netsim.scenario import load_data
 
     scenario = load_data(data, source)
     pairs = stop.get("pairs")
     time_s, precision = stop.get("time_s"), stop.get("precision")
+    from netsim.network.workload import DEFAULT_MAX_LINK_PAIRS
+
+    limit = DEFAULT_MAX_LINK_PAIRS if max_link_pairs is None else float(max_link_pairs)
     result = engine.run(scenario, pairs=None if pairs is None else int(pairs),
                         time_s=None if time_s is None else float(time_s),
-                        precision=None if precision is None else float(precision), seed=seed)
+                        precision=None if precision is None else float(precision), seed=seed,
+                        max_link_pairs=limit)
     return result.to_dict()
 
 
