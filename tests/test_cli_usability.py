@@ -197,7 +197,7 @@ def test_sweep_rejects_points_with_too_few_slots_before_running(tmp_path: Path,
     assert main(argv) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1
-    assert "sweep point 0 (sites[role=repeater].memory_slots=1): makes the scenario invalid: " \
+    assert "sweep point 0 (sites[role=repeater].memory_slots=1): is refused: " \
            "sites[1].memory_slots: 1 is not allowed; expected an integer >= 2" in err[0]
     assert not (tmp_path / "s.sqlite").exists()
 

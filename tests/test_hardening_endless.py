@@ -78,11 +78,30 @@ def test_two_communication_qubits_make_the_same_hops_deliverable(tmp_path: Path)
     assert (out / "run.json").is_file()
 
 
-def test_failing_bell_measurement_is_refused_and_warned(tmp_path: Path) -> None:
+def test_failing_bell_measurement_is_refused_by_its_range(tmp_path: Path) -> None:
+    # a Bell measurement succeeding once in 1e9 tries: refused by the key's range (at least 0.01),
+    # in one line, by every command, before any work
     path = _variant(tmp_path, "bsm", "bsm_success_probability = 1e-9")
-    line = _one_line(_netsim("run", str(path), "--pairs", "1", cwd=tmp_path))
-    assert "demands[0]" in line and "--max-link-pairs" in line and "1e+06" in line
-    checked = _netsim("check", str(path), "--no-scan", cwd=tmp_path)
+    for command in (["run", "--pairs", "1"], ["check", "--no-scan"]):
+        line = _one_line(_netsim(command[0], str(path), *command[1:], cwd=tmp_path))
+        assert "sites[1].bsm_success_probability" in line and "1e-09" in line
+
+
+def _dark(tmp_path: Path) -> Path:
+    # emission 5e-324 at every site and almost no dark counts: a hop heralds about once in 1e12
+    # rounds, and both hops must herald within the 0.5 s cut-off of each other: the run would take
+    # ~1e10 link pairs
+    text = CHAIN3.replace("memory_slots = 2              # qubits",
+                          "emission_efficiency = 5e-324\nmemory_slots = 2              # qubits")
+    text = text.replace("midpoint_fraction = 0.5", "dark_count_probability = 1e-12\nmidpoint_fraction = 0.5")
+    assert text.count("5e-324") == 1 and text.count("1e-12") == 1
+    path = tmp_path / "dark.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+def test_endless_run_is_warned_by_check(tmp_path: Path) -> None:
+    checked = _netsim("check", str(_dark(tmp_path)), "--no-scan", cwd=tmp_path)
     assert checked.returncode == 0, checked.stderr
     assert "warnings: none" not in checked.stdout
     assert "link pairs" in checked.stdout and "refuses it" in checked.stdout
@@ -90,10 +109,22 @@ def test_failing_bell_measurement_is_refused_and_warned(tmp_path: Path) -> None:
 
 def test_sweep_with_an_endless_point_is_refused_before_it_starts(tmp_path: Path) -> None:
     store = tmp_path / "s.sqlite"
+    done = _netsim("sweep", str(_dark(tmp_path)), "--vary", "links[0].length_km=10,20", "--pairs", "5",
+                   "--store", str(store), cwd=tmp_path)
+    lines = done.stderr.strip().splitlines()
+    assert done.returncode == 2 and "Traceback" not in done.stderr, done.stderr[-1500:]
+    # one line per refused point, as for every scenario problem
+    assert len(lines) == 2 and [("sweep point 0" in lines[0]), ("sweep point 1" in lines[1])] == [True, True]
+    assert all("--max-link-pairs" in line for line in lines)
+    assert not store.exists()  # nothing ran
+
+
+def test_sweep_with_an_out_of_range_point_is_refused_before_it_starts(tmp_path: Path) -> None:
+    store = tmp_path / "s.sqlite"
     line = _one_line(_netsim("sweep", str(ROOT / "scenarios" / "chain3.toml"), "--vary",
                              "sites[1].bsm_success_probability=1,1e-9", "--pairs", "5", "--store", str(store),
                              cwd=tmp_path))
-    assert "sweep point 1" in line and "--max-link-pairs" in line
+    assert "sweep point 1" in line and "bsm_success_probability" in line
     assert not store.exists()  # nothing ran
 
 
@@ -222,14 +253,7 @@ def test_route_work_never_fails_at_the_extremes(q: list[float], period: float, r
 
 
 def test_subnormal_emission_without_dark_counts_is_refused(tmp_path: Path) -> None:
-    # emission 5e-324 at every site and almost no dark counts: a hop heralds about once in 1e12
-    # rounds, and both hops must herald within the 0.5 s cut-off of each other: the run would take
-    # ~1e10 link pairs. Refused in one line before it starts (it ran without end before).
-    text = CHAIN3.replace("memory_slots = 2              # qubits",
-                          "emission_efficiency = 5e-324\nmemory_slots = 2              # qubits")
-    text = text.replace("midpoint_fraction = 0.5", "dark_count_probability = 1e-12\nmidpoint_fraction = 0.5")
-    assert text.count("5e-324") == 1 and text.count("1e-12") == 1
-    path = tmp_path / "dark.toml"
-    path.write_text(text, encoding="utf-8")
+    # refused in one line before it starts (it ran without end before)
+    path = _dark(tmp_path)
     line = _one_line(_netsim("run", str(path), "--pairs", "1", cwd=tmp_path))
     assert "demands[0]" in line and "above the limit of 1e+06 link pairs" in line

@@ -197,7 +197,7 @@ def test_point_that_invalidates_the_scenario_is_found_before_running(scenario) -
         make_plan(scenario, ["sites[role=repeater].t2_s=1,50", "sites[role=repeater].t1_s=10"])
     text = str(info.value)
     assert "sweep point 1 (sites[role=repeater].t2_s=50, sites[role=repeater].t1_s=10): " \
-           "makes the scenario invalid: sites[1]" in text
+           "is refused: sites[1]" in text
     assert "sweep point 0" not in text
 
 

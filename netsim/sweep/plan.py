@@ -75,9 +75,9 @@ def _validate_points(plan: SweepPlan, max_link_pairs: float) -> None:
             invalid += 1
             if invalid <= _MAX_LISTED:
                 where = f"sweep point {point.ordinal} ({describe_parameters(point.parameters)})"
-                problems.extend(Problem(where, f"makes the scenario invalid: {p}") for p in found)
+                problems.extend(Problem(where, f"is refused: {p}") for p in found)
     if invalid > _MAX_LISTED:
-        problems.append(Problem("sweep", f"{invalid - _MAX_LISTED} more points make the scenario invalid"))
+        problems.append(Problem("sweep", f"{invalid - _MAX_LISTED} more points are refused"))
     if problems:
         raise ScenarioError(problems, plan.scenario.source)
 
