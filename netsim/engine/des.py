@@ -118,14 +118,23 @@ class _Seg:
 
 
 class _Call:
-    """A bare simpy event that only runs its callbacks (scheduled with ``Environment.schedule``)."""
+    """A bare simpy event that calls ``fn(*args)`` when processed (scheduled with
+    ``Environment.schedule``; no closure per event)."""
 
-    __slots__ = ("callbacks",)
+    __slots__ = ("args", "callbacks", "fn")
     _ok = True
     _value = None
 
-    def __init__(self, callback: Callable[[Any], None]) -> None:
-        self.callbacks: list[Callable[[Any], None]] | None = [callback]
+    def __init__(self, fn: Callable[..., None], args: tuple[Any, ...]) -> None:
+        self.fn, self.args = fn, args
+        self.callbacks: list[Callable[[Any], None]] | None = _FIRE
+
+    @staticmethod
+    def fire(event: _Call) -> None:
+        event.fn(*event.args)
+
+
+_FIRE: list[Callable[[Any], None]] = [_Call.fire]  # shared: simpy only reads and then drops the list
 
 
 class _Counts:
@@ -172,7 +181,9 @@ class _Lane:
         self.position = 0
         self.iface_ends: list[list[str]] = [[] for _ in range(n)]
         self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
-        self.transfer = [float(v) for v in chain.transfer_s]
+        self.ready = [float(v) for v in chain.ready_s]
+        #: per hop: (successful round, rounds) of a pair not yet heralded and in memory, else None
+        self.inflight: list[tuple[float, int] | None] = [None] * n
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
         # plain floats: numpy scalars are slow in the per-event arithmetic
@@ -237,11 +248,15 @@ class _Des:
         sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
         self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
                            if site.communication_qubits is not None}
-        self.iface_queue: list[tuple[list[str], Callable[[], None]]] = []
+        #: waiting interface requests [sequence, sites, then, waiting], filed under each of their
+        #: sites (an entry granted through one site is skipped and dropped at the others)
+        self.iface_waiting: dict[str, list[list[Any]]] = {name: [] for name in self.iface_free}
+        self.iface_sequence = 0
         #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
         self.sequences: dict[str, list[tuple[float, float, int]]] = {
             name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
+        self.unsorted: set[str] = set()
         for lane in self.lanes:
             c = lane.chain
             lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
@@ -251,7 +266,8 @@ class _Des:
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
-        self.env.schedule(_Call(lambda _event: fn(*args)), NORMAL, t - self.env.now)  # type: ignore[arg-type]
+        env = self.env
+        env.schedule(_Call(fn, args), NORMAL, t - env._now)  # type: ignore[arg-type]
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -276,45 +292,59 @@ class _Des:
             self.attempt(lane, i)
 
     def attempt(self, lane: _Lane, i: int) -> None:
-        """Hop ``i`` attempts until its next success; the clock jumps to the herald."""
+        """Hop ``i`` attempts until its next success; the clock jumps to the moment its pair is
+        heralded and moved to memory (one event: nothing else depends on the herald itself)."""
         links, period = lane.links[i], lane.period[i]
-        start = max(self.env.now, lane.next_round[i])
+        start = self.env._now
+        if lane.next_round[i] > start:
+            start = lane.next_round[i]
+        link_free = self.link_free_s
         for name in links:
-            free = self.link_free_s.get(name, 0.0)
+            free = link_free.get(name, 0.0)
             if free > start:
                 start = free
         k = lane.rounds_to_success(i)
         born = start + (k - 1) * period
         for name in links:
-            self.link_free_s[name] = born + period
+            link_free[name] = born + period
         for name in lane.dephasing_ends[i]:
-            bisect.insort(self.sequences[name], (start, period, k))
-            self.longest_s[name] = max(self.longest_s[name], (k - 1) * period)
-        self.at(born + lane.herald[i], self.heralded, lane, i, born, k)
-
-    def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
-        period = lane.period[i]
+            self.sequences[name].append((start, period, k))  # sorted when read (sorted_log)
+            self.unsorted.add(name)
+            if (k - 1) * period > self.longest_s[name]:
+                self.longest_s[name] = (k - 1) * period
         lane.next_round[i] = born + period
-        count = lane.count
-        count.attempts[i] += k
-        count.successes[i] += 1
-        count.busy_s[i] += k * period
-        pair = _Pair(i, born, self.env.now)
+        lane.inflight[i] = (born, k)
+        self.at(born + lane.ready[i], self.transferred, lane, i, born, k)
+
+    def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
+        """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
+        hold it in memory: interfaces free, the pair usable."""
+        lane.inflight[i] = None
+        self.count_success(lane, i, k)
+        pair = _Pair(i, born, born + lane.herald[i])
         if self.opt.log_pairs:
             lane.log.append(pair)
-        if lane.transfer[i] > 0:
-            self.at(self.env.now + lane.transfer[i], self.transferred, lane, i, pair)
-        else:
-            self.transferred(lane, i, pair)
-
-    def transferred(self, lane: _Lane, i: int, pair: _Pair) -> None:
-        """Both ends hold hop ``i``'s new pair in memory: interfaces free, the pair usable."""
         if lane.iface_ends[i]:
             self.release_interfaces(lane.iface_ends[i])
         if self.rounds:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
         else:
             self.hand_over(lane, i, pair)
+
+    @staticmethod
+    def count_success(lane: _Lane, i: int, k: int) -> None:
+        count = lane.count
+        count.attempts[i] += k
+        count.successes[i] += 1
+        count.busy_s[i] += k * lane.period[i]
+
+    def sorted_log(self, site: str) -> list[tuple[float, float, int]]:
+        """The attempt log of ``site`` sorted by start (appended out of order, sorted on read)."""
+        seqs = self.sequences[site]
+        if site in self.unsorted:
+            seqs.sort()
+            self.unsorted.discard(site)
+        return seqs
 
     # -- optical interfaces and attempt counts -------------------------------------------------
     def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
@@ -325,33 +355,43 @@ class _Des:
                 free[name] -= 1
             then()
             return
-        self.iface_queue.append((ends, then))
+        self.iface_sequence += 1
+        entry = [self.iface_sequence, ends, then, True]
+        for name in ends:
+            self.iface_waiting[name].append(entry)
 
     def release_interfaces(self, ends: list[str]) -> None:
         """Free one interface at each site of ``ends``; grant waiting requests greedily in request
         order (only those needing one of these sites can fit now: the others did not before)."""
-        free = self.iface_free
+        free, waiting = self.iface_free, self.iface_waiting
+        candidates: list[list[Any]] = []
         for name in ends:
             free[name] += 1
-        if not self.iface_queue:
+            queue = waiting[name]
+            if queue:
+                live = [entry for entry in queue if entry[3]]
+                waiting[name] = live
+                candidates += live
+        if not candidates:
             return
-        waiting, granted, released = [], [], set(ends)
-        for item in self.iface_queue:
-            need = item[0]
-            if not released.isdisjoint(need) and all(free[name] > 0 for name in need):
+        if len(ends) > 1:
+            candidates = sorted({id(entry): entry for entry in candidates}.values(), key=lambda entry: entry[0])
+        granted = []
+        for entry in candidates:
+            need = entry[1]
+            if all(free[name] > 0 for name in need):
                 for name in need:
                     free[name] -= 1
-                granted.append(item[1])
-            else:
-                waiting.append(item)
-        if granted:
-            self.iface_queue = waiting
-            for then in granted:
-                then()
+                entry[3] = False
+                granted.append(entry[2])
+        for then in granted:
+            then()
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
-        seqs = self.sequences.get(site)
+        if site not in self.sequences:
+            return 0
+        seqs = self.sorted_log(site)
         if not seqs:
             return 0
         lo = bisect.bisect_left(seqs, (after_s - self.longest_s[site] - 1e-9,))
@@ -585,6 +625,9 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
+        for i, flight in enumerate(lane.inflight):  # heralded by the end, still moving to memory
+            if flight is not None and flight[0] + lane.herald[i] <= self.env.now:
+                self.count_success(lane, i, flight[1])
         lane.count.add_to(lane.run)
         self.flush(lane, now)
         lane.run.simulated_time_s = now
@@ -623,7 +666,7 @@ class _Des:
                 name = c.sites[i + offset].name
                 if name in self.sequences:
                     if name not in logs:
-                        logs[name] = np.array(self.sequences[name], dtype=float).reshape(-1, 3)
+                        logs[name] = np.array(self.sorted_log(name), dtype=float).reshape(-1, 3)
                     counts[:, i] = self.attempts_many(name, logs[name], begin[:, i], begin[:, i] + store[:, i])
             out.append(counts)
         hist.attempts_left, hist.attempts_right = out
@@ -658,8 +701,8 @@ class _Des:
             starts += [t for row in ln.rows for t in row[4]]
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
-        for site, seqs in self.sequences.items():
-            self.sequences[site] = [q for q in seqs if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
+        for site in self.sequences:
+            self.sequences[site] = [q for q in self.sorted_log(site) if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
