@@ -49,7 +49,7 @@ from __future__ import annotations
 import bisect
 import math
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -92,29 +92,33 @@ class DesOptions:
     log_pairs: bool = False
 
 
-@dataclass(slots=True)
 class _Pair:
-    """A heralded link pair of hop ``hop`` whose state is valid from ``start``."""
+    """A heralded link pair of hop ``hop`` whose state is valid from ``start``; ``end`` holds the
+    times its left and right qubits were Bell-measured, delivered or dropped."""
 
-    hop: int
-    start: float
-    herald: float
-    state_id: int = 0
-    end: list[float] = field(default_factory=lambda: [math.nan, math.nan])
-    fate: str = ""
+    __slots__ = ("end", "fate", "herald", "hop", "start", "state_id")
+
+    def __init__(self, hop: int, start: float, herald: float) -> None:
+        self.hop, self.start, self.herald = hop, start, herald
+        self.state_id = 0
+        self.end = [math.nan, math.nan]
+        self.fate = ""
+
+    def __repr__(self) -> str:
+        return (f"_Pair(hop={self.hop}, start={self.start}, herald={self.herald}, end={self.end}, "
+                f"fate={self.fate!r})")
 
 
-@dataclass(slots=True)
 class _Seg:
     """A run of joined link pairs from site ``lo`` to site ``hi``."""
 
-    lo: int
-    hi: int
-    pairs: list[_Pair]
-    info_lo: float
-    info_hi: float
-    deadline: float
-    alive: bool = True
+    __slots__ = ("alive", "deadline", "hi", "info_hi", "info_lo", "lo", "pairs")
+
+    def __init__(self, lo: int, hi: int, pairs: list[_Pair], info_lo: float, info_hi: float,
+                 deadline: float) -> None:
+        self.lo, self.hi, self.pairs = lo, hi, pairs
+        self.info_lo, self.info_hi, self.deadline = info_lo, info_hi, deadline
+        self.alive = True
 
 
 class _Call:
@@ -166,7 +170,7 @@ class _Lane:
         self._next_uniform = 0
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
         self.next_round = [0.0] * n
-        self.busy = [[False, False] for _ in range(n)]
+        self.busy = [[False] * n, [False] * n]  # busy[side][hop]: that end's slot holds a qubit
         self.attempting = [False] * n
         self.need_pair = [True] * n
         self.last_delivery_s = 0.0
@@ -202,12 +206,6 @@ class _Lane:
             self._next_uniform = 0
         self._next_uniform += 1
         return self._uniforms[self._next_uniform - 1]
-
-    def rounds_to_success(self, i: int) -> int:
-        """K ~ Geometric(p_i) on {1, 2, ...} by inversion: P(K > m) = (1 - p)^m."""
-        if self.p[i] >= 1.0:
-            return 1
-        return int(math.log(1.0 - self.uniform()) / self.log_fail[i]) + 1
 
 
 def path_need(chain: Chain, per_end: int) -> dict[str, int]:
@@ -257,6 +255,8 @@ class _Des:
             name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
         self.unsorted: set[str] = set()
+        self.log_version = 0  # counts changes of the attempt logs (appends, prunes)
+        self.log_arrays: dict[str, tuple[int, NDArray[np.float64]]] = {}
         for lane in self.lanes:
             c = lane.chain
             lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
@@ -276,7 +276,7 @@ class _Des:
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
         n = lane.n
-        lane.busy = [[False, False] for _ in range(n)]
+        lane.busy = [[False] * n, [False] * n]
         lane.need_pair = [True] * n
         for i in range(n):
             self.maybe_start(lane, i)
@@ -287,7 +287,7 @@ class _Des:
         lane.attempting[i] = True
         ends = lane.iface_ends[i]
         if ends:
-            self.acquire(ends, lambda: self.attempt(lane, i))
+            self.acquire(ends, lane, i)
         else:
             self.attempt(lane, i)
 
@@ -303,13 +303,22 @@ class _Des:
             free = link_free.get(name, 0.0)
             if free > start:
                 start = free
-        k = lane.rounds_to_success(i)
+        if lane.p[i] >= 1.0:
+            k = 1
+        else:  # K ~ Geometric(p) on {1, 2, ...} by inversion, P(K > m) = (1 - p)^m (lane.uniform inlined)
+            at = lane._next_uniform
+            if at >= len(lane._uniforms):
+                lane._uniforms = lane.rng.random(UNIFORM_BLOCK).tolist()
+                at = 0
+            lane._next_uniform = at + 1
+            k = int(math.log(1.0 - lane._uniforms[at]) / lane.log_fail[i]) + 1
         born = start + (k - 1) * period
         for name in links:
             link_free[name] = born + period
         for name in lane.dephasing_ends[i]:
             self.sequences[name].append((start, period, k))  # sorted when read (sorted_log)
             self.unsorted.add(name)
+            self.log_version += 1
             if (k - 1) * period > self.longest_s[name]:
                 self.longest_s[name] = (k - 1) * period
         lane.next_round[i] = born + period
@@ -320,7 +329,10 @@ class _Des:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
         hold it in memory: interfaces free, the pair usable."""
         lane.inflight[i] = None
-        self.count_success(lane, i, k)
+        count = lane.count
+        count.attempts[i] += k
+        count.successes[i] += 1
+        count.busy_s[i] += k * lane.period[i]
         pair = _Pair(i, born, born + lane.herald[i])
         if self.opt.log_pairs:
             lane.log.append(pair)
@@ -347,16 +359,20 @@ class _Des:
         return seqs
 
     # -- optical interfaces and attempt counts -------------------------------------------------
-    def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
-        """Call ``then`` once one interface at every site of ``ends`` is free (taken atomically)."""
+    def acquire(self, ends: list[str], lane: _Lane, i: int) -> None:
+        """Let hop ``i`` attempt once one interface at every site of ``ends`` is free (taken
+        atomically)."""
         free = self.iface_free
-        if all(free[name] > 0 for name in ends):  # nothing else can fit now: only this one is new
+        for name in ends:
+            if free[name] <= 0:
+                break
+        else:  # nothing else can fit now: only this one is new
             for name in ends:
                 free[name] -= 1
-            then()
+            self.attempt(lane, i)
             return
         self.iface_sequence += 1
-        entry = [self.iface_sequence, ends, then, True]
+        entry = [self.iface_sequence, ends, (lane, i), True]
         for name in ends:
             self.iface_waiting[name].append(entry)
 
@@ -379,13 +395,16 @@ class _Des:
         granted = []
         for entry in candidates:
             need = entry[1]
-            if all(free[name] > 0 for name in need):
+            for name in need:
+                if free[name] <= 0:
+                    break
+            else:
                 for name in need:
                     free[name] -= 1
                 entry[3] = False
                 granted.append(entry[2])
-        for then in granted:
-            then()
+        for lane, i in granted:
+            self.attempt(lane, i)
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
@@ -405,8 +424,8 @@ class _Des:
         """Hop ``i`` gives its (purified) pair to the chain."""
         lane.attempting[i] = False
         lane.need_pair[i] = False
-        lane.busy[i] = [True, True]
-        now = self.env.now
+        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        now = self.env._now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
@@ -426,9 +445,9 @@ class _Des:
         if hi < n and right_seg[hi] is not None:
             ready.append(hi)
         for j in ready:
-            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env.now)
+            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env._now)
             if delay > 0:
-                self.at(self.env.now + delay, self.swap, lane, j)
+                self.at(self.env._now + delay, self.swap, lane, j)
             else:
                 self.swap(lane, j)
 
@@ -436,11 +455,11 @@ class _Des:
         left, right = lane.left_seg[j], lane.right_seg[j]
         if not (left and right and left.alive and right.alive):
             return
-        now = self.env.now
+        now = self.env._now
         left.alive = right.alive = False
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = lane.uniform() < lane.swap_p[j]
+        success = lane.swap_p[j] >= 1.0 or lane.uniform() < lane.swap_p[j]
         if not success:
             self.mark_lost(lane, left.pairs + right.pairs)
         self.free_slot(lane, j - 1, RIGHT, now)
@@ -513,17 +532,18 @@ class _Des:
             self.maybe_start(lane, p.hop)
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
-        if when > self.env.now:
+        if when > self.env._now:
             self.at(when, self.free_slot, lane, i, side, when)
             return
-        lane.busy[i][side] = False
-        self.maybe_start(lane, i)
+        lane.busy[side][i] = False
+        if lane.active and lane.need_pair[i] and not lane.attempting[i] and not lane.busy[1 - side][i]:
+            self.begin(lane, i)
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
         if lane.active and lane.need_pair[i] and not lane.attempting[i]:
-            busy = lane.busy[i]
-            if not (busy[0] or busy[1]):
+            busy = lane.busy
+            if not (busy[LEFT][i] or busy[RIGHT][i]):
                 self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
@@ -658,18 +678,24 @@ class _Des:
         if not any(site.name in self.sequences for site in c.sites):
             return
         begin = np.asarray(starts, dtype=float).reshape(len(hist), c.n_hops)
-        logs: dict[str, NDArray[np.float64]] = {}
         out = []
         for store, offset in ((hist.store_left_s, 0), (hist.store_right_s, 1)):
             counts = np.zeros(store.shape)
             for i in range(c.n_hops):
                 name = c.sites[i + offset].name
                 if name in self.sequences:
-                    if name not in logs:
-                        logs[name] = np.array(self.sorted_log(name), dtype=float).reshape(-1, 3)
-                    counts[:, i] = self.attempts_many(name, logs[name], begin[:, i], begin[:, i] + store[:, i])
+                    counts[:, i] = self.attempts_many(name, self.log_array(name), begin[:, i], begin[:, i] + store[:, i])
             out.append(counts)
         hist.attempts_left, hist.attempts_right = out
+
+    def log_array(self, site: str) -> NDArray[np.float64]:
+        """The sorted attempt log of ``site`` as an (M, 3) array, kept until the log changes (the
+        final flushes of all lanes share one)."""
+        cached = self.log_arrays.get(site)
+        if cached is None or cached[0] != self.log_version:
+            cached = (self.log_version, np.array(self.sorted_log(site), dtype=float).reshape(-1, 3))
+            self.log_arrays[site] = cached
+        return cached[1]
 
     def attempts_many(self, site: str, log: NDArray[np.float64], after_s: NDArray[np.float64],
                       until_s: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -701,6 +727,7 @@ class _Des:
             starts += [t for row in ln.rows for t in row[4]]
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
+        self.log_version += 1
         for site in self.sequences:
             self.sequences[site] = [q for q in self.sorted_log(site) if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
 
