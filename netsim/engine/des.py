@@ -256,6 +256,8 @@ class _Des:
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
         self.unsorted: set[str] = set()
         self.log_version = 0  # counts changes of the attempt logs (appends, prunes)
+        #: attempt sequences (start, period, rounds, sites with attempt dephasing) not yet filed
+        self.new_sequences: list[tuple[float, float, int, list[str]]] = []
         self.log_arrays: dict[str, tuple[int, NDArray[np.float64]]] = {}
         for lane in self.lanes:
             c = lane.chain
@@ -315,15 +317,13 @@ class _Des:
         born = start + (k - 1) * period
         for name in links:
             link_free[name] = born + period
-        for name in lane.dephasing_ends[i]:
-            self.sequences[name].append((start, period, k))  # sorted when read (sorted_log)
-            self.unsorted.add(name)
-            self.log_version += 1
-            if (k - 1) * period > self.longest_s[name]:
-                self.longest_s[name] = (k - 1) * period
+        if lane.dephasing_ends[i]:  # filed under its sites when the log is read (absorb_log)
+            self.new_sequences.append((start, period, k, lane.dephasing_ends[i]))
         lane.next_round[i] = born + period
         lane.inflight[i] = (born, k)
-        self.at(born + lane.ready[i], self.transferred, lane, i, born, k)
+        env = self.env
+        env.schedule(_Call(self.transferred, (lane, i, born, k)), NORMAL,  # type: ignore[arg-type]
+                     born + lane.ready[i] - env._now)
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
@@ -340,8 +340,12 @@ class _Des:
             self.release_interfaces(lane.iface_ends[i])
         if self.rounds:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
-        else:
-            self.hand_over(lane, i, pair)
+            return
+        lane.attempting[i] = False  # hand_over, inlined
+        lane.need_pair[i] = False
+        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        now = self.env._now
+        self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, born + self.cutoff))
 
     @staticmethod
     def count_success(lane: _Lane, i: int, k: int) -> None:
@@ -350,8 +354,23 @@ class _Des:
         count.successes[i] += 1
         count.busy_s[i] += k * lane.period[i]
 
+    def absorb_log(self) -> None:
+        """File the attempt sequences started since the last read under their sites."""
+        if not self.new_sequences:
+            return
+        sequences, longest, unsorted = self.sequences, self.longest_s, self.unsorted
+        for start, period, k, ends in self.new_sequences:
+            for name in ends:
+                sequences[name].append((start, period, k))
+                unsorted.add(name)
+                if (k - 1) * period > longest[name]:
+                    longest[name] = (k - 1) * period
+        self.new_sequences = []
+        self.log_version += 1
+
     def sorted_log(self, site: str) -> list[tuple[float, float, int]]:
         """The attempt log of ``site`` sorted by start (appended out of order, sorted on read)."""
+        self.absorb_log()
         seqs = self.sequences[site]
         if site in self.unsorted:
             seqs.sort()
@@ -691,6 +710,7 @@ class _Des:
     def log_array(self, site: str) -> NDArray[np.float64]:
         """The sorted attempt log of ``site`` as an (M, 3) array, kept until the log changes (the
         final flushes of all lanes share one)."""
+        self.absorb_log()
         cached = self.log_arrays.get(site)
         if cached is None or cached[0] != self.log_version:
             cached = (self.log_version, np.array(self.sorted_log(site), dtype=float).reshape(-1, 3))
@@ -718,7 +738,10 @@ class _Des:
         (in a segment, a purification stack, a row not yet flushed; or between those while it is
         moved to memory or a purification outcome travels: younger than herald + transfer + the
         chain's end-to-end message time)."""
-        if self.ended or not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+        if self.ended or not self.sequences:
+            return
+        self.absorb_log()
+        if sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
