@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import bisect
 import math
+import operator
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -138,7 +139,8 @@ class _Call:
         event.fn(*event.args)
 
 
-_FIRE: list[Callable[[Any], None]] = [_Call.fire]  # shared: simpy only reads and then drops the list
+_FIRE: list[Callable[[Any], None]] = [_Call.fire]
+_FIRST = operator.itemgetter(0)  # shared: simpy only reads and then drops the list
 
 
 class _Counts:
@@ -406,13 +408,14 @@ class _Des:
             if queue:
                 live = [entry for entry in queue if entry[3]]
                 waiting[name] = live
-                candidates += live
+                # each queue is in request order; an entry filed under both sites comes twice
+                candidates = sorted(candidates + live, key=_FIRST) if candidates else live
         if not candidates:
             return
-        if len(ends) > 1:
-            candidates = sorted({id(entry): entry for entry in candidates}.values(), key=lambda entry: entry[0])
         granted = []
         for entry in candidates:
+            if not entry[3]:  # granted already (it came through the other site too)
+                continue
             need = entry[1]
             for name in need:
                 if free[name] <= 0:

@@ -174,18 +174,19 @@ class SlotBroker:
         if key is None:
             self._full_pass()
         else:
+            own, queues, total, ahead = key(req), self.queues, self.total, req.ahead
             for site, k in need.items():
-                queue = self.queues[site]
-                if queue and key(queue[-1]) > key(req):
-                    at = bisect.bisect_right(queue, key(req), key=key)
+                queue = queues[site]
+                if queue and key(queue[-1]) > own:
+                    at = bisect.bisect_right(queue, own, key=key)
                     queue.insert(at, req)
-                    req.ahead[site] = sum(other.need[site] for other in queue[:at])
+                    ahead[site] = sum(other.need[site] for other in queue[:at])
                     for other in queue[at + 1:]:
                         other.ahead[site] += k
                 else:
-                    req.ahead[site] = self.total[site]
+                    ahead[site] = total[site]
                     queue.append(req)
-                self.total[site] += k
+                total[site] += k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
             if blocker is None:
                 self._grant_all([req])
@@ -199,13 +200,15 @@ class SlotBroker:
         """Record what a new request meets at each of its sites (slots in use + queued before it
         + its own need) and return the sites where that exceeds the capacity."""
         short = []
+        capacity, free, total, loads, requests = self.capacity, self.free, self.total, self._loads, self._requests
+        incremental = self._key is not None
         for site, k in need.items():
-            queued = (self.total[site] if self._key is not None
-                      else sum(r.need.get(site, 0) for r, _ in self.waiting.values()))
-            load = self.capacity[site] - self.free[site] + queued + k
-            self._loads[site][load] = self._loads[site].get(load, 0) + 1
-            self._requests[site] += 1
-            if load > self.capacity[site]:
+            queued = total[site] if incremental else sum(r.need.get(site, 0) for r, _ in self.waiting.values())
+            load = capacity[site] - free[site] + queued + k
+            counts = loads[site]
+            counts[load] = counts.get(load, 0) + 1
+            requests[site] += 1
+            if load > capacity[site]:
                 short.append(site)
         return short
 
