@@ -46,7 +46,6 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 
 from __future__ import annotations
 
-import bisect
 import math
 import operator
 from collections.abc import Callable
@@ -187,6 +186,7 @@ class _Lane:
         self.position = 0
         self.iface_ends: list[list[str]] = [[] for _ in range(n)]
         self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
+        self.end_set: list[int] = [-1] * n  # per hop: index of its dephasing sites in _Des.end_sets
         self.ready = [float(v) for v in chain.ready_s]
         #: per hop: (successful round, rounds) of a pair not yet heralded and in memory, else None
         self.inflight: list[tuple[float, int] | None] = [None] * n
@@ -252,21 +252,24 @@ class _Des:
         #: sites (an entry granted through one site is skipped and dropped at the others)
         self.iface_waiting: dict[str, list[list[Any]]] = {name: [] for name in self.iface_free}
         self.iface_sequence = 0
-        #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
-        self.sequences: dict[str, list[tuple[float, float, int]]] = {
-            name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
+        #: per site with attempt dephasing: its attempt sequences, (M, 3) rows (start, period,
+        #: rounds) sorted by start (see sorted_log)
+        self.sequences: dict[str, NDArray[np.float64]] = {
+            name: np.zeros((0, 3)) for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
-        self.unsorted: set[str] = set()
-        self.log_version = 0  # counts changes of the attempt logs (appends, prunes)
-        #: attempt sequences (start, period, rounds, sites with attempt dephasing) not yet filed
-        self.new_sequences: list[tuple[float, float, int, list[str]]] = []
-        self.log_arrays: dict[str, tuple[int, NDArray[np.float64]]] = {}
+        #: attempt sequences (start, period, rounds, index into end_sets) not yet filed
+        self.new_sequences: list[tuple[float, float, int, int]] = []
+        self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
             lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
                                for i in range(c.n_hops)]
             lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
                                    for i in range(c.n_hops)]
+            for ends in lane.dephasing_ends:
+                if ends and tuple(ends) not in self.end_sets:
+                    self.end_sets.append(tuple(ends))
+            lane.end_set = [self.end_sets.index(tuple(ends)) if ends else -1 for ends in lane.dephasing_ends]
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
@@ -320,7 +323,7 @@ class _Des:
         for name in links:
             link_free[name] = born + period
         if lane.dephasing_ends[i]:  # filed under its sites when the log is read (absorb_log)
-            self.new_sequences.append((start, period, k, lane.dephasing_ends[i]))
+            self.new_sequences.append((start, period, k, lane.end_set[i]))
         lane.next_round[i] = born + period
         lane.inflight[i] = (born, k)
         env = self.env
@@ -357,27 +360,30 @@ class _Des:
         count.busy_s[i] += k * lane.period[i]
 
     def absorb_log(self) -> None:
-        """File the attempt sequences started since the last read under their sites."""
+        """File the attempt sequences started since the last read under their sites (in one
+        batched pass: grouped by the hop's set of dephasing sites, merged and sorted by start)."""
         if not self.new_sequences:
             return
-        sequences, longest, unsorted = self.sequences, self.longest_s, self.unsorted
-        for start, period, k, ends in self.new_sequences:
-            for name in ends:
-                sequences[name].append((start, period, k))
-                unsorted.add(name)
-                if (k - 1) * period > longest[name]:
-                    longest[name] = (k - 1) * period
+        new = np.array(self.new_sequences, dtype=float)
         self.new_sequences = []
-        self.log_version += 1
+        key = new[:, 3].astype(np.int64)
+        order = np.argsort(key, kind="stable")
+        bounds = np.searchsorted(key[order], np.arange(len(self.end_sets) + 1))
+        parts: dict[str, list[NDArray[np.float64]]] = {}
+        for k, ends in enumerate(self.end_sets):
+            if bounds[k + 1] > bounds[k]:
+                rows = new[order[bounds[k]:bounds[k + 1]], :3]
+                for name in ends:
+                    parts.setdefault(name, []).append(rows)
+        for name, pieces in parts.items():
+            merged = np.concatenate([self.sequences[name], *pieces])
+            self.sequences[name] = merged[np.argsort(merged[:, 0], kind="stable")]
+            self.longest_s[name] = max(self.longest_s[name], float(((merged[:, 2] - 1.0) * merged[:, 1]).max()))
 
-    def sorted_log(self, site: str) -> list[tuple[float, float, int]]:
-        """The attempt log of ``site`` sorted by start (appended out of order, sorted on read)."""
+    def sorted_log(self, site: str) -> NDArray[np.float64]:
+        """The attempt log of ``site``: an (M, 3) array of (start, period, rounds), sorted by start."""
         self.absorb_log()
-        seqs = self.sequences[site]
-        if site in self.unsorted:
-            seqs.sort()
-            self.unsorted.discard(site)
-        return seqs
+        return self.sequences[site]
 
     # -- optical interfaces and attempt counts -------------------------------------------------
     def acquire(self, ends: list[str], lane: _Lane, i: int) -> None:
@@ -433,13 +439,11 @@ class _Des:
         if site not in self.sequences:
             return 0
         seqs = self.sorted_log(site)
-        if not seqs:
-            return 0
-        lo = bisect.bisect_left(seqs, (after_s - self.longest_s[site] - 1e-9,))
-        hi = bisect.bisect_right(seqs, (until_s, math.inf, math.inf))
+        lo = int(np.searchsorted(seqs[:, 0], after_s - self.longest_s[site] - 1e-9, side="left"))
+        hi = int(np.searchsorted(seqs[:, 0], until_s, side="right"))
         if hi <= lo:
             return 0
-        arr = np.array(seqs[lo:hi], dtype=float)
+        arr = seqs[lo:hi]
         return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
@@ -706,19 +710,9 @@ class _Des:
             for i in range(c.n_hops):
                 name = c.sites[i + offset].name
                 if name in self.sequences:
-                    counts[:, i] = self.attempts_many(name, self.log_array(name), begin[:, i], begin[:, i] + store[:, i])
+                    counts[:, i] = self.attempts_many(name, self.sorted_log(name), begin[:, i], begin[:, i] + store[:, i])
             out.append(counts)
         hist.attempts_left, hist.attempts_right = out
-
-    def log_array(self, site: str) -> NDArray[np.float64]:
-        """The sorted attempt log of ``site`` as an (M, 3) array, kept until the log changes (the
-        final flushes of all lanes share one)."""
-        self.absorb_log()
-        cached = self.log_arrays.get(site)
-        if cached is None or cached[0] != self.log_version:
-            cached = (self.log_version, np.array(self.sorted_log(site), dtype=float).reshape(-1, 3))
-            self.log_arrays[site] = cached
-        return cached[1]
 
     def attempts_many(self, site: str, log: NDArray[np.float64], after_s: NDArray[np.float64],
                       until_s: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -753,9 +747,8 @@ class _Des:
             starts += [t for row in ln.rows for t in row[4]]
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
-        self.log_version += 1
-        for site in self.sequences:
-            self.sequences[site] = [q for q in self.sorted_log(site) if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
+        for site, seqs in self.sequences.items():
+            self.sequences[site] = seqs[seqs[:, 0] + (seqs[:, 2] - 1.0) * seqs[:, 1] >= oldest - 1e-9]
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
