@@ -200,6 +200,8 @@ class _Lane:
         self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
         self.pos = [float(v) for v in chain.position_s]
         self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
+        #: per hop, what an attempt reads: (links, period, p, log(1 - p), ready, end_set)
+        self.hop_constants: list[tuple[tuple[str, ...], float, float, float, float, int]] = []
 
     def uniform(self) -> float:
         """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
@@ -270,6 +272,7 @@ class _Des:
                 if ends and tuple(ends) not in self.end_sets:
                     self.end_sets.append(tuple(ends))
             lane.end_set = [self.end_sets.index(tuple(ends)) if ends else -1 for ends in lane.dephasing_ends]
+            lane.hop_constants = list(zip(lane.links, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
@@ -301,8 +304,9 @@ class _Des:
     def attempt(self, lane: _Lane, i: int) -> None:
         """Hop ``i`` attempts until its next success; the clock jumps to the moment its pair is
         heralded and moved to memory (one event: nothing else depends on the herald itself)."""
-        links, period = lane.links[i], lane.period[i]
-        start = self.env._now
+        links, period, p, log_fail, ready, end_set = lane.hop_constants[i]
+        env = self.env
+        start = env._now
         if lane.next_round[i] > start:
             start = lane.next_round[i]
         link_free = self.link_free_s
@@ -310,7 +314,7 @@ class _Des:
             free = link_free.get(name, 0.0)
             if free > start:
                 start = free
-        if lane.p[i] >= 1.0:
+        if p >= 1.0:
             k = 1
         else:  # K ~ Geometric(p) on {1, 2, ...} by inversion, P(K > m) = (1 - p)^m (lane.uniform inlined)
             at = lane._next_uniform
@@ -318,17 +322,16 @@ class _Des:
                 lane._uniforms = lane.rng.random(UNIFORM_BLOCK).tolist()
                 at = 0
             lane._next_uniform = at + 1
-            k = int(math.log(1.0 - lane._uniforms[at]) / lane.log_fail[i]) + 1
+            k = int(math.log(1.0 - lane._uniforms[at]) / log_fail) + 1
         born = start + (k - 1) * period
         for name in links:
             link_free[name] = born + period
-        if lane.dephasing_ends[i]:  # filed under its sites when the log is read (absorb_log)
-            self.new_sequences.append((start, period, k, lane.end_set[i]))
+        if end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
+            self.new_sequences.append((start, period, k, end_set))
         lane.next_round[i] = born + period
         lane.inflight[i] = (born, k)
-        env = self.env
         env.schedule(_Call(self.transferred, (lane, i, born, k)), NORMAL,  # type: ignore[arg-type]
-                     born + lane.ready[i] - env._now)
+                     born + ready - env._now)
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
