@@ -8,7 +8,8 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 - **Heralded generation with event skipping.** A hop with free slots at both ends draws the
   number of rounds K ~ Geometric(p_round) (p_round = 1 - (1 - p)^M) and the clock jumps to the
   herald: its successful round starts at b = start + (K - 1) T and both ends know at b + h. Its
-  next round may not start before b + T. One event per success, none per failed attempt.
+  next round may not start before b + T. One event per success (at b + h + the memory transfer
+  time), none per failed attempt.
 - **Shared fibre.** A fibre link carries one attempt sequence at a time (all of its modes serve
   that sequence): a hop whose light path uses a link another demand is attempting on starts once
   that sequence has heralded, first come, first served. A link's busy time therefore never
@@ -225,8 +226,9 @@ class _Des:
     """One event-engine run over a group of demands that share memory sites.
 
     Every model step is a plain callback on a simpy event (no generator process per hop, swap or
-    timer): the model is the one described above, one simpy event per heralded link pair, per
-    delivery, per delayed slot release and per cut-off deadline of a lane.
+    timer): the model is the one described above, one simpy event per link pair (when it is
+    heralded and in memory), per delivery, per delayed slot release and per cut-off deadline of a
+    lane.
     """
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
