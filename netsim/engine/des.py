@@ -235,6 +235,7 @@ class _Des:
                  rules: list[StopRule], options: DesOptions) -> None:
         self.env = simpy.Environment()
         self.rules, self.opt = rules, options
+        self.log_pairs = options.log_pairs
         self.cutoff = math.inf if options.cutoff_s is None else float(options.cutoff_s)
         self.rounds = int(options.purification_rounds) if options.purification != "none" else 0
         self.purify: Callable[..., Any] | None = (
@@ -344,7 +345,7 @@ class _Des:
         count.successes[i] += 1
         count.busy_s[i] += k * lane.period[i]
         pair = _Pair(i, born, born + lane.herald[i])
-        if self.opt.log_pairs:
+        if self.log_pairs:
             lane.log.append(pair)
         if lane.iface_ends[i]:
             self.release_interfaces(lane.iface_ends[i])
@@ -470,13 +471,16 @@ class _Des:
             return
         if seg.deadline < lane.cut_at:
             self.arm_cutoff(lane, seg.deadline)
-        ready = []
-        if lo > 0 and left_seg[lo] is not None:
-            ready.append(lo)
-        if hi < n and right_seg[hi] is not None:
-            ready.append(hi)
-        for j in ready:
-            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env._now)
+        at_lo = lo > 0 and left_seg[lo] is not None
+        at_hi = hi < n and right_seg[hi] is not None
+        if self.asap:
+            if at_lo:
+                self.swap(lane, lo)
+            if at_hi:
+                self.swap(lane, hi)
+            return
+        for j in (lo,) * at_lo + (hi,) * at_hi:
+            delay = self.swapping.swap_delay_s(j, n, self.env._now)
             if delay > 0:
                 self.at(self.env._now + delay, self.swap, lane, j)
             else:
@@ -491,13 +495,12 @@ class _Des:
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
         success = lane.swap_p[j] >= 1.0 or lane.uniform() < lane.swap_p[j]
-        if not success:
-            self.mark_lost(lane, left.pairs + right.pairs)
-        self.free_slot(lane, j - 1, RIGHT, now)
-        self.free_slot(lane, j, LEFT, now)
         pos = lane.pos
         to_lo, to_hi = pos[j] - pos[left.lo], pos[right.hi] - pos[j]
         if success:
+            # site j's two slots free at once; hops j - 1 and j need no new pair (their pairs
+            # live on in the joined segment), so nothing starts (free_slot, short-cut)
+            lane.busy[RIGHT][j - 1] = lane.busy[LEFT][j] = False
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
@@ -507,6 +510,9 @@ class _Des:
                           min(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
+        self.mark_lost(lane, left.pairs + right.pairs)
+        self.free_slot(lane, j - 1, RIGHT, now)
+        self.free_slot(lane, j, LEFT, now)
         lane.count.swap_failures[j] += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
