@@ -74,3 +74,16 @@ def test_the_recorded_cases_carry_the_node_physics() -> None:
             assert site.attempt_dephasing > 0 and site.photon_indistinguishability < 1
         assert all(link.phase_noise_rad > 0 for link in scenario.links)
         assert scenario.protocol.cutoff_s is not None
+
+
+def test_same_seed_gives_the_same_numbers_with_the_node_physics() -> None:
+    """Seeded simulation repeats exactly (common practice): one seed, the same figures twice; another
+    seed, other figures. On the 4x4 grid every site has one communication qubit, a transfer time
+    and error and attempt dephasing, and demands contend for slots, interfaces and fibres."""
+    name = "grid-4x4-8-demands-slots-2-seed-3"
+    scenario = load_data(REFERENCE[name]["scenario"], source=name)
+    a = run(scenario, pairs=60, seed=4, ensembles=False).to_dict()
+    b = run(scenario, pairs=60, seed=4, ensembles=False).to_dict()
+    c = run(scenario, pairs=60, seed=5, ensembles=False).to_dict()
+    assert a["demands"] == b["demands"] and a["sites"] == b["sites"] and a["links"] == b["links"]
+    assert a["demands"] != c["demands"]
