@@ -270,14 +270,20 @@ class SlotBroker:
             self._full_pass()
             return
         fitting: list[Request] = []
+        blocked, free = self.blocked, self.free
         for site in changed:
-            filed, self.blocked[site] = self.blocked[site], []
+            filed = blocked[site]
+            if not filed:
+                continue
+            blocked[site] = []
             for req in filed:
-                blocker = self._blocker(req)
-                if blocker is None:
-                    fitting.append(req)
+                ahead = req.ahead
+                for other, k in req.need.items():  # _blocker, inlined
+                    if free[other] - ahead[other] < k:
+                        blocked[other].append(req)
+                        break
                 else:
-                    self.blocked[blocker].append(req)
+                    fitting.append(req)
         if fitting:
             self._grant_all(sorted(fitting, key=key))
 
