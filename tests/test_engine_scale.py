@@ -200,7 +200,7 @@ def test_batched_attempt_counts_equal_the_one_by_one_count() -> None:
     sim = _Des([line_chain(1, 0.5, 1e-3)], [rng], {"N0": 1, "N1": 1}, [StopRule(pairs=1)], DesOptions())
     seqs = sorted((float(rng.uniform(0, 1)), float(rng.choice([1e-3, 3e-3])), int(rng.integers(1, 200)))
                   for _ in range(400))
-    sim.sequences["X"] = seqs
+    sim.sequences["X"] = np.array(seqs, dtype=float)
     sim.longest_s["X"] = max((k - 1) * p for _, p, k in seqs)
     after = rng.uniform(0, 1, 300)
     after[:20] = [s[0] for s in seqs[:20]]  # windows opening exactly at a sequence's own round

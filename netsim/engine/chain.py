@@ -152,14 +152,13 @@ class Chain:
         """
         from netsim import qinfo
 
-        states = []
-        for i, h in enumerate(self.hops):
-            rho = np.asarray(h.physics.state, dtype=complex)
-            for qubit, site in ((0, self.sites[i]), (1, self.sites[i + 1])):
-                if site.memory_transfer_error > 0:
-                    rho = qinfo.depolarizing(site.memory_transfer_error).apply(rho, qubit=qubit)
-            states.append(rho)
-        return np.stack(states)
+        states = np.stack([np.asarray(h.physics.state, dtype=complex) for h in self.hops])
+        for qubit in (0, 1):  # channels on different qubits commute; one batched call per error value
+            errors = np.array([float(self.sites[i + qubit].memory_transfer_error) for i in range(self.n_hops)])
+            for p in sorted(set(errors[errors > 0].tolist())):
+                hops = np.flatnonzero(errors == p)
+                states[hops] = qinfo.depolarizing(p).apply(states[hops], qubit=qubit)
+        return states
 
     @cached_property
     def interface_waits(self) -> tuple[tuple[int, tuple[int, ...]], ...]:

@@ -8,7 +8,8 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 - **Heralded generation with event skipping.** A hop with free slots at both ends draws the
   number of rounds K ~ Geometric(p_round) (p_round = 1 - (1 - p)^M) and the clock jumps to the
   herald: its successful round starts at b = start + (K - 1) T and both ends know at b + h. Its
-  next round may not start before b + T. One event per success, none per failed attempt.
+  next round may not start before b + T. One event per success (at b + h + the memory transfer
+  time), none per failed attempt.
 - **Shared fibre.** A fibre link carries one attempt sequence at a time (all of its modes serve
   that sequence): a hop whose light path uses a link another demand is attempting on starts once
   that sequence has heralded, first come, first served. A link's busy time therefore never
@@ -46,10 +47,10 @@ Model (every rule here is mirrored by :mod:`netsim.engine.vector` where that eng
 
 from __future__ import annotations
 
-import bisect
 import math
+import operator
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -96,40 +97,54 @@ class DesOptions:
     progress: Callable[[int], None] | None = None
 
 
-@dataclass(slots=True)
 class _Pair:
-    """A heralded link pair of hop ``hop`` whose state is valid from ``start``."""
+    """A heralded link pair of hop ``hop`` whose state is valid from ``start``; ``end`` holds the
+    times its left and right qubits were Bell-measured, delivered or dropped."""
 
-    hop: int
-    start: float
-    herald: float
-    state_id: int = 0
-    end: list[float] = field(default_factory=lambda: [math.nan, math.nan])
-    fate: str = ""
+    __slots__ = ("end", "fate", "herald", "hop", "start", "state_id")
+
+    def __init__(self, hop: int, start: float, herald: float) -> None:
+        self.hop, self.start, self.herald = hop, start, herald
+        self.state_id = 0
+        self.end = [math.nan, math.nan]
+        self.fate = ""
+
+    def __repr__(self) -> str:
+        return (f"_Pair(hop={self.hop}, start={self.start}, herald={self.herald}, end={self.end}, "
+                f"fate={self.fate!r})")
 
 
-@dataclass(slots=True)
 class _Seg:
     """A run of joined link pairs from site ``lo`` to site ``hi``."""
 
-    lo: int
-    hi: int
-    pairs: list[_Pair]
-    info_lo: float
-    info_hi: float
-    deadline: float
-    alive: bool = True
+    __slots__ = ("alive", "deadline", "hi", "info_hi", "info_lo", "lo", "pairs")
+
+    def __init__(self, lo: int, hi: int, pairs: list[_Pair], info_lo: float, info_hi: float,
+                 deadline: float) -> None:
+        self.lo, self.hi, self.pairs = lo, hi, pairs
+        self.info_lo, self.info_hi, self.deadline = info_lo, info_hi, deadline
+        self.alive = True
 
 
 class _Call:
-    """A bare simpy event that only runs its callbacks (scheduled with ``Environment.schedule``)."""
+    """A bare simpy event that calls ``fn(*args)`` when processed (scheduled with
+    ``Environment.schedule``; no closure per event)."""
 
-    __slots__ = ("callbacks",)
+    __slots__ = ("args", "callbacks", "fn")
     _ok = True
     _value = None
 
-    def __init__(self, callback: Callable[[Any], None]) -> None:
-        self.callbacks: list[Callable[[Any], None]] | None = [callback]
+    def __init__(self, fn: Callable[..., None], args: tuple[Any, ...]) -> None:
+        self.fn, self.args = fn, args
+        self.callbacks: list[Callable[[Any], None]] | None = _FIRE
+
+    @staticmethod
+    def fire(event: _Call) -> None:
+        event.fn(*event.args)
+
+
+_FIRE: list[Callable[[Any], None]] = [_Call.fire]
+_FIRST = operator.itemgetter(0)  # shared: simpy only reads and then drops the list
 
 
 class _Counts:
@@ -161,7 +176,7 @@ class _Lane:
         self._next_uniform = 0
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
         self.next_round = [0.0] * n
-        self.busy = [[False, False] for _ in range(n)]
+        self.busy = [[False] * n, [False] * n]  # busy[side][hop]: that end's slot holds a qubit
         self.attempting = [False] * n
         self.need_pair = [True] * n
         self.last_delivery_s = 0.0
@@ -176,7 +191,10 @@ class _Lane:
         self.position = 0
         self.iface_ends: list[list[str]] = [[] for _ in range(n)]
         self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
-        self.transfer = [float(v) for v in chain.transfer_s]
+        self.end_set: list[int] = [-1] * n  # per hop: index of its dephasing sites in _Des.end_sets
+        self.ready = [float(v) for v in chain.ready_s]
+        #: per hop: (successful round, rounds) of a pair not yet heralded and in memory, else None
+        self.inflight: list[tuple[float, int] | None] = [None] * n
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
         # plain floats: numpy scalars are slow in the per-event arithmetic
@@ -187,6 +205,8 @@ class _Lane:
         self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
         self.pos = [float(v) for v in chain.position_s]
         self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
+        #: per hop, what an attempt reads: (links, period, p, log(1 - p), ready, end_set)
+        self.hop_constants: list[tuple[tuple[str, ...], float, float, float, float, int]] = []
 
     def uniform(self) -> float:
         """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
@@ -195,12 +215,6 @@ class _Lane:
             self._next_uniform = 0
         self._next_uniform += 1
         return self._uniforms[self._next_uniform - 1]
-
-    def rounds_to_success(self, i: int) -> int:
-        """K ~ Geometric(p_i) on {1, 2, ...} by inversion: P(K > m) = (1 - p)^m."""
-        if self.p[i] >= 1.0:
-            return 1
-        return int(math.log(1.0 - self.uniform()) / self.log_fail[i]) + 1
 
 
 def path_need(chain: Chain, per_end: int) -> dict[str, int]:
@@ -216,8 +230,9 @@ class _Des:
     """One event-engine run over a group of demands that share memory sites.
 
     Every model step is a plain callback on a simpy event (no generator process per hop, swap or
-    timer): the model is the one described above, one simpy event per heralded link pair, per
-    delivery, per delayed slot release and per cut-off deadline of a lane.
+    timer): the model is the one described above, one simpy event per link pair (when it is
+    heralded and in memory), per delivery, per delayed slot release and per cut-off deadline of a
+    lane.
     """
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
@@ -225,6 +240,7 @@ class _Des:
         self.env = simpy.Environment()
         self.rules, self.opt = rules, options
         self.heralds = 0
+        self.log_pairs = options.log_pairs
         self.cutoff = math.inf if options.cutoff_s is None else float(options.cutoff_s)
         self.rounds = int(options.purification_rounds) if options.purification != "none" else 0
         self.purify: Callable[..., Any] | None = (
@@ -242,21 +258,34 @@ class _Des:
         sites = {site.name: site for lane in self.lanes for site in lane.chain.sites}
         self.iface_free = {name: int(site.communication_qubits) for name, site in sites.items()
                            if site.communication_qubits is not None}
-        self.iface_queue: list[tuple[list[str], Callable[[], None]]] = []
-        #: per site with attempt dephasing: sorted (start, period, rounds) of its attempt sequences
-        self.sequences: dict[str, list[tuple[float, float, int]]] = {
-            name: [] for name, site in sites.items() if site.attempt_dephasing > 0}
+        #: waiting interface requests [sequence, sites, then, waiting], filed under each of their
+        #: sites (an entry granted through one site is skipped and dropped at the others)
+        self.iface_waiting: dict[str, list[list[Any]]] = {name: [] for name in self.iface_free}
+        self.iface_sequence = 0
+        #: per site with attempt dephasing: its attempt sequences, (M, 3) rows (start, period,
+        #: rounds) sorted by start (see sorted_log)
+        self.sequences: dict[str, NDArray[np.float64]] = {
+            name: np.zeros((0, 3)) for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
+        #: attempt sequences (start, period, rounds, index into end_sets) not yet filed
+        self.new_sequences: list[tuple[float, float, int, int]] = []
+        self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
             lane.iface_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.iface_free]
                                for i in range(c.n_hops)]
             lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
                                    for i in range(c.n_hops)]
+            for ends in lane.dephasing_ends:
+                if ends and tuple(ends) not in self.end_sets:
+                    self.end_sets.append(tuple(ends))
+            lane.end_set = [self.end_sets.index(tuple(ends)) if ends else -1 for ends in lane.dephasing_ends]
+            lane.hop_constants = list(zip(lane.links, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
-        self.env.schedule(_Call(lambda _event: fn(*args)), NORMAL, t - self.env.now)  # type: ignore[arg-type]
+        env = self.env
+        env.schedule(_Call(fn, args), NORMAL, t - env._now)  # type: ignore[arg-type]
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -265,7 +294,7 @@ class _Des:
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
         n = lane.n
-        lane.busy = [[False, False] for _ in range(n)]
+        lane.busy = [[False] * n, [False] * n]
         lane.need_pair = [True] * n
         for i in range(n):
             self.maybe_start(lane, i)
@@ -276,53 +305,99 @@ class _Des:
         lane.attempting[i] = True
         ends = lane.iface_ends[i]
         if ends:
-            self.acquire(ends, lambda: self.attempt(lane, i))
+            self.acquire(ends, lane, i)
         else:
             self.attempt(lane, i)
 
     def attempt(self, lane: _Lane, i: int) -> None:
-        """Hop ``i`` attempts until its next success; the clock jumps to the herald."""
-        links, period = lane.links[i], lane.period[i]
-        start = max(self.env.now, lane.next_round[i])
+        """Hop ``i`` attempts until its next success; the clock jumps to the moment its pair is
+        heralded and moved to memory (one event: nothing else depends on the herald itself)."""
+        links, period, p, log_fail, ready, end_set = lane.hop_constants[i]
+        env = self.env
+        start = env._now
+        if lane.next_round[i] > start:
+            start = lane.next_round[i]
+        link_free = self.link_free_s
         for name in links:
-            free = self.link_free_s.get(name, 0.0)
+            free = link_free.get(name, 0.0)
             if free > start:
                 start = free
-        k = lane.rounds_to_success(i)
+        if p >= 1.0:
+            k = 1
+        else:  # K ~ Geometric(p) on {1, 2, ...} by inversion, P(K > m) = (1 - p)^m (lane.uniform inlined)
+            at = lane._next_uniform
+            if at >= len(lane._uniforms):
+                lane._uniforms = lane.rng.random(UNIFORM_BLOCK).tolist()
+                at = 0
+            lane._next_uniform = at + 1
+            k = int(math.log(1.0 - lane._uniforms[at]) / log_fail) + 1
         born = start + (k - 1) * period
         for name in links:
-            self.link_free_s[name] = born + period
-        for name in lane.dephasing_ends[i]:
-            bisect.insort(self.sequences[name], (start, period, k))
-            self.longest_s[name] = max(self.longest_s[name], (k - 1) * period)
-        self.at(born + lane.herald[i], self.heralded, lane, i, born, k)
-
-    def heralded(self, lane: _Lane, i: int, born: float, k: int) -> None:
-        period = lane.period[i]
+            link_free[name] = born + period
+        if end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
+            self.new_sequences.append((start, period, k, end_set))
         lane.next_round[i] = born + period
+        lane.inflight[i] = (born, k)
+        env.schedule(_Call(self.transferred, (lane, i, born, k)), NORMAL,  # type: ignore[arg-type]
+                     born + ready - env._now)
+
+    def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
+        """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
+        hold it in memory: interfaces free, the pair usable."""
+        lane.inflight[i] = None
         count = lane.count
         count.attempts[i] += k
         count.successes[i] += 1
         self.heralds += 1
         if not self.heralds & 4095:
             self.guard()
-        count.busy_s[i] += k * period
-        pair = _Pair(i, born, self.env.now)
-        if self.opt.log_pairs:
+        count.busy_s[i] += k * lane.period[i]
+        pair = _Pair(i, born, born + lane.herald[i])
+        if self.log_pairs:
             lane.log.append(pair)
-        if lane.transfer[i] > 0:
-            self.at(self.env.now + lane.transfer[i], self.transferred, lane, i, pair)
-        else:
-            self.transferred(lane, i, pair)
-
-    def transferred(self, lane: _Lane, i: int, pair: _Pair) -> None:
-        """Both ends hold hop ``i``'s new pair in memory: interfaces free, the pair usable."""
         if lane.iface_ends[i]:
             self.release_interfaces(lane.iface_ends[i])
         if self.rounds:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
-        else:
-            self.hand_over(lane, i, pair)
+            return
+        lane.attempting[i] = False  # hand_over, inlined
+        lane.need_pair[i] = False
+        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        now = self.env._now
+        self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, born + self.cutoff))
+
+    @staticmethod
+    def count_success(lane: _Lane, i: int, k: int) -> None:
+        count = lane.count
+        count.attempts[i] += k
+        count.successes[i] += 1
+        count.busy_s[i] += k * lane.period[i]
+
+    def absorb_log(self) -> None:
+        """File the attempt sequences started since the last read under their sites (in one
+        batched pass: grouped by the hop's set of dephasing sites, merged and sorted by start)."""
+        if not self.new_sequences:
+            return
+        new = np.array(self.new_sequences, dtype=float)
+        self.new_sequences = []
+        key = new[:, 3].astype(np.int64)
+        order = np.argsort(key, kind="stable")
+        bounds = np.searchsorted(key[order], np.arange(len(self.end_sets) + 1))
+        parts: dict[str, list[NDArray[np.float64]]] = {}
+        for k, ends in enumerate(self.end_sets):
+            if bounds[k + 1] > bounds[k]:
+                rows = new[order[bounds[k]:bounds[k + 1]], :3]
+                for name in ends:
+                    parts.setdefault(name, []).append(rows)
+        for name, pieces in parts.items():
+            merged = np.concatenate([self.sequences[name], *pieces])
+            self.sequences[name] = merged[np.argsort(merged[:, 0], kind="stable")]
+            self.longest_s[name] = max(self.longest_s[name], float(((merged[:, 2] - 1.0) * merged[:, 1]).max()))
+
+    def sorted_log(self, site: str) -> NDArray[np.float64]:
+        """The attempt log of ``site``: an (M, 3) array of (start, period, rounds), sorted by start."""
+        self.absorb_log()
+        return self.sequences[site]
 
     def guard(self) -> None:
         """Every 4096 heralded link pairs: report progress; stop beyond ``max_link_pairs``."""
@@ -336,56 +411,72 @@ class _Des:
                                 "longer than its estimate: raise --max-link-pairs or ask for fewer pairs")
 
     # -- optical interfaces and attempt counts -------------------------------------------------
-    def acquire(self, ends: list[str], then: Callable[[], None]) -> None:
-        """Call ``then`` once one interface at every site of ``ends`` is free (taken atomically)."""
+    def acquire(self, ends: list[str], lane: _Lane, i: int) -> None:
+        """Let hop ``i`` attempt once one interface at every site of ``ends`` is free (taken
+        atomically)."""
         free = self.iface_free
-        if all(free[name] > 0 for name in ends):  # nothing else can fit now: only this one is new
+        for name in ends:
+            if free[name] <= 0:
+                break
+        else:  # nothing else can fit now: only this one is new
             for name in ends:
                 free[name] -= 1
-            then()
+            self.attempt(lane, i)
             return
-        self.iface_queue.append((ends, then))
+        self.iface_sequence += 1
+        entry = [self.iface_sequence, ends, (lane, i), True]
+        for name in ends:
+            self.iface_waiting[name].append(entry)
 
     def release_interfaces(self, ends: list[str]) -> None:
         """Free one interface at each site of ``ends``; grant waiting requests greedily in request
         order (only those needing one of these sites can fit now: the others did not before)."""
-        free = self.iface_free
+        free, waiting = self.iface_free, self.iface_waiting
+        candidates: list[list[Any]] = []
         for name in ends:
             free[name] += 1
-        if not self.iface_queue:
+            queue = waiting[name]
+            if queue:
+                live = [entry for entry in queue if entry[3]]
+                waiting[name] = live
+                # each queue is in request order; an entry filed under both sites comes twice
+                candidates = sorted(candidates + live, key=_FIRST) if candidates else live
+        if not candidates:
             return
-        waiting, granted, released = [], [], set(ends)
-        for item in self.iface_queue:
-            need = item[0]
-            if not released.isdisjoint(need) and all(free[name] > 0 for name in need):
+        granted = []
+        for entry in candidates:
+            if not entry[3]:  # granted already (it came through the other site too)
+                continue
+            need = entry[1]
+            for name in need:
+                if free[name] <= 0:
+                    break
+            else:
                 for name in need:
                     free[name] -= 1
-                granted.append(item[1])
-            else:
-                waiting.append(item)
-        if granted:
-            self.iface_queue = waiting
-            for then in granted:
-                then()
+                entry[3] = False
+                granted.append(entry[2])
+        for lane, i in granted:
+            self.attempt(lane, i)
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
-        seqs = self.sequences.get(site)
-        if not seqs:
+        if site not in self.sequences:
             return 0
-        lo = bisect.bisect_left(seqs, (after_s - self.longest_s[site] - 1e-9,))
-        hi = bisect.bisect_right(seqs, (until_s, math.inf, math.inf))
+        seqs = self.sorted_log(site)
+        lo = int(np.searchsorted(seqs[:, 0], after_s - self.longest_s[site] - 1e-9, side="left"))
+        hi = int(np.searchsorted(seqs[:, 0], until_s, side="right"))
         if hi <= lo:
             return 0
-        arr = np.array(seqs[lo:hi], dtype=float)
+        arr = seqs[lo:hi]
         return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
         """Hop ``i`` gives its (purified) pair to the chain."""
         lane.attempting[i] = False
         lane.need_pair[i] = False
-        lane.busy[i] = [True, True]
-        now = self.env.now
+        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        now = self.env._now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
@@ -399,15 +490,18 @@ class _Des:
             return
         if seg.deadline < lane.cut_at:
             self.arm_cutoff(lane, seg.deadline)
-        ready = []
-        if lo > 0 and left_seg[lo] is not None:
-            ready.append(lo)
-        if hi < n and right_seg[hi] is not None:
-            ready.append(hi)
-        for j in ready:
-            delay = 0.0 if self.asap else self.swapping.swap_delay_s(j, n, self.env.now)
+        at_lo = lo > 0 and left_seg[lo] is not None
+        at_hi = hi < n and right_seg[hi] is not None
+        if self.asap:
+            if at_lo:
+                self.swap(lane, lo)
+            if at_hi:
+                self.swap(lane, hi)
+            return
+        for j in (lo,) * at_lo + (hi,) * at_hi:
+            delay = self.swapping.swap_delay_s(j, n, self.env._now)
             if delay > 0:
-                self.at(self.env.now + delay, self.swap, lane, j)
+                self.at(self.env._now + delay, self.swap, lane, j)
             else:
                 self.swap(lane, j)
 
@@ -415,18 +509,17 @@ class _Des:
         left, right = lane.left_seg[j], lane.right_seg[j]
         if not (left and right and left.alive and right.alive):
             return
-        now = self.env.now
+        now = self.env._now
         left.alive = right.alive = False
         lane.left_seg[j] = lane.right_seg[j] = None
         left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = lane.uniform() < lane.swap_p[j]
-        if not success:
-            self.mark_lost(lane, left.pairs + right.pairs)
-        self.free_slot(lane, j - 1, RIGHT, now)
-        self.free_slot(lane, j, LEFT, now)
+        success = lane.swap_p[j] >= 1.0 or lane.uniform() < lane.swap_p[j]
         pos = lane.pos
         to_lo, to_hi = pos[j] - pos[left.lo], pos[right.hi] - pos[j]
         if success:
+            # site j's two slots free at once; hops j - 1 and j need no new pair (their pairs
+            # live on in the joined segment), so nothing starts (free_slot, short-cut)
+            lane.busy[RIGHT][j - 1] = lane.busy[LEFT][j] = False
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
@@ -436,6 +529,9 @@ class _Des:
                           min(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
+        self.mark_lost(lane, left.pairs + right.pairs)
+        self.free_slot(lane, j - 1, RIGHT, now)
+        self.free_slot(lane, j, LEFT, now)
         lane.count.swap_failures[j] += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
@@ -492,17 +588,18 @@ class _Des:
             self.maybe_start(lane, p.hop)
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
-        if when > self.env.now:
+        if when > self.env._now:
             self.at(when, self.free_slot, lane, i, side, when)
             return
-        lane.busy[i][side] = False
-        self.maybe_start(lane, i)
+        lane.busy[side][i] = False
+        if lane.active and lane.need_pair[i] and not lane.attempting[i] and not lane.busy[1 - side][i]:
+            self.begin(lane, i)
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
         if lane.active and lane.need_pair[i] and not lane.attempting[i]:
-            busy = lane.busy[i]
-            if not (busy[0] or busy[1]):
+            busy = lane.busy
+            if not (busy[LEFT][i] or busy[RIGHT][i]):
                 self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
@@ -604,6 +701,9 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
+        for i, flight in enumerate(lane.inflight):  # heralded by the end, still moving to memory
+            if flight is not None and flight[0] + lane.herald[i] <= self.env.now:
+                self.count_success(lane, i, flight[1])
         lane.count.add_to(lane.run)
         self.flush(lane, now)
         lane.run.simulated_time_s = now
@@ -634,16 +734,13 @@ class _Des:
         if not any(site.name in self.sequences for site in c.sites):
             return
         begin = np.asarray(starts, dtype=float).reshape(len(hist), c.n_hops)
-        logs: dict[str, NDArray[np.float64]] = {}
         out = []
         for store, offset in ((hist.store_left_s, 0), (hist.store_right_s, 1)):
             counts = np.zeros(store.shape)
             for i in range(c.n_hops):
                 name = c.sites[i + offset].name
                 if name in self.sequences:
-                    if name not in logs:
-                        logs[name] = np.array(self.sequences[name], dtype=float).reshape(-1, 3)
-                    counts[:, i] = self.attempts_many(name, logs[name], begin[:, i], begin[:, i] + store[:, i])
+                    counts[:, i] = self.attempts_many(name, self.sorted_log(name), begin[:, i], begin[:, i] + store[:, i])
             out.append(counts)
         hist.attempts_left, hist.attempts_right = out
 
@@ -668,7 +765,10 @@ class _Des:
         (in a segment, a purification stack, a row not yet flushed; or between those while it is
         moved to memory or a purification outcome travels: younger than herald + transfer + the
         chain's end-to-end message time)."""
-        if self.ended or not self.sequences or sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
+        if self.ended or not self.sequences:
+            return
+        self.absorb_log()
+        if sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
@@ -678,7 +778,7 @@ class _Des:
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
         for site, seqs in self.sequences.items():
-            self.sequences[site] = [q for q in seqs if q[0] + (q[2] - 1) * q[1] >= oldest - 1e-9]
+            self.sequences[site] = seqs[seqs[:, 0] + (seqs[:, 2] - 1.0) * seqs[:, 1] >= oldest - 1e-9]
 
 def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
                  options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:

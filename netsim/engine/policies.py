@@ -158,7 +158,8 @@ class SlotBroker:
         # occupancy statistics per site (see stats())
         self.capacity = dict(capacity)
         self._since = dict.fromkeys(capacity, 0.0)
-        self._time_at: dict[str, dict[int, float]] = {s: {} for s in capacity}
+        #: per site: time spent with 0, 1, ... slots in use (index = slots in use)
+        self._time_at: dict[str, list[float]] = {s: [0.0] * (int(k) + 1) for s, k in capacity.items()}
         self._peak = dict.fromkeys(capacity, 0)
         self._requests = dict.fromkeys(capacity, 0)
         self._waited = dict.fromkeys(capacity, 0)
@@ -173,18 +174,19 @@ class SlotBroker:
         if key is None:
             self._full_pass()
         else:
+            own, queues, total, ahead = key(req), self.queues, self.total, req.ahead
             for site, k in need.items():
-                queue = self.queues[site]
-                if queue and key(queue[-1]) > key(req):
-                    at = bisect.bisect_right(queue, key(req), key=key)
+                queue = queues[site]
+                if queue and key(queue[-1]) > own:
+                    at = bisect.bisect_right(queue, own, key=key)
                     queue.insert(at, req)
-                    req.ahead[site] = sum(other.need[site] for other in queue[:at])
+                    ahead[site] = sum(other.need[site] for other in queue[:at])
                     for other in queue[at + 1:]:
                         other.ahead[site] += k
                 else:
-                    req.ahead[site] = self.total[site]
+                    ahead[site] = total[site]
                     queue.append(req)
-                self.total[site] += k
+                total[site] += k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
             if blocker is None:
                 self._grant_all([req])
@@ -198,20 +200,25 @@ class SlotBroker:
         """Record what a new request meets at each of its sites (slots in use + queued before it
         + its own need) and return the sites where that exceeds the capacity."""
         short = []
+        capacity, free, total, loads, requests = self.capacity, self.free, self.total, self._loads, self._requests
+        incremental = self._key is not None
         for site, k in need.items():
-            queued = (self.total[site] if self._key is not None
-                      else sum(r.need.get(site, 0) for r, _ in self.waiting.values()))
-            load = self.capacity[site] - self.free[site] + queued + k
-            self._loads[site][load] = self._loads[site].get(load, 0) + 1
-            self._requests[site] += 1
-            if load > self.capacity[site]:
+            queued = total[site] if incremental else sum(r.need.get(site, 0) for r, _ in self.waiting.values())
+            load = capacity[site] - free[site] + queued + k
+            counts = loads[site]
+            counts[load] = counts.get(load, 0) + 1
+            requests[site] += 1
+            if load > capacity[site]:
                 short.append(site)
         return short
 
     def release(self, need: dict[str, int]) -> None:
-        for site, k in need.items():
-            self._tick(site)
-            self.free[site] += k
+        now, free, capacity, since, spent = self.clock(), self.free, self.capacity, self._since, self._time_at
+        for site, k in need.items():  # credit the time since the last change (see _tick)
+            in_use = capacity[site] - free[site]
+            spent[site][in_use] += now - since[site]
+            since[site] = now
+            free[site] += k
         if not self.waiting:
             return
         if self._key is None:
@@ -219,21 +226,20 @@ class SlotBroker:
         else:
             self._pass(need)
 
-    def _tick(self, site: str) -> None:
+    def _tick(self, site: str, now: float) -> None:
         """Credit the time since the last change to the current number of slots in use."""
-        in_use = self.capacity[site] - self.free[site]
-        spent = self._time_at[site]
-        spent[in_use] = spent.get(in_use, 0.0) + self.clock() - self._since[site]
-        self._since[site] = self.clock()
+        self._time_at[site][self.capacity[site] - self.free[site]] += now - self._since[site]
+        self._since[site] = now
 
     def stats(self) -> dict[str, dict[str, Any]]:
         """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
         for a reservation there, ``waited`` (requests not granted at once, counted at the sites
         that were short), ``loads`` ({slots in use + queued + own need at the request: count})."""
         out: dict[str, dict[str, Any]] = {}
+        now = self.clock()
         for site in self.capacity:
-            self._tick(site)
-            spent = self._time_at[site]
+            self._tick(site, now)
+            spent = {in_use: t for in_use, t in enumerate(self._time_at[site]) if t > 0}
             total = sum(spent.values())
             p99, running = 0, 0.0
             for in_use in sorted(spent):
@@ -264,14 +270,20 @@ class SlotBroker:
             self._full_pass()
             return
         fitting: list[Request] = []
+        blocked, free = self.blocked, self.free
         for site in changed:
-            filed, self.blocked[site] = self.blocked[site], []
+            filed = blocked[site]
+            if not filed:
+                continue
+            blocked[site] = []
             for req in filed:
-                blocker = self._blocker(req)
-                if blocker is None:
-                    fitting.append(req)
+                ahead = req.ahead
+                for other, k in req.need.items():  # _blocker, inlined
+                    if free[other] - ahead[other] < k:
+                        blocked[other].append(req)
+                        break
                 else:
-                    self.blocked[blocker].append(req)
+                    fitting.append(req)
         if fitting:
             self._grant_all(sorted(fitting, key=key))
 
@@ -290,18 +302,24 @@ class SlotBroker:
 
     def _grant_all(self, granted: list[Request]) -> None:
         """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
+        now, free, capacity, since, spent, peak = (self.clock(), self.free, self.capacity, self._since,
+                                                  self._time_at, self._peak)
+        queues, total, incremental = self.queues, self.total, self._key is not None
         for req in granted:
             for s, k in req.need.items():
-                self._tick(s)
-                self.free[s] -= k
-                self._peak[s] = max(self._peak[s], self.capacity[s] - self.free[s])
-                if self._key is not None:
-                    queue = self.queues[s]
+                in_use = capacity[s] - free[s]
+                spent[s][in_use] += now - since[s]  # credit the time since the last change (_tick)
+                since[s] = now
+                free[s] -= k
+                if in_use + k > peak[s]:
+                    peak[s] = in_use + k
+                if incremental:
+                    queue = queues[s]
                     at = queue.index(req)
                     del queue[at]
                     for other in queue[at:]:
                         other.ahead[s] -= k
-                    self.total[s] -= k
+                    total[s] -= k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
             on_grant()

@@ -104,7 +104,9 @@ class PerAttemptDes(_Des):
         for name in lane.links[i]:
             self.link_free_s[name] = t + period
         if lane.rng.random() < lane.p[i]:
-            self.at(t + lane.herald[i], self.heralded, lane, i, t, k)
+            lane.next_round[i] = t + period
+            lane.inflight[i] = (t, k)
+            self.at(t + lane.ready[i], self.transferred, lane, i, t, k)
         else:
             self.at(t + period, self._round, lane, i, t + period, k + 1)
 
