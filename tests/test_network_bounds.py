@@ -119,7 +119,7 @@ def _swap_with_qutip(w1: float, w2: float, gate_error: float = 0.0) -> float:
     (Phi+ I, Phi- Z, Psi+ X, Psi- Y), averaged over outcomes; then depolarizing p on C.
     Returns the fidelity of the A C pair to Phi+.
     """
-    qutip = pytest.importorskip("qutip")
+    import qutip
     zero, one = qutip.basis(2, 0), qutip.basis(2, 1)
     bell = {
         "phi+": (qutip.tensor(zero, zero) + qutip.tensor(one, one)).unit(),
