@@ -91,6 +91,7 @@ class Case:
     timeout_s: float = 30.0
     hash_seed: bool = False  # run twice in subprocesses under two hash seeds and compare stdout
     setup: str | None = None  # name of a prepared artefact to copy in ("run", "store")
+    item: str | None = None  # the issue 14 item, where the input says more than its family
     damage: str | None = None  # what to do to the prepared store
 
 
@@ -420,8 +421,11 @@ def _sweep_case(rng: random.Random, n: int) -> Case:
                 "--vary", "links[*].length_km=5,10", *flags]
         if flags[0] == "--seed" and invalid == "out-of-range":
             family = "seed"
-    return Case(f"{n:04d}-{family}-{shlex.join(argv[4:])[:60]}", family, argv, {"s.toml": text.encode("utf-8")},
+    case = Case(f"{n:04d}-{family}-{shlex.join(argv[4:])[:60]}", family, argv, {"s.toml": text.encode("utf-8")},
                 invalid)
+    if any(tiny in text or tiny in " ".join(argv) for tiny in ("5e-324", "1e-310", "1e308")):
+        case.item = "4"  # subnormal and huge numbers in the arithmetic
+    return case
 
 
 # --- command-line flag sets ----------------------------------------------------------------------
@@ -463,8 +467,10 @@ def _flag_case(rng: random.Random, n: int) -> Case:
         ("out-path", ["report", "s.toml", "--no-figures", "--out", "afile/sub"], "wrong-type"),
         ("out-path", ["compare", "s.toml", "b.toml", "--no-simulate", "--out", "afile"], "wrong-type"),
         ("out-path", ["compare", "s.toml", "b.toml", "--no-simulate", "--out", "afile/sub"], "wrong-type"),
-        ("out-path", ["sweep", "s.toml", "--dry-run", "--vary", "links[0].length_km=5,10", "--store", "afile/x.sqlite"],
-         "wrong-type"),
+        ("out-path", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--workers", "1",
+                      "--quiet", "--store", "afile/x.sqlite"], "wrong-type"),
+        ("out-path", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--workers", "1",
+                      "--quiet", "--store", "afile"], "damaged"),
         ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
                      "--quiet", "--cluster", "nonsense::::"], "wrong-type"),
         ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
@@ -711,7 +717,7 @@ def run_case(case: Case, root: Path, artefacts: dict[str, Path], mode: str, rng:
         code, _out, err, timed_out = run(case.argv, cwd, case.timeout_s)
         outcome, message = classify(code, err, timed_out, case.invalid)
     seconds = time.perf_counter() - start
-    item = ISSUE_ITEMS.get(case.family, "-") if outcome not in ("accepted", "refused") else ""
+    item = (case.item or ISSUE_ITEMS.get(case.family, "-")) if outcome not in ("accepted", "refused") else ""
     return Outcome(case.id, case.family, outcome, code, case.invalid, case.argv, message, item, seconds)
 
 

@@ -58,7 +58,14 @@ def _check_link(cwd: Path, out: str) -> None:
 def _check_budget(cwd: Path, out: str) -> None:
     # Markdown tables: a bold title and the alignment row of a pipe table (CommonMark + GFM tables)
     assert "**Vellmoor metro mesh: links**" in out and "|:---|" in out
-    assert "expected" in out  # the per-demand expected rate and fidelity
+    demands = out.split("**Vellmoor metro mesh: demands**", 1)[1]
+    rows = [[cell.strip() for cell in line.strip().strip("|").split("|")]
+            for line in demands.splitlines() if line.startswith("| ")]
+    header, body = rows[0], rows[1:]
+    rate, fidelity = header.index("expected rate (pairs/s)"), header.index("expected fidelity")
+    assert len(body) >= 3
+    for row in body:  # a rate is positive; a fidelity to Phi+ lies in [0, 1] (common practice)
+        assert float(row[rate]) > 0 and 0.0 <= float(row[fidelity]) <= 1.0, row
 
 
 def _check_run(cwd: Path, out: str) -> None:
