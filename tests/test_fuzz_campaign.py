@@ -76,6 +76,17 @@ def test_the_plan_is_seeded_and_covers_every_family() -> None:
     assert first.files == again.files and first.argv == again.argv
 
 
+def test_a_misspelt_key_is_never_the_key_itself_nor_another_key() -> None:
+    import random
+
+    rng = random.Random(5)
+    for specs in fuzz._specs().values():
+        for key in specs:
+            for _ in range(50):
+                typo = fuzz._typo(key, rng, specs)
+                assert typo != key and typo not in specs
+
+
 def test_out_of_range_values_lie_outside_their_range_and_edges_inside() -> None:
     """Every generated out-of-range value is refused by the key's own spec and every edge value is
     accepted, for every numeric key of the scenario reference."""
