@@ -3,7 +3,7 @@ bundled scenarios, through ``python -m netsim`` in a subprocess with this checko
 
 test_docs.py checks that every README command parses; here they are executed and must exit 0 with
 a sensible output (the tables, files and counts the README says they give). Commands that take
-more than about 20 s on a shared two-core machine run under ``-m slow``; every README command is
+more than about 20 s run under ``-m slow``; every README command is
 listed below in exactly one of the two groups, so a new command cannot go unrun unnoticed.
 """
 
