@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -13,6 +14,9 @@ import pytest
 from netsim import engine
 from netsim.errors import ParameterError
 from netsim.scenario import load_data
+
+#: Subprocesses run this checkout's netsim (not whatever copy is installed), from any directory.
+_ENV = dict(os.environ, PYTHONPATH=str(Path(__file__).resolve().parent.parent))
 
 REQUIRED_KEYS = ("delivered_pairs", "simulated_time_s", "rate_per_s", "rate_ci95", "fidelity_mean",
                  "fidelity_ci95", "eof_mean", "eof_of_mean_state", "ebits_per_s", "coherent_information_mean",
@@ -105,7 +109,7 @@ def test_precision_rule_stops_at_the_requested_width() -> None:
 
 def _cli(*args: str, cwd: Path) -> subprocess.CompletedProcess[str]:
     return subprocess.run([sys.executable, "-m", "netsim", "run", *args], capture_output=True, text=True,
-                          cwd=cwd, timeout=120, check=False)
+                          cwd=cwd, env=_ENV, timeout=120, check=False)
 
 
 def test_cli_writes_results_and_prints_a_table(tmp_path: Path) -> None:
@@ -162,7 +166,7 @@ def test_cli_ctrl_c_writes_what_was_delivered(tmp_path: Path) -> None:
     toml.write_text(_toml(data), encoding="utf-8")
     proc = subprocess.Popen([sys.executable, "-m", "netsim", "run", str(toml), "--time-s", "1e9",
                              "--max-link-pairs", "1e15"],
-                            cwd=tmp_path, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+                            cwd=tmp_path, env=_ENV, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
     time.sleep(6.0)
     proc.send_signal(signal.SIGINT)
     _out, err = proc.communicate(timeout=120)

@@ -57,7 +57,7 @@ def test_stored_pair_matches_memory_channel_closed_form() -> None:
 def test_stored_pair_matches_qutip_lindblad() -> None:
     # QuTiP mesolve of two qubits with decay 1/T1 (sigma_-) and pure dephasing
     # 1/T2 - 1/(2 T1) on each (DESIGN.md: the memory channel equals this Lindblad model).
-    qutip = pytest.importorskip("qutip")
+    import qutip
     h, t1, t2 = 0.25, (1.0, 3.0), (0.8, 0.5)
     sm, sz, i2 = qutip.destroy(2), qutip.sigmaz(), qutip.qeye(2)
     # qutip basis(2, 0) is |0>; destroy lowers |1> -> |0>, i.e. |1> decays to |0> as in DESIGN.md

@@ -15,6 +15,7 @@ import pytest
 from netsim.engine import DesOptions, StopRule, simulate_chain_vector, simulate_des
 from netsim.engine.chain import Chain, HopSpec, line_chain, synthetic_physics
 from netsim.engine.vector import cycle_timeline
+from netsim.network.bounds import expected_rounds, expected_wait_s
 from netsim.scenario.model import Site
 
 #: Stated for the timelines and closed forms here: every slot may attempt, no transfer time or
@@ -34,10 +35,20 @@ def shchukin_expected_max(n: int, p: float) -> float:
     return sum(math.comb(n, k) * (-1) ** (k + 1) / (1.0 - (1.0 - p) ** k) for k in range(1, n + 1))
 
 
-def test_shchukin_two_link_closed_form() -> None:
-    # n = 2: (3 - 2p) / (p (2 - p)) (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019)
+def test_netsim_waiting_time_matches_shchukin() -> None:
+    """netsim's own closed form (network.bounds.expected_rounds / expected_wait_s, which the budget
+    and the engines' expected rates use) against the published values: n = 2 gives
+    (3 - 2p) / (p (2 - p)); n = 3 at p = 1/2 gives 3/(1/2) - 3/(3/4) + 1/(7/8) = 22/7, worked by
+    hand (Shchukin, Schmidt & van Loock, PRA 100, 032322, 2019). The sum written above is the
+    reference the engine tests below use; it must agree with netsim's function too."""
     for p in (0.01, 0.3, 0.9):
-        assert shchukin_expected_max(2, p) == pytest.approx((3 - 2 * p) / (p * (2 - p)), rel=1e-12)
+        assert expected_rounds([p, p]) == pytest.approx((3 - 2 * p) / (p * (2 - p)), rel=1e-12)
+        assert expected_wait_s([p, p], [2e-3, 2e-3]) == pytest.approx(2e-3 * (3 - 2 * p) / (p * (2 - p)), rel=1e-12)
+    assert expected_rounds([0.5] * 3) == pytest.approx(22 / 7, rel=1e-12)
+    assert expected_wait_s([0.5] * 3, [1e-3] * 3) == pytest.approx(1e-3 * 22 / 7, rel=1e-12)
+    for n in (2, 3, 4, 6):
+        for p in (0.05, 0.2, 0.5):
+            assert expected_rounds([p] * n) == pytest.approx(shchukin_expected_max(n, p), rel=1e-10)
 
 
 @pytest.mark.parametrize("engine", ["vector", "des"])

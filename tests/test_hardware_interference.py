@@ -35,7 +35,7 @@ def _two_site_modes(ca: float, cb: float):  # type: ignore[no-untyped-def]
     site emits into them). Returns qutip, the dimensions, an embedding ``op(slot, operator)`` and
     the creation operators of site a's and site b's photon (a share ``ca``/``cb`` in the common
     mode)."""
-    qutip = pytest.importorskip("qutip")
+    import qutip
     dims = [2, 2, 3, 3, 2, 2, 2, 2]
 
     def op(slot: int, o):  # type: ignore[no-untyped-def]

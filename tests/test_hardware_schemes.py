@@ -259,7 +259,7 @@ def _single_photon_with_qutip(alpha: float, pa: float, pb: float, d: float = 0.0
     the heralded spin pair to the Psi state of the clicked port, i.e. Phi+ after correction, and the
     spin state when neither detector clicks).
     """
-    qutip = pytest.importorskip("qutip")
+    import qutip
     n = 3
     spin0, spin1 = qutip.basis(2, 0), qutip.basis(2, 1)
     vac, one = qutip.basis(n, 0), qutip.basis(n, 1)
@@ -336,7 +336,7 @@ def _barrett_kok_with_qutip(pa: float, pb: float, d: float) -> tuple[float, floa
     click in each round; the heralded pair is compared with Psi+ or Psi- (whichever the pattern
     announces). Returns (herald probability, fidelity).
     """
-    qutip = pytest.importorskip("qutip")
+    import qutip
     n = 3
     eye2, eye_n = qutip.qeye(2), qutip.qeye(n)
     up, down = qutip.basis(2, 1), qutip.basis(2, 0)

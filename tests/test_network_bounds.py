@@ -112,6 +112,44 @@ def test_waiting_time_with_unequal_periods_is_bracketed() -> None:
     assert mixed >= 1e-3 / 0.2  # never faster than the slow hop alone (its mean 1/p rounds)
 
 
+def _geometric_pmf(q: float, tail: float = 1e-17) -> tuple[np.ndarray, np.ndarray]:
+    """K ~ Geometric(q) on {1, 2, ...}: values and probabilities up to a tail below ``tail``."""
+    n = int(math.ceil(math.log(tail) / math.log1p(-q))) + 1
+    k = np.arange(1, n + 1, dtype=float)
+    return k, q * (1.0 - q) ** (k - 1)
+
+
+def _exact_mean(q1: float, t1: float, q2: float, t2: float, clock_s: float | None = None) -> float:
+    """E[max(K1 t1, K2 t2)] by the exact double sum over the joint distribution of two independent
+    geometric attempt counts (common practice; truncated where the tail is below 1e-17). With
+    ``clock_s`` each time is first rounded up to a whole number of ticks of that clock."""
+    k1, p1 = _geometric_pmf(q1)
+    k2, p2 = _geometric_pmf(q2)
+    a, b = k1 * t1, k2 * t2
+    if clock_s is not None:
+        a, b = clock_s * np.ceil(a / clock_s - 1e-9), clock_s * np.ceil(b / clock_s - 1e-9)
+    return float(p1 @ np.maximum(a[:, None], b[None, :]) @ p2)
+
+
+@pytest.mark.parametrize(("q_fast", "t_fast", "q_slow", "t_slow"), [
+    (0.2, 1e-4, 0.05, 1e-3),     # ten fast rounds per slow round
+    (0.3, 2.5e-4, 0.1, 1e-3),    # four
+    (0.01, 2e-4, 0.02, 1e-3),    # five, small q: q tau / t would be 5 % off
+    (0.05, 5e-4, 0.5, 1e-3),     # the slow hop is the likely one
+])
+def test_waiting_time_with_unequal_periods_against_an_exact_sum(q_fast: float, t_fast: float, q_slow: float,
+                                                                  t_slow: float) -> None:
+    """expected_wait_s clocks both hops at the slow period, each success noticed at the end of a
+    slow round. For whole ratios of the periods that is exactly the mean of max(K1 t1, K2 t2)
+    rounded up to the slow clock, summed here over the joint distribution of the attempt counts;
+    and it lies within one slow period above the unrounded mean E[max(K1 t1, K2 t2)]."""
+    got = expected_wait_s([q_fast, q_slow], [t_fast, t_slow])
+    assert got == pytest.approx(_exact_mean(q_fast, t_fast, q_slow, t_slow, clock_s=t_slow), rel=1e-9)
+    exact = _exact_mean(q_fast, t_fast, q_slow, t_slow)
+    assert exact <= got < exact + t_slow
+    assert expected_wait_s([q_slow, q_fast], [t_slow, t_fast]) == pytest.approx(got, rel=1e-12)  # hop order
+
+
 def _swap_with_qutip(w1: float, w2: float, gate_error: float = 0.0) -> float:
     """Entanglement swapping of two Werner pairs computed with QuTiP as an independent reference.
 
@@ -119,7 +157,7 @@ def _swap_with_qutip(w1: float, w2: float, gate_error: float = 0.0) -> float:
     (Phi+ I, Phi- Z, Psi+ X, Psi- Y), averaged over outcomes; then depolarizing p on C.
     Returns the fidelity of the A C pair to Phi+.
     """
-    qutip = pytest.importorskip("qutip")
+    import qutip
     zero, one = qutip.basis(2, 0), qutip.basis(2, 1)
     bell = {
         "phi+": (qutip.tensor(zero, zero) + qutip.tensor(one, one)).unit(),

@@ -46,6 +46,34 @@ def test_key_fraction_threshold_near_eleven_percent() -> None:
         assert float(qinfo.key_fraction(qinfo.werner_state(1 - 2 * q))) == pytest.approx(1 - 2 * float(binary_entropy(q)), abs=1e-12)
 
 
+def _bell_diagonal(phi_p: float, phi_m: float, psi_p: float, psi_m: float) -> np.ndarray:
+    return (phi_p * qinfo.bell_state("phi+") + phi_m * qinfo.bell_state("phi-")
+            + psi_p * qinfo.bell_state("psi+") + psi_m * qinfo.bell_state("psi-"))
+
+
+@pytest.mark.parametrize(("state", "e_z", "e_x", "expected"), [
+    # Bell-diagonal: e_Z = psi+ + psi-, e_X = phi- + psi- (common practice). 1 - h(0.08) - h(0.02),
+    # worked by hand: h(0.08) = 0.402179, h(0.02) = 0.141441 -> 0.456380.
+    (_bell_diagonal(0.90, 0.02, 0.08, 0.00), 0.08, 0.02, 0.456380),
+    # 1 - h(0.03) - h(0.07): h(0.03) = 0.194392, h(0.07) = 0.365924 -> 0.439684
+    (_bell_diagonal(0.90, 0.07, 0.03, 0.00), 0.03, 0.07, 0.439684),
+    # 1 - h(0.12) - h(0.05) with a psi- share in both: h(0.12) = 0.529361, h(0.05) = 0.286397 -> 0.184242
+    (_bell_diagonal(0.86, 0.02, 0.09, 0.03), 0.12, 0.05, 0.184242),
+    # Not Bell-diagonal: 0.8 Phi+ + 0.2 |00><00| has e_Z = 0, <XX> = 0.8, e_X = 0.1 -> 1 - h(0.1) = 0.531004
+    (0.8 * qinfo.bell_state("phi+") + 0.2 * np.diag([1.0, 0, 0, 0]), 0.0, 0.1, 0.531004),
+    # 1 - h(0.2) - h(0.1) = 1 - 0.721928 - 0.468996 < 0: no key (clipped to 0)
+    (_bell_diagonal(0.75, 0.05, 0.15, 0.05), 0.2, 0.1, 0.0),
+])
+def test_key_fraction_with_unequal_error_rates(state: np.ndarray, e_z: float, e_x: float, expected: float) -> None:
+    """The Shor-Preskill asymptotic key fraction r = 1 - h(e_Z) - h(e_X) (Shor & Preskill, PRL 85,
+    441, 2000; bit and phase error rates taken separately, as in Lo, Chau & Ardehali,
+    J. Cryptology 18, 133, 2005, memory) on states with e_Z != e_X, values worked by hand above: a formula
+    using 2 h(e_Z), 2 h(e_X) or 2 h of the mean error fails every row."""
+    got_z, got_x = qber(state)
+    assert (float(got_z), float(got_x)) == pytest.approx((e_z, e_x), abs=1e-12)
+    assert float(qinfo.key_fraction(state)) == pytest.approx(expected, abs=2e-6)
+
+
 def test_qber_of_bell_states() -> None:
     # Relative to Phi+: Phi- flips X outcomes, Psi+ flips Z outcomes, Psi- flips both (common practice).
     expected = {"phi+": (0, 0), "phi-": (0, 1), "psi+": (1, 0), "psi-": (1, 1)}

@@ -76,6 +76,20 @@ def test_holevo_information_orthogonal_and_identical() -> None:
     assert qinfo.holevo_information([0.2, 0.3, 0.5], same) == pytest.approx(0.0, abs=1e-14)
 
 
+def test_holevo_information_weights_mixed_members_by_their_priors() -> None:
+    """chi = S(sum p_i rho_i) - sum p_i S(rho_i) (Holevo, Probl. Inf. Transm. 9, 177, 1973) with
+    unequal priors and mixed members of unequal entropy, worked by hand: a formula that averages
+    the members' entropies without their priors fails both."""
+    # 3/4 |0><0| and 1/4 I/2: average diag(7/8, 1/8), S = h(1/8) = 3/8 + (7/8) log2(8/7) = 0.543564;
+    # minus 1/4 * 1 bit -> 0.293564
+    chi = qinfo.holevo_information([0.75, 0.25], np.stack([np.diag([1.0, 0.0]), np.eye(2) / 2]))
+    assert float(chi) == pytest.approx(0.293564, abs=1e-6)
+    # 0.6 diag(0.9, 0.1) and 0.4 |1><1|: average diag(0.54, 0.46), h(0.46) = 0.995378,
+    # minus 0.6 h(0.1) = 0.6 * 0.468996 -> 0.713981
+    chi = qinfo.holevo_information([0.6, 0.4], np.stack([np.diag([0.9, 0.1]), np.diag([0.0, 1.0])]))
+    assert float(chi) == pytest.approx(0.713981, abs=1e-6)
+
+
 def test_holevo_information_shape_error() -> None:
     with pytest.raises(ParameterError, match=r"^states = .* expected one state per probability"):
         qinfo.holevo_information([0.5, 0.5], np.stack([np.eye(2) / 2] * 3))

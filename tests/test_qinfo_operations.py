@@ -53,6 +53,45 @@ def test_swap_gate_error_depolarizes_the_output() -> None:
         qinfo.entanglement_swap(qinfo.werner_state(0.9), qinfo.werner_state(0.8), bsm_depolarizing=2)
 
 
+def _qutip_noisy_swap(rho_1: np.ndarray, rho_2: np.ndarray, q: float) -> np.ndarray:
+    """Reference with the gate error: depolarize (B1, B2) with probability q as the average of the
+    sixteen two-qubit Paulis (rho -> (1 - q) rho + q/16 sum_P P rho P, which is (1 - q) rho +
+    q I/4 (x) tr_{B1 B2} rho; Nielsen & Chuang 2010, Sec. 8.3.4, memory), then the ideal swap."""
+    dims = [[2, 2], [2, 2]]
+    total = qutip.tensor(qutip.Qobj(rho_1, dims=dims), qutip.Qobj(rho_2, dims=dims))  # A, B1, B2, C
+    twirled = 0
+    for p1 in _PAULI:
+        for p2 in _PAULI:
+            op = qutip.tensor(qutip.qeye(2), p1, p2, qutip.qeye(2))
+            twirled = twirled + op * total * op.dag() / 16
+    noisy = (1 - q) * total + q * twirled
+    out = 0
+    for name, pauli in zip(_BELL, _PAULI):
+        proj = qutip.tensor(qutip.qeye(2), qutip.Qobj(qinfo.bell_state(name), dims=dims), qutip.qeye(2))
+        fix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), pauli)
+        out = out + (fix * proj * noisy * proj * fix.dag()).ptrace([0, 3])
+    return out.full()
+
+
+def _bell_diagonal(weights: tuple[float, float, float, float]) -> np.ndarray:
+    return sum(w * qinfo.bell_state(name) for w, name in zip(weights, _BELL))
+
+
+@pytest.mark.parametrize("q", [0.03, 0.2, 1.0])
+def test_swap_gate_error_matches_qutip_on_non_werner_states(q: float) -> None:
+    """The gate-error branch on inputs a Werner-only check cannot tell apart: Bell-diagonal states
+    with unequal coefficients, and random states whose reduced state of A is not I/2 (so a branch
+    that mixed with I/4 instead of rho_A (x) I/2 fails). Reference: the QuTiP circuit above."""
+    firsts = [_bell_diagonal((0.85, 0.1, 0.05, 0.0)), _bell_diagonal((0.7, 0.0, 0.2, 0.1))]
+    seconds = [_bell_diagonal((0.9, 0.02, 0.03, 0.05)), _bell_diagonal((0.6, 0.25, 0.1, 0.05))]
+    firsts += list(random_density_matrices(3, 4, seed=42))
+    seconds += list(random_density_matrices(3, 4, seed=43))
+    for x, y in zip(firsts, seconds):
+        ours = qinfo.entanglement_swap(x, y, bsm_depolarizing=q)
+        np.testing.assert_allclose(ours, _qutip_noisy_swap(x, y, q), atol=1e-13)
+        assert_valid_state(ours)
+
+
 def test_swap_broadcasts_batches() -> None:
     a = random_density_matrices(6, 4, seed=42).reshape(2, 3, 4, 4)
     out = qinfo.entanglement_swap(a, qinfo.bell_state("phi+"))

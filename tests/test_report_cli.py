@@ -170,7 +170,6 @@ def test_run_json_without_its_scenario_says_so(tmp_path: Path, monkeypatch) -> N
 
 
 def test_report_frames_for_python_users() -> None:
-    pytest.importorskip("pandas")
     from netsim.report import report_frames
 
     frames = report_frames(CHAIN3)
@@ -182,7 +181,6 @@ def test_report_frames_for_python_users() -> None:
 
 def test_report_frames_takes_loaded_data_and_a_run_in_memory() -> None:
     """What load_source returns and a RunResult held in memory give the same frames as files."""
-    pytest.importorskip("pandas")
     from netsim.report import report_frames
 
     data = load_source(CHAIN3)

@@ -6,16 +6,14 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import pypdfium2 as pdfium
 import pytest
 
-pdfium = pytest.importorskip("pypdfium2")
-pytest.importorskip("typst")
-
-from netsim import __version__  # noqa: E402
-from netsim.cli import main  # noqa: E402
-from netsim.report.proposal import Provenance, column_groups, summary, write_proposal  # noqa: E402
-from netsim.report.sources import ReportData  # noqa: E402
-from netsim.table import Column, Table  # noqa: E402
+from netsim import __version__
+from netsim.cli import main
+from netsim.report.proposal import Provenance, column_groups, summary, write_proposal
+from netsim.report.sources import ReportData
+from netsim.table import Column, Table
 
 #: 1 mm in PDF points (72 pt per inch, 25.4 mm per inch; ISO 32000 user space units).
 MM = 72 / 25.4

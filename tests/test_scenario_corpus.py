@@ -14,7 +14,6 @@ ScenarioError must contain. Outside sources of the rules:
 
 from __future__ import annotations
 
-import importlib.util
 import re
 
 import pytest
@@ -247,8 +246,6 @@ def test_non_utf8_file_is_a_scenario_error(tmp_path) -> None:  # type: ignore[no
         load(path)
 
 
-@pytest.mark.skipif(importlib.util.find_spec("netsim.cli.check_cmd") is None,
-                    reason="the check command is not built yet")
 def test_check_command_prints_each_problem_on_one_line_and_exits_2(tmp_path, capsys) -> None:  # type: ignore[no-untyped-def]
     """Issue 3, section 2: no traceback, one line per problem, exit code 2."""
     from netsim.cli import main

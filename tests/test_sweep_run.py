@@ -11,7 +11,6 @@ reference library documentation).
 
 from __future__ import annotations
 
-import importlib.util
 import io
 import os
 import signal
@@ -101,7 +100,7 @@ def test_one_and_two_workers_match_the_direct_evaluation(plan: SweepPlan, tmp_pa
 
 
 def test_dask_local_cluster_matches(plan: SweepPlan, tmp_path: Path) -> None:
-    pytest.importorskip("distributed")
+    import distributed  # noqa: F401  (the `cluster` extra; also in the `test` extra)
     store = tmp_path / "dask.sqlite"
     summary = run_sweep(plan, DaskPool(SyntheticPoint(), "local:2"), store_path=store, quiet=True,
                         stream=io.StringIO())
@@ -110,7 +109,7 @@ def test_dask_local_cluster_matches(plan: SweepPlan, tmp_path: Path) -> None:
 
 
 def test_dask_scheduler_address_and_a_dying_dask_worker(plan: SweepPlan, tmp_path: Path) -> None:
-    distributed = pytest.importorskip("distributed")
+    import distributed
     store, marker = tmp_path / "dask-address.sqlite", tmp_path / "died"
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None, silence_logs=40) as cluster:
@@ -139,7 +138,7 @@ def test_missing_dask_is_a_clear_error(monkeypatch: pytest.MonkeyPatch) -> None:
 
 
 def test_bad_cluster_and_workers() -> None:
-    pytest.importorskip("distributed")
+    import distributed  # noqa: F401  (the `cluster` extra; also in the `test` extra)
     with pytest.raises(ParameterError, match=r"--cluster = 'local:zero' is not allowed; expected local:N"):
         make_executor(SyntheticPoint(), cluster="local:zero")
     with pytest.raises(ParameterError, match=r"--workers = 0 is not allowed; expected an integer >= 1"):
@@ -317,8 +316,7 @@ def test_cli_exit_codes_retry_failed_and_cluster(plan: SweepPlan, tmp_path: Path
     assert run_command(_cli(scenario, "--store", str(store), "--retry-failed"), point_function=SyntheticPoint()) == 0
     assert "30 of 30 points done, 0 failed, 0 pending (2 run now" in capsys.readouterr().out
     assert metric_map(store) == _reference(plan)
-    if importlib.util.find_spec("distributed") is not None:
-        dask_store = tmp_path / "cli-dask.sqlite"
-        assert run_command(_cli(scenario, "--store", str(dask_store), "--cluster", "local:1"),
-                           point_function=SyntheticPoint()) == 0
-        assert metric_map(dask_store) == metric_map(store)
+    dask_store = tmp_path / "cli-dask.sqlite"
+    assert run_command(_cli(scenario, "--store", str(dask_store), "--cluster", "local:1"),
+                       point_function=SyntheticPoint()) == 0
+    assert metric_map(dask_store) == metric_map(store)
