@@ -1,8 +1,8 @@
 """Public entry points: :func:`run` on a scenario and :func:`simulate` on built chains.
 
 Demands that share no memory site are independent: each runs alone, with the vectorised engine
-when nothing in it needs the event engine (sure swaps, no cut-off, no purification), else with
-the simpy engine. Demands that share a site run together in one simpy run and contend for slots.
+when nothing in it needs the event engine (sure swaps, no purification; a cut-off is fine), else
+with the simpy engine; each demand row's ``engine`` says which ran. Demands that share a site run together in one simpy run and contend for slots.
 Randomness: ``numpy.random.SeedSequence(seed).spawn`` gives each demand its own stream (by its
 position in the scenario, or in the list given to :func:`simulate`), so the same seed gives the
 same numbers and no two demands share a stream.
@@ -153,7 +153,7 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
         rngs = [np.random.default_rng(streams[k]) for k in group]
         rules = [_rule_for(c, rule) for c in members]
         if len(group) == 1 and vector_applicable(members[0], options.cutoff_s, rounds) and _slots_ok(members[0]):
-            group_runs = [simulate_chain_vector(members[0], rules[0], rngs[0])]
+            group_runs = [simulate_chain_vector(members[0], rules[0], rngs[0], options.cutoff_s)]
         else:
             group_runs, _ = simulate_des(members, rules, rngs, options)
         for k, r in zip(group, group_runs):

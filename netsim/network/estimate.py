@@ -69,7 +69,7 @@ in rate for each demand of the bundled chain and mesh alone; within 0.005 and 1-
 to 4-hop chains with cut-off/T2 from 0.1 to 3.3 (tests/test_network_cutoff.py). One hop is delivered
 at its herald and the cut-off never acts on it. Left out: the message time before a failed
 swap frees the far ends (a few 10 us in a metro network) and the carry of at most one attempt
-period from one cycle to the next. The sample does not depend on T1/T2, so it is cached: a
+period from one cycle to the next (each sampled cycle starts afresh). The sample does not depend on T1/T2, so it is cached: a
 scan over coherence (``netsim check`` advice) samples once.
 
 Not modelled: purification, contention with other demands; without a cut-off also failed Bell
