@@ -48,11 +48,12 @@ def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: 
     return StopRule(precision=float(precision)) if precision is not None else None
 
 
-def chains_from_scenario(scenario: Scenario) -> list[Chain]:
-    """Route every demand (``protocol.routing``) and build its chain of heralded hops."""
+def chains_from_scenario(scenario: Scenario, graph: Any = None) -> list[Chain]:
+    """Route every demand (``protocol.routing``) and build its chain of heralded hops (on
+    ``graph``, :func:`netsim.network.build_graph` of ``scenario``, built when not given)."""
     from netsim.network import build_graph, find_route, route_hops
 
-    graph = build_graph(scenario)
+    graph = build_graph(scenario) if graph is None else graph
     chains = []
     for d in scenario.demands:
         route = find_route(graph, d.a, d.b, scenario.protocol.routing)
@@ -323,12 +324,13 @@ def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
                                      f"({rounds + 1} per hop end)")
 
 
-def _analytic(scenario: Scenario) -> list[dict[str, Any]]:
-    from netsim.network import budget
+def _analytic(scenario: Scenario, graph: Any = None) -> list[dict[str, Any]]:
+    """The budget's figures beside each simulated demand (its demand rows only, on ``graph``)."""
+    from netsim.network.budget import demand_rows
 
     keep = ("expected_rate_per_s", "expected_fidelity", "expected_eof_ebits", "route_bound_bits_per_s",
             "single_path_bits_per_s", "multipath_bits_per_s")
-    return [{k: row.get(k) for k in keep} for row in budget(scenario).demands]
+    return [{k: row.get(k) for k in keep} for row in demand_rows(scenario, graph)[0]]
 
 
 def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
@@ -352,13 +354,16 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
         raise ParameterError("seed", seed, "an integer >= 0")
     proto = scenario.protocol
     rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
-    chains = chains_from_scenario(scenario)
+    from netsim.network import build_graph
+
+    graph = build_graph(scenario)
+    chains = chains_from_scenario(scenario, graph)
     _check_slots(scenario, chains, rounds)
     options = DesOptions(cutoff_s=proto.cutoff_s, purification=proto.purification,
                          purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
-    for row, extra, demand in zip(rows, _analytic(scenario), scenario.demands):
+    for row, extra, demand in zip(rows, _analytic(scenario, graph), scenario.demands):
         row.update(extra)
         row.update(verdicts(row, demand.min_fidelity, demand.min_rate_per_s))
     if ensembles:
