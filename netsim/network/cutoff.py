@@ -360,28 +360,26 @@ def _count_attempts(r: NDArray[np.int64], h: NDArray[np.int64], n: int, b: NDArr
     stop counting by themselves: once the two pairs are swapped, neither hop attempts again
     before both are delivered or discarded.
     """
-    inf = np.inf
     left, right = h > 0, h < n - 1
     if left.any():
         rl, hl = r[left], h[left]
-        acc_left[rl, hl] = _rounds_between(first[rl, hl - 1], ta[hl - 1], cur[rl, hl - 1], b[left], inf)
+        acc_left[rl, hl] = _rounds_after(first[rl, hl - 1], ta[hl - 1], cur[rl, hl - 1], b[left])
         alive = mode[rl, hl - 1] != _WAIT
         ra_, ha = rl[alive], hl[alive]
-        acc_right[ra_, ha - 1] += _rounds_between(start[left][alive], ta[ha], k[left][alive], born[ra_, ha - 1], inf)
+        acc_right[ra_, ha - 1] += _rounds_after(start[left][alive], ta[ha], k[left][alive], born[ra_, ha - 1])
     if right.any():
         rr, hr = r[right], h[right]
-        acc_right[rr, hr] = _rounds_between(first[rr, hr + 1], ta[hr + 1], cur[rr, hr + 1], b[right], inf)
+        acc_right[rr, hr] = _rounds_after(first[rr, hr + 1], ta[hr + 1], cur[rr, hr + 1], b[right])
         alive = mode[rr, hr + 1] != _WAIT
         ra_, ha = rr[alive], hr[alive]
-        acc_left[ra_, ha + 1] += _rounds_between(start[right][alive], ta[ha], k[right][alive], born[ra_, ha + 1], inf)
+        acc_left[ra_, ha + 1] += _rounds_after(start[right][alive], ta[ha], k[right][alive], born[ra_, ha + 1])
 
 
-def _rounds_between(start_s: NDArray[np.float64], period_s: NDArray[np.float64] | float, k: NDArray[np.float64],
-                    after_s: NDArray[np.float64], until_s: NDArray[np.float64] | float) -> NDArray[np.float64]:
-    """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly inside (after, until)."""
-    lo = np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0)
-    hi = np.minimum(k - 1.0, np.ceil((until_s - start_s) / period_s - 1e-9) - 1.0)
-    return np.maximum(0.0, hi - lo + 1.0)
+def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
+                  after_s: NDArray[np.float64]) -> NDArray[np.float64]:
+    """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly after ``after``
+    (a round starting with it, to 1e-9 of a period, does not count: the qubit's own round)."""
+    return np.maximum(0.0, k - np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0))
 
 
 def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], n: int) -> NDArray[np.bool_]:
