@@ -38,7 +38,8 @@ run`` does it: routing, budget bounds, simulation, states, figures; ensembles of
   attempt dephasing; no target); ratio to the grid above.
 - ``demand_scaling_ratio``: wall time per delivered pair per hop with 100 demands over that with
   10 demands, 10x10 grid (target <= 1.5).
-- ``site_scaling_ratio``: the same on a 20x20 grid over a 5x5 grid, 10 demands (target <= 1.5).
+- ``site_scaling_ratio``: the same on a 20x20 grid over a 5x5 grid, 10 demands (target <= 1.5;
+  best of three runs of each, interleaved).
   Both scaling records also carry ``simulation_only_ratio``: the same ratio for the time spent in
   the simulation itself (``engine.api.simulate``), without routing and the budget's bounds.
 - ``metro_peak_memory_mib``: peak resident memory of a fresh process running a 20x20 grid with
@@ -299,9 +300,13 @@ def demand_scaling_ratio() -> list[dict[str, Any]]:
 
 
 def site_scaling_ratio() -> list[dict[str, Any]]:
-    """Time per delivered pair per hop, 20x20 over 5x5 grid, 10 demands each."""
-    small, engines, small_sim = _per_pair_hop(5, 5, 10)
-    large, _, large_sim = _per_pair_hop(20, 20, 10)
+    """Time per delivered pair per hop, 20x20 over 5x5 grid, 10 demands each (best of three,
+    the two sizes interleaved: on a shared machine one run of each swings the ratio by +-0.3)."""
+    small, large, small_sim, large_sim, engines = math.inf, math.inf, math.inf, math.inf, ""
+    for _ in range(3):
+        s, engines, s_sim = _per_pair_hop(5, 5, 10)
+        g, _, g_sim = _per_pair_hop(20, 20, 10)
+        small, small_sim, large, large_sim = min(small, s), min(small_sim, s_sim), min(large, g), min(large_sim, g_sim)
     return [{"name": "site_scaling_ratio", "value": large / small, "unit": "x", "target": 1.5,
              "higher_is_better": False, "baseline": "5x5 grid", "ratio": large / small, "engine": engines,
              "s_per_pair_hop_5x5": small, "s_per_pair_hop_20x20": large,
