@@ -6,10 +6,11 @@ With a cut-off (two hops or more) the cycles are run by :func:`netsim.network.cu
 estimate), many cycles at once, with attempt counts drawn ahead per cycle
 (:class:`netsim.network.cutoff.AttemptTable`) so that the coupled start offsets of consecutive
 cycles can be settled by running only the cycles whose offset changed again
-(:func:`_solve_cutoff_cycles`); states, intervals and per-hop and per-site figures as below.
-Without a cut-off (or on one hop, where it never acts):
+(:func:`_solve_cutoff_cycles`); states, intervals and per-hop and per-site figures as below
+(discarded pairs add their attempts, discards and memory occupancy);
+``tests/test_engine_vector_cutoff.py`` checks it against the event engine on 2-4 hops.
 
-In that case nothing during a run depends on a quantum state, and the timeline of one
+Without a cut-off (or on one hop, where it never acts) nothing during a run depends on a quantum state, and the timeline of one
 end-to-end cycle is a closed formula of the hops' geometric attempt counts. Many cycles are
 sampled at once with numpy:
 
