@@ -1,34 +1,35 @@
 """The cut-off advice of ``netsim check`` (engine.advice.best_cutoff) runs on the sampled
 timeline estimate, not on simulations: its figures and its choice against simulations of the
-demand alone at the same cut-offs (engine.run; the vectorised engine with a cut-off, itself
-checked against the event engine in tests/test_engine_vector_cutoff.py)."""
+demand alone at the same cut-offs, by the event engine (not the vectorised engine, which shares
+the estimate's timeline code)."""
 
 from __future__ import annotations
 
-import copy
 import math
 from pathlib import Path
 from typing import Any
 
 import pytest
 
-from netsim import engine
+import numpy as np
+
 from netsim.engine.advice import CUTOFF_FACTORS, best_cutoff
+from netsim.engine.api import chains_from_scenario, demand_row
+from netsim.engine.des import DesOptions, simulate_des
+from netsim.engine.metrics import StopRule
 from netsim.network import build_graph, find_route, route_hops
 from netsim.network.estimate import cutoff_scan_point, estimate_hops
-from netsim.scenario import load, load_data
+from netsim.scenario import load
 from netsim.scenario.model import Scenario
 
 ROOT = Path(__file__).resolve().parent.parent
 
 
-def _alone(scenario: Scenario, index: int, cutoff_s: float) -> Scenario:
-    data: dict[str, Any] = copy.deepcopy(scenario.data)
-    table = dict(data["demands"][index])
-    table.pop("duration_s", None)
-    data["demands"] = [table]
-    data.setdefault("protocol", {})["cutoff_s"] = cutoff_s
-    return load_data(data, source=scenario.source)
+def _simulate(scenario: Scenario, index: int, cutoff_s: float, pairs: int = 1500) -> dict[str, Any]:
+    """The demand alone on the event engine at ``cutoff_s``: its run row (useful rate, fidelity)."""
+    chain = chains_from_scenario(scenario)[index]
+    run = simulate_des([chain], StopRule(pairs=pairs), [np.random.default_rng(5)], DesOptions(cutoff_s=cutoff_s))[0][0]
+    return demand_row(chain, run)
 
 
 @pytest.mark.parametrize("index", [0, 1])
@@ -50,8 +51,7 @@ def test_the_scan_follows_simulations_of_the_demand_alone(index: int) -> None:
         cutoff = factor * est.wait_s
         point = cutoff_scan_point(graph, hops, cutoff, demand.min_fidelity)
         assert point is not None
-        row = engine.run(_alone(scenario, index, cutoff), pairs=1500, seed=5, ensembles=False).demands[0]
-        assert row["engine"] == "vector"
+        row = _simulate(scenario, index, cutoff)
         low, high = row["useful_rate_ci95"]
         half = (high - low) / 2 if math.isfinite(high - low) else 0.0
         assert abs(point[1] - row["useful_rate_per_s"]) <= 0.15 * row["useful_rate_per_s"] + half, (cutoff, point, row["useful_rate_per_s"])
@@ -61,6 +61,5 @@ def test_the_scan_follows_simulations_of_the_demand_alone(index: int) -> None:
     assert best is not None
     chosen = simulated.get(best[0])
     if chosen is None:  # the scan chose an end point not simulated here: simulate it
-        chosen = engine.run(_alone(scenario, index, best[0]), pairs=1500, seed=5,
-                            ensembles=False).demands[0]["useful_rate_per_s"]
+        chosen = _simulate(scenario, index, best[0])["useful_rate_per_s"]
     assert chosen >= 0.85 * max(simulated.values())
