@@ -26,8 +26,8 @@ def register(subparsers: Any) -> None:
                         help="explain the hardware profiles the scenario uses: every value with its source, "
                              "the sites and links resting on it and the values the file overrides")
     parser.add_argument("--no-scan", action="store_true",
-                        help="for a demand below its min_fidelity, advise from closed forms only (skip "
-                             "the short simulations that look for the best cut-off)")
+                        help="for a demand below its min_fidelity, advise without the scan of cut-offs "
+                             "(sampled timelines) that looks for the best one")
     parser.set_defaults(func=run)
 
 

@@ -11,14 +11,17 @@ included) is below ``min_fidelity``, three remedies are weighed from what the mo
   (1996)). A hop then needs prod_k 2 / N_k heralded pairs per purified pair (N_k the success
   probability of round k), so its success per attempt round is divided by that; the estimate is
   redone with the purified states. Storage while a hop waits for its second pair is not counted.
-- **cut-off**: short simulations of the demand alone at cut-offs of 0.25 to 8 times the
-  expected time until every hop holds a pair (0.25 to 8 times); the cut-off with the highest useful-pair rate
-  (pairs whose own fidelity reaches ``min_fidelity``) is named with that rate.
+- **cut-off**: the demand alone at cut-offs of 0.25 to 8 times the expected time until every
+  hop holds a pair, each from the sampled swap-asap timeline with that cut-off
+  (:func:`netsim.network.estimate.cutoff_scan_point`: the timeline the vectorised engine runs,
+  every sampled cycle's own delivered state, useful when its fidelity reaches ``min_fidelity``);
+  the cut-off with the highest useful-pair rate is named with that rate. No simulation runs:
+  the sample is seeded and cached, so the scan is quick and the same every time. A one-hop route
+  is delivered at its herald, so no cut-off acts on it.
 """
 
 from __future__ import annotations
 
-import copy
 import dataclasses
 import math
 from typing import Any
@@ -28,16 +31,14 @@ import networkx as nx
 from netsim.errors import NetsimError
 from netsim.network import build_graph, find_route, route_hops
 from netsim.network.audit import one_round
-from netsim.network.estimate import estimate_hops
+from netsim.network.estimate import cutoff_scan_point, estimate_hops
 from netsim.network.routing import Hop
-from netsim.scenario.model import Demand, Scenario, Site
+from netsim.scenario.model import Scenario, Site
 
-__all__ = ["CUTOFF_FACTORS", "SCAN_PAIRS", "coherence_needed_s", "demand_advice", "purified_estimate"]
+__all__ = ["CUTOFF_FACTORS", "best_cutoff", "coherence_needed_s", "demand_advice", "purified_estimate"]
 
 #: Cut-offs tried, as multiples of the expected time until every hop holds a pair.
 CUTOFF_FACTORS: tuple[float, ...] = (0.25, 0.5, 1.0, 2.0, 4.0, 8.0)
-#: Delivered pairs per short simulation of the cut-off scan.
-SCAN_PAIRS: int = 300
 
 
 def _sites(graph: nx.Graph, hops: list[Hop]) -> list[Site]:
@@ -83,31 +84,16 @@ def purified_estimate(graph: nx.Graph, hops: list[Hop], protocol: str, rounds: i
     return est.rate_per_s, est.fidelity
 
 
-def _alone(scenario: Scenario, demand: Demand, cutoff_s: float) -> Scenario:
-    from netsim.scenario import load_data
-
-    data = copy.deepcopy(scenario.data)
-    table = dict(data["demands"][demand.index])
-    table.pop("duration_s", None)
-    table["pairs"] = SCAN_PAIRS
-    data["demands"] = [table]
-    data.setdefault("protocol", {})["cutoff_s"] = cutoff_s
-    return load_data(data, source=scenario.source)
-
-
-def _best_cutoff(scenario: Scenario, demand: Demand, wait_s: float) -> tuple[float, float, float] | None:
-    """(cut-off s, useful rate per s, mean fidelity) of the best scanned cut-off, or None."""
-    from netsim.engine.api import run
-
+def best_cutoff(graph: nx.Graph, hops: list[Hop], wait_s: float,
+                min_fidelity: float) -> tuple[float, float, float] | None:
+    """(cut-off s, useful rate per s, mean fidelity) of the scanned cut-off with the highest
+    useful rate (module docstring), or None when none delivers."""
     best = None
     for factor in CUTOFF_FACTORS:
         cutoff = factor * wait_s
-        try:
-            row = run(_alone(scenario, demand, cutoff), seed=1, ensembles=False).demands[0]
-        except NetsimError:
-            continue
-        if best is None or row["useful_rate_per_s"] > best[1]:
-            best = (cutoff, float(row["useful_rate_per_s"]), float(row["fidelity_mean"]))
+        point = cutoff_scan_point(graph, hops, cutoff, min_fidelity)
+        if point is not None and (best is None or point[1] > best[1]):
+            best = (cutoff, point[1], point[2])
     return best
 
 
@@ -135,12 +121,14 @@ def demand_advice(scenario: Scenario, *, simulate: bool = True) -> list[str]:
                    f"{label}:   memory coherence cannot: without any memory decay the estimate is "
                    f"{est.fidelity_no_decay:.3g}")
         out.append(f"{label}:   {_purification_line(graph, hops, need)}")
-        if simulate and math.isfinite(est.wait_s):
-            best = _best_cutoff(scenario, demand, est.wait_s)
+        if simulate and len(hops) == 1:
+            out.append(f"{label}:   cut-off cannot: a one-hop route is delivered at its herald")
+        elif simulate and math.isfinite(est.wait_s):
+            best = best_cutoff(graph, hops, est.wait_s, need)
             if best is not None and best[1] > 0:
                 out.append(f"{label}:   cut-off: cutoff_s = {best[0]:.3g} s gives the highest useful rate of "
-                           f"the scan, {best[1]:.3g} pairs/s (mean fidelity {best[2]:.3g}; short simulations "
-                           f"of {SCAN_PAIRS} pairs)")
+                           f"the scan, {best[1]:.3g} pairs/s (mean fidelity {best[2]:.3g}; estimate from "
+                           "the sampled timeline)")
             else:
                 out.append(f"{label}:   cut-off: no cut-off of the scan ({CUTOFF_FACTORS[0]:g} to "
                            f"{CUTOFF_FACTORS[-1]:g} x {est.wait_s:.3g} s) gives useful pairs")

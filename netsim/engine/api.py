@@ -1,8 +1,8 @@
 """Public entry points: :func:`run` on a scenario and :func:`simulate` on built chains.
 
 Demands that share no memory site are independent: each runs alone, with the vectorised engine
-when nothing in it needs the event engine (sure swaps, no cut-off, no purification), else with
-the simpy engine. Demands that share a site run together in one simpy run and contend for slots.
+when nothing in it needs the event engine (sure swaps, no purification; a cut-off is fine), else
+with the simpy engine; each demand row's ``engine`` says which ran. Demands that share a site run together in one simpy run and contend for slots.
 Randomness: ``numpy.random.SeedSequence(seed).spawn`` gives each demand its own stream (by its
 position in the scenario, or in the list given to :func:`simulate`), so the same seed gives the
 same numbers and no two demands share a stream.
@@ -51,13 +51,14 @@ def stop_rule(pairs: int | None = None, time_s: float | None = None, precision: 
     return StopRule(precision=float(precision)) if precision is not None else None
 
 
-def chains_from_scenario(scenario: Scenario) -> list[Chain]:
-    """Route every demand (``protocol.routing``) and build its chain of heralded hops."""
+def chains_from_scenario(scenario: Scenario, graph: Any = None) -> list[Chain]:
+    """Route every demand (``protocol.routing``) and build its chain of heralded hops (on
+    ``graph``, :func:`netsim.network.build_graph` of ``scenario``, built when not given)."""
     from netsim.errors import ScenarioError
     from netsim.network import build_graph, find_route, route_hops
     from netsim.network.workload import cutoff_problems
 
-    graph = build_graph(scenario)
+    graph = build_graph(scenario) if graph is None else graph
     chains = []
     for d in scenario.demands:
         route = find_route(graph, d.a, d.b, scenario.protocol.routing)
@@ -161,7 +162,7 @@ def simulate(chains: list[Chain], *, rule: StopRule | None = None, seed: int = 0
         rngs = [np.random.default_rng(streams[k]) for k in group]
         rules = [_rule_for(c, rule) for c in members]
         if len(group) == 1 and vector_applicable(members[0], options.cutoff_s, rounds) and _slots_ok(members[0]):
-            group_runs = [simulate_chain_vector(members[0], rules[0], rngs[0])]
+            group_runs = [simulate_chain_vector(members[0], rules[0], rngs[0], options.cutoff_s)]
         else:
             group_runs, _ = simulate_des(members, rules, rngs, options)
         for k, r in zip(group, group_runs):
@@ -355,12 +356,13 @@ def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
                                      f"({rounds + 1} per hop end)")
 
 
-def _analytic(scenario: Scenario) -> list[dict[str, Any]]:
-    from netsim.network import budget
+def _analytic(scenario: Scenario, graph: Any = None) -> list[dict[str, Any]]:
+    """The budget's figures beside each simulated demand (its demand rows only, on ``graph``)."""
+    from netsim.network.budget import demand_rows
 
     keep = ("expected_rate_per_s", "expected_fidelity", "expected_eof_ebits", "route_bound_bits_per_s",
             "single_path_bits_per_s", "multipath_bits_per_s")
-    return [{k: row.get(k) for k in keep} for row in budget(scenario).demands]
+    return [{k: row.get(k) for k in keep} for row in demand_rows(scenario, graph)[0]]
 
 
 def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
@@ -392,7 +394,10 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
         raise ParameterError("seed", seed, "an integer >= 0")
     proto = scenario.protocol
     rounds = int(proto.purification_rounds) if proto.purification != "none" else 0
-    chains = chains_from_scenario(scenario)
+    from netsim.network import build_graph
+
+    graph = build_graph(scenario)
+    chains = chains_from_scenario(scenario, graph)
     _check_slots(scenario, chains, rounds)
     check_run_work(scenario, expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds),
                    max_link_pairs)
@@ -401,7 +406,7 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
                          max_link_pairs=GUARD_FACTOR * float(max_link_pairs), progress=progress)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
-    for row, extra, demand in zip(rows, _analytic(scenario), scenario.demands):
+    for row, extra, demand in zip(rows, _analytic(scenario, graph), scenario.demands):
         row.update(extra)
         row.update(verdicts(row, demand.min_fidelity, demand.min_rate_per_s))
     if ensembles:

@@ -1,7 +1,16 @@
-"""Vectorised engine for the common case: one demand alone on its sites, sure swaps, no cut-off
-(or a single hop, on which a cut-off never acts), no purification.
+"""Vectorised engine for a lone chain: one demand alone on its sites and fibres, sure swaps, no
+purification; with or without a cut-off.
 
-In that case nothing during a run depends on a quantum state, and the timeline of one
+With a cut-off (two hops or more) the cycles are run by :func:`netsim.network.cutoff.run_cycles`
+(the swap-asap timeline with discards and restarts, the same code that samples the planning
+estimate), many cycles at once, with attempt counts drawn ahead per cycle
+(:class:`netsim.network.cutoff.AttemptTable`) so that the coupled start offsets of consecutive
+cycles can be settled by running only the cycles whose offset changed again
+(:func:`_solve_cutoff_cycles`); states, intervals and per-hop and per-site figures as below
+(discarded pairs add their attempts, discards and memory occupancy);
+``tests/test_engine_vector_cutoff.py`` checks it against the event engine on 2-4 hops.
+
+Without a cut-off (or on one hop, where it never acts) nothing during a run depends on a quantum state, and the timeline of one
 end-to-end cycle is a closed formula of the hops' geometric attempt counts. Many cycles are
 sampled at once with numpy:
 
@@ -29,6 +38,7 @@ cycles still changing after those are solved one after another (:func:`_solve_of
 from __future__ import annotations
 
 import math
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -36,6 +46,7 @@ from numpy.typing import NDArray
 from netsim.engine.chain import Chain
 from netsim.engine.history import History, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
+from netsim.network.cutoff import AttemptTable, CycleRun, deliverable, run_cycles
 
 __all__ = ["cycle_timeline", "simulate_chain_vector", "vector_applicable"]
 
@@ -47,13 +58,29 @@ VECTOR_PASSES = 6
 def vector_applicable(chain: Chain, cutoff_s: float | None, purification_rounds: int) -> bool:
     """Whether the vectorised engine reproduces the event engine for this lone chain.
 
-    A cut-off discards only incomplete segments; a one-hop chain's pair is complete (delivered)
-    at its herald, so a cut-off never acts on it and such a chain takes the fast path with any
-    cut-off. Longer chains with a cut-off stay on the event engine.
+    Sure swaps and no purification. A cut-off is taken too: its discard rule is a function of
+    the cycle's own timeline, which :func:`netsim.network.cutoff.run_cycles` runs for many
+    cycles at once (on a one-hop chain it never acts: the pair is delivered at its herald). The
+    chain's hops must use distinct fibre links (a link carries one attempt sequence at a time,
+    which only the event engine models).
     """
     sure_swaps = all(chain.swap_success(j) >= 1.0 for j in range(1, chain.n_hops))
-    no_cutoff = cutoff_s is None or chain.n_hops == 1
-    return sure_swaps and no_cutoff and purification_rounds == 0
+    names = [name for hop in chain.hops for name in hop.links]
+    ok = sure_swaps and purification_rounds == 0 and len(names) == len(set(names))
+    if ok and cutoff_s is not None and chain.n_hops > 1:
+        args = _cutoff_args(chain, cutoff_s)
+        ok = deliverable(args[0], args[2], cutoff_s, args[6])  # else the event engine (and its guards)
+    return ok
+
+
+def _cutoff_args(chain: Chain, cutoff_s: float) -> tuple[Any, ...]:
+    """The chain as :func:`netsim.network.cutoff.run_cycles` takes it."""
+    n, pos = chain.n_hops, chain.position_s
+    tell = tuple(float(max(pos[j] - pos[0], pos[-1] - pos[j])) for j in range(1, n))
+    shared = tuple(chain.sites[j].communication_qubits == 1 for j in range(1, n))
+    swaps = tuple(chain.swap_success(j) for j in range(1, n))
+    return (tuple(map(float, chain.p)), tuple(map(float, chain.period_s)), tuple(map(float, chain.ready_s)), tell,
+            float(cutoff_s), shared, swaps)
 
 
 def cycle_timeline(chain: Chain, k: NDArray[np.float64], offset: NDArray[np.float64]) -> dict[str, NDArray[np.float64]]:
@@ -177,12 +204,16 @@ def _truncate(tl: dict[str, NDArray[np.float64]], k: NDArray[np.float64], keep: 
     return {key: v[:keep] for key, v in tl.items()}, k[:keep]
 
 
-def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator) -> ChainRun:
+def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator,
+                          cutoff_s: float | None = None) -> ChainRun:
     """Run one lone chain with the vectorised engine until ``rule`` is met.
 
-    Stopping by time keeps only the pairs delivered by ``rule.time_s`` and reports that time;
-    stopping by pairs or precision reports the time of the last delivery.
+    ``cutoff_s``: the protocol's cut-off (None: none; on one hop it never acts). Stopping by
+    time keeps only the pairs delivered by ``rule.time_s`` and reports that time; stopping by
+    pairs or precision reports the time of the last delivery.
     """
+    if cutoff_s is not None and chain.n_hops > 1:
+        return _simulate_with_cutoff(chain, rule, rng, float(cutoff_s))
     run = ChainRun.zeros(chain.n_hops, engine="vector", min_fidelity=chain.min_fidelity)
     carry = np.zeros(chain.n_hops)
     now = 0.0
@@ -208,3 +239,93 @@ def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator
         now = max(now, last) if math.isfinite(last) else now
     run.simulated_time_s = rule.time_s if (rule.time_s is not None and not run.interrupted) else now
     return run
+
+
+# -- with a cut-off ------------------------------------------------------------------------------
+
+def _cutoff_offsets(out: CycleRun, carry: NDArray[np.float64]) -> NDArray[np.float64]:
+    """Each cycle's start offsets from the one before: o' = max(0, next round - t_D)."""
+    new = np.empty_like(out.next_round_s)
+    new[0] = carry
+    prev = np.maximum(0.0, out.next_round_s[:-1] - out.delivered_s[:-1, None])
+    new[1:] = np.where(out.finished[:-1, None], prev, 0.0)
+    return new
+
+
+def _solve_cutoff_cycles(args: tuple[Any, ...], table: AttemptTable, carry: NDArray[np.float64],
+                         horizon_s: float) -> CycleRun:
+    """Run the chunk's cycles with their coupled offsets (exact).
+
+    Cycle c's offsets depend only on cycle c - 1's timeline, and a cycle run again with another
+    offset uses the same attempt counts (``table``). Every cycle is first run with offset zero
+    (the first with ``carry``); then only the cycles whose offset changed are run again, until
+    none changes. Each pass makes at least the first changed cycle exact (its predecessor is), so
+    this ends by construction; a pass costs in proportion to the cycles it reruns.
+    """
+    cycles = table.table.shape[0]
+    offset = np.zeros((cycles, len(carry)))
+    offset[0] = carry
+    out = run_cycles(*args, cycles=cycles, draws=table, offset_s=offset, horizon_s=horizon_s)
+    while True:
+        new = _cutoff_offsets(out, carry)
+        changed = np.flatnonzero((new != offset).any(axis=1))
+        if len(changed) == 0:
+            return out
+        offset[changed] = new[changed]
+        part = run_cycles(*args, cycles=len(changed), draws=table, offset_s=offset[changed], table_rows=changed,
+                          horizon_s=horizon_s)
+        out.put(changed, part)
+
+
+def _simulate_with_cutoff(chain: Chain, rule: StopRule, rng: np.random.Generator, cutoff_s: float) -> ChainRun:
+    """The vectorised engine with a cut-off: chunks of cycles run by
+    :func:`netsim.network.cutoff.run_cycles` (the rules of the event engine for a lone chain:
+    turns at one-interface repeaters, memory transfer, discard and restart at the cut-off, the
+    next round of a hop not before one period after its last success), states as without one."""
+    args = _cutoff_args(chain, cutoff_s)
+    n = chain.n_hops
+    run = ChainRun.zeros(n, engine="vector", min_fidelity=chain.min_fidelity)
+    carry = np.zeros(n)
+    now = 0.0
+    try:
+        while not rule.done(run, now):
+            size = _chunk_size(rule, run, now)
+            horizon = rule.time_s - now if rule.time_s is not None else np.inf
+            out = _solve_cutoff_cycles(args, AttemptTable(rng, chain.p, size), carry, horizon)
+            done = int(np.argmin(out.finished)) if not out.finished.all() else size
+            delivered = now + np.cumsum(out.delivered_s[:done])
+            keep = done
+            if rule.time_s is not None:
+                keep = int(np.searchsorted(delivered, rule.time_s, side="right"))
+            if keep:
+                _record_cutoff_chunk(run, chain, out, slice(0, keep), delivered[:keep], now)
+            if keep < size:  # the time limit falls inside this chunk
+                now = float(rule.time_s) if rule.time_s is not None else now
+                break
+            carry = np.maximum(0.0, out.next_round_s[-1] - out.delivered_s[-1])
+            now = float(delivered[-1])
+    except KeyboardInterrupt:
+        run.interrupted = True
+        last = run.metrics.last_delivery_s
+        now = max(now, last) if math.isfinite(last) else now
+    run.simulated_time_s = rule.time_s if (rule.time_s is not None and not run.interrupted) else now
+    return run
+
+
+def _record_cutoff_chunk(run: ChainRun, chain: Chain, out: CycleRun, rows: slice, delivered: NDArray[np.float64],
+                         start_s: float) -> None:
+    """Add delivered cycles ``rows`` of ``out`` (absolute delivery times ``delivered``) to ``run``."""
+    left, right = out.store_left_s[rows], out.store_right_s[rows]
+    hist = History(delivered, left, right, np.zeros(left.shape, dtype=np.int64), [])
+    if any(s.attempt_dephasing > 0 for s in chain.sites):
+        hist.attempts_left, hist.attempts_right = out.attempts_left[rows], out.attempts_right[rows]
+    run.metrics.add(pair_states(chain, hist), delivered)
+    run.add_intervals(delivered, start_s)
+    rounds = out.rounds[rows]
+    run.hop_attempts += rounds.sum(axis=0)
+    run.hop_successes += out.sequences[rows].sum(axis=0)
+    run.hop_busy_s += (rounds * chain.period_s).sum(axis=0)
+    run.hop_discards += out.discarded[rows].sum(axis=0)
+    run.site_qubit_s[:-1] += left.sum(axis=0)
+    run.site_qubit_s[1:] += right.sum(axis=0)
+    run.site_qubit_s += out.lost_qubit_s[rows].sum(axis=0)

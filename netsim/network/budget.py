@@ -146,12 +146,21 @@ def budget(scenario: Scenario, policy: str | None = None) -> Budget:
     """
     graph = build_graph(scenario)
     links = [_link_row(graph, link.a, link.b, scenario) for link in scenario.links]
+    rows, warnings = demand_rows(scenario, graph, policy)
+    return Budget(scenario.name, links, rows, warnings)
+
+
+def demand_rows(scenario: Scenario, graph: nx.Graph | None = None,
+                policy: str | None = None) -> tuple[list[dict[str, Any]], list[str]]:
+    """The demand rows of :func:`budget` and their warnings, without the link rows, on ``graph``
+    (built from ``scenario`` when not given; ``engine.run`` passes the one it routed on)."""
+    graph = build_graph(scenario) if graph is None else graph
     rows, warnings = [], []
     for demand in scenario.demands:
         row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing)
         rows.append(row)
         warnings += [warning] if warning else []
-    return Budget(scenario.name, links, rows, warnings)
+    return rows, warnings
 
 
 def expected_figures(scenario: Scenario, policy: str | None = None) -> list[dict[str, Any]]:

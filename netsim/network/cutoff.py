@@ -1,4 +1,5 @@
-"""Sampled timeline of a lone chain under swap-asap with a cut-off (for the planning estimate).
+"""Timeline of a lone chain under swap-asap with a cut-off: the planning estimate's sample and
+the vectorised engine's cycles (one implementation, :func:`run_cycles`).
 
 With a cut-off the cycle time has no closed form beyond small cases (Kamin, Shchukin, Schmidt &
 van Loock, PRR 5, 023086 (2023) derive generating functions for the waiting time with a cut-off;
@@ -25,10 +26,14 @@ The rules sampled (those of the event engine for one demand alone, swap-asap, pa
   hops request again (the inner ones first, then its two end hops, as the engine frees slots).
 - A swap at site j fails with probability 1 - p_j; both segments are then lost and their hops
   request again at once (the engine frees the far ends when the failure message arrives; the
-  message time is left out here).
+  message time is left out here; the vectorised engine takes only chains with sure swaps).
+- A hop's next round starts no earlier than one period after the start of its last successful
+  round (also across cycles: ``offset_s``, the carry the engine passes from one cycle to the next).
+- At exactly equal times a pair becoming usable is taken before a run's cut-off (the event
+  engine orders such ties by when the events were scheduled; only event times on one lattice,
+  e.g. a cut-off a whole number of periods beyond the herald delay, meet exactly).
 - The pair is delivered at t_D = max(R_0, R_{n-1}, max_j (s_j + d_j)) (s_j the last swap time at
-  site j, d_j its signalling time to the farther user); the next cycle starts then. The carry of
-  at most one attempt period from one cycle to the next is left out.
+  site j, d_j its signalling time to the farther user); the next cycle starts then.
 
 Storage times of the delivered pairs: hop i's left qubit from b_i to s_i (t_D at the first
 user), its right qubit from b_i to s_{i+1} (t_D at the last user).
@@ -43,16 +48,16 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["CYCLES", "SEED", "CycleSample", "sample_cycles"]
+__all__ = ["CYCLES", "SEED", "AttemptTable", "CycleRun", "CycleSample", "run_cycles", "sample_cycles"]
 
 #: Cycles sampled per estimate: the standard error of a mean fidelity is about 0.1 / sqrt(N).
 CYCLES = 1200
 #: Fixed seed: the estimate is deterministic.
 SEED = 20230523
+#: Steps (events per cycle) after which the estimate gives up on a cycle (no delivery).
+ESTIMATE_STEPS = 100_000
 
 _WAIT, _TRY, _HELD = 0, 1, 2
-#: Events sampled at most; cycles unfinished by then count as no delivery.
-_STEPS = 100_000
 
 
 @dataclass(frozen=True)
@@ -62,9 +67,8 @@ class CycleSample:
     ``delivered_s`` (N,) is each cycle's duration; ``store_left_s`` and ``store_right_s`` (N, n)
     the storage times of the delivered pairs' qubits; ``discards`` (N,) the runs discarded by
     the cut-off in each cycle; ``attempts_left`` and ``attempts_right`` (N, n) the attempt rounds
-    the neighbouring hop starts at the same site while each of those qubits waits there (the
-    only attempts at that site in a lone chain: while hop i's pair waits unswapped at a site, its
-    neighbour there holds no pair, so they all belong to the neighbour's last sequence).
+    the neighbouring hop starts at the same site while each of those qubits waits there (in a
+    lone chain the only attempts at that site while the qubit waits).
     """
 
     delivered_s: NDArray[np.float64]
@@ -73,6 +77,72 @@ class CycleSample:
     discards: NDArray[np.float64]
     attempts_left: NDArray[np.float64]
     attempts_right: NDArray[np.float64]
+
+
+@dataclass
+class CycleRun:
+    """Per cycle (rows) of :func:`run_cycles`; times relative to the cycle's start.
+
+    ``finished`` (M,): the cycle delivered (within the step limit and the horizon); the other
+    fields of an unfinished cycle are meaningless. ``delivered_s`` (M,) the delivery time;
+    ``born_s`` (M, n) when each hop's delivered pair's successful round started;
+    ``next_round_s`` (M, n) the earliest start of each hop's next round (born + period);
+    ``store_left_s``, ``store_right_s`` (M, n) the delivered pairs' storage times;
+    ``attempts_left``, ``attempts_right`` (M, n) the attempt rounds the neighbouring hop started
+    at the same site while each of those qubits waited there; ``rounds`` and ``sequences``
+    (M, n) attempt rounds and attempt sequences (= heralded pairs) per hop; ``discarded`` (M, n)
+    pairs per hop discarded by the cut-off or lost in a failed swap; ``discards`` (M,) runs
+    discarded by the cut-off; ``lost_qubit_s`` (M, n + 1) the qubit-seconds the discarded or lost
+    pairs spent in each site's memory.
+    """
+
+    finished: NDArray[np.bool_]
+    delivered_s: NDArray[np.float64]
+    born_s: NDArray[np.float64]
+    next_round_s: NDArray[np.float64]
+    store_left_s: NDArray[np.float64]
+    store_right_s: NDArray[np.float64]
+    attempts_left: NDArray[np.float64]
+    attempts_right: NDArray[np.float64]
+    rounds: NDArray[np.float64]
+    sequences: NDArray[np.float64]
+    discarded: NDArray[np.float64]
+    discards: NDArray[np.float64]
+    lost_qubit_s: NDArray[np.float64]
+
+    @classmethod
+    def empty(cls, cycles: int, n: int) -> CycleRun:
+        def z(*shape: int) -> NDArray[np.float64]:
+            return np.zeros(shape)
+        return cls(np.zeros(cycles, dtype=bool), np.full(cycles, np.inf), z(cycles, n), z(cycles, n), z(cycles, n),
+                   z(cycles, n), z(cycles, n), z(cycles, n), z(cycles, n), z(cycles, n), z(cycles, n), z(cycles),
+                   z(cycles, n + 1))
+
+    def put(self, rows: NDArray[np.int64], other: CycleRun) -> None:
+        """Overwrite ``rows`` with the cycles of ``other`` (in order)."""
+        for name in self.__dataclass_fields__:
+            getattr(self, name)[rows] = getattr(other, name)
+
+
+class AttemptTable:
+    """Attempt counts drawn ahead per cycle and hop, so that a cycle run again (with another
+    start offset) uses the same draws: ``table[c, i, m]`` is the number of rounds of hop i's
+    m-th attempt sequence in cycle c, Geometric(q_i). More columns are drawn from ``rng`` when a
+    cycle needs them; the columns already drawn never change."""
+
+    def __init__(self, rng: np.random.Generator, q: NDArray[np.float64], cycles: int, columns: int = 2) -> None:
+        self.rng, self.q = rng, np.asarray(q, dtype=float)
+        self.table = self._draw(cycles, columns)
+
+    def _draw(self, cycles: int, columns: int) -> NDArray[np.float64]:
+        q = np.broadcast_to(self.q[None, :, None], (cycles, len(self.q), columns))
+        return self.rng.geometric(q).astype(float)
+
+    def take(self, cycle: NDArray[np.int64], hop: NDArray[np.int64], used: NDArray[np.int64]) -> NDArray[np.float64]:
+        """Rounds of the ``used``-th sequence (0-based) of ``hop`` in ``cycle`` (arrays)."""
+        while len(used) and int(used.max()) >= self.table.shape[2]:
+            self.table = np.concatenate([self.table, self._draw(self.table.shape[0], self.table.shape[2])], axis=2)
+        return self.table[cycle, hop, used]
 
 
 def sample_cycles(q: tuple[float, ...], period_s: tuple[float, ...], ready_s: tuple[float, ...],
@@ -90,49 +160,82 @@ def sample_cycles(q: tuple[float, ...], period_s: tuple[float, ...], ready_s: tu
                    tuple(map(float, swap_p)), int(cycles), int(seed))
 
 
+def deliverable(q: tuple[float, ...], ready_s: tuple[float, ...], cutoff_s: float, swap_p: tuple[float, ...]) -> bool:
+    """Whether a chain of two hops or more can deliver at all with this cut-off: every hop can
+    succeed, every swap can, and every pair is usable before the cut-off removes it."""
+    return all(r < cutoff_s for r in ready_s) and all(p > 0 for p in q) and all(p > 0 for p in swap_p)
+
+
 @functools.lru_cache(maxsize=256)
 def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float, ...], tell: tuple[float, ...],
             cutoff: float, shared: tuple[bool, ...], swap_p: tuple[float, ...], cycles: int,
             seed: int) -> CycleSample | None:
-    n = len(q)
-    if n < 2 or any(r >= cutoff for r in ready) or any(p <= 0 for p in q) or any(p <= 0 for p in swap_p):
+    if len(q) < 2 or not deliverable(q, ready, cutoff, swap_p):
         return None  # one hop: the cut-off never acts (callers use the closed form); else no delivery
-    if math.prod(swap_p) * _STEPS < 10.0:
+    if math.prod(swap_p) * ESTIMATE_STEPS < 10.0:
         # a delivery needs every swap to succeed in one cycle, 1 / prod(p) tries on average: far
-        # beyond the steps below, no cycle would finish (swap success 1e-308 ran for minutes)
+        # beyond the steps allowed, no cycle would finish (swap success 1e-308 ran for minutes)
         return None
-    rng = np.random.default_rng(seed)
-    qa, ta, ra = np.array(q), np.array(period), np.array(ready)
-    tell_a = np.array(tell)
-    # blocks[i]: neighbours of hop i it must not attempt beside (a shared inner site between them)
+    out = run_cycles(q, period, ready, tell, cutoff, shared, swap_p, cycles=cycles,
+                     draws=np.random.default_rng(seed), max_steps=ESTIMATE_STEPS)
+    if not out.finished.all():
+        return None  # cycles that never finish: treat as no delivery
+    return CycleSample(out.delivered_s, out.store_left_s, out.store_right_s, out.discards,
+                       out.attempts_left, out.attempts_right)
+
+
+def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float, ...], tell: tuple[float, ...],
+               cutoff: float, shared: tuple[bool, ...], swap_p: tuple[float, ...], *, cycles: int,
+               draws: np.random.Generator | AttemptTable, offset_s: NDArray[np.float64] | None = None,
+               table_rows: NDArray[np.int64] | None = None, max_steps: int | None = None,
+               horizon_s: float = np.inf) -> CycleRun:
+    """Run ``cycles`` independent cycles of the chain under the rules of the module docstring.
+
+    ``draws``: a generator (attempt counts and swap outcomes drawn as the cycles need them; the
+    estimate) or an :class:`AttemptTable` (rows ``table_rows`` of it, default 0 .. cycles - 1;
+    sure swaps only; the vectorised engine, which may run a cycle again with another offset).
+    ``offset_s`` (cycles, n): per cycle and hop, the earliest start of the first round after the
+    cycle's start (the carry of the previous cycle; default 0). A cycle still running after
+    ``max_steps`` events or past ``horizon_s`` is left unfinished.
+    """
+    n = len(q)
+    qa, ta, ra = np.array(q, dtype=float), np.array(period, dtype=float), np.array(ready, dtype=float)
+    tell_a = np.array(tell, dtype=float)
     left_shared = np.array([i > 0 and shared[i - 1] for i in range(n)])
     right_shared = np.array([i < n - 1 and shared[i] for i in range(n)])
     sure = all(p >= 1.0 for p in swap_p)
-    swap_pa = np.array((1.0,) + swap_p + (1.0,))
-
-    out_t = np.empty(cycles)
-    out_left = np.empty((cycles, n))
-    out_right = np.empty((cycles, n))
-    out_disc = np.empty(cycles)
-    out_att_left = np.zeros((cycles, n))
-    out_att_right = np.zeros((cycles, n))
+    table = draws if isinstance(draws, AttemptTable) else None
+    rng = draws if isinstance(draws, np.random.Generator) else None
+    if table is not None and not sure:
+        raise ValueError("an attempt table serves chains with sure swaps only")
+    swap_pa = np.array((1.0,) + tuple(swap_p) + (1.0,))
+    out = CycleRun.empty(cycles, n)
 
     ids = np.arange(cycles)
+    t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
     m = cycles
     now = np.zeros(m)
     mode = np.zeros((m, n), dtype=np.int8)
     born = np.zeros((m, n))
     rdy = np.full((m, n), np.inf)
     first = np.zeros((m, n))
-    rounds = np.ones((m, n))
+    cur = np.zeros((m, n))                    # rounds of each hop's last sequence (0: none yet)
+    next_ok = np.zeros((m, n)) if offset_s is None else np.array(offset_s, dtype=float).reshape(m, n)
     prio = np.tile(np.arange(n, dtype=float), (m, 1))
     swap_t = np.zeros((m, n + 1))
     disc = np.zeros(m)
+    used = np.zeros((m, n), dtype=np.int64)
+    rounds = np.zeros((m, n))
+    seqs = np.zeros((m, n))
+    dropped = np.zeros((m, n))
+    lost_q = np.zeros((m, n + 1))
+    acc_left = np.zeros((m, n))
+    acc_right = np.zeros((m, n))
     counter = float(n)
     cols = np.arange(n)
-    for _step in range(_STEPS):
-        if m == 0:
-            break
+    step = 0
+    while m and (max_steps is None or step < max_steps):
+        step += 1
         rows = np.arange(m)
         # 1. grant waiting requests in request order
         pending = mode == _WAIT
@@ -145,11 +248,20 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
             go = has & ~lb & ~rb
             if go.any():
                 r, h = rows[go], i[go]
-                k = rng.geometric(qa[h])
-                first[r, h], rounds[r, h] = now[r], k
-                born[r, h] = now[r] + (k - 1) * ta[h]
-                rdy[r, h] = born[r, h] + ra[h]
+                if table is not None:
+                    k = table.take(t_rows[ids[r]], h, used[r, h])
+                    used[r, h] += 1
+                else:
+                    assert rng is not None
+                    k = rng.geometric(qa[h])
+                start = np.maximum(now[r], next_ok[r, h])
+                first[r, h], cur[r, h] = start, k
+                b = start + (k - 1) * ta[h]
+                born[r, h], rdy[r, h], next_ok[r, h] = b, b + ra[h], b + ta[h]
+                rounds[r, h] += k
+                seqs[r, h] += 1
                 mode[r, h] = _TRY
+                _count_attempts(r, h, n, b, start, k, ta, first, cur, born, mode, acc_left, acc_right)
             pending[rows[has], i[has]] = False
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
@@ -181,6 +293,7 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
             rr, ss = r[ok], site[ok]
             swap_t[rr, ss] = now[rr]
             if not sure:
+                assert rng is not None
                 fail = rng.random(len(rr)) >= swap_pa[ss]
                 if fail.any():
                     rf, hf = rr[fail], h[ok][fail]
@@ -197,13 +310,19 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
         if lost.any():
             lo = np.where(lost, cols, n).min(axis=1)
             hi = np.where(lost, cols, -1).max(axis=1)
+            # qubit-seconds of the lost pairs: to the swap that joined them, or to now at the run's ends
+            left_end = np.where(cols > lo[:, None], swap_t[:, :n], now[:, None])
+            right_end = np.where(cols < hi[:, None], swap_t[:, 1:], now[:, None])
+            lost_q[:, :n] += np.where(lost, left_end - born, 0.0)
+            lost_q[:, 1:] += np.where(lost, right_end - born, 0.0)
+            dropped += lost
             inner = lost & (cols > lo[:, None]) & (cols < hi[:, None])
             rank = np.where(inner, cols, np.where(cols == lo[:, None], n, n + 1))
             prio = np.where(lost, counter + rank, prio)
             counter += n + 2
             mode[lost] = _WAIT
             rdy[lost] = np.inf
-        # 4. delivered cycles leave the sample
+        # 4. delivered cycles leave; so do cycles past the horizon
         done = (mode == _HELD).all(axis=1)
         if done.any():
             d = rows[done]
@@ -211,33 +330,61 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
             t_del = np.maximum(np.maximum(rdy[d, 0], rdy[d, n - 1]), (sw + tell_a).max(axis=1))
             end_left = np.concatenate([t_del[:, None], sw], axis=1)
             end_right = np.concatenate([sw, t_del[:, None]], axis=1)
-            out_t[ids[d]] = t_del
-            out_left[ids[d]] = end_left - born[d]
-            out_right[ids[d]] = end_right - born[d]
-            out_disc[ids[d]] = disc[d]
-            for i in range(n):
-                if i > 0:
-                    out_att_left[ids[d], i] = _rounds_between(first[d, i - 1], ta[i - 1], rounds[d, i - 1],
-                                                              born[d, i], end_left[:, i])
-                if i < n - 1:
-                    out_att_right[ids[d], i] = _rounds_between(first[d, i + 1], ta[i + 1], rounds[d, i + 1],
-                                                               born[d, i], end_right[:, i])
-            keep = ~done
-            ids, now, mode, born, rdy, prio, swap_t, disc, first, rounds = (
-                ids[keep], now[keep], mode[keep], born[keep], rdy[keep], prio[keep], swap_t[keep], disc[keep],
-                first[keep], rounds[keep])
+            o = ids[d]
+            out.finished[o] = True
+            out.delivered_s[o] = t_del
+            out.born_s[o], out.next_round_s[o] = born[d], next_ok[d]
+            out.store_left_s[o] = end_left - born[d]
+            out.store_right_s[o] = end_right - born[d]
+            out.attempts_left[o], out.attempts_right[o] = acc_left[d], acc_right[d]
+        gone = done | (now > horizon_s)
+        if gone.any():
+            g = rows[gone]
+            o = ids[g]
+            out.rounds[o], out.sequences[o], out.discarded[o] = rounds[g], seqs[g], dropped[g]
+            out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[g]
+            keep = ~gone
+            (ids, now, mode, born, rdy, first, cur, next_ok, prio, swap_t, disc, used, rounds, seqs, dropped,
+             lost_q, acc_left, acc_right) = (
+                a[keep] for a in (ids, now, mode, born, rdy, first, cur, next_ok, prio, swap_t, disc, used, rounds,
+                                  seqs, dropped, lost_q, acc_left, acc_right))
             m = len(ids)
-    if m:
-        return None  # cycles that never finish: treat as no delivery
-    return CycleSample(out_t, out_left, out_right, out_disc, out_att_left, out_att_right)
+    return out
 
 
-def _rounds_between(start_s: NDArray[np.float64], period_s: float, k: NDArray[np.float64],
-                    after_s: NDArray[np.float64], until_s: NDArray[np.float64]) -> NDArray[np.float64]:
-    """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly inside (after, until)."""
-    lo = np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0)
-    hi = np.minimum(k - 1.0, np.ceil((until_s - start_s) / period_s - 1e-9) - 1.0)
-    return np.maximum(0.0, hi - lo + 1.0)
+def _count_attempts(r: NDArray[np.int64], h: NDArray[np.int64], n: int, b: NDArray[np.float64],
+                    start: NDArray[np.float64], k: NDArray[np.float64], ta: NDArray[np.float64],
+                    first: NDArray[np.float64], cur: NDArray[np.float64], born: NDArray[np.float64],
+                    mode: NDArray[np.int8], acc_left: NDArray[np.float64], acc_right: NDArray[np.float64]) -> None:
+    """Hop ``h`` (rows ``r``) starts a sequence of ``k`` rounds from ``start``; its pair is born at ``b``.
+
+    ``acc_left[r, i]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
+    round began (``acc_right`` those of hop i + 1 at site i + 1). The new pair's counts start
+    from the neighbour's last sequence (earlier ones ended before this grant); the neighbour's
+    counts grow by this sequence while its pair lives (waiting for a herald, or stored). They
+    stop counting by themselves: once the two pairs are swapped, neither hop attempts again
+    before both are delivered or discarded.
+    """
+    left, right = h > 0, h < n - 1
+    if left.any():
+        rl, hl = r[left], h[left]
+        acc_left[rl, hl] = _rounds_after(first[rl, hl - 1], ta[hl - 1], cur[rl, hl - 1], b[left])
+        alive = mode[rl, hl - 1] != _WAIT
+        ra_, ha = rl[alive], hl[alive]
+        acc_right[ra_, ha - 1] += _rounds_after(start[left][alive], ta[ha], k[left][alive], born[ra_, ha - 1])
+    if right.any():
+        rr, hr = r[right], h[right]
+        acc_right[rr, hr] = _rounds_after(first[rr, hr + 1], ta[hr + 1], cur[rr, hr + 1], b[right])
+        alive = mode[rr, hr + 1] != _WAIT
+        ra_, ha = rr[alive], hr[alive]
+        acc_left[ra_, ha + 1] += _rounds_after(start[right][alive], ta[ha], k[right][alive], born[ra_, ha + 1])
+
+
+def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
+                  after_s: NDArray[np.float64]) -> NDArray[np.float64]:
+    """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly after ``after``
+    (a round starting with it, to 1e-9 of a period, does not count: the qubit's own round)."""
+    return np.maximum(0.0, k - np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0))
 
 
 def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], n: int) -> NDArray[np.bool_]:
@@ -247,4 +394,3 @@ def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], n: int) -> NDArra
     left_gap = np.where(gap & (cols < hop[:, None]), cols, -1).max(axis=1)
     right_gap = np.where(gap & (cols > hop[:, None]), cols, n).min(axis=1)
     return (cols > left_gap[:, None]) & (cols < right_gap[:, None])
-

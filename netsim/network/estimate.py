@@ -69,7 +69,7 @@ in rate for each demand of the bundled chain and mesh alone; within 0.005 and 1-
 to 4-hop chains with cut-off/T2 from 0.1 to 3.3 (tests/test_network_cutoff.py). One hop is delivered
 at its herald and the cut-off never acts on it. Left out: the message time before a failed
 swap frees the far ends (a few 10 us in a metro network) and the carry of at most one attempt
-period from one cycle to the next. The sample does not depend on T1/T2, so it is cached: a
+period from one cycle to the next (each sampled cycle starts afresh). The sample does not depend on T1/T2, so it is cached: a
 scan over coherence (``netsim check`` advice) samples once.
 Where a delivery needs more than ``MAX_SAMPLED_LINK_PAIRS`` link pairs
 (:func:`netsim.network.workload.route_work`: tries the cut-off discards, failing swaps), the
@@ -107,7 +107,7 @@ from netsim.scenario.model import Site
 #: fidelity unknown (NaN).
 MAX_SAMPLED_LINK_PAIRS = 2000.0
 
-__all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "estimate_hops", "estimate_route", "expected_storage_s"]
+__all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "cutoff_scan_point", "estimate_hops", "estimate_route", "expected_storage_s"]
 
 _PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
 #: Per qubit of a pair: the entries of a 4 x 4 state that are coherences of that qubit.
@@ -294,14 +294,41 @@ def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tup
     return np.asarray(out)
 
 
+def cutoff_scan_point(graph: nx.Graph, hops: Sequence[Hop], cutoff_s: float,
+                      min_fidelity: float) -> tuple[float, float, float] | None:
+    """(rate per s, useful rate per s, mean fidelity) of a route of two hops or more at cut-off
+    ``cutoff_s``, from the sampled timeline (:mod:`netsim.network.cutoff`): each sampled cycle's
+    delivered state is computed from its own storage times, and a cycle counts as useful when its
+    own fidelity reaches ``min_fidelity`` (as a simulated pair does). None when nothing can be
+    delivered at that cut-off."""
+    sites = [graph.nodes[h.a]["site"] for h in hops] + [graph.nodes[hops[-1].b]["site"]]
+    q = [h.physics.round_success_probability for h in hops]
+    period = [h.physics.attempt_period_s for h in hops]
+    position = np.concatenate([[0.0], np.cumsum([propagation_delay_s(h.physics.length_km) for h in hops])])
+    tell = [max(position[j] - position[0], position[-1] - position[j]) for j in range(1, len(hops))]
+    ready = [h.physics.herald_delay_s + max(sites[i].memory_transfer_s, sites[i + 1].memory_transfer_s)
+             for i, h in enumerate(hops)]
+    shared = [s.communication_qubits == 1 for s in sites[1:-1]]
+    swaps = [s.bsm_success_probability for s in sites[1:-1]]
+    sample = sample_cycles(tuple(q), tuple(period), tuple(ready), tuple(tell), cutoff_s, tuple(shared), tuple(swaps))
+    if sample is None:
+        return None
+    states = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s, sample.attempts_left,
+                             sample.attempts_right, per_cycle=True)
+    fid = np.real(np.einsum("i,nij,j->n", _PHI_PLUS.conj(), states, _PHI_PLUS))
+    rate = 1.0 / float(sample.delivered_s.mean())
+    return rate, rate * float(np.mean(fid >= min_fidelity)), float(fid.mean())
+
+
 def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
-                    attempts_left: np.ndarray, attempts_right: np.ndarray) -> np.ndarray:
+                    attempts_left: np.ndarray, attempts_right: np.ndarray, per_cycle: bool = False) -> np.ndarray:
     """Mean delivered state over sampled storage times ``left_s``, ``right_s`` (N, n).
 
     As the engine does, each end's memory transfer error is applied to the heralded state before
     the decay (exact for pure dephasing), and a site's ``attempt_dephasing`` d multiplies a
     stored qubit's coherences by (1 - d)^a for the a attempts its neighbour starts there while
-    it waits; the mean is then over the swapped per-cycle states.
+    it waits; the mean is then over the swapped per-cycle states. ``per_cycle``: return the
+    (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
     out = None
     for i, hop in enumerate(hops):
@@ -318,7 +345,7 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
                 rho = np.where(_OFF_DIAGONAL[qubit], rho * factor[:, None, None], rho)
         if out is None:
             out = rho
-        elif i < len(hops) - 1:
+        elif i < len(hops) - 1 or per_cycle:
             out = qinfo.entanglement_swap(out, rho, bsm_depolarizing=float(left.gate_error))
         else:  # the last swap is bilinear: its mean needs only the (16, 16) second moments
             # (einsum, not a BLAS product: threaded BLAS is slow for this size on a busy machine)
@@ -328,7 +355,7 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
             return np.asarray(qinfo.entanglement_swap(out.mean(axis=0), np.eye(4) / 4, bsm_depolarizing=1.0)
                               * float(left.gate_error) + (1.0 - float(left.gate_error)) * joined)
     assert out is not None
-    return np.asarray(out.mean(axis=0))
+    return np.asarray(out) if per_cycle else np.asarray(out.mean(axis=0))
 
 
 def _fidelity(state: np.ndarray) -> float:
