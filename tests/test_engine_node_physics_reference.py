@@ -40,7 +40,10 @@ def test_figures_agree_with_those_recorded_before_the_speed_work(name: str) -> N
     rel_rate = []
     for row in result.demands:
         old = ref["demands"][row["demand"]]
-        assert row["engine"] == old["engine"] and row["hops"] == old["hops"]
+        # a lone chain with a cut-off now runs on the vectorised engine: its figures must agree
+        # with the event engine's recorded ones all the same (an independent implementation)
+        assert row["hops"] == old["hops"]
+        assert row["engine"] == old["engine"] or (old["engine"] == "des" and row["engine"] == "vector")
         for key, ci in (("rate_per_s", "rate_ci95"), ("fidelity_mean", "fidelity_ci95")):
             se = math.hypot(_se(row[ci]), _se(old[ci]))
             assert abs(row[key] - old[key]) <= Z_SPLIT * se + 1e-12, (row["demand"], key, row[key], old[key], se)

@@ -97,7 +97,6 @@ def _free_port() -> int:
 
 def test_dead_scheduler_is_one_line_after_a_short_wait(tmp_path: Path, capsys: pytest.CaptureFixture[str],
                                                        monkeypatch: pytest.MonkeyPatch) -> None:
-    pytest.importorskip("distributed")  # the optional 'cluster' extra
     monkeypatch.setattr(executors, "CONNECT_TIMEOUT_S", 1.0)
     address = f"tcp://127.0.0.1:{_free_port()}"
     code = main(_sweep(tmp_path, address))
