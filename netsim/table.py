@@ -103,6 +103,8 @@ class Column:
             return format_number(value, self.sig)
         interval = row[self.ci_key]
         if isinstance(value, (list, tuple)) and len(value) == 2:
+            if value[0] is None or value[1] is None:  # an open bound: no centre to align on
+                return f"[{format_number(value[0], self.sig)}, {format_number(value[1], self.sig)}]"
             centre = (float(value[0]) + float(value[1])) / 2.0
             sigs = [_bound_sig(v, centre, interval, self.sig) for v in value]
             return f"[{format_number(value[0], sigs[0], True)}, {format_number(value[1], sigs[1], True)}]"

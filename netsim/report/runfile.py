@@ -74,6 +74,9 @@ DEMAND_KEYS: dict[str, Check] = {
     "bound_single_path_per_s": NONNEG, "single_path_bound_bits_per_s": NONNEG, "widest_path_bits_per_s": NONNEG,
     "single_path_bits_per_s": NONNEG, "bound_multipath_per_s": NONNEG, "multipath_bound_bits_per_s": NONNEG,
     "min_cut_bits_per_s": NONNEG, "multipath_bits_per_s": NONNEG,
+    # passed through to the tables and JSON as written
+    "engine": TEXT, "useful_pairs": COUNT, "eof_of_mean_state": UNIT, "interrupted": FLAG,
+    "ensemble_chi_bits_per_qubit": NONNEG, "ensemble_realisations": COUNT,
 }
 
 #: Keys of a link row the report reads (the run's own figures, and the budget columns it stands
@@ -119,10 +122,26 @@ class _Refusal:
         return ParameterError(f"{self.source}: {path}" if path else self.source, value, allowed)
 
 
+#: Keys a row may carry beyond those listed (newer columns, figures the report passes through):
+#: their shape follows from the unit in their name.
+_SUFFIX_CHECKS: tuple[tuple[str, Check], ...] = (
+    ("_ci95", INTERVAL), ("_per_s", NUMBER), ("_bits", NUMBER), ("_ebits", NUMBER), ("_s", NUMBER),
+    ("_km", NUMBER), ("_db", NUMBER), ("_fraction", NUMBER), ("_mean", NUMBER), ("_probability", NUMBER),
+)
+
+
 def _check_keys(row: Mapping[str, Any], where: str, keys: Mapping[str, Check], refuse: _Refusal) -> None:
     for key, (test, allowed) in keys.items():
         if key in row and not test(row[key]):
             raise refuse(f"{where}.{key}", row[key], allowed)
+    for key, value in row.items():
+        if key in keys or not isinstance(key, str):
+            continue
+        for suffix, (test, allowed) in _SUFFIX_CHECKS:
+            if key.endswith(suffix):
+                if not test(value):
+                    raise refuse(f"{where}.{key}", value, allowed)
+                break
 
 
 def _check_entities(run: Mapping[str, Any], name: str, refuse: _Refusal) -> None:
