@@ -16,6 +16,7 @@ from netsim.network.audit import one_round, purification_warnings
 from netsim.scenario import load, load_data
 
 CHAIN = Path(__file__).resolve().parent / "data" / "chain3-check.toml"  # hardware stated there
+ROOT = Path(__file__).resolve().parents[1]
 
 
 def _chain(**protocol: object) -> object:
@@ -98,3 +99,23 @@ def test_advice_names_coherence_purification_and_a_cutoff(capsys: pytest.Capture
     data = json.loads(capsys.readouterr().out)
     assert data["advice"] and all(isinstance(x, str) for x in data["advice"])
     assert not demand_advice(load(CHAIN))  # chain3 meets its 0.7 (estimate 0.81)
+
+
+def test_purification_ceiling_bounds_the_estimate_and_spares_the_sampler() -> None:
+    """The purification remedy first asks what the purified route gives with no memory decay at
+    all; only when that reaches the minimum is the cut-off timeline sampled. The ceiling must bound
+    the decaying estimate from above (memory decay only lowers a fidelity above 1/2: the channels
+    of Nielsen & Chuang, ch. 8, applied to a Bell-diagonal state, common practice)."""
+    from netsim.engine.advice import purified_ceiling, purified_estimate
+    from netsim.network import build_graph, find_route, route_hops
+
+    scenario = load(ROOT / "scenarios" / "vellmoor-mesh.toml")
+    graph = build_graph(scenario)
+    for demand in scenario.demands[:3]:
+        hops = route_hops(graph, find_route(graph, demand.a, demand.b, scenario.protocol.routing))
+        for protocol in ("dejmps", "bbpssw"):
+            for rounds in (1, 2):
+                ceiling = purified_ceiling(graph, hops, protocol, rounds)
+                _, fid = purified_estimate(graph, hops, protocol, rounds)
+                if fid == fid and fid > 0.5:  # not NaN
+                    assert fid <= ceiling + 1e-9, (demand.name, protocol, rounds, fid, ceiling)

@@ -399,11 +399,13 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
     graph = build_graph(scenario)
     chains = chains_from_scenario(scenario, graph)
     _check_slots(scenario, chains, rounds)
-    check_run_work(scenario, expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds),
-                   max_link_pairs)
+    works = expected_work(chains, _components(chains, rounds + 1), rule, proto.cutoff_s, rounds)
+    check_run_work(scenario, works, max_link_pairs)
+    # the refusal reads the least work; contending demands may take up to the serial figure
+    serial = max([w.link_pairs_serial for w in works], default=0.0)
     options = DesOptions(cutoff_s=proto.cutoff_s, purification=proto.purification,
                          purification_rounds=rounds, scheduling=proto.scheduling, swap_policy=proto.swap_policy,
-                         max_link_pairs=GUARD_FACTOR * float(max_link_pairs), progress=progress)
+                         max_link_pairs=GUARD_FACTOR * max(float(max_link_pairs), serial), progress=progress)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
     for row, extra, demand in zip(rows, _analytic(scenario, graph), scenario.demands):

@@ -407,7 +407,7 @@ class _Des:
             from netsim.engine.workload import RunLimitError
 
             raise RunLimitError(f"the event engine stopped after heralding {self.heralds} link pairs, more than "
-                                f"{self.opt.max_link_pairs:.3g} (4 x --max-link-pairs); the run would take far "
+                                f"{self.opt.max_link_pairs:.3g} (4 x the larger of --max-link-pairs and the expected work); the run would take far "
                                 "longer than its estimate: raise --max-link-pairs or ask for fewer pairs")
 
     # -- optical interfaces and attempt counts -------------------------------------------------
