@@ -24,12 +24,19 @@ import signal
 import subprocess
 import sys
 import time
+from concurrent.futures import ProcessPoolExecutor
 from pathlib import Path
 
 import pytest
 from test_sweep_support import write_scenario
 
+from netsim.scenario import load
+from netsim.sweep import executors
+from netsim.sweep.executors import LocalPool
+from netsim.sweep.plan import make_plan
+from netsim.sweep.runner import tasks_for
 from netsim.sweep.store import open_store
+from netsim.sweep.synthetic import SyntheticPoint
 
 ROOT = Path(__file__).resolve().parents[1]
 SWEEP = '[sweep]\npairs = 20\n[sweep.vary]\n"links[*].length_km" = "lin:2:30:8"\n'   # 8 engine points
@@ -105,3 +112,67 @@ def test_ctrl_c_while_the_workers_start_prints_no_traceback(tmp_path: Path) -> N
     assert code == 0, err
     with open_store(store) as opened:
         assert opened.counts() == {"pending": 0, "done": 8, "failed": 0}
+
+
+def test_a_deferred_ctrl_c_is_raised_when_the_block_ends() -> None:
+    handler = signal.getsignal(signal.SIGINT)
+    reached_the_end = False
+    with pytest.raises(KeyboardInterrupt):
+        with executors._interrupt_deferred():
+            signal.raise_signal(signal.SIGINT)
+            time.sleep(0.05)                    # the eval loop runs its signal checks meanwhile
+            reached_the_end = True
+    assert reached_the_end
+    assert signal.getsignal(signal.SIGINT) is handler
+    with executors._interrupt_deferred():       # no Ctrl-C: nothing is raised
+        pass
+
+
+def _forkserver_children() -> set[int]:
+    from multiprocessing import forkserver
+
+    pid = getattr(forkserver._forkserver, "_forkserver_pid", None)  # the server forks the workers: they are its children
+    return set(_children(pid)) if pid else set()
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux") or
+                    not Path(f"/proc/{os.getpid()}/task/{os.getpid()}/children").exists(),
+                    reason="needs the Linux fork server and /proc to see its children")
+def test_ctrl_c_while_a_worker_is_being_started_leaves_no_unknown_worker(tmp_path: Path,
+                                                                         monkeypatch: pytest.MonkeyPatch) -> None:
+    """Ctrl-C while the coordinator waits for the fork server to report a new worker's pid (the
+    worker exists and holds the queues' semaphore names, the pool does not know it yet): the
+    pool must know and end that worker when it stops, else the worker outlives the coordinator's
+    semaphores and prints a FileNotFoundError traceback."""
+    from multiprocessing import forkserver
+
+    plan = make_plan(load(write_scenario(tmp_path, SWEEP)))
+    pool = LocalPool(SyntheticPoint(sleep_s=5.0), 2)
+    before = _forkserver_children()
+    read_signed, stop = forkserver.read_signed, executors._stop
+    forked: set[int] = set()
+    known: list[int] = []
+
+    def interrupted_read_signed(fd: int) -> int:
+        if not forked:                          # the first pid wait: Ctrl-C once the worker exists
+            end = time.monotonic() + 60
+            while not forked and time.monotonic() < end:
+                forked.update(_forkserver_children() - before)
+                time.sleep(0.005)
+            signal.raise_signal(signal.SIGINT)
+        return read_signed(fd)
+
+    def recording_stop(pool: ProcessPoolExecutor) -> None:
+        known.extend(getattr(pool, "_processes", None) or {})
+        stop(pool)
+
+    monkeypatch.setattr(forkserver, "read_signed", interrupted_read_signed)
+    monkeypatch.setattr(executors, "_stop", recording_stop)
+    records = pool.run(tasks_for(plan, plan.points, None))
+    with pytest.raises(KeyboardInterrupt):
+        next(records)
+    records.close()
+    monkeypatch.undo()
+    assert forked, "the fork server started no worker"
+    assert forked <= set(known), f"workers the pool did not know when it stopped: {forked - set(known)}"
+    assert not forked & _forkserver_children(), "a worker outlived the pool"
