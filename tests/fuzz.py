@@ -508,6 +508,8 @@ def _run_file_case(rng: random.Random, n: int, artefacts: dict[str, Path]) -> Ca
         data[key] = rng.choice([5, "x", None, [], {}, [1, 2], True])
         if _json_kind(data[key]) == _json_kind(base[key]) or base[key] is None:
             invalid = None  # same type (an empty list for a list) or a key that may be null
+        elif key in ("links", "sites") and data[key] == {}:
+            invalid = None  # rows may also be a mapping keyed by name (netsim.report.sources): none
     elif kind == "row-type":
         rows = data.get("demands") or [{}]
         key = rng.choice(sorted(rows[0]) or ["x"])
@@ -577,6 +579,10 @@ def _store_case(rng: random.Random, n: int) -> Case:
     else:
         argv = ["sweep", "s.toml", "--vary", "links[0].length_km=5,10", "--pairs", "3", "--workers", "1",
                 "--store", "st.sqlite", "--quiet"]
+    if damage == "empty-file" and argv[0] == "sweep":
+        # a zero-length file is a valid empty SQLite database (sqlite.org, "Database File Format",
+        # memory) and holds nothing to lose: a sweep may make its store there
+        invalid = None
     files = {"s.toml": (ROOT / "scenarios" / "chain3.toml").read_bytes()}
     return Case(f"{n:04d}-store-{damage}-{argv[0]}", "store", argv, files, invalid, setup="store", damage=damage,
                 timeout_s=60.0)

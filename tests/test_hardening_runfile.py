@@ -95,8 +95,8 @@ def test_a_run_written_by_netsim_run_passes(good_run: dict[str, Any], tmp_path: 
     ('{"demands": [], "stop": {"pairs": 0}}', "stop.pairs = 0"),
     ('{"demands": [], "stop": [1]}', "stop = [1]"),
     ('{"demands": [], "scenario": 7}', "scenario = 7"),
-    ('{"demands": [], "links": "x"}', "links = 'x'"),
-    ('{"demands": [], "links": [{"link": "A-B", "attempts": 3, "successes": 5}]}', "links[0].successes = 5"),
+    ('{"demands": [{"demand": "A-B"}], "links": "x"}', "links = 'x'"),
+    ('{"demands": [{"demand": "A-B"}], "links": [{"link": "A-B", "attempts": 3, "successes": 5}]}', "links[0].successes = 5"),
     ('{"demands": [{"demand": "A-B", "fidelity_mean": NaN}]}', "demands[0].fidelity_mean = nan"),
     ('{"demands": [{"demand": "A-B", "rate_ci95": [0, Infinity]}]}', "demands[0].rate_ci95[1] = inf"),
     ('{"demands": [{"demand": "A-B", "rate_per_s": 1e999}]}', "demands[0].rate_per_s = inf"),
@@ -180,3 +180,20 @@ def test_random_damage_never_gives_a_traceback(where: str, key: str, value: Any,
 def test_read_run_file_rejects_a_directory(tmp_path: Path) -> None:
     with pytest.raises(ParameterError, match="a readable file"):
         read_run_file(tmp_path)
+
+
+@pytest.mark.parametrize("text,shown", [
+    ('{"demands": {}}', "demands = {} is not allowed; expected at least one demand row"),
+    ('{"demands": []}', "demands = [] is not allowed; expected at least one demand row"),
+    ('{"demands": [{"demand": "A-B"}], "sites": null}', "sites = None is not allowed; expected a list of site rows"),
+    ('{"demands": [{"demand": "A-B"}], "links": null}', "links = None is not allowed; expected a list of link rows"),
+])
+def test_empty_or_null_tables_are_refused(tmp_path: Path, text: str, shown: str,
+                                         capsys: pytest.CaptureFixture[str]) -> None:
+    # found by the fuzz campaign: netsim run always writes its demands, links and sites as lists
+    # (common practice: a result file is checked as strictly as its writer's contract)
+    path = tmp_path / "r.json"
+    path.write_text(text, encoding="utf-8")
+    code = main(["report", str(path), "--no-figures", "--out", str(tmp_path / "rep")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert code == 2 and len(err) == 1 and shown in err[0], err

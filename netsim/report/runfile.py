@@ -103,7 +103,9 @@ STOP_KEYS: dict[str, Check] = {
 }
 
 TOP_KEYS: dict[str, Check] = {
-    "seed": COUNT, "interrupted": FLAG, "simulated_time_s": NONNEG,
+    # netsim run always writes these two: absent in older files, never null
+    "seed": (lambda v: _is_int(v) and v >= 0, "an integer >= 0"),
+    "interrupted": (lambda v: isinstance(v, bool), "true or false"), "simulated_time_s": NONNEG,
     "notes": _nullable((lambda v: isinstance(v, list) and all(isinstance(s, str) for s in v), "a list of strings")),
 }
 
@@ -149,8 +151,13 @@ def _check_entities(run: Mapping[str, Any], name: str, refuse: _Refusal) -> None
     value = run.get(name)
     if value is None:
         if name == "demands":
-            raise refuse("demands", "(missing)", "a list of demand rows, as `netsim run` writes (required)")
+            raise refuse("demands", "(missing)" if name not in run else None,
+                         "a list of demand rows, as `netsim run` writes (required)")
+        if name in run:  # netsim writes a list, empty or not: a null is damage
+            raise refuse(name, None, f"a list of {name[:-1]} rows (JSON objects)")
         return
+    if name == "demands" and isinstance(value, (list, Mapping)) and not value:
+        raise refuse("demands", value, "at least one demand row (every run has a demand)")
     if isinstance(value, Mapping):
         rows = [(f"{name}.{k}", row) for k, row in value.items()]
     elif isinstance(value, list):
