@@ -235,6 +235,13 @@ def simulate_chain_vector(chain: Chain, rule: StopRule, rng: np.random.Generator
             now = float(delivered[-1])
     except KeyboardInterrupt:
         run.interrupted = True
+    return _finish(run, rule, now)
+
+
+def _finish(run: ChainRun, rule: StopRule, now: float) -> ChainRun:
+    """Set the run's simulated time: the stop rule's time, or (interrupted, or stopped by pairs)
+    the clock at the last delivery."""
+    if run.interrupted:
         last = run.metrics.last_delivery_s
         now = max(now, last) if math.isfinite(last) else now
     run.simulated_time_s = rule.time_s if (rule.time_s is not None and not run.interrupted) else now
@@ -306,10 +313,7 @@ def _simulate_with_cutoff(chain: Chain, rule: StopRule, rng: np.random.Generator
             now = float(delivered[-1])
     except KeyboardInterrupt:
         run.interrupted = True
-        last = run.metrics.last_delivery_s
-        now = max(now, last) if math.isfinite(last) else now
-    run.simulated_time_s = rule.time_s if (rule.time_s is not None and not run.interrupted) else now
-    return run
+    return _finish(run, rule, now)
 
 
 def _record_cutoff_chunk(run: ChainRun, chain: Chain, out: CycleRun, rows: slice, delivered: NDArray[np.float64],
