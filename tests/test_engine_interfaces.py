@@ -165,7 +165,7 @@ def test_dephase_equals_the_dephasing_channel() -> None:
 
 
 @pytest.mark.parametrize(("where", "key", "value", "allowed"), [
-    ("sites", "communication_qubits", 0, "an integer >= 1"),
+    ("sites", "communication_qubits", 0, "an integer in [1, 100000]"),
     ("sites", "memory_transfer_error", 1.5, "a number in [0, 1]"),
     ("sites", "photon_indistinguishability", -0.1, "a number in [0, 1]"),
     ("sites", "attempt_dephasing", 2, "a number in [0, 1]"),

@@ -169,7 +169,7 @@ def test_the_extremes_include_the_reported_values() -> None:
     assert extremes(LINK_FIELDS["length_km"])[:1] == [1e-4]
     assert SMALLEST in extremes(SITE_FIELDS["attempt_prep_time_s"])
     assert SUBNORMAL in extremes(SITE_FIELDS["t2_s"]) and LARGEST in extremes(SITE_FIELDS["t2_s"])
-    assert 10 ** 308 in extremes(SITE_FIELDS["memory_slots"])
+    assert 100_000 in extremes(SITE_FIELDS["memory_slots"])  # bounded now: 1e308 slots is a typo, refused
 
 
 @pytest.mark.parametrize("length", [5e-324, 1e-310, 1e-5, 40_000.5, 1e300])
@@ -226,3 +226,13 @@ def test_a_lossless_route_has_an_unbounded_repeaterless_bound() -> None:
     assert demand["multipath_bits_per_s"] == math.inf
     assert result.to_dict()["demands"][0]["multipath_bits_per_s"] is None
     assert 0.0 <= demand["expected_fidelity"] <= 1.0
+
+
+@pytest.mark.parametrize("table,key,value", [("site", "memory_slots", 10 ** 308), ("site", "communication_qubits", 10 ** 6),
+                                             ("link", "modes", 10 ** 7)])
+def test_absurd_counts_are_refused_in_one_line(table: str, key: str, value: int) -> None:
+    # found by the fuzz campaign: --vary 'sites[*].memory_slots=1e308' was accepted and listed as a
+    # 309-digit slot count; counts now have upper ends far beyond any built node (common practice)
+    with pytest.raises(ScenarioError) as info:
+        load_data(with_value(CHAIN3, table, key, value))
+    assert str(info.value).count("\n") == 0 and f"{key}" in str(info.value) and "is not allowed" in str(info.value)

@@ -180,7 +180,9 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "role": Spec("choice", choices=SITE_ROLES, required=True),
     "x_km": Spec("real", unit="km"),
     "y_km": Spec("real", unit="km"),
-    "memory_slots": Spec("int", 0, None),
+    # upper ends: far beyond any memory, interface count or mode number built (thousands of
+    # temporal modes in rare-earth memories; common practice), so a typo like 1e308 is refused
+    "memory_slots": Spec("int", 0, 100_000),
     "t1_s": _positive("s"),
     "t2_s": _positive("s"),
     "emission_efficiency": _prob(low_open=True),
@@ -190,7 +192,7 @@ SITE_FIELDS: Mapping[str, Spec] = {
     "bsm_success_probability": Spec("real", 0.01, 1.0),
     "gate_error": _prob(),
     "attempt_prep_time_s": Spec("real", 0.0, None, unit="s"),
-    "communication_qubits": Spec("int", 1, None),
+    "communication_qubits": Spec("int", 1, 100_000),
     "memory_transfer_s": Spec("real", 0.0, None, unit="s"),
     "memory_transfer_error": _prob(),
     "photon_indistinguishability": _prob(),
@@ -207,7 +209,7 @@ LINK_FIELDS: Mapping[str, Spec] = {
     "attenuation_db_per_km": Spec("real", 0.0, None, unit="dB/km"),
     "extra_loss_db": Spec("real", 0.0, None, unit="dB"),
     "scheme": Spec("choice", choices=SCHEMES),
-    "modes": Spec("int", 1, None),
+    "modes": Spec("int", 1, 1_000_000),
     "detector_efficiency": _prob(low_open=True),
     "dark_count_probability": _prob(high_open=True),
     "midpoint_fraction": _prob(),
@@ -246,7 +248,8 @@ PROTOCOL_FIELDS: Mapping[str, Spec] = {
     "scheduling": Spec("choice", choices=SCHEDULING_POLICIES),
     "cutoff_s": _positive("s"),
     "purification": Spec("choice", choices=PURIFICATION_PROTOCOLS),
-    "purification_rounds": Spec("int", 0, None),
+    # ten rounds take 2^10 link pairs per purified pair: more is never a plan (common practice)
+    "purification_rounds": Spec("int", 0, 10),
 }
 
 #: Site keys that ``[defaults.site]`` may set.
