@@ -183,7 +183,7 @@ def test_integer_key_written_as_a_float_is_shown_as_written(tmp_path: Path, caps
     path.write_text(CHAIN.replace("length_km = 14.0", "length_km = 14.0\nmodes = 2.0"))
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err.strip()
-    assert err.endswith("links[1].modes: 2.0 is not allowed; expected an integer >= 1, written without a decimal point")
+    assert err.endswith("links[1].modes: 2.0 is not allowed; expected an integer in [1, 1000000], written without a decimal point")
 
 
 def test_sweep_rejects_points_with_too_few_slots_before_running(tmp_path: Path,

@@ -161,7 +161,7 @@ CORPUS: list[tuple[str, str, tuple[str, ...]]] = [
     ("rounds-without-purification", BASE + "\n[protocol]\npurification_rounds = 2\n",
      ("protocol.purification_rounds: 2 is not allowed without a purification protocol",)),
     ("zero-modes", edit("length_km = 8.0", "length_km = 8.0\nmodes = 0"),
-     ("links[0].modes: 0 is not allowed; expected an integer in [1, 1e+06]",)),
+     ("links[0].modes: 0 is not allowed; expected an integer in [1, 1000000]",)),
     ("zero-slots-at-user", edit('role = "user"\n\n[[sites]]\nname = "Otterby',
                                 'role = "user"\nmemory_slots = 0\n\n[[sites]]\nname = "Otterby'),
      ("sites[0].memory_slots: 0 is not allowed at a user site",)),

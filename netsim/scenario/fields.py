@@ -108,14 +108,15 @@ class Spec:
 
     def _range_text(self) -> str:
         lo, hi = self.low, self.high
+        show = (lambda v: str(int(v))) if self.kind == "int" else (lambda v: f"{v:g}")  # 1000000, not 1e+06
         if lo is not None and hi is not None:
             left = "(" if self.low_open else "["
             right = ")" if self.high_open else "]"
-            return f" in {left}{lo:g}, {hi:g}{right}"
+            return f" in {left}{show(lo)}, {show(hi)}{right}"
         if lo is not None:
-            return f" {'>' if self.low_open else '>='} {lo:g}"
+            return f" {'>' if self.low_open else '>='} {show(lo)}"
         if hi is not None:
-            return f" {'<' if self.high_open else '<='} {hi:g}"
+            return f" {'<' if self.high_open else '<='} {show(hi)}"
         return ""
 
     def accepts(self, value: Any) -> bool:
