@@ -13,6 +13,7 @@ density matrices with a fixed seed).
 
 from __future__ import annotations
 
+import math
 import os
 from collections.abc import Callable
 from typing import Any
@@ -80,3 +81,34 @@ def random_states() -> Callable[..., np.ndarray]:
 def _valid_state_fixture() -> Callable[..., None]:
     """The :func:`assert_valid_state` checker as a fixture."""
     return assert_valid_state
+
+
+def assert_agrees_with_record(result: Any, ref: dict[str, Any], z: float,
+                              link_tolerance: Callable[[dict[str, Any], float, float], float] | None = None) -> None:
+    """A run's figures agree with ones recorded from another seed (and an earlier engine):
+    rates and mean fidelities within ``z`` combined standard errors (the 95 % intervals read as
+    +-1.96 sigma; normal approximation, common practice); site occupancy within ``2 z`` times the
+    worst demand's relative rate error (occupancy is throughput x time held); link utilisation
+    within ``link_tolerance(link, that tolerance, worst relative rate error)`` (default: the same).
+    A lone chain recorded on the event engine may now run on the vectorised one."""
+    def se(ci: list[float]) -> float:
+        return (ci[1] - ci[0]) / 2 / 1.96
+
+    rel_rate = []
+    for row in result.demands:
+        old = ref["demands"][row["demand"]]
+        if "hops" in old:
+            assert row["hops"] == old["hops"]
+        assert row["engine"] == old["engine"] or row["engine"] == "vector"
+        for key, ci in (("rate_per_s", "rate_ci95"), ("fidelity_mean", "fidelity_ci95")):
+            both = math.hypot(se(row[ci]), se(old[ci]))
+            assert abs(row[key] - old[key]) <= z * both + 1e-12, (row["demand"], key, row[key], old[key], both)
+        rel_rate.append(se(row["rate_ci95"]) / row["rate_per_s"])
+    tol = 2 * z * max(rel_rate)
+    for site in result.sites:
+        old = ref["sites"][site["site"]]
+        assert abs(site["memory_occupancy"] - old) <= tol * max(old, 1e-3), (site["site"], site["memory_occupancy"], old)
+    for link in result.links:
+        old = ref["links"][link["link"]]
+        link_tol = tol if link_tolerance is None else link_tolerance(link, tol, max(rel_rate))
+        assert abs(link["utilisation"] - old) <= link_tol * max(old, 1e-3), (link["link"], link["utilisation"], old)

@@ -15,8 +15,11 @@ from __future__ import annotations
 import json
 import math
 from pathlib import Path
+from typing import Any
 
 import pytest
+
+from conftest import assert_agrees_with_record
 
 from netsim.engine import run
 from netsim.scenario import load_data
@@ -28,42 +31,23 @@ REFERENCE = json.loads(DATA.read_text())
 Z_SPLIT = 4.0
 
 
-def _se(ci: list[float]) -> float:
-    return (ci[1] - ci[0]) / 2 / 1.96
-
 
 @pytest.mark.parametrize("name", list(REFERENCE))
 def test_figures_agree_with_those_recorded_before_the_speed_work(name: str) -> None:
     ref = REFERENCE[name]
     result = run(load_data(ref["scenario"], source=name), pairs=ref["pairs"], seed=ref["seed"] + 1, ensembles=False)
     assert {row["demand"] for row in result.demands} == set(ref["demands"])
-    rel_rate = []
-    for row in result.demands:
-        old = ref["demands"][row["demand"]]
-        # a lone chain with a cut-off now runs on the vectorised engine: its figures must agree
-        # with the event engine's recorded ones all the same (an independent implementation)
-        assert row["hops"] == old["hops"]
-        assert row["engine"] == old["engine"] or (old["engine"] == "des" and row["engine"] == "vector")
-        for key, ci in (("rate_per_s", "rate_ci95"), ("fidelity_mean", "fidelity_ci95")):
-            se = math.hypot(_se(row[ci]), _se(old[ci]))
-            assert abs(row[key] - old[key]) <= Z_SPLIT * se + 1e-12, (row["demand"], key, row[key], old[key], se)
-        rel_rate.append(_se(row["rate_ci95"]) / row["rate_per_s"])
-    # occupancy and utilisation are throughput x time held: their relative error is about that of
-    # the rate (the worst demand's, times the split factor, doubled for two runs)
-    tol = 2 * Z_SPLIT * max(rel_rate)
-    for site in result.sites:
-        old = ref["sites"][site["site"]]
-        assert abs(site["memory_occupancy"] - old) <= tol * max(old, 1e-3), (site["site"], site["memory_occupancy"], old)
-    for link in result.links:
-        old = ref["links"][link["link"]]
-        # busy time = the rounds of N successes: a sum of N geometric counts with N itself random,
-        # relative standard error about sqrt((2 - p) / N) (p = successes / attempts; common
-        # practice), on top of the run length's (the worst demand's rate error)
-        n = max(link["successes"], 1)
-        p = link["successes"] / max(link["attempts"], 1)
-        rel = math.hypot(math.sqrt((2.0 - p) / n), max(rel_rate))
-        link_tol = max(tol, Z_SPLIT * math.sqrt(2.0) * rel)  # two independent runs
-        assert abs(link["utilisation"] - old) <= link_tol * max(old, 1e-3), (link["link"], link["utilisation"], old)
+    assert_agrees_with_record(result, ref, Z_SPLIT, _link_tolerance)
+
+
+def _link_tolerance(link: dict[str, Any], tol: float, rel_rate: float) -> float:
+    # busy time = the rounds of N successes: a sum of N geometric counts with N itself random,
+    # relative standard error about sqrt((2 - p) / N) (p = successes / attempts; common
+    # practice), on top of the run length's (the worst demand's rate error)
+    n = max(link["successes"], 1)
+    p = link["successes"] / max(link["attempts"], 1)
+    rel = math.hypot(math.sqrt((2.0 - p) / n), rel_rate)
+    return max(tol, Z_SPLIT * math.sqrt(2.0) * rel)  # two independent runs
 
 
 def test_the_recorded_cases_carry_the_node_physics() -> None:

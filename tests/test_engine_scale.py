@@ -14,13 +14,13 @@ the comparison like with like.
 from __future__ import annotations
 
 import json
-import math
 import sys
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pytest
+from conftest import assert_agrees_with_record
 
 from netsim.engine import StopRule, run
 from netsim.engine.policies import SCHEDULING, Request, SlotBroker
@@ -61,9 +61,6 @@ def _scenario(name: str):  # type: ignore[no-untyped-def]
     return load_data(REFERENCE[name]["scenario"], source=name)
 
 
-def _se(ci: list[float]) -> float:
-    return (ci[1] - ci[0]) / 2 / 1.96
-
 
 CASES = [pytest.param(name, marks=pytest.mark.slow) if name.startswith("geometric") else name for name in REFERENCE]
 
@@ -72,24 +69,7 @@ CASES = [pytest.param(name, marks=pytest.mark.slow) if name.startswith("geometri
 def test_figures_agree_with_those_recorded_before_the_speed_work(name: str) -> None:
     ref = REFERENCE[name]
     result = run(_scenario(name), pairs=ref["pairs"], seed=ref["seed"] + 1, ensembles=False)
-    rel_rate = []
-    for row in result.demands:
-        old = ref["demands"][row["demand"]]
-        # a lone chain (no shared site or fibre) now takes the fast path, with a cut-off too
-        assert row["engine"] == old["engine"] or row["engine"] == "vector"
-        for key, ci in (("rate_per_s", "rate_ci95"), ("fidelity_mean", "fidelity_ci95")):
-            se = math.hypot(_se(row[ci]), _se(old[ci]))
-            assert abs(row[key] - old[key]) <= Z_SPLIT * se + 1e-12, (row["demand"], key, row[key], old[key], se)
-        rel_rate.append(_se(row["rate_ci95"]) / row["rate_per_s"])
-    # occupancy and utilisation are throughput x time held: their relative error is about that of
-    # the rate (taken as the worst demand's, times the same split factor, doubled for two runs)
-    tol = 2 * Z_SPLIT * max(rel_rate)
-    for site in result.sites:
-        old = ref["sites"][site["site"]]
-        assert abs(site["memory_occupancy"] - old) <= tol * max(old, 1e-3), (site["site"], site["memory_occupancy"], old)
-    for link in result.links:
-        old = ref["links"][link["link"]]
-        assert abs(link["utilisation"] - old) <= tol * max(old, 1e-3), (link["link"], link["utilisation"], old)
+    assert_agrees_with_record(result, ref, Z_SPLIT)
 
 
 def test_same_seed_gives_the_same_numbers_on_a_generated_grid() -> None:
