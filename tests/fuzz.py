@@ -440,6 +440,8 @@ def _flag_case(rng: random.Random, n: int) -> Case:
     chain3 = (ROOT / "scenarios" / "chain3.toml").read_bytes()
     star = (ROOT / "scenarios" / "vellmoor-star.toml").read_bytes()
     files = {"s.toml": chain3, "b.toml": star, "afile": b"not a directory\n"}
+    cluster_sweep = ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
+                     "--quiet", "--cluster"]
     choices: list[tuple[str, list[str], str | None]] = [
         ("seed", ["compare", "s.toml", "s.toml", "--seed", "-1", "--no-simulate"], "out-of-range"),
         ("seed", ["run", "s.toml", "--pairs", "2", "--seed", "-1", "--out", "o"], "out-of-range"),
@@ -477,18 +479,12 @@ def _flag_case(rng: random.Random, n: int) -> Case:
                       "--quiet", "--store", "afile/x.sqlite"], "wrong-type"),
         ("out-path", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--workers", "1",
                       "--quiet", "--store", "afile"], "damaged"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "nonsense::::"], "wrong-type"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "tcp://"], "wrong-type"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "local:0"], "out-of-range"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "local:-2"], "out-of-range"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "local:abc"], "wrong-type"),
-        ("cluster", ["sweep", "s.toml", "--vary", "links[0].length_km=5", "--pairs", "2", "--store", "c.sqlite",
-                     "--quiet", "--cluster", "256.1.1.1:99999"], "wrong-type"),
+        ("cluster", [*cluster_sweep, "nonsense::::"], "wrong-type"),
+        ("cluster", [*cluster_sweep, "tcp://"], "wrong-type"),
+        ("cluster", [*cluster_sweep, "local:0"], "out-of-range"),
+        ("cluster", [*cluster_sweep, "local:-2"], "out-of-range"),
+        ("cluster", [*cluster_sweep, "local:abc"], "wrong-type"),
+        ("cluster", [*cluster_sweep, "256.1.1.1:99999"], "wrong-type"),
     ]
     family, argv, invalid = rng.choice(choices)
     return Case(f"{n:04d}-{family}-{shlex.join(argv)[:70]}", family, argv, files, invalid, timeout_s=60.0)
