@@ -49,6 +49,7 @@ from __future__ import annotations
 
 import math
 import operator
+from heapq import heappush
 from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
@@ -77,6 +78,8 @@ LEFT, RIGHT = 0, 1
 FLUSH_ROWS = 20_000
 #: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
 PRUNE_SEQUENCES = 50_000
+#: Attempt sequences a site's log holds apart from the sorted whole before they are merged in.
+RECENT_ROWS = 4096
 #: Uniform draws are taken from a lane's stream this many at a time.
 UNIFORM_BLOCK = 1024
 
@@ -205,8 +208,12 @@ class _Lane:
         self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
         self.pos = [float(v) for v in chain.position_s]
         self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
-        #: per hop, what an attempt reads: (links, period, p, log(1 - p), ready, end_set)
-        self.hop_constants: list[tuple[tuple[str, ...], float, float, float, float, int]] = []
+        #: per hop, what an attempt reads: (link indices into _Des.link_free, period, p,
+        #: log(1 - p), ready, end_set)
+        self.hop_constants: list[tuple[tuple[int, ...], float, float, float, float, int]] = []
+        #: per hop: the event of its pair in flight (a hop has at most one; simpy is done with an
+        #: event once it has called it back, so each attempt reuses it)
+        self.transfers: list[_Call] = []
 
     def uniform(self) -> float:
         """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
@@ -215,6 +222,47 @@ class _Lane:
             self._next_uniform = 0
         self._next_uniform += 1
         return self._uniforms[self._next_uniform - 1]
+
+
+def _insert_sorted(filed: NDArray[np.float64], rows: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``filed`` and ``rows`` (each sorted by column 0) as one array sorted by column 0, in the
+    order of a stable sort of their concatenation (a row of ``rows`` goes after ``filed`` ties)."""
+    if not len(filed):
+        return rows
+    return np.insert(filed, np.searchsorted(filed[:, 0], rows[:, 0], side="right"), rows, axis=0)
+
+
+def decay_pair(rho: NDArray[np.complex128], gamma_0: float, coherence_0: float, gamma_1: float,
+               coherence_1: float) -> NDArray[np.complex128]:
+    """A two-qubit state (4, 4) after amplitude damping ``gamma_q`` and a total coherence factor
+    ``coherence_q`` on each qubit q (0: the left factor of ``kron``): the closed form of
+    :func:`netsim.qinfo.decohere` on both qubits, for one state (no batch, no checks; the
+    purification step calls it per pair). A stored qubit's attempt dephasing only multiplies its
+    coherences, so it folds into ``coherence_q``."""
+    # plain Python on the 16 entries (numpy's per-call cost dominates at this size); entry
+    # (r, s) with r = 2a + b, s = 2a' + b' (a, a': qubit 0)
+    m = np.asarray(rho, dtype=complex).tolist()
+    keep_0, keep_1 = 1.0 - gamma_0, 1.0 - gamma_1
+    for s in range(4):  # qubit 0 on rows 0-1 / 2-3 (a = 0 / 1), per column
+        for b in (0, 1):
+            r0, r1 = b, 2 + b
+            if s >> 1 == 0:  # a' = 0: populations of a move down, coherence a = 1 to a' = 0
+                m[r0][s] += gamma_0 * m[r1][s + 2]
+                m[r1][s] *= coherence_0
+            else:
+                m[r0][s] *= coherence_0
+                m[r1][s] *= keep_0
+    for r in range(4):  # qubit 1: the same on columns within each row's b
+        row = m[r]
+        b = r & 1
+        for s in range(4):
+            if (s & 1) != b:
+                row[s] *= coherence_1
+    for r in (0, 2):  # populations of qubit 1: b = b' = 0 gains gamma_1 x (b = b' = 1)
+        for s in (0, 2):
+            m[r][s] += gamma_1 * m[r + 1][s + 1]
+            m[r + 1][s + 1] *= keep_1
+    return np.array(m, dtype=complex)
 
 
 def path_need(chain: Chain, per_end: int) -> dict[str, int]:
@@ -251,7 +299,13 @@ class _Des:
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         for k, lane in enumerate(self.lanes):
             lane.position = k  # the order ``demand_order`` scheduling gives priority by
-        self.link_free_s: dict[str, float] = {}
+        #: per fibre link (indexed as in ``link_index``): when its current attempt sequence ends
+        self.link_index: dict[str, int] = {}
+        for lane in self.lanes:
+            for links in lane.links:
+                for name in links:
+                    self.link_index.setdefault(name, len(self.link_index))
+        self.link_free = [0.0] * len(self.link_index)
         self.finished = self.env.event()
         self.pending = sum(1 for rule in rules if rule.pairs is not None)  # unmet pairs rules
         self.ended = False
@@ -267,6 +321,10 @@ class _Des:
         self.sequences: dict[str, NDArray[np.float64]] = {
             name: np.zeros((0, 3)) for name, site in sites.items() if site.attempt_dephasing > 0}
         self.longest_s: dict[str, float] = dict.fromkeys(self.sequences, 0.0)
+        #: per site: sequences filed since the last merge, sorted the same way; merged into
+        #: ``sequences`` once they pass RECENT_ROWS or when the whole log is read (sorted_log),
+        #: so that a read between (a purification step) does not copy the whole log
+        self.recent: dict[str, NDArray[np.float64]] = {name: np.zeros((0, 3)) for name in self.sequences}
         #: attempt sequences (start, period, rounds, index into end_sets) not yet filed
         self.new_sequences: list[tuple[float, float, int, int]] = []
         self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
@@ -280,7 +338,9 @@ class _Des:
                 if ends and tuple(ends) not in self.end_sets:
                     self.end_sets.append(tuple(ends))
             lane.end_set = [self.end_sets.index(tuple(ends)) if ends else -1 for ends in lane.dephasing_ends]
-            lane.hop_constants = list(zip(lane.links, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
+            link_ids = [tuple(self.link_index[name] for name in links) for links in lane.links]
+            lane.hop_constants = list(zip(link_ids, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
+            lane.transfers = [_Call(self.transferred, ()) for _ in range(c.n_hops)]
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
@@ -314,14 +374,14 @@ class _Des:
         heralded and moved to memory (one event: nothing else depends on the herald itself)."""
         links, period, p, log_fail, ready, end_set = lane.hop_constants[i]
         env = self.env
-        start = env._now
-        if lane.next_round[i] > start:
-            start = lane.next_round[i]
-        link_free = self.link_free_s
-        for name in links:
-            free = link_free.get(name, 0.0)
-            if free > start:
-                start = free
+        now = env._now
+        start = lane.next_round[i]
+        if start < now:
+            start = now
+        link_free = self.link_free
+        for link in links:
+            if link_free[link] > start:
+                start = link_free[link]
         if p >= 1.0:
             k = 1
         else:  # K ~ Geometric(p) on {1, 2, ...} by inversion, P(K > m) = (1 - p)^m (lane.uniform inlined)
@@ -332,14 +392,18 @@ class _Des:
             lane._next_uniform = at + 1
             k = int(math.log(1.0 - lane._uniforms[at]) / log_fail) + 1
         born = start + (k - 1) * period
-        for name in links:
-            link_free[name] = born + period
+        free = born + period
+        for link in links:
+            link_free[link] = free
         if end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
             self.new_sequences.append((start, period, k, end_set))
-        lane.next_round[i] = born + period
+        lane.next_round[i] = free
         lane.inflight[i] = (born, k)
-        env.schedule(_Call(self.transferred, (lane, i, born, k)), NORMAL,  # type: ignore[arg-type]
-                     born + ready - env._now)
+        # Environment.schedule, inlined (the same time arithmetic: now + delay)
+        event = lane.transfers[i]  # its one in-flight pair's event, reused (see _Lane.transfers)
+        event.args = (lane, i, born, k)
+        event.callbacks = _FIRE
+        heappush(env._queue, (now + (born + ready - now), NORMAL, next(env._eid), event))  # type: ignore[attr-defined]
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
@@ -373,30 +437,35 @@ class _Des:
         count.successes[i] += 1
         count.busy_s[i] += k * lane.period[i]
 
-    def absorb_log(self) -> None:
+    def absorb_log(self, merge: bool = False) -> None:
         """File the attempt sequences started since the last read under their sites (in one
-        batched pass: grouped by the hop's set of dephasing sites, merged and sorted by start)."""
-        if not self.new_sequences:
-            return
-        new = np.array(self.new_sequences, dtype=float)
-        self.new_sequences = []
-        key = new[:, 3].astype(np.int64)
-        order = np.argsort(key, kind="stable")
-        bounds = np.searchsorted(key[order], np.arange(len(self.end_sets) + 1))
-        parts: dict[str, list[NDArray[np.float64]]] = {}
-        for k, ends in enumerate(self.end_sets):
-            if bounds[k + 1] > bounds[k]:
-                rows = new[order[bounds[k]:bounds[k + 1]], :3]
-                for name in ends:
-                    parts.setdefault(name, []).append(rows)
-        for name, pieces in parts.items():
-            merged = np.concatenate([self.sequences[name], *pieces])
-            self.sequences[name] = merged[np.argsort(merged[:, 0], kind="stable")]
-            self.longest_s[name] = max(self.longest_s[name], float(((merged[:, 2] - 1.0) * merged[:, 1]).max()))
+        batched pass: grouped by the hop's set of dephasing sites, sorted by start) in ``recent``;
+        merge ``recent`` into ``sequences`` when ``merge`` or once it is long."""
+        if self.new_sequences:
+            new = np.array(self.new_sequences, dtype=float)
+            self.new_sequences = []
+            key = new[:, 3].astype(np.int64)
+            order = np.argsort(key, kind="stable")
+            bounds = np.searchsorted(key[order], np.arange(len(self.end_sets) + 1))
+            parts: dict[str, list[NDArray[np.float64]]] = {}
+            for k, ends in enumerate(self.end_sets):
+                if bounds[k + 1] > bounds[k]:
+                    rows = new[order[bounds[k]:bounds[k + 1]], :3]
+                    for name in ends:
+                        parts.setdefault(name, []).append(rows)
+            for name, pieces in parts.items():
+                rows = np.concatenate(pieces) if len(pieces) > 1 else pieces[0]
+                rows = rows[np.argsort(rows[:, 0], kind="stable")]
+                self.recent[name] = _insert_sorted(self.recent[name], rows)
+                self.longest_s[name] = max(self.longest_s[name], float(((rows[:, 2] - 1.0) * rows[:, 1]).max()))
+        for name, rows in self.recent.items():
+            if len(rows) and (merge or len(rows) > RECENT_ROWS):
+                self.sequences[name] = _insert_sorted(self.sequences[name], rows)
+                self.recent[name] = rows[:0]
 
     def sorted_log(self, site: str) -> NDArray[np.float64]:
         """The attempt log of ``site``: an (M, 3) array of (start, period, rounds), sorted by start."""
-        self.absorb_log()
+        self.absorb_log(merge=True)
         return self.sequences[site]
 
     def guard(self) -> None:
@@ -463,13 +532,17 @@ class _Des:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
         if site not in self.sequences:
             return 0
-        seqs = self.sorted_log(site)
-        lo = int(np.searchsorted(seqs[:, 0], after_s - self.longest_s[site] - 1e-9, side="left"))
-        hi = int(np.searchsorted(seqs[:, 0], until_s, side="right"))
-        if hi <= lo:
-            return 0
-        arr = seqs[lo:hi]
-        return int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
+        self.absorb_log()
+        longest, total = self.longest_s[site], 0
+        for seqs in (self.sequences[site], self.recent.get(site)):
+            if seqs is None or not len(seqs):
+                continue
+            lo = int(np.searchsorted(seqs[:, 0], after_s - longest - 1e-9, side="left"))
+            hi = int(np.searchsorted(seqs[:, 0], until_s, side="right"))
+            if hi > lo:
+                arr = seqs[lo:hi]
+                total += int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
+        return total
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
         """Hop ``i`` gives its (purified) pair to the chain."""
@@ -672,15 +745,18 @@ class _Des:
 
     def bring(self, c: Chain, i: int, rho: NDArray[np.complex128], start_s: float, now_s: float) -> NDArray[np.complex128]:
         """Hop ``i``'s pair, valid from ``start_s``, brought up to date at ``now_s`` (exact): memory
-        decay and the attempt dephasing of both ends."""
+        decay and the attempt dephasing of both ends (:func:`decay_pair`, the closed form of
+        :func:`netsim.qinfo.decohere` on both qubits and :func:`netsim.engine.history.dephase`)."""
         left, right = c.sites[i], c.sites[i + 1]
-        rho = qinfo.decohere(rho, now_s - start_s, left.t1_s, left.t2_s, qubit=0)
-        rho = qinfo.decohere(rho, now_s - start_s, right.t1_s, right.t2_s, qubit=1)
-        for qubit, site in ((0, left), (1, right)):
+        t = now_s - start_s
+        factors = []
+        for site in (left, right):
+            gamma = -math.expm1(-t / float(site.t1_s))
+            coherence = math.exp(-t / float(site.t2_s))
             if site.attempt_dephasing > 0:
-                k = self.attempts_at(site.name, start_s, now_s)
-                rho = dephase(np.asarray(rho)[None], (1.0 - site.attempt_dephasing) ** k, qubit)[0]
-        return rho
+                coherence *= (1.0 - site.attempt_dephasing) ** self.attempts_at(site.name, start_s, now_s)
+            factors += [gamma, coherence]
+        return decay_pair(rho, *factors)
 
     # -- running ------------------------------------------------------------------------------
     def run(self) -> list[ChainRun]:
@@ -767,7 +843,7 @@ class _Des:
         chain's end-to-end message time)."""
         if self.ended or not self.sequences:
             return
-        self.absorb_log()
+        self.absorb_log(merge=True)
         if sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)

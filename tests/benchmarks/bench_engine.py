@@ -100,13 +100,13 @@ class PerAttemptDes(_Des):
 
     def attempt(self, lane: _Lane, i: int) -> None:
         lane.attempting[i] = True
-        start = max(self.env.now, lane.next_round[i], *(self.link_free_s.get(n, 0.0) for n in lane.links[i]))
+        start = max(self.env.now, lane.next_round[i], *(self.link_free[n] for n in lane.hop_constants[i][0]))
         self.at(start, self._round, lane, i, start, 1)
 
     def _round(self, lane: _Lane, i: int, t: float, k: int) -> None:
         period = lane.period[i]
-        for name in lane.links[i]:
-            self.link_free_s[name] = t + period
+        for link in lane.hop_constants[i][0]:
+            self.link_free[link] = t + period
         if lane.rng.random() < lane.p[i]:
             lane.next_round[i] = t + period
             lane.inflight[i] = (t, k)
