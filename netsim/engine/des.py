@@ -326,7 +326,7 @@ class _Des:
         #: so that a read between (a purification step) does not copy the whole log
         self.recent: dict[str, NDArray[np.float64]] = {name: np.zeros((0, 3)) for name in self.sequences}
         #: attempt sequences (start, period, rounds, index into end_sets) not yet filed
-        self.new_sequences: list[tuple[float, float, int, int]] = []
+        self.new_sequences: list[float] = []  # flat: start, period, rounds, end-set index, ...
         self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
@@ -396,7 +396,7 @@ class _Des:
         for link in links:
             link_free[link] = free
         if end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
-            self.new_sequences.append((start, period, k, end_set))
+            self.new_sequences += (start, period, k, end_set)
         lane.next_round[i] = free
         lane.inflight[i] = (born, k)
         # Environment.schedule, inlined (the same time arithmetic: now + delay)
@@ -442,7 +442,7 @@ class _Des:
         batched pass: grouped by the hop's set of dephasing sites, sorted by start) in ``recent``;
         merge ``recent`` into ``sequences`` when ``merge`` or once it is long."""
         if self.new_sequences:
-            new = np.array(self.new_sequences, dtype=float)
+            new = np.array(self.new_sequences, dtype=float).reshape(-1, 4)
             self.new_sequences = []
             key = new[:, 3].astype(np.int64)
             order = np.argsort(key, kind="stable")
@@ -499,18 +499,18 @@ class _Des:
 
     def release_interfaces(self, ends: list[str]) -> None:
         """Free one interface at each site of ``ends``; grant waiting requests greedily in request
-        order (only those needing one of these sites can fit now: the others did not before)."""
+        order (only those needing one of these sites can fit now: the others did not before).
+        A granted request leaves the queues of all its sites at once, so the queues hold only
+        waiting requests."""
         free, waiting = self.iface_free, self.iface_waiting
-        candidates: list[list[Any]] = []
+        candidates: list[list[Any]] | None = None
         for name in ends:
             free[name] += 1
             queue = waiting[name]
             if queue:
-                live = [entry for entry in queue if entry[3]]
-                waiting[name] = live
                 # each queue is in request order; an entry filed under both sites comes twice
-                candidates = sorted(candidates + live, key=_FIRST) if candidates else live
-        if not candidates:
+                candidates = queue if candidates is None else sorted(candidates + queue, key=_FIRST)
+        if candidates is None:
             return
         granted = []
         for entry in candidates:
@@ -524,9 +524,12 @@ class _Des:
                 for name in need:
                     free[name] -= 1
                 entry[3] = False
-                granted.append(entry[2])
-        for lane, i in granted:
-            self.attempt(lane, i)
+                granted.append(entry)
+        for entry in granted:
+            for name in entry[1]:
+                waiting[name].remove(entry)
+        for entry in granted:
+            self.attempt(*entry[2])
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
