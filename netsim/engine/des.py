@@ -61,7 +61,7 @@ from numpy.typing import NDArray
 
 from netsim import qinfo
 from netsim.engine.chain import Chain
-from netsim.engine.history import History, dephase, pair_states, rounds_between
+from netsim.engine.history import History, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
 from netsim.engine.policies import (
     SchedulingPolicy,
@@ -403,7 +403,7 @@ class _Des:
         event = lane.transfers[i]  # its one in-flight pair's event, reused (see _Lane.transfers)
         event.args = (lane, i, born, k)
         event.callbacks = _FIRE
-        heappush(env._queue, (now + (born + ready - now), NORMAL, next(env._eid), event))  # type: ignore[attr-defined]
+        heappush(env._queue, (now + (born + ready - now), NORMAL, next(env._eid), event))  # type: ignore[attr-defined,misc]
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
