@@ -37,7 +37,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
-from netsim import qinfo
+from netsim.qinfo import pauli_form
 from netsim.engine.chain import Chain
 
 __all__ = ["History", "dephase", "pair_states", "rounds_between"]
@@ -80,11 +80,13 @@ class History:
                    [[] for _ in range(n_hops)])
 
 
-def _hop_states(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
+def _hop_forms(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
+    """Pauli form of hop ``i``'s pair before storage: (4, 4), or (N, 4, 4) when purified pairs
+    (``extra_states``) take part."""
     table = [chain.link_states[i]] + list(hist.extra_states[i] if hist.extra_states else [])
     if len(table) == 1:
-        return np.broadcast_to(table[0], (len(hist), 4, 4))
-    return np.stack(table)[hist.state_id[:, i]]
+        return pauli_form.to_pauli(table[0])
+    return pauli_form.to_pauli(np.stack(table))[hist.state_id[:, i]]
 
 
 def pair_states(chain: Chain, hist: History) -> NDArray[np.complex128]:
@@ -93,26 +95,26 @@ def pair_states(chain: Chain, hist: History) -> NDArray[np.complex128]:
     Each hop's state is decohered on qubit 0 with the left site's T1/T2 for ``store_left_s`` and
     on qubit 1 with the right site's for ``store_right_s`` (:func:`netsim.qinfo.decohere`), then
     the hops are swapped left to right with each inner site's gate error
-    (:func:`netsim.qinfo.entanglement_swap`).
+    (:func:`netsim.qinfo.entanglement_swap`); computed in Pauli form
+    (:func:`netsim.qinfo.pauli_form.chain_states`, an exact rewrite of those two functions).
     """
     if len(hist) == 0:
         return np.zeros((0, 4, 4), dtype=complex)
-    out = _decohered_hop(chain, hist, 0)
-    for i in range(1, chain.n_hops):
-        gate_error = float(chain.sites[i].gate_error)
-        out = qinfo.entanglement_swap(out, _decohered_hop(chain, hist, i), bsm_depolarizing=gate_error)
-    return out
-
-
-def _decohered_hop(chain: Chain, hist: History, i: int) -> NDArray[np.complex128]:
-    left, right = chain.sites[i], chain.sites[i + 1]
-    rho = qinfo.decohere(_hop_states(chain, hist, i), hist.store_left_s[:, i], left.t1_s, left.t2_s, qubit=0)
-    rho = qinfo.decohere(rho, hist.store_right_s[:, i], right.t1_s, right.t2_s, qubit=1)
-    if left.attempt_dephasing > 0 and hist.attempts_left is not None:
-        rho = dephase(rho, (1.0 - left.attempt_dephasing) ** hist.attempts_left[:, i], 0)
-    if right.attempt_dephasing > 0 and hist.attempts_right is not None:
-        rho = dephase(rho, (1.0 - right.attempt_dephasing) ** hist.attempts_right[:, i], 1)
-    return rho
+    n = chain.n_hops
+    t1 = np.array([float(s.t1_s) for s in chain.sites])
+    t2 = np.array([float(s.t2_s) for s in chain.sites])
+    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
+        gl, cl = -np.expm1(-hist.store_left_s / t1[:-1]), np.exp(-hist.store_left_s / t2[:-1])
+        gr, cr = -np.expm1(-hist.store_right_s / t1[1:]), np.exp(-hist.store_right_s / t2[1:])
+    for i in range(n):
+        left, right = chain.sites[i], chain.sites[i + 1]
+        if left.attempt_dephasing > 0 and hist.attempts_left is not None:
+            cl[:, i] *= (1.0 - left.attempt_dephasing) ** hist.attempts_left[:, i]
+        if right.attempt_dephasing > 0 and hist.attempts_right is not None:
+            cr[:, i] *= (1.0 - right.attempt_dephasing) ** hist.attempts_right[:, i]
+    forms = [_hop_forms(chain, hist, i) for i in range(n)]
+    gate_errors = [float(chain.sites[i].gate_error) for i in range(1, n)]
+    return pauli_form.from_pauli(pauli_form.chain_states(forms, gl, cl, gr, cr, gate_errors))
 
 
 _OFF = {q: np.array([[((r >> (1 - q)) & 1) != ((c >> (1 - q)) & 1) for c in range(4)] for r in range(4)])

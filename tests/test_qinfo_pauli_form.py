@@ -1,0 +1,98 @@
+"""The Pauli-form chain arithmetic (netsim.qinfo.pauli_form) against the 4x4 functions of
+netsim.qinfo and against QuTiP (an independent reference library)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from netsim import qinfo
+from netsim.qinfo import pauli_form
+from netsim.qinfo.states import random_density_matrices
+
+
+def _decay(t: np.ndarray, t1: float, t2: float) -> tuple[np.ndarray, np.ndarray]:
+    return -np.expm1(-t / t1), np.exp(-t / t2)
+
+
+def test_pauli_components_match_qutip_expectations() -> None:
+    """R[a, b] = tr(rho P_a (x) P_b) with P = (I, X, Y, Z): QuTiP's expect of the tensor product
+    (Nielsen & Chuang, sec. 2.4, the Pauli expansion of a density matrix), and back."""
+    import qutip
+
+    paulis = [qutip.qeye(2), qutip.sigmax(), qutip.sigmay(), qutip.sigmaz()]
+    rho = random_density_matrices(1, 4, seed=11)[0]
+    state = qutip.Qobj(rho, dims=[[2, 2], [2, 2]])
+    r = pauli_form.to_pauli(rho)
+    for a in range(4):
+        for b in range(4):
+            assert r[a, b] == pytest.approx(qutip.expect(qutip.tensor(paulis[a], paulis[b]), state), abs=1e-12)
+    np.testing.assert_allclose(pauli_form.from_pauli(r), rho, atol=1e-13)
+    assert pauli_form.fidelity(r) == pytest.approx(qutip.expect(qutip.ket2dm(qutip.bell_state("00")), state), abs=1e-12)
+
+
+def test_decay_equals_decohere_on_both_qubits() -> None:
+    """The transfer matrices of memory decay against netsim.qinfo.decohere (which is itself checked
+    against QuTiP's Lindblad solver in tests/test_engine_states.py), one storage time per state."""
+    rng = np.random.default_rng(3)
+    rho = random_density_matrices(1, 4, seed=4)[0]
+    tl, tr = rng.uniform(0, 2, 7), rng.uniform(0, 2, 7)
+    gl, cl = _decay(tl, 1.3, 0.9)
+    gr, cr = _decay(tr, 2.0, 3.5)
+    got = pauli_form.from_pauli(pauli_form.decayed(pauli_form.to_pauli(rho), gl, cl, gr, cr))
+    want = qinfo.decohere(qinfo.decohere(rho, tl, 1.3, 0.9, qubit=0), tr, 2.0, 3.5, qubit=1)
+    np.testing.assert_allclose(got, want, atol=1e-13)
+
+
+def test_chain_equals_swaps_one_by_one_on_generic_states() -> None:
+    """A 4-hop chain of generic (not Bell-diagonal) pairs, each its own state per chain for the
+    second hop (as purified pairs are), decayed and swapped with gate errors: against
+    netsim.qinfo.decohere and netsim.qinfo.entanglement_swap applied one by one."""
+    rng = np.random.default_rng(8)
+    n_chains, n = 6, 4
+    pairs = list(random_density_matrices(n, 4, seed=5))
+    per_chain = random_density_matrices(n_chains, 4, seed=6)
+    t1 = [1.0, 2.0, 0.7, 5.0, 1.5]
+    t2 = [0.8, 1.0, 1.2, 2.0, 3.0]
+    left, right = rng.uniform(0, 1, (n_chains, n)), rng.uniform(0, 1, (n_chains, n))
+    gates = [0.0, 0.03, 0.1]
+    gl, cl = _decay(left, np.array(t1[:-1]), np.array(t2[:-1]))
+    gr, cr = _decay(right, np.array(t1[1:]), np.array(t2[1:]))
+    forms = [pauli_form.to_pauli(p) for p in pairs]
+    forms[1] = pauli_form.to_pauli(per_chain)
+    got = pauli_form.from_pauli(pauli_form.chain_states(forms, gl, cl, gr, cr, gates))
+    for c in range(n_chains):
+        out = None
+        for i in range(n):
+            rho = per_chain[c] if i == 1 else pairs[i]
+            rho = qinfo.decohere(rho, left[c, i], t1[i], t2[i], qubit=0)
+            rho = qinfo.decohere(rho, right[c, i], t1[i + 1], t2[i + 1], qubit=1)
+            out = rho if out is None else qinfo.entanglement_swap(out, rho, bsm_depolarizing=gates[i - 1])
+        np.testing.assert_allclose(got[c], out, atol=1e-12)
+
+
+def test_swap_matches_an_explicit_qutip_bell_measurement() -> None:
+    """One swap in Pauli form against QuTiP: pairs (A, B1) and (B2, C), projectors on the four Bell
+    states of (B1, B2), the Pauli correction on C (Phi+ I, Phi- Z, Psi+ X, Psi- Y), outcomes
+    summed (Zukowski et al., PRL 71, 4287 (1993))."""
+    import qutip
+
+    rho_1, rho_2 = random_density_matrices(2, 4, seed=9)
+    joint = qutip.tensor(qutip.Qobj(rho_1, dims=[[2, 2], [2, 2]]), qutip.Qobj(rho_2, dims=[[2, 2], [2, 2]]))
+    i2 = qutip.qeye(2)
+    # qutip.bell_state labels: "00" Phi+, "01" Phi-, "10" Psi+, "11" Psi-
+    corrections = {"00": i2, "01": qutip.sigmaz(), "10": qutip.sigmax(), "11": qutip.sigmay()}
+    want = 0
+    for label, fix in corrections.items():
+        bell = qutip.ket2dm(qutip.bell_state(label))
+        projected = qutip.tensor(i2, bell, i2) * joint * qutip.tensor(i2, bell, i2)
+        kept = projected.ptrace([0, 3])
+        correction = qutip.tensor(i2, fix)
+        want = want + correction * kept * correction.dag()
+    zeros = np.zeros((1, 2))
+    forms = [pauli_form.to_pauli(rho_1), pauli_form.to_pauli(rho_2)]
+    got = pauli_form.from_pauli(pauli_form.chain_states(forms, zeros, zeros + 1, zeros, zeros + 1, [0.0]))[0]
+    np.testing.assert_allclose(got, want.full(), atol=1e-12)
+    assert math.isclose(float(np.real(np.trace(got))), 1.0, abs_tol=1e-12)
