@@ -80,6 +80,8 @@ FLUSH_ROWS = 20_000
 PRUNE_SEQUENCES = 50_000
 #: Attempt sequences a site's log holds apart from the sorted whole before they are merged in.
 RECENT_ROWS = 4096
+#: At most this many attempt sequences logged since the last read are counted where they lie.
+PENDING_SCAN = 64
 #: Uniform draws are taken from a lane's stream this many at a time.
 UNIFORM_BLOCK = 1024
 
@@ -224,6 +226,13 @@ class _Lane:
         return self._uniforms[self._next_uniform - 1]
 
 
+def _rounds_in(start: float, period: float, k: float, after_s: float, until_s: float) -> int:
+    """:func:`netsim.engine.history.rounds_between` for one sequence, in plain Python."""
+    lo = max(0.0, math.floor((after_s - start) / period + 1e-9) + 1.0)
+    hi = min(k - 1.0, math.ceil((until_s - start) / period - 1e-9) - 1.0)
+    return int(max(0.0, hi - lo + 1.0))
+
+
 def _insert_sorted(filed: NDArray[np.float64], rows: NDArray[np.float64]) -> NDArray[np.float64]:
     """``filed`` and ``rows`` (each sorted by column 0) as one array sorted by column 0, in the
     order of a stable sort of their concatenation (a row of ``rows`` goes after ``filed`` ties)."""
@@ -341,6 +350,11 @@ class _Des:
             link_ids = [tuple(self.link_index[name] for name in links) for links in lane.links]
             lane.hop_constants = list(zip(link_ids, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
             lane.transfers = [_Call(self.transferred, ()) for _ in range(c.n_hops)]
+        #: per site with attempt dephasing: the indices of the end sets it belongs to
+        self.site_end_sets: dict[str, set[int]] = {name: set() for name in self.sequences}
+        for index, end_set in enumerate(self.end_sets):
+            for name in end_set:
+                self.site_end_sets[name].add(index)
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
@@ -532,19 +546,37 @@ class _Des:
             self.attempt(*entry[2])
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
-        """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand."""
+        """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand.
+
+        A purification step asks this of both its sites; the few sequences logged since the
+        last read are counted where they lie (up to PENDING_SCAN of them) instead of filing them
+        first, and short stretches of the filed log in plain Python (the same arithmetic as
+        :func:`netsim.engine.history.rounds_between`, so the same integer counts)."""
         if site not in self.sequences:
             return 0
-        self.absorb_log()
-        longest, total = self.longest_s[site], 0
+        pending = self.new_sequences
+        if len(pending) > 4 * PENDING_SCAN:
+            self.absorb_log()
+            pending = self.new_sequences
+        total = 0
+        if pending:
+            mine = self.site_end_sets.get(site, set())
+            for j in range(0, len(pending), 4):
+                if pending[j + 3] in mine:
+                    total += _rounds_in(pending[j], pending[j + 1], pending[j + 2], after_s, until_s)
+        longest = self.longest_s[site]
         for seqs in (self.sequences[site], self.recent.get(site)):
             if seqs is None or not len(seqs):
                 continue
-            lo = int(np.searchsorted(seqs[:, 0], after_s - longest - 1e-9, side="left"))
-            hi = int(np.searchsorted(seqs[:, 0], until_s, side="right"))
-            if hi > lo:
+            starts = seqs[:, 0]
+            lo = int(starts.searchsorted(after_s - longest - 1e-9, side="left"))
+            hi = int(starts.searchsorted(until_s, side="right"))
+            if hi - lo > 16:
                 arr = seqs[lo:hi]
                 total += int(rounds_between(arr[:, 0], arr[:, 1], arr[:, 2], after_s, until_s).sum())
+            elif hi > lo:
+                for start, period, k in seqs[lo:hi].tolist():
+                    total += _rounds_in(start, period, k, after_s, until_s)
         return total
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
