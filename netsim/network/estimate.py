@@ -412,11 +412,22 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
     out, weights = None, None
+    # memory decay factors of every hop at once (what qinfo.decohere computes per hop, and checks)
+    for site in sites:
+        decoherence_factors(0.0, site.t1_s, site.t2_s)
+    for times in (left_s, right_s):
+        bad = ~((times >= 0) & np.isfinite(times))
+        if bad.any():
+            raise ParameterError("t_s", float(times[bad].flat[0]), "a finite time >= 0 in seconds")
+    t1 = np.array([float(s.t1_s) for s in sites])
+    t2 = np.array([float(s.t2_s) for s in sites])
+    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
+        gamma_l, coh_l = -np.expm1(-left_s / t1[:-1]), np.exp(-left_s / t2[:-1])
+        gamma_r, coh_r = -np.expm1(-right_s / t1[1:]), np.exp(-right_s / t2[1:])
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
         r = _depolarized(_depolarized(_to_pauli(hop.physics.state), left, 0), right, 1)
-        gl, cl = _decay_factors(left_s[:, i], left)
-        gr, cr = _decay_factors(right_s[:, i], right)
+        gl, cl, gr, cr = gamma_l[:, i], coh_l[:, i], gamma_r[:, i], coh_r[:, i]
         if left.attempt_dephasing > 0:
             cl = cl * (1.0 - float(left.attempt_dephasing)) ** attempts_left[:, i]
         if right.attempt_dephasing > 0:
