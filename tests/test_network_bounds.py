@@ -271,3 +271,20 @@ def test_multipath_bound_of_the_bundled_mesh_equals_networkx_maximum_flow() -> N
         flow.add_edges_from((u, v, {"capacity": d["bound_cut_bits_per_s"]}) for u, v, d in relays.edges(data=True))
         want = nx.maximum_flow_value(flow, demand.a, demand.b)
         assert multipath_capacity(relays, demand.a, demand.b) == pytest.approx(want, rel=1e-12)
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_bounds_leaving_sites_out_equal_the_bounds_on_the_graph_without_them(seed: int) -> None:
+    """``exclude`` gives the same floats as the graph with those sites removed (a copy without
+    them, the definition), for the widest path and the minimum cut; both ends are never left out."""
+    rng = np.random.default_rng(300 + seed)
+    g = nx.gnp_random_graph(16, 0.3, seed=seed)
+    for u, v in g.edges:
+        c = float(10 ** rng.uniform(-1, 2))
+        g.edges[u, v].update(bound_bits_per_s=c, bound_cut_bits_per_s=c)
+    a, b = 0, 15
+    out = {int(x) for x in rng.choice(np.arange(1, 15), size=5, replace=False)} | {a}
+    smaller = g.copy()
+    smaller.remove_nodes_from(out - {a, b})
+    assert single_path_capacity(g, a, b, exclude=out) == single_path_capacity(smaller, a, b)
+    assert multipath_capacity(g, a, b, exclude=out) == multipath_capacity(smaller, a, b)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import heapq
 import itertools
 import math
-from collections.abc import Sequence
+from collections.abc import Collection, Sequence
 from typing import TYPE_CHECKING
 
 import networkx as nx
@@ -241,18 +241,23 @@ def chain_fidelity(hop_fidelities: Sequence[float], gate_errors: Sequence[float]
     return (1.0 + 3.0 * w) / 4.0
 
 
-def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s") -> float:
+def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s", *,
+                         exclude: Collection[str] = ()) -> float:
     """Single-path (widest path) capacity bound: max over routes of the weakest link's capacity.
+
+    ``exclude``: sites no route passes through (the same as removing them from ``graph``; the
+    budget passes the end users other than ``a`` and ``b``, cheaper than a subgraph view).
 
     References
     ----------
     S. Pirandola, "End-to-end capacities of a quantum communication network",
     Commun. Phys. 2, 51 (2019).
     """
-    return bottleneck_capacity(graph, a, b, weight)
+    return bottleneck_capacity(graph, a, b, weight, exclude=exclude)
 
 
-def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s") -> float:
+def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s", *,
+                        exclude: Collection[str] = ()) -> float:
     """max over paths from ``a`` to ``b`` of the smallest edge ``weight`` on the path (0 without a
     path): the widest-path value, by the max-min form of Dijkstra's search (Pollack, "The
     maximum capacity through a network", Oper. Res. 8, 733 (1960)). It visits only what it
@@ -264,7 +269,7 @@ def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bi
     best: dict[str, float] = {a: math.inf}
     heap = [(-math.inf, 0, a)]
     order = 1
-    done: set[str] = set()
+    done: set[str] = set(exclude) - {a, b}
     adj = graph.adj
     while heap:
         neg, _, node = heapq.heappop(heap)
@@ -285,12 +290,13 @@ def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bi
     return 0.0
 
 
-def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut_bits_per_s") -> float:
+def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut_bits_per_s", *,
+                       exclude: Collection[str] = ()) -> float:
     """Multipath (flooding) capacity bound: the minimum cut between ``a`` and ``b``.
 
     The capacity of a cut is the sum of the link capacities it severs; the bound is the
     smallest over cuts separating ``a`` from ``b`` (max-flow min-cut: an undirected edge carries
-    its capacity either way). The cut is found by shortest augmenting paths (Edmonds & Karp,
+    its capacity either way). ``exclude``: sites no flow passes through (as removed from ``graph``). The cut is found by shortest augmenting paths (Edmonds & Karp,
     J. ACM 19, 248, 1972) and its value is the correctly rounded sum (``math.fsum``) of the
     capacities it severs, so the float does not depend on the order of sites, links or the hash
     seed (tests check it against networkx's maximum flow and against every cut of small graphs).
@@ -300,18 +306,21 @@ def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut
     S. Pirandola, "End-to-end capacities of a quantum communication network",
     Commun. Phys. 2, 51 (2019).
     """
+    skip = set(exclude) - {a, b}
     if a == b or a not in graph or b not in graph:
-        return _networkx_min_cut(graph, a, b, weight)  # networkx's errors for these
+        return _networkx_min_cut(_without(graph, skip), a, b, weight)  # networkx's errors for these
     # sites in sorted-name order and each site's neighbours in that order: the search, and so
     # the cut it finds, is the same however the graph was built
-    names = sorted(graph, key=str)
+    names = sorted((n for n in graph if n not in skip), key=str)
     order = {n: k for k, n in enumerate(names)}
     edges = []
     residual: list[dict[int, float]] = [{} for _ in names]
     for u, v, d in graph.edges(data=True):
+        if u in skip or v in skip:
+            continue
         c = float(d[weight])
         if not c >= 0.0:  # NaN or negative: not a capacity; networkx decides what that gives
-            return _networkx_min_cut(graph, a, b, weight)
+            return _networkx_min_cut(_without(graph, skip), a, b, weight)
         i, j = order[u], order[v]
         if i == j:
             continue
@@ -365,6 +374,10 @@ def _reaches(adj: list[list[int]], s: int, t: int, usable) -> bool:  # type: ign
                 seen.add(v)
                 stack.append(v)
     return s == t
+
+
+def _without(graph: nx.Graph, skip: set[str]) -> nx.Graph:
+    return nx.subgraph_view(graph, filter_node=lambda n: n not in skip) if skip else graph
 
 
 def _networkx_min_cut(graph: nx.Graph, a: str, b: str, weight: str) -> float:

@@ -140,9 +140,22 @@ def _from_pauli(r: np.ndarray) -> np.ndarray:
     return np.einsum("...ab,abij->...ij", r, _PAULI_PAIRS) / 4.0
 
 
-def _decay_factors(t_s: np.ndarray, site: Site) -> tuple[np.ndarray, np.ndarray]:
-    """(gamma, coherence) of the site's memory after ``t_s`` (checked as qinfo.decohere checks)."""
-    return decoherence_factors(t_s, site.t1_s, site.t2_s)
+def _all_decay_factors(sites: Sequence[Site], left_s: np.ndarray,
+                       right_s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(gamma, coherence) of every hop's left and right memory after ``left_s``, ``right_s`` (N, n)
+    at once: what qinfo.decohere computes per hop (gamma = 1 - exp(-t/T1), coherence exp(-t/T2)),
+    with its checks (once per site and per array of times)."""
+    for site in sites:
+        decoherence_factors(0.0, site.t1_s, site.t2_s)
+    for times in (left_s, right_s):
+        bad = ~((times >= 0) & np.isfinite(times))
+        if bad.any():
+            raise ParameterError("t_s", float(times[bad].flat[0]), "a finite time >= 0 in seconds")
+    t1 = np.array([float(s.t1_s) for s in sites])
+    t2 = np.array([float(s.t2_s) for s in sites])
+    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
+        return (-np.expm1(-left_s / t1[:-1]), np.exp(-left_s / t2[:-1]),
+                -np.expm1(-right_s / t1[1:]), np.exp(-right_s / t2[1:]))
 
 
 def _depolarized(r: np.ndarray, site: Site, qubit: int) -> np.ndarray:
@@ -351,10 +364,11 @@ def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tup
     (qinfo.decohere), then depolarized by each end's memory transfer error, then swapped left to
     right with each inner site's gate error (qinfo.entanglement_swap); in Pauli form (above)."""
     out, weights = None, np.ones(4, dtype=complex)
+    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, np.array([[s[0] for s in storage]], dtype=float),
+                                                        np.array([[s[1] for s in storage]], dtype=float))
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
-        gl, cl = _decay_factors(np.array([storage[i][0]], dtype=float), left)
-        gr, cr = _decay_factors(np.array([storage[i][1]], dtype=float), right)
+        gl, cl, gr, cr = gamma_l[:, i], coh_l[:, i], gamma_r[:, i], coh_r[:, i]
         r = _to_pauli(hop.physics.state)
         if out is None:
             out = _depolarized(_depolarized(_decayed(r, gl, cl, gr, cr)[0], left, 0), right, 1)
@@ -412,18 +426,7 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
     out, weights = None, None
-    # memory decay factors of every hop at once (what qinfo.decohere computes per hop, and checks)
-    for site in sites:
-        decoherence_factors(0.0, site.t1_s, site.t2_s)
-    for times in (left_s, right_s):
-        bad = ~((times >= 0) & np.isfinite(times))
-        if bad.any():
-            raise ParameterError("t_s", float(times[bad].flat[0]), "a finite time >= 0 in seconds")
-    t1 = np.array([float(s.t1_s) for s in sites])
-    t2 = np.array([float(s.t2_s) for s in sites])
-    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
-        gamma_l, coh_l = -np.expm1(-left_s / t1[:-1]), np.exp(-left_s / t2[:-1])
-        gamma_r, coh_r = -np.expm1(-right_s / t1[1:]), np.exp(-right_s / t2[1:])
+    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s)
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
         r = _depolarized(_depolarized(_to_pauli(hop.physics.state), left, 0), right, 1)
