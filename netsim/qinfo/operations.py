@@ -104,7 +104,7 @@ def entanglement_swap(rho_1: ArrayLike, rho_2: ArrayLike, bsm_depolarizing: floa
     if q > 0.0:
         # (1 - q) out + q tr_B(rho_1) (x) I/2: the mixed part lives on the blocks c = C only
         half_a = (r1b[..., 0::2, 0::2] + r1b[..., 1::2, 1::2]) * 0.5  # tr_B(rho_1) / 2 = rho_A (x) I/2's blocks
-        out = (1.0 - q) * out
+        out *= 1.0 - q
         for c in (0, 1):
             out[..., c::2, c::2] += q * half_a
     return out
