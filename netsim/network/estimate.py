@@ -194,10 +194,6 @@ def _correlations(r: np.ndarray, gl: np.ndarray, cl: np.ndarray, gr: np.ndarray,
     return out
 
 
-def _fidelity_pauli(r: np.ndarray) -> np.ndarray:
-    return np.real(r[..., 0, 0] + r[..., 1, 1] - r[..., 2, 2] + r[..., 3, 3]) / 4.0
-
-
 @dataclass(frozen=True)
 class RouteEstimate:
     """The planning expectation of one route (see the module docstring).
