@@ -123,3 +123,49 @@ def test_longer_chains_with_a_cut_off_follow_the_event_engine(n: int, p: float, 
     row, est = _engine_and_estimate(n, p, t2_s, cutoff_s, comm, pairs=2500, seed=4, bsm=bsm)
     assert abs(est.fidelity - row["fidelity_mean"]) < 0.02
     assert est.rate_per_s == pytest.approx(row["rate_per_s"], rel=0.10)
+
+
+# (q, period, ready, tell, cutoff, shared, swap_p, cycles, seed, extra): discards on three hops
+# with shared sites; failing swaps on four; a horizon that leaves cycles unfinished; an attempt
+# table with start offsets (the vectorised engine's use).
+_RECORDED_CYCLE_CASES = [
+    ((0.05, 0.02, 0.04), (2e-4, 1.5e-4, 2e-4), (7e-4, 6.5e-4, 7e-4), (1.5e-4, 1.7e-4), 0.006, (True, True),
+     (1.0, 1.0), 400, 1, {}),
+    ((0.3, 0.1, 0.2, 0.5), (1e-4, 2e-4, 1e-4, 3e-4), (3e-4, 5e-4, 2e-4, 6e-4), (5e-5, 6e-5, 7e-5), 0.004,
+     (False, True, False), (0.6, 0.9, 0.5), 300, 2, {}),
+    ((0.01, 0.02), (5e-4, 5e-4), (1e-3, 1.2e-3), (1e-4,), 0.02, (True,), (0.8,), 300, 3, {"horizon_s": 0.3}),
+    ((0.2, 0.4, 0.1), (1e-4, 1e-4, 1e-4), (2e-4, 2e-4, 2e-4), (1e-5, 1e-5), 0.002, (False, False), (1.0, 1.0),
+     300, 4, {"table": True}),
+]
+
+
+@pytest.mark.parametrize("index", range(len(_RECORDED_CYCLE_CASES)))
+def test_run_cycles_gives_the_figures_recorded_before_its_rewrite(index: int) -> None:
+    """The timeline sampler after its flat-index rewrite (fewer numpy calls per event, the same
+    draws in the same order and the same arithmetic) against the figures the code gave before it,
+    recorded in tests/data/cutoff_cycle_figures.json: equal to float rounding (in fact exactly)."""
+    import json
+    from pathlib import Path
+
+    from netsim.network.cutoff import AttemptTable, run_cycles
+
+    recorded = json.loads((Path(__file__).parent / "data" / "cutoff_cycle_figures.json").read_text())["cases"][index]
+    q, period, ready, tell, cutoff, shared, swap, cycles, seed, extra = _RECORDED_CYCLE_CASES[index]
+    rng = np.random.default_rng(seed)
+    kw: dict[str, Any] = {}
+    draws: Any = rng
+    if extra.get("table"):
+        draws = AttemptTable(rng, np.array(q), cycles)
+        kw["offset_s"] = np.random.default_rng(seed + 100).uniform(0, 2e-4, (cycles, len(q)))
+    if "horizon_s" in extra:
+        kw["horizon_s"] = extra["horizon_s"]
+    out = run_cycles(q, period, ready, tell, cutoff, shared, swap, cycles=cycles, draws=draws, max_steps=50000, **kw)
+    f = out.finished
+    got = {"finished": int(f.sum()), "delivered_s": out.delivered_s[f].sum(),
+           "store_left_s": out.store_left_s[f].sum(), "store_right_s": out.store_right_s[f].sum(),
+           "attempts_left": out.attempts_left[f].sum(), "attempts_right": out.attempts_right[f].sum(),
+           "rounds": out.rounds.sum(), "sequences": out.sequences.sum(), "discarded": out.discarded.sum(),
+           "discards": out.discards.sum(), "lost_qubit_s": out.lost_qubit_s.sum(),
+           "next_round_s": out.next_round_s[f].sum()}
+    for key, value in recorded.items():
+        assert got[key] == pytest.approx(value, rel=1e-12, abs=0.0), key

@@ -149,3 +149,84 @@ def test_highest_rate_picks_the_route_with_the_best_closed_form_rate() -> None:
              for r in (["Rook Lab", "Umber Switch", "Sable Lab"], ["Rook Lab", "Tern Relay", "Sable Lab"])}
     assert estimate_route(graph, chosen).rate_per_s == max(rates.values())
     assert min(rates.values()) < max(rates.values())
+
+
+# --- the Pauli-form chain of netsim.network.estimate against the qinfo operations it replaced ---
+# Reference: the formulation the estimate used before (qinfo.decohere, qinfo.depolarizing(p).apply
+# and qinfo.entanglement_swap on (N, 4, 4) states, which tests/test_qinfo_* check against QuTiP
+# and explicit Bell measurements), copied here unchanged in what it computes.
+
+def _reference_delivered(hops, sites, storage):  # type: ignore[no-untyped-def]
+    from netsim import qinfo
+
+    out = None
+    for i, hop in enumerate(hops):
+        left, right = sites[i], sites[i + 1]
+        rho = qinfo.decohere(np.asarray(hop.physics.state, dtype=complex), storage[i][0], left.t1_s, left.t2_s, qubit=0)
+        rho = qinfo.decohere(rho, storage[i][1], right.t1_s, right.t2_s, qubit=1)
+        for qubit, site in ((0, left), (1, right)):
+            if site.memory_transfer_error > 0:
+                rho = qinfo.depolarizing(float(site.memory_transfer_error)).apply(rho, qubit=qubit, dims=(2, 2))
+        out = rho if out is None else qinfo.entanglement_swap(out, rho, bsm_depolarizing=float(left.gate_error))
+    return out
+
+
+def _reference_mean_delivered(hops, sites, left_s, right_s, att_l, att_r):  # type: ignore[no-untyped-def]
+    from netsim import qinfo
+
+    off = {q: np.array([[((r >> (1 - q)) & 1) != ((c >> (1 - q)) & 1) for c in range(4)] for r in range(4)])
+           for q in (0, 1)}
+    out = None
+    for i, hop in enumerate(hops):
+        left, right = sites[i], sites[i + 1]
+        rho = np.asarray(hop.physics.state, dtype=complex)
+        for qubit, site in ((0, left), (1, right)):
+            if site.memory_transfer_error > 0:
+                rho = qinfo.depolarizing(float(site.memory_transfer_error)).apply(rho, qubit=qubit, dims=(2, 2))
+        rho = qinfo.decohere(rho, left_s[:, i], left.t1_s, left.t2_s, qubit=0)
+        rho = qinfo.decohere(rho, right_s[:, i], right.t1_s, right.t2_s, qubit=1)
+        for qubit, site, attempts in ((0, left, att_l[:, i]), (1, right, att_r[:, i])):
+            if site.attempt_dephasing > 0:
+                factor = (1.0 - float(site.attempt_dephasing)) ** attempts
+                rho = np.where(off[qubit], rho * factor[:, None, None], rho)
+        out = rho if out is None else qinfo.entanglement_swap(out, rho, bsm_depolarizing=float(left.gate_error))
+    return out
+
+
+def _random_chain(rng: np.random.Generator, n: int):  # type: ignore[no-untyped-def]
+    from types import SimpleNamespace
+
+    hops = []
+    for _ in range(n):
+        g = rng.normal(size=(4, 4)) + 1j * rng.normal(size=(4, 4))  # a generic (not X-shaped) state
+        rho = g @ g.conj().T
+        hops.append(SimpleNamespace(physics=SimpleNamespace(state=rho / np.trace(rho))))
+    sites = []
+    for _ in range(n + 1):
+        t1 = float(rng.uniform(0.05, 2.0))
+        sites.append(SimpleNamespace(t1_s=t1, t2_s=float(rng.uniform(0.01, 2 * t1)),
+                                     memory_transfer_error=float(rng.choice([0.0, rng.uniform(0, 0.3)])),
+                                     attempt_dephasing=float(rng.choice([0.0, rng.uniform(0, 0.01)])),
+                                     gate_error=float(rng.uniform(0, 0.2))))
+    return hops, sites
+
+
+@pytest.mark.parametrize("n", [1, 2, 3, 5])
+def test_pauli_form_chain_equals_the_qinfo_operations_it_replaced(n: int) -> None:
+    """_delivered and _mean_delivered (per cycle and mean) give the states of the qinfo
+    formulation to float rounding, for generic states, gate errors, memory transfer errors and
+    attempt dephasing."""
+    from netsim.network import estimate
+
+    rng = np.random.default_rng(7 + n)
+    hops, sites = _random_chain(rng, n)
+    storage = [tuple(rng.uniform(0, 0.5, size=2)) for _ in range(n)]
+    np.testing.assert_allclose(estimate._delivered(hops, sites, storage),
+                               _reference_delivered(hops, sites, storage), rtol=0, atol=1e-13)
+    left_s, right_s = rng.uniform(0, 0.5, size=(2, 300, n))
+    att_l, att_r = rng.integers(0, 40, size=(2, 300, n)).astype(float)
+    want = _reference_mean_delivered(hops, sites, left_s, right_s, att_l, att_r)
+    per_cycle = estimate._mean_delivered(hops, sites, left_s, right_s, att_l, att_r, per_cycle=True)
+    np.testing.assert_allclose(per_cycle, want, rtol=0, atol=1e-13)
+    np.testing.assert_allclose(estimate._mean_delivered(hops, sites, left_s, right_s, att_l, att_r),
+                               want.mean(axis=0), rtol=0, atol=1e-13)

@@ -211,3 +211,25 @@ def test_dejmps_matches_qutip_circuit_on_random_states() -> None:
         p_ref, out_ref = _qutip_dejmps(a[i], b[i])
         assert p[i] == pytest.approx(p_ref, abs=1e-13)
         np.testing.assert_allclose(out[i], out_ref, atol=1e-13)
+
+
+@pytest.mark.parametrize("q", [0.0, 0.07])
+def test_swap_as_sums_of_blocks_equals_the_dense_tensor_product(q: float) -> None:
+    """The swap applied as 8 block products (the non-zero entries of the swap tensor G) against
+    the dense formulation it replaced: r2 G^T as a 16 x 16 product, then a batched 4 x 4 product
+    with r1 (G is built from the Bell vectors and Pauli corrections, and that formulation matched
+    the QuTiP circuit above); broadcast batches, to float rounding."""
+    from netsim.qinfo.operations import _SWAP_MATRIX
+
+    a = random_density_matrices(6, 4, seed=50)
+    b = random_density_matrices(7, 4, seed=51)
+    r1, r2 = a[:, None], b[None, :]
+    batch = (6, 7)
+    t1 = np.broadcast_to(r1, batch + (4, 4)).reshape(batch + (2, 2, 2, 2))
+    t = np.einsum("...k,lk->...l", np.broadcast_to(r2, batch + (4, 4)).reshape(batch + (16,)), _SWAP_MATRIX)
+    dense = (np.swapaxes(t1, -3, -2).reshape(batch + (4, 4)) @ t.reshape(batch + (4, 4))).reshape(batch + (2, 2, 2, 2))
+    dense = np.swapaxes(dense, -3, -2).reshape(batch + (4, 4))
+    rho_a = np.trace(t1, axis1=-3, axis2=-1)
+    dense = (1 - q) * dense + q * np.einsum("...aA,cC->...acAC", rho_a, np.eye(2) / 2).reshape(batch + (4, 4))
+    np.testing.assert_allclose(qinfo.entanglement_swap(r1, r2, bsm_depolarizing=q), dense, rtol=0, atol=1e-14)
+    np.testing.assert_allclose(qinfo.entanglement_swap(a[0], b[0], bsm_depolarizing=q), dense[0, 0], rtol=0, atol=1e-14)

@@ -26,7 +26,7 @@ from netsim.network.bounds import (
 from netsim.network.channel import encoding_holevo_bits, link_capacity_bits
 from netsim.network.estimate import estimate_hops, graph_cutoff_s
 from netsim.network.graph import build_graph
-from netsim.network.routing import Hop, find_route, relay_graph, route_hops
+from netsim.network.routing import Hop, find_route, route_hops
 from netsim.table import Column, Table
 from netsim.scenario.model import Demand, Scenario
 from netsim.scenario.profiles import profile_label
@@ -156,8 +156,9 @@ def demand_rows(scenario: Scenario, graph: nx.Graph | None = None,
     (built from ``scenario`` when not given; ``engine.run`` passes the one it routed on)."""
     graph = build_graph(scenario) if graph is None else graph
     rows, warnings = [], []
+    users = frozenset(n for n, d in graph.nodes(data=True) if d["site"].role == "user")
     for demand in scenario.demands:
-        row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing)
+        row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing, users)
         rows.append(row)
         warnings += [warning] if warning else []
     return rows, warnings
@@ -217,13 +218,14 @@ def _physics_figures(physics: Any) -> dict[str, Any]:
             "eof_ebits": eof_ebits(physics.state)}
 
 
-def _demand_row(graph: nx.Graph, demand: Demand, policy: str) -> tuple[dict[str, Any], str]:
-    relays = relay_graph(graph, demand.a, demand.b)
+def _demand_row(graph: nx.Graph, demand: Demand, policy: str, users: frozenset[str]) -> tuple[dict[str, Any], str]:
+    # other end users never relay (netsim.network.routing.relay_graph): passed as sites to leave
+    # out, the same bounds as on the relay view without its filtering at every access
     row: dict[str, Any] = {
         "demand": demand.name, "min_fidelity": demand.min_fidelity, "min_rate_per_s": demand.min_rate_per_s,
         "meets_fidelity": None, "meets_rate": None,
-        "single_path_bits_per_s": single_path_capacity(relays, demand.a, demand.b),
-        "multipath_bits_per_s": multipath_capacity(relays, demand.a, demand.b),
+        "single_path_bits_per_s": single_path_capacity(graph, demand.a, demand.b, exclude=users),
+        "multipath_bits_per_s": multipath_capacity(graph, demand.a, demand.b, exclude=users),
     }
     try:
         route = find_route(graph, demand.a, demand.b, policy)

@@ -214,84 +214,105 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     ids = np.arange(cycles)
     t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
     m = cycles
-    now = np.zeros(m)
+    # The per-cycle state, packed so that dropping finished cycles takes a few copies. Single
+    # entries are read and written through flat indices into the packed arrays (much cheaper
+    # than two-axis fancy indexing for the few rows an event touches): entry (row, field, hop)
+    # of per_hop is per_hop.reshape(-1)[row * stride + field * n + hop].
+    per_hop = np.zeros((m, _PER_HOP, n))
+    per_site = np.zeros((m, 2, n + 1))     # swap_t, lost_q
+    per_cycle = np.zeros((m, 2))           # now, disc
     mode = np.zeros((m, n), dtype=np.int8)
-    born = np.zeros((m, n))
-    rdy = np.full((m, n), np.inf)
-    first = np.zeros((m, n))
-    cur = np.zeros((m, n))                    # rounds of each hop's last sequence (0: none yet)
-    next_ok = np.zeros((m, n)) if offset_s is None else np.array(offset_s, dtype=float).reshape(m, n)
-    prio = np.tile(np.arange(n, dtype=float), (m, 1))
-    swap_t = np.zeros((m, n + 1))
-    disc = np.zeros(m)
     used = np.zeros((m, n), dtype=np.int64)
-    rounds = np.zeros((m, n))
-    seqs = np.zeros((m, n))
-    dropped = np.zeros((m, n))
-    lost_q = np.zeros((m, n + 1))
-    acc_left = np.zeros((m, n))
-    acc_right = np.zeros((m, n))
+    per_hop[:, _RDY] = np.inf
+    per_hop[:, _PRIO] = np.arange(n, dtype=float)
+    if offset_s is not None:
+        per_hop[:, _NEXT] = np.array(offset_s, dtype=float).reshape(m, n)
+    stride = _PER_HOP * n
+    site_stride = 2 * (n + 1)
+    f_born, f_rdy, f_first, f_cur, f_next, f_rounds, f_seqs, f_acc_l, f_acc_r = (
+        f * n for f in (_BORN, _RDY, _FIRST, _CUR, _NEXT, _ROUNDS, _SEQS, _ACC_LEFT, _ACC_RIGHT))
+    any_shared = bool(left_shared.any() or right_shared.any())
     counter = float(n)
     cols = np.arange(n)
+    lower_cols = cols[None, :]
     step = 0
+    rows = np.arange(m)
+    row_n = rows * n
     while m and (max_steps is None or step < max_steps):
         step += 1
-        rows = np.arange(m)
-        # 1. grant waiting requests in request order
+        (born, rdy, first, cur, next_ok, prio, rounds, seqs, dropped, acc_left,
+         acc_right) = (per_hop[:, f] for f in range(_PER_HOP))
+        swap_t, lost_q = per_site[:, 0], per_site[:, 1]
+        now, disc = per_cycle[:, 0], per_cycle[:, 1]
+        hop_flat, site_flat, mode_flat = per_hop.reshape(-1), per_site.reshape(-1), mode.reshape(-1)
+        if len(rows) != m:
+            rows = np.arange(m)
+            row_n = rows * n
+        # 1. grant waiting requests in request order (rows without a waiting hop take no part)
         pending = mode == _WAIT
-        while pending.any():
-            key = np.where(pending, prio, np.inf)
-            i = key.argmin(axis=1)
-            has = np.isfinite(key[rows, i])
-            lb = left_shared[i] & (mode[rows, np.maximum(i - 1, 0)] == _TRY)
-            rb = right_shared[i] & (mode[rows, np.minimum(i + 1, n - 1)] == _TRY)
-            go = has & ~lb & ~rb
-            if go.any():
-                r, h = rows[go], i[go]
+        pending_flat = pending.reshape(-1)
+        waiting = np.flatnonzero(pending.any(axis=1))
+        while len(waiting):
+            i = np.where(pending[waiting], prio[waiting], np.inf).argmin(axis=1)
+            at = waiting * n + i
+            if any_shared:
+                # a hop at the row's edge reads its row neighbour's mode here: masked by *_shared
+                go = ~((left_shared[i] & (mode_flat[np.maximum(at - 1, 0)] == _TRY))
+                       | (right_shared[i] & (mode_flat[np.minimum(at + 1, m * n - 1)] == _TRY)))
+                r, h, rh = waiting[go], i[go], at[go]
+            else:
+                r, h, rh = waiting, i, at
+            if len(r):
                 if table is not None:
-                    k = table.take(t_rows[ids[r]], h, used[r, h])
-                    used[r, h] += 1
+                    used_flat = used.reshape(-1)
+                    k = table.take(t_rows[ids[r]], h, used_flat[rh])
+                    used_flat[rh] += 1
                 else:
                     assert rng is not None
                     k = rng.geometric(qa[h])
-                start = np.maximum(now[r], next_ok[r, h])
-                first[r, h], cur[r, h] = start, k
+                at_h = r * stride + h
+                start = np.maximum(now[r], hop_flat[at_h + f_next])
+                hop_flat[at_h + f_first] = start
+                hop_flat[at_h + f_cur] = k
                 b = start + (k - 1) * ta[h]
-                born[r, h], rdy[r, h], next_ok[r, h] = b, b + ra[h], b + ta[h]
-                rounds[r, h] += k
-                seqs[r, h] += 1
-                mode[r, h] = _TRY
-                _count_attempts(r, h, n, b, start, k, ta, first, cur, born, mode, acc_left, acc_right)
-            pending[rows[has], i[has]] = False
+                hop_flat[at_h + f_born] = b
+                hop_flat[at_h + f_rdy] = b + ra[h]
+                hop_flat[at_h + f_next] = b + ta[h]
+                hop_flat[at_h + f_rounds] += k
+                hop_flat[at_h + f_seqs] += 1
+                mode_flat[rh] = _TRY
+                _count_attempts(h, rh, at_h, n, b, start, k, ta, hop_flat, mode_flat)
+            pending_flat[at] = False
+            waiting = waiting[pending[waiting].any(axis=1)]
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
         hop_r = t_ready.argmin(axis=1)
-        t_r = t_ready[rows, hop_r]
+        t_r = t_ready.reshape(-1)[row_n + hop_r]
         held = mode == _HELD
-        dl = np.where(held, born + cutoff, np.inf)
-        run_dl = dl.copy()
+        run_dl = np.where(held, born + cutoff, np.inf)
         for j in range(1, n):  # min over the run to the left ...
-            joined = held[:, j] & held[:, j - 1]
-            run_dl[:, j] = np.where(joined, np.minimum(run_dl[:, j], run_dl[:, j - 1]), run_dl[:, j])
+            np.minimum(run_dl[:, j], run_dl[:, j - 1], out=run_dl[:, j], where=held[:, j] & held[:, j - 1])
         for j in range(n - 2, -1, -1):  # ... and to the right
-            joined = held[:, j] & held[:, j + 1]
-            run_dl[:, j] = np.where(joined, np.minimum(run_dl[:, j], run_dl[:, j + 1]), run_dl[:, j])
+            np.minimum(run_dl[:, j], run_dl[:, j + 1], out=run_dl[:, j], where=held[:, j] & held[:, j + 1])
         hop_d = run_dl.argmin(axis=1)
-        t_d = run_dl[rows, hop_d]
+        t_d = run_dl.reshape(-1)[row_n + hop_d]
         is_ready = t_r <= t_d
-        now = np.maximum(now, np.where(is_ready, t_r, t_d))
-        lost = np.zeros((m, n), dtype=bool)
+        np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
+        lost = None
         # 3a. a pair becomes usable: swap with held neighbours (left first, as the engine does)
         r, h = rows[is_ready], hop_r[is_ready]
-        mode[r, h] = _HELD
+        rh = r * n + h
+        mode_flat[rh] = _HELD
         for side in (0, 1):
-            nb = h - 1 if side == 0 else h + 1
-            site = h if side == 0 else h + 1
-            ok = (nb >= 0) & (nb < n)
-            ok[ok] = mode[r[ok], nb[ok]] == _HELD
-            ok &= ~lost[r, h]
-            rr, ss = r[ok], site[ok]
-            swap_t[rr, ss] = now[rr]
+            ok = h > 0 if side == 0 else h < n - 1
+            ok[ok] = mode_flat[rh[ok] + (-1 if side == 0 else 1)] == _HELD
+            if lost is not None:
+                ok &= ~lost.reshape(-1)[rh]
+            rr = r[ok]
+            if not len(rr):
+                continue
+            ss = h[ok] + side
+            site_flat[rr * site_stride + ss] = now[rr]
             if not sure:
                 assert rng is not None
                 fail = rng.random(len(rr)) >= swap_pa[ss]
@@ -299,85 +320,97 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                     rf, hf = rr[fail], h[ok][fail]
                     both = mode[rf] == _HELD
                     if side == 0:  # the left swap fails before the right one is made
-                        both &= cols[None, :] <= hf[:, None]
-                    lost[rf] |= _run_mask(both, hf, n)
+                        both &= lower_cols <= hf[:, None]
+                    if lost is None:
+                        lost = np.zeros((m, n), dtype=bool)
+                    lost[rf] |= _run_mask(both, hf, cols)
         # 3b. a run reaches its cut-off: its hops request again
         cut = ~is_ready
         if cut.any():
             rc = rows[cut]
-            lost[rc] |= _run_mask(held[rc], hop_d[cut], n)
+            if lost is None:
+                lost = np.zeros((m, n), dtype=bool)
+            lost[rc] |= _run_mask(held[rc], hop_d[cut], cols)
             disc[rc] += 1
-        if lost.any():
-            lo = np.where(lost, cols, n).min(axis=1)
-            hi = np.where(lost, cols, -1).max(axis=1)
+        if lost is not None:
+            lo = np.where(lost, cols, n).min(axis=1)[:, None]
+            hi = np.where(lost, cols, -1).max(axis=1)[:, None]
             # qubit-seconds of the lost pairs: to the swap that joined them, or to now at the run's ends
-            left_end = np.where(cols > lo[:, None], swap_t[:, :n], now[:, None])
-            right_end = np.where(cols < hi[:, None], swap_t[:, 1:], now[:, None])
+            left_end = np.where(cols > lo, swap_t[:, :n], now[:, None])
+            right_end = np.where(cols < hi, swap_t[:, 1:], now[:, None])
             lost_q[:, :n] += np.where(lost, left_end - born, 0.0)
             lost_q[:, 1:] += np.where(lost, right_end - born, 0.0)
             dropped += lost
-            inner = lost & (cols > lo[:, None]) & (cols < hi[:, None])
-            rank = np.where(inner, cols, np.where(cols == lo[:, None], n, n + 1))
-            prio = np.where(lost, counter + rank, prio)
+            inner = lost & (cols > lo) & (cols < hi)
+            rank = np.where(inner, cols, np.where(cols == lo, n, n + 1))
+            np.copyto(prio, counter + rank, where=lost)
             counter += n + 2
             mode[lost] = _WAIT
             rdy[lost] = np.inf
         # 4. delivered cycles leave; so do cycles past the horizon
         done = (mode == _HELD).all(axis=1)
-        if done.any():
-            d = rows[done]
-            sw = swap_t[d, 1:n]
-            t_del = np.maximum(np.maximum(rdy[d, 0], rdy[d, n - 1]), (sw + tell_a).max(axis=1))
-            end_left = np.concatenate([t_del[:, None], sw], axis=1)
-            end_right = np.concatenate([sw, t_del[:, None]], axis=1)
-            o = ids[d]
-            out.finished[o] = True
-            out.delivered_s[o] = t_del
-            out.born_s[o], out.next_round_s[o] = born[d], next_ok[d]
-            out.store_left_s[o] = end_left - born[d]
-            out.store_right_s[o] = end_right - born[d]
-            out.attempts_left[o], out.attempts_right[o] = acc_left[d], acc_right[d]
-        gone = done | (now > horizon_s)
+        gone = done | (now > horizon_s) if math.isfinite(horizon_s) else done
         if gone.any():
+            if done.any():
+                d = rows[done]
+                sw = swap_t[d, 1:n]
+                t_del = np.maximum(np.maximum(rdy[d, 0], rdy[d, n - 1]), (sw + tell_a).max(axis=1))
+                end_left = np.concatenate([t_del[:, None], sw], axis=1)
+                end_right = np.concatenate([sw, t_del[:, None]], axis=1)
+                o = ids[d]
+                out.finished[o] = True
+                out.delivered_s[o] = t_del
+                out.born_s[o], out.next_round_s[o] = born[d], next_ok[d]
+                out.store_left_s[o] = end_left - born[d]
+                out.store_right_s[o] = end_right - born[d]
+                out.attempts_left[o], out.attempts_right[o] = acc_left[d], acc_right[d]
             g = rows[gone]
             o = ids[g]
             out.rounds[o], out.sequences[o], out.discarded[o] = rounds[g], seqs[g], dropped[g]
             out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[g]
             keep = ~gone
-            (ids, now, mode, born, rdy, first, cur, next_ok, prio, swap_t, disc, used, rounds, seqs, dropped,
-             lost_q, acc_left, acc_right) = (
-                a[keep] for a in (ids, now, mode, born, rdy, first, cur, next_ok, prio, swap_t, disc, used, rounds,
-                                  seqs, dropped, lost_q, acc_left, acc_right))
+            ids, per_hop, per_site, per_cycle, mode, used = (
+                a[keep] for a in (ids, per_hop, per_site, per_cycle, mode, used))
             m = len(ids)
     return out
 
 
-def _count_attempts(r: NDArray[np.int64], h: NDArray[np.int64], n: int, b: NDArray[np.float64],
-                    start: NDArray[np.float64], k: NDArray[np.float64], ta: NDArray[np.float64],
-                    first: NDArray[np.float64], cur: NDArray[np.float64], born: NDArray[np.float64],
-                    mode: NDArray[np.int8], acc_left: NDArray[np.float64], acc_right: NDArray[np.float64]) -> None:
-    """Hop ``h`` (rows ``r``) starts a sequence of ``k`` rounds from ``start``; its pair is born at ``b``.
+#: Rows of the packed per-hop state of :func:`run_cycles`: born, ready, first round of the last
+#: sequence, rounds of the last sequence, earliest next round, request priority, rounds, sequences,
+#: discarded pairs, attempts counted at the left and at the right site.
+_BORN, _RDY, _FIRST, _CUR, _NEXT, _PRIO, _ROUNDS, _SEQS, _DROPPED, _ACC_LEFT, _ACC_RIGHT = range(11)
+_PER_HOP = 11
+
+
+def _count_attempts(h: NDArray[np.int64], rh: NDArray[np.int64], at_h: NDArray[np.int64], n: int,
+                    b: NDArray[np.float64], start: NDArray[np.float64], k: NDArray[np.float64],
+                    ta: NDArray[np.float64], hop_flat: NDArray[np.float64], mode_flat: NDArray[np.int8]) -> None:
+    """Hop ``h`` starts a sequence of ``k`` rounds from ``start``; its pair is born at ``b``.
 
     ``acc_left[r, i]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
     round began (``acc_right`` those of hop i + 1 at site i + 1). The new pair's counts start
     from the neighbour's last sequence (earlier ones ended before this grant); the neighbour's
     counts grow by this sequence while its pair lives (waiting for a herald, or stored). They
     stop counting by themselves: once the two pairs are swapped, neither hop attempts again
-    before both are delivered or discarded.
+    before both are delivered or discarded. ``rh`` and ``at_h`` are the flat indices of (row,
+    hop) in ``mode_flat`` and of (row, field 0, hop) in ``hop_flat`` (see :func:`run_cycles`).
     """
+    f_born, f_first, f_cur, f_acc_l, f_acc_r = (f * n for f in (_BORN, _FIRST, _CUR, _ACC_LEFT, _ACC_RIGHT))
     left, right = h > 0, h < n - 1
     if left.any():
-        rl, hl = r[left], h[left]
-        acc_left[rl, hl] = _rounds_after(first[rl, hl - 1], ta[hl - 1], cur[rl, hl - 1], b[left])
-        alive = mode[rl, hl - 1] != _WAIT
-        ra_, ha = rl[alive], hl[alive]
-        acc_right[ra_, ha - 1] += _rounds_after(start[left][alive], ta[ha], k[left][alive], born[ra_, ha - 1])
+        at, nb = at_h[left], at_h[left] - 1
+        hop_flat[at + f_acc_l] = _rounds_after(hop_flat[nb + f_first], ta[h[left] - 1], hop_flat[nb + f_cur], b[left])
+        alive = mode_flat[rh[left] - 1] != _WAIT
+        nb = nb[alive]
+        hop_flat[nb + f_acc_r] += _rounds_after(start[left][alive], ta[h[left][alive]], k[left][alive],
+                                                hop_flat[nb + f_born])
     if right.any():
-        rr, hr = r[right], h[right]
-        acc_right[rr, hr] = _rounds_after(first[rr, hr + 1], ta[hr + 1], cur[rr, hr + 1], b[right])
-        alive = mode[rr, hr + 1] != _WAIT
-        ra_, ha = rr[alive], hr[alive]
-        acc_left[ra_, ha + 1] += _rounds_after(start[right][alive], ta[ha], k[right][alive], born[ra_, ha + 1])
+        at, nb = at_h[right], at_h[right] + 1
+        hop_flat[at + f_acc_r] = _rounds_after(hop_flat[nb + f_first], ta[h[right] + 1], hop_flat[nb + f_cur], b[right])
+        alive = mode_flat[rh[right] + 1] != _WAIT
+        nb = nb[alive]
+        hop_flat[nb + f_acc_l] += _rounds_after(start[right][alive], ta[h[right][alive]], k[right][alive],
+                                                hop_flat[nb + f_born])
 
 
 def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
@@ -387,9 +420,9 @@ def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k
     return np.maximum(0.0, k - np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0))
 
 
-def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], n: int) -> NDArray[np.bool_]:
-    """Per row, the maximal run of held hops containing ``hop`` (rows of ``held``, (M, n))."""
-    cols = np.arange(n)
+def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], cols: NDArray[np.int64]) -> NDArray[np.bool_]:
+    """Per row, the maximal run of held hops containing ``hop`` (rows of ``held``, (M, n); ``cols`` 0 .. n - 1)."""
+    n = len(cols)
     gap = ~held
     left_gap = np.where(gap & (cols < hop[:, None]), cols, -1).max(axis=1)
     right_gap = np.where(gap & (cols > hop[:, None]), cols, n).min(axis=1)

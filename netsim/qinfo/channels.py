@@ -37,6 +37,7 @@ __all__ = [
     "Channel",
     "amplitude_damping",
     "compose",
+    "decoherence_factors",
     "decohere",
     "dephasing",
     "depolarizing",
@@ -226,6 +227,12 @@ def compose(*channels: Channel) -> Channel:
         kraus = np.einsum("bij,ajk->baik", ch.kraus, kraus).reshape(-1, ch.d_out, kraus.shape[-1])
     name = " then ".join(ch.name for ch in channels)
     return Channel(name, kraus, {"channels": [ch.name for ch in channels]})
+
+
+def decoherence_factors(t_s: ArrayLike, t1_s: float, t2_s: float) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """(gamma, coherence factor) of :func:`memory_decoherence` after ``t_s`` (batched), checking
+    the parameters as it does: gamma = 1 - exp(-t/T1), coherence exp(-t/T2)."""
+    return _memory_factors(t_s, t1_s, t2_s)
 
 
 def _memory_factors(t_s: ArrayLike, t1_s: float, t2_s: float) -> tuple[NDArray[np.float64], NDArray[np.float64]]:

@@ -43,6 +43,24 @@ def _swap_tensor() -> NDArray[np.complex128]:
 _SWAP_MATRIX = np.ascontiguousarray(_swap_tensor().transpose(0, 2, 4, 6, 1, 5, 3, 7).reshape(16, 16))
 
 
+def _swap_terms() -> tuple[tuple[int, int, tuple[int, ...]], ...]:
+    """G's non-zero entries, grouped: (column a, column b, rows) with G[row, a] = G[row, b] = 1 for
+    each row and every other entry of those rows 0 (8 of the 16 rows, in 4 groups). Read from
+    the tensor itself; entanglement_swap applies G as these sums instead of a 16 x 16 product."""
+    groups: dict[tuple[int, int], list[int]] = {}
+    for row in range(16):
+        cols = np.flatnonzero(np.abs(_SWAP_MATRIX[row]) > 1e-12)
+        if len(cols) == 0:
+            continue
+        if len(cols) != 2 or not np.allclose(_SWAP_MATRIX[row, cols], 1.0, rtol=0, atol=1e-12):
+            raise AssertionError("the swap tensor is not a sum of pairs of unit entries")  # pragma: no cover
+        groups.setdefault((int(cols[0]), int(cols[1])), []).append(row)
+    return tuple((a, b, tuple(rows)) for (a, b), rows in groups.items())
+
+
+_SWAP_TERMS = _swap_terms()
+
+
 def entanglement_swap(rho_1: ArrayLike, rho_2: ArrayLike, bsm_depolarizing: float = 0.0) -> NDArray[np.complex128]:
     """Swap two pairs (A, B1) and (B2, C) into one pair (A, C) (batched).
 
@@ -72,18 +90,23 @@ def entanglement_swap(rho_1: ArrayLike, rho_2: ArrayLike, bsm_depolarizing: floa
     r1 = as_states(rho_1, "rho_1", 4)
     r2 = as_states(rho_2, "rho_2", 4)
     batch = np.broadcast_shapes(r1.shape[:-2], r2.shape[:-2])
-    t1 = np.broadcast_to(r1, batch + (4, 4)).reshape(batch + (2, 2, 2, 2))
     t2 = np.broadcast_to(r2, batch + (4, 4)).reshape(batch + (16,))
-    # out[a, c, A, C] = sum G[b, m, n, p, c, x, C, y] r1[a, b, A, n] r2[m, x, p, y], as two products
-    # einsum, not a BLAS product: a threaded (N, 16) x (16, 16) product is ten times slower here
-    t = np.einsum("...k,lk->...l", t2, _SWAP_MATRIX).reshape(batch + (4, 4))  # [(b, n), (c, C)]
-    r1_mat = np.swapaxes(t1, -3, -2).reshape(batch + (4, 4))  # [(a, A), (b, n)]
-    out = (r1_mat @ t).reshape(batch + (2, 2, 2, 2))  # [a, A, c, C]
-    out = np.swapaxes(out, -3, -2).reshape(batch + (4, 4))
+    # out[a, c, A, C] = sum G[b, m, n, p, c, x, C, y] r1[a, b, A, n] r2[m, x, p, y]. With G's rows
+    # (b, n, c, C) each the sum of two entries of r2 (_SWAP_TERMS), this is 8 products of a 2 x 2
+    # block of r1 (rows a at b, columns A at n) with such a sum, added into the block (c, C) of out.
+    r1b = np.broadcast_to(r1, batch + (4, 4))
+    out = np.zeros(batch + (4, 4), dtype=complex)
+    for x, y, rows in _SWAP_TERMS:
+        pair = (t2[..., x] + t2[..., y])[..., None, None]
+        for row in rows:
+            b, n, c, cc = (row >> 3) & 1, (row >> 2) & 1, (row >> 1) & 1, row & 1
+            out[..., c::2, cc::2] += r1b[..., b::2, n::2] * pair
     if q > 0.0:
-        rho_a = np.trace(t1, axis1=-3, axis2=-1)
-        mixed = np.einsum("...aA,cC->...acAC", rho_a, np.eye(2) / 2).reshape(batch + (4, 4))
-        out = (1.0 - q) * out + q * mixed
+        # (1 - q) out + q tr_B(rho_1) (x) I/2: the mixed part lives on the blocks c = C only
+        half_a = (r1b[..., 0::2, 0::2] + r1b[..., 1::2, 1::2]) * 0.5  # tr_B(rho_1) / 2 = rho_A (x) I/2's blocks
+        out *= 1.0 - q
+        for c in (0, 1):
+            out[..., c::2, c::2] += q * half_a
     return out
 
 

@@ -15,6 +15,12 @@ the largest exact size. ``baseline`` is the sure-swap waiting time of the same c
 ``network.cutoff``, cache cleared, plus the mean delivered state) for the routes of the bundled
 mesh with two or more hops, best of :data:`REPEATS`; target <= 0.1 s. ``baseline``: the same
 route's estimate without a cut-off (closed forms), measured in the same run.
+
+``grid_estimate_s_cold`` and ``grid_estimate_s_warm``: the planning estimate ``netsim run`` adds
+beside each demand (``engine.api._analytic``: the budget's demand rows with the cut-off's sampled
+timelines, the widest path and the minimum cut) on the engine benchmark's 7x7 grid (24 demands,
+``metro.py``), with the sampled timelines' cache cleared (a user's single run) and filled, best
+of :data:`REPEATS`; target <= 0.25 s. ``baseline``: the same grid without a cut-off (closed forms).
 """
 
 from __future__ import annotations
@@ -108,7 +114,34 @@ def cutoff_estimate_times() -> list[dict[str, Any]]:
     return records
 
 
-BENCHMARKS: list[Callable[[], list[dict[str, Any]]]] = [command_times, delivery_times, cutoff_estimate_times]
+def grid_estimate_times() -> list[dict[str, Any]]:
+    """Cost of the planning estimate beside each demand of a run on the benchmark grid."""
+    sys.path.insert(0, str(ROOT / "tests" / "benchmarks"))
+    from metro import grid_metro, metro_scenario
+
+    from netsim.engine.api import _analytic
+    from netsim.network import build_graph
+    from netsim.network import cutoff as sampler
+
+    scenario = metro_scenario(grid_metro(7, 7, 24, 4, seed=1))
+    closed = metro_scenario(grid_metro(7, 7, 24, 4, seed=1, cutoff_s=None))
+
+    def cold() -> None:
+        sampler._sample.cache_clear()
+        _analytic(scenario, build_graph(scenario))
+
+    cold_s = _best_call_s(cold)
+    _analytic(scenario, build_graph(scenario))
+    warm_s = _best_call_s(lambda: _analytic(scenario, build_graph(scenario)))
+    closed_s = _best_call_s(lambda: _analytic(closed, build_graph(closed)))
+    return [{"name": name, "value": seconds, "unit": "s", "target": 0.25, "higher_is_better": False,
+             "baseline": f"the same grid without a cut-off, closed forms ({closed_s:.3g} s)",
+             "ratio": seconds / closed_s if closed_s > 0 else float("inf")}
+            for name, seconds in (("grid_estimate_s_cold", cold_s), ("grid_estimate_s_warm", warm_s))]
+
+
+BENCHMARKS: list[Callable[[], list[dict[str, Any]]]] = [command_times, delivery_times, cutoff_estimate_times,
+                                                   grid_estimate_times]
 
 
 if __name__ == "__main__":
