@@ -100,6 +100,7 @@ from netsim.network.cutoff import sample_cycles
 from netsim.network.routing import Hop, register_policy, route_hops
 from netsim.network.workload import route_work
 from netsim.qinfo.channels import decoherence_factors
+from netsim.qinfo.pauli_form import SWAP_SIGN, chain_states, correlations, decayed, from_pauli, to_pauli
 from netsim.scenario.model import Site
 
 #: Above this many link pairs per delivered pair (:func:`netsim.network.workload.route_work`)
@@ -111,33 +112,10 @@ __all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "cutoff_sca
 
 _PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
 
-# The chain in Pauli form (an exact rewrite of decohere / depolarizing / entanglement_swap of
-# netsim.qinfo for this use; tests/test_network_estimate.py checks it against them).
-# A pair rho = 1/4 sum_ab R[a, b] P_a (x) P_b with P = (I, X, Y, Z) and R[a, b] = tr(rho P_a (x) P_b).
-# - A one-qubit channel with Pauli transfer matrix A acts as R -> A R (qubit 0) or R A^T (qubit 1);
-#   memory decay (gamma, coherence c): A = [[1, 0, 0, 0], [0, c, 0, 0], [0, 0, c, 0], [gamma, 0, 0, 1 - gamma]]
-#   (rho_00 += gamma rho_11, rho_11 *= 1 - gamma, coherences times c); depolarizing p: diag(1, 1 - p,
-#   1 - p, 1 - p); dephasing d (attempt dephasing): diag(1, 1 - d, 1 - d, 1).
-# - qinfo.entanglement_swap (Bell measurement averaged over the four outcomes with the Pauli
-#   correction on the far qubit) of R1 and R2 is R1 diag(v) with v = (1, R2[1, 1], -R2[2, 2],
-#   R2[3, 3]): the corrected outcomes twirl the second pair, so only its correlations <XX>, <YY>,
-#   <ZZ> remain (the output's column 0 is R1's: tr R2 = 1). The gate error q mixes in
-#   tr_B(rho_1) (x) I/2, whose Pauli form is R1's column 0 alone: v[1:] times 1 - q.
-# - Fidelity to Phi+ = (R[0, 0] + R[1, 1] - R[2, 2] + R[3, 3]) / 4.
-_PAULI = np.array([[[1, 0], [0, 1]], [[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]], dtype=complex)
-#: _PAULI_PAIRS[a, b] = P_a (x) P_b (4 x 4)
-_PAULI_PAIRS = np.einsum("aij,bkl->abikjl", _PAULI, _PAULI).reshape(4, 4, 4, 4)
-_SWAP_SIGN = np.array([1.0, 1.0, -1.0, 1.0])
-
-
-def _to_pauli(rho: np.ndarray) -> np.ndarray:
-    """R[a, b] = tr(rho P_a (x) P_b) of a (4, 4) state (complex: exact for any 4 x 4 input)."""
-    return np.einsum("abji,ij->ab", _PAULI_PAIRS, np.asarray(rho, dtype=complex))
-
-
-def _from_pauli(r: np.ndarray) -> np.ndarray:
-    """The (..., 4, 4) state of Pauli form ``r`` (..., 4, 4)."""
-    return np.einsum("...ab,abij->...ij", r, _PAULI_PAIRS) / 4.0
+# The chain's states are computed in Pauli form (netsim.qinfo.pauli_form: an exact rewrite of
+# decohere / depolarizing / entanglement_swap of netsim.qinfo, the same arithmetic the event
+# engine's history pass uses); memory transfer error (depolarizing p) scales a qubit's Pauli
+# components by 1 - p.
 
 
 def _all_decay_factors(sites: Sequence[Site], left_s: np.ndarray,
@@ -165,33 +143,6 @@ def _depolarized(r: np.ndarray, site: Site, qubit: int) -> np.ndarray:
         return r
     scale = np.array([1.0, 1.0 - p, 1.0 - p, 1.0 - p])
     return r * scale[:, None] if qubit == 0 else r * scale[None, :]
-
-
-def _decayed(r: np.ndarray, gl: np.ndarray, cl: np.ndarray, gr: np.ndarray, cr: np.ndarray) -> np.ndarray:
-    """A_L r A_R^T (memory decay of both qubits) for per-cycle factors (N,): (N, 4, 4) from (4, 4)."""
-    n = len(gl)
-    rows = np.empty((n, 4, 4), dtype=complex)
-    rows[:, 0] = r[0]
-    rows[:, 1] = cl[:, None] * r[1]
-    rows[:, 2] = cl[:, None] * r[2]
-    rows[:, 3] = gl[:, None] * r[0] + (1.0 - gl)[:, None] * r[3]
-    out = np.empty_like(rows)
-    out[:, :, 0] = rows[:, :, 0]
-    out[:, :, 1] = cr[:, None] * rows[:, :, 1]
-    out[:, :, 2] = cr[:, None] * rows[:, :, 2]
-    out[:, :, 3] = gr[:, None] * rows[:, :, 0] + (1.0 - gr)[:, None] * rows[:, :, 3]
-    return out
-
-
-def _correlations(r: np.ndarray, gl: np.ndarray, cl: np.ndarray, gr: np.ndarray, cr: np.ndarray) -> np.ndarray:
-    """diag(A_L r A_R^T)[1:] (N, 3): the <XX>, <YY>, <ZZ> of a decayed pair, all a swap keeps of it."""
-    out = np.empty((len(gl), 3), dtype=complex)
-    both = cl * cr
-    out[:, 0] = both * r[1, 1]
-    out[:, 1] = both * r[2, 2]
-    out[:, 2] = (gl * gr * r[0, 0] + gl * (1.0 - gr) * r[0, 3] + (1.0 - gl) * gr * r[3, 0]
-                 + (1.0 - gl) * (1.0 - gr) * r[3, 3])
-    return out
 
 
 @dataclass(frozen=True)
@@ -365,14 +316,14 @@ def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tup
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
         gl, cl, gr, cr = gamma_l[:, i], coh_l[:, i], gamma_r[:, i], coh_r[:, i]
-        r = _to_pauli(hop.physics.state)
+        r = to_pauli(hop.physics.state)
         if out is None:
-            out = _depolarized(_depolarized(_decayed(r, gl, cl, gr, cr)[0], left, 0), right, 1)
+            out = _depolarized(_depolarized(decayed(r, gl, cl, gr, cr)[0], left, 0), right, 1)
             continue
-        kept = _correlations(r, gl, cl, gr, cr)[0] * _transfer_kept(left) * _transfer_kept(right)
-        weights[1:] *= _SWAP_SIGN[1:] * kept * (1.0 - _gate_error(left))
+        kept = correlations(r, gl, cl, gr, cr)[0] * _transfer_kept(left) * _transfer_kept(right)
+        weights[1:] *= SWAP_SIGN[1:] * kept * (1.0 - _gate_error(left))
     assert out is not None
-    return _from_pauli(out * weights[None, :])
+    return from_pauli(out * weights[None, :])
 
 
 def _transfer_kept(site: Site) -> float:
@@ -421,25 +372,17 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     first hop's decayed pair with its columns scaled by the later hops' kept correlations).
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
-    out, weights = None, None
     gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s)
+    forms = []
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
-        r = _depolarized(_depolarized(_to_pauli(hop.physics.state), left, 0), right, 1)
-        gl, cl, gr, cr = gamma_l[:, i], coh_l[:, i], gamma_r[:, i], coh_r[:, i]
+        forms.append(_depolarized(_depolarized(to_pauli(hop.physics.state), left, 0), right, 1))
         if left.attempt_dephasing > 0:
-            cl = cl * (1.0 - float(left.attempt_dephasing)) ** attempts_left[:, i]
+            coh_l[:, i] = coh_l[:, i] * (1.0 - float(left.attempt_dephasing)) ** attempts_left[:, i]
         if right.attempt_dephasing > 0:
-            cr = cr * (1.0 - float(right.attempt_dephasing)) ** attempts_right[:, i]
-        if out is None:
-            out = _decayed(r, gl, cl, gr, cr)
-            weights = np.ones((len(out), 4), dtype=complex)
-            continue
-        assert weights is not None
-        weights[:, 1:] *= _correlations(r, gl, cl, gr, cr) * (_SWAP_SIGN[1:] * (1.0 - _gate_error(left)))
-    assert out is not None and weights is not None
-    states = out * weights[:, None, :]
-    return _from_pauli(states) if per_cycle else _from_pauli(states.mean(axis=0))
+            coh_r[:, i] = coh_r[:, i] * (1.0 - float(right.attempt_dephasing)) ** attempts_right[:, i]
+    states = chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]])
+    return from_pauli(states) if per_cycle else from_pauli(states.mean(axis=0))
 
 
 def _fidelity(state: np.ndarray) -> float:
