@@ -288,3 +288,25 @@ def test_bounds_leaving_sites_out_equal_the_bounds_on_the_graph_without_them(see
     smaller.remove_nodes_from(out - {a, b})
     assert single_path_capacity(g, a, b, exclude=out) == single_path_capacity(smaller, a, b)
     assert multipath_capacity(g, a, b, exclude=out) == multipath_capacity(smaller, a, b)
+
+
+@pytest.mark.parametrize("q", [[0.01] * 16, [0.3] * 16, [0.01] * 8 + [0.02] * 8, [0.05, 0.2, 0.5] * 5,
+                               [0.001 * (k + 1) for k in range(12)], [0.02] * 24])
+def test_waiting_time_against_exact_rational_arithmetic(q: list[float]) -> None:
+    """Inclusion-exclusion (Shchukin, Schmidt & van Loock 2019, generalised to unequal links) in
+    exact rational arithmetic on the binary values of q (fractions.Fraction, common practice for
+    a reference free of rounding): the float sum, which groups equal links, is within 1e-12 also
+    where the 2^n alternating terms cancel heavily (16 equal links of 0.01); a 24-hop chain goes to
+    the series sum_t P(N > t), which must agree as well."""
+    from collections import Counter
+    from fractions import Fraction
+
+    groups = Counter(Fraction(x) for x in q)
+    exact = Fraction(0)
+    for counts in itertools.product(*(range(m + 1) for m in groups.values())):
+        k = sum(counts)
+        if k:
+            ways = math.prod(math.comb(m, c) for m, c in zip(groups.values(), counts))
+            none = math.prod((1 - v) ** c for v, c in zip(groups, counts))
+            exact += (-1) ** (k + 1) * ways / (1 - none)
+    assert expected_rounds(q) == pytest.approx(float(exact), rel=1e-12)

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import heapq
 import itertools
+from collections import Counter
 import math
 from collections.abc import Collection, Sequence
 from typing import TYPE_CHECKING
@@ -31,7 +32,7 @@ __all__ = [
     "werner_parameter",
 ]
 
-#: Beyond this many hops the exact inclusion-exclusion sum (2^n terms) gives way to a series.
+#: Beyond this many hops the exact inclusion-exclusion sum gives way to a series.
 _MAX_EXACT_HOPS = 16
 
 
@@ -59,14 +60,21 @@ def expected_rounds(probabilities: Sequence[float]) -> float:
         return math.inf
     if any(x >= 1.0 for x in q):
         return expected_rounds([x for x in q if x < 1.0]) if any(x < 1.0 for x in q) else 1.0
-    if len(q) > _MAX_EXACT_HOPS:
+    # equal probabilities are summed together: a subset is then k_j hops of each distinct value
+    # v_j (C(m_j, k_j) ways), so the sum has prod (m_j + 1) - 1 terms instead of 2^n - 1 (n + 1
+    # for a uniform chain, Shchukin et al.'s form) and cancels less
+    if len(q) > _MAX_EXACT_HOPS:  # the alternating terms (up to C(n, n/2) each) would cancel too much
         return _expected_rounds_series(q)
-    logs = [math.log1p(-x) for x in q]
+    groups = sorted(Counter(math.log1p(-x) for x in q).items())
     total = 0.0
-    for k in range(1, len(q) + 1):
-        sign = 1.0 if k % 2 else -1.0
-        for subset in itertools.combinations(logs, k):
-            total += sign / -math.expm1(sum(subset))  # 1 - prod(1 - q_i), accurate for small q
+    for counts in itertools.product(*(range(m + 1) for _, m in groups)):
+        k = sum(counts)
+        if k == 0:
+            continue
+        ways = math.prod(math.comb(m, c) for (_, m), c in zip(groups, counts))
+        log_none = sum(c * log for (log, _), c in zip(groups, counts))
+        # 1 - prod(1 - q_i) over the subset, accurate for small q
+        total += (1.0 if k % 2 else -1.0) * ways / -math.expm1(log_none)
     return total
 
 
