@@ -112,3 +112,32 @@ def assert_agrees_with_record(result: Any, ref: dict[str, Any], z: float,
         old = ref["links"][link["link"]]
         link_tol = tol if link_tolerance is None else link_tolerance(link, tol, max(rel_rate))
         assert abs(link["utilisation"] - old) <= link_tol * max(old, 1e-3), (link["link"], link["utilisation"], old)
+
+
+def qutip_swap(rho_1: np.ndarray, rho_2: np.ndarray, gate_error: float = 0.0) -> np.ndarray:
+    """QuTiP reference for the entanglement swap of pairs (A, B1) and (B2, C): project (B1, B2) on
+    each Bell state, apply the Pauli correction on C (Phi+ I, Phi- Z, Psi+ X, Psi- Y), trace out
+    B1 B2 and sum the outcomes (Zukowski et al., PRL 71, 4287 (1993)). ``gate_error`` q first
+    depolarizes (B1, B2) as the average of the sixteen two-qubit Paulis (rho -> (1 - q) rho +
+    q/16 sum_P P rho P, which is (1 - q) rho + q I/4 (x) tr_{B1 B2} rho; Nielsen & Chuang 2010,
+    Sec. 8.3.4, memory)."""
+    import qutip
+
+    from netsim import qinfo
+
+    paulis = [qutip.qeye(2), qutip.sigmaz(), qutip.sigmax(), qutip.sigmay()]
+    dims = [[2, 2], [2, 2]]
+    total = qutip.tensor(qutip.Qobj(rho_1, dims=dims), qutip.Qobj(rho_2, dims=dims))  # A, B1, B2, C
+    if gate_error > 0:
+        twirled = 0
+        for p1 in paulis:
+            for p2 in paulis:
+                op = qutip.tensor(qutip.qeye(2), p1, p2, qutip.qeye(2))
+                twirled = twirled + op * total * op.dag() / 16
+        total = (1 - gate_error) * total + gate_error * twirled
+    out = 0
+    for name, pauli in zip(["phi+", "phi-", "psi+", "psi-"], paulis):
+        proj = qutip.tensor(qutip.qeye(2), qutip.Qobj(qinfo.bell_state(name), dims=dims), qutip.qeye(2))
+        fix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), pauli)
+        out = out + (fix * proj * total * proj * fix.dag()).ptrace([0, 3])
+    return out.full()

@@ -6,26 +6,13 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import qutip
-from conftest import assert_probability, assert_valid_state
+from conftest import assert_probability, assert_valid_state, qutip_swap
 
 from netsim import qinfo
 from netsim.errors import ParameterError
 from netsim.qinfo.states import random_density_matrices
 
-_PAULI = [qutip.qeye(2), qutip.sigmaz(), qutip.sigmax(), qutip.sigmay()]
 _BELL = ["phi+", "phi-", "psi+", "psi-"]
-
-
-def _qutip_swap(rho_1: np.ndarray, rho_2: np.ndarray) -> np.ndarray:
-    """Reference: project (B1, B2) onto each Bell state, correct C, trace out B1 B2, sum outcomes."""
-    dims = [[2, 2], [2, 2]]
-    total = qutip.tensor(qutip.Qobj(rho_1, dims=dims), qutip.Qobj(rho_2, dims=dims))  # A, B1, B2, C
-    out = 0
-    for name, pauli in zip(_BELL, _PAULI):
-        proj = qutip.tensor(qutip.qeye(2), qutip.Qobj(qinfo.bell_state(name), dims=dims), qutip.qeye(2))
-        fix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), pauli)
-        out = out + (fix * proj * total * proj * fix.dag()).ptrace([0, 3])
-    return out.full()
 
 
 def test_swap_matches_qutip_circuit_on_random_states() -> None:
@@ -33,7 +20,7 @@ def test_swap_matches_qutip_circuit_on_random_states() -> None:
     a = random_density_matrices(4, 4, seed=40)
     b = random_density_matrices(4, 4, seed=41)
     ours = qinfo.entanglement_swap(a, b)
-    ref = np.stack([_qutip_swap(x, y) for x, y in zip(a, b)])
+    ref = np.stack([qutip_swap(x, y) for x, y in zip(a, b)])
     np.testing.assert_allclose(ours, ref, atol=1e-13)
     assert_valid_state(ours)
 
@@ -53,26 +40,6 @@ def test_swap_gate_error_depolarizes_the_output() -> None:
         qinfo.entanglement_swap(qinfo.werner_state(0.9), qinfo.werner_state(0.8), bsm_depolarizing=2)
 
 
-def _qutip_noisy_swap(rho_1: np.ndarray, rho_2: np.ndarray, q: float) -> np.ndarray:
-    """Reference with the gate error: depolarize (B1, B2) with probability q as the average of the
-    sixteen two-qubit Paulis (rho -> (1 - q) rho + q/16 sum_P P rho P, which is (1 - q) rho +
-    q I/4 (x) tr_{B1 B2} rho; Nielsen & Chuang 2010, Sec. 8.3.4, memory), then the ideal swap."""
-    dims = [[2, 2], [2, 2]]
-    total = qutip.tensor(qutip.Qobj(rho_1, dims=dims), qutip.Qobj(rho_2, dims=dims))  # A, B1, B2, C
-    twirled = 0
-    for p1 in _PAULI:
-        for p2 in _PAULI:
-            op = qutip.tensor(qutip.qeye(2), p1, p2, qutip.qeye(2))
-            twirled = twirled + op * total * op.dag() / 16
-    noisy = (1 - q) * total + q * twirled
-    out = 0
-    for name, pauli in zip(_BELL, _PAULI):
-        proj = qutip.tensor(qutip.qeye(2), qutip.Qobj(qinfo.bell_state(name), dims=dims), qutip.qeye(2))
-        fix = qutip.tensor(qutip.qeye(2), qutip.qeye(2), qutip.qeye(2), pauli)
-        out = out + (fix * proj * noisy * proj * fix.dag()).ptrace([0, 3])
-    return out.full()
-
-
 def _bell_diagonal(weights: tuple[float, float, float, float]) -> np.ndarray:
     return sum(w * qinfo.bell_state(name) for w, name in zip(weights, _BELL))
 
@@ -88,7 +55,7 @@ def test_swap_gate_error_matches_qutip_on_non_werner_states(q: float) -> None:
     seconds += list(random_density_matrices(3, 4, seed=43))
     for x, y in zip(firsts, seconds):
         ours = qinfo.entanglement_swap(x, y, bsm_depolarizing=q)
-        np.testing.assert_allclose(ours, _qutip_noisy_swap(x, y, q), atol=1e-13)
+        np.testing.assert_allclose(ours, qutip_swap(x, y, q), atol=1e-13)
         assert_valid_state(ours)
 
 

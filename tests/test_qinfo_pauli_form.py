@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 import pytest
+from conftest import qutip_swap
 
 from netsim import qinfo
 from netsim.qinfo import pauli_form
@@ -74,25 +75,11 @@ def test_chain_equals_swaps_one_by_one_on_generic_states() -> None:
 
 
 def test_swap_matches_an_explicit_qutip_bell_measurement() -> None:
-    """One swap in Pauli form against QuTiP: pairs (A, B1) and (B2, C), projectors on the four Bell
-    states of (B1, B2), the Pauli correction on C (Phi+ I, Phi- Z, Psi+ X, Psi- Y), outcomes
-    summed (Zukowski et al., PRL 71, 4287 (1993))."""
-    import qutip
-
+    """One swap in Pauli form against QuTiP's explicit Bell measurement with Pauli corrections
+    (conftest.qutip_swap)."""
     rho_1, rho_2 = random_density_matrices(2, 4, seed=9)
-    joint = qutip.tensor(qutip.Qobj(rho_1, dims=[[2, 2], [2, 2]]), qutip.Qobj(rho_2, dims=[[2, 2], [2, 2]]))
-    i2 = qutip.qeye(2)
-    # qutip.bell_state labels: "00" Phi+, "01" Phi-, "10" Psi+, "11" Psi-
-    corrections = {"00": i2, "01": qutip.sigmaz(), "10": qutip.sigmax(), "11": qutip.sigmay()}
-    want = 0
-    for label, fix in corrections.items():
-        bell = qutip.ket2dm(qutip.bell_state(label))
-        projected = qutip.tensor(i2, bell, i2) * joint * qutip.tensor(i2, bell, i2)
-        kept = projected.ptrace([0, 3])
-        correction = qutip.tensor(i2, fix)
-        want = want + correction * kept * correction.dag()
     zeros = np.zeros((1, 2))
     forms = [pauli_form.to_pauli(rho_1), pauli_form.to_pauli(rho_2)]
     got = pauli_form.from_pauli(pauli_form.chain_states(forms, zeros, zeros + 1, zeros, zeros + 1, [0.0]))[0]
-    np.testing.assert_allclose(got, want.full(), atol=1e-12)
+    np.testing.assert_allclose(got, qutip_swap(rho_1, rho_2), atol=1e-12)
     assert math.isclose(float(np.real(np.trace(got))), 1.0, abs_tol=1e-12)
