@@ -189,3 +189,51 @@ def test_batched_attempt_counts_equal_the_one_by_one_count() -> None:
     batched = sim.attempts_many("X", np.array(seqs), after, until)
     one_by_one = [sim.attempts_at("X", a, u) for a, u in zip(after, until)]
     assert batched.tolist() == one_by_one and sum(one_by_one) > 0
+
+
+def test_purification_step_attempt_counts_equal_the_batched_count() -> None:
+    """A purification step counts a site's attempts itself: sequences logged since the last read
+    where they lie, short stretches of the filed log one by one (des._rounds_in), long ones with
+    rounds_between. Every path must give the batched count of attempts_many over the whole log
+    filed at once, exactly (integer arithmetic on the logged rounds, common practice), here on
+    windows that open exactly at a round and on logs split between filed, recent and pending."""
+    from netsim.engine import DesOptions
+    from netsim.engine import des as des_module
+    from netsim.engine.chain import line_chain
+    from netsim.engine.des import _Des, _rounds_in
+    from netsim.engine.history import rounds_between
+
+    rng = np.random.default_rng(21)
+    starts = rng.uniform(0, 20, 500)  # about 25 sequences per second: short windows meet a few
+    periods = rng.choice([1e-3, 3e-3], 500)
+    rounds = rng.integers(1, 60, 500).astype(float)
+    after = np.concatenate([starts[:50] + periods[:50] * rng.integers(0, 5, 50), rng.uniform(0, 20, 150)])
+    until = after + np.where(np.arange(200) % 2, rng.exponential(0.02, 200), rng.exponential(3.0, 200))
+    for a, u in zip(after[:60], until[:60]):
+        assert [_rounds_in(s, p, k, a, u) for s, p, k in zip(starts, periods, rounds)] == \
+            rounds_between(starts, periods, rounds, a, u).astype(int).tolist()
+
+    def fresh() -> _Des:
+        sim = _Des([line_chain(1, 0.5, 1e-3)], [np.random.default_rng(1)], {"N0": 1, "N1": 1}, [StopRule(pairs=1)],
+                   DesOptions())
+        sim.sequences = {"X": np.zeros((0, 3)), "Y": np.zeros((0, 3))}
+        sim.recent = {"X": np.zeros((0, 3)), "Y": np.zeros((0, 3))}
+        sim.longest_s = {"X": 0.0, "Y": 0.0}
+        sim.end_sets = [("X",), ("Y",)]
+        sim.site_end_sets = {"X": {0}, "Y": {1}}
+        return sim
+
+    whole = fresh()
+    for s, p, k in zip(starts, periods, rounds):
+        whole.new_sequences += (float(s), float(p), int(k), 0)
+    batched = whole.attempts_many("X", whole.sorted_log("X"), after, until)
+    split = fresh()
+    order = rng.permutation(500)
+    for n, j in enumerate(order):
+        split.new_sequences += (float(starts[j]), float(periods[j]), int(rounds[j]), 0)
+        split.new_sequences += (float(starts[j]), 1e-3, 5, 1)  # another site's sequence, not counted
+        if n in (300, 470):  # 301 of X's rows merged into the sorted log, 170 more in the recent
+            split.absorb_log(merge=n == 300)  # one; 29 left pending
+    assert 0 < len(split.new_sequences) <= 4 * des_module.PENDING_SCAN  # counted where they lie
+    one_by_one = [split.attempts_at("X", a, u) for a, u in zip(after, until)]
+    assert one_by_one == batched.astype(int).tolist() and sum(one_by_one) > 0
