@@ -101,17 +101,10 @@ def pair_states(chain: Chain, hist: History) -> NDArray[np.complex128]:
     if len(hist) == 0:
         return np.zeros((0, 4, 4), dtype=complex)
     n = chain.n_hops
-    t1 = np.array([float(s.t1_s) for s in chain.sites])
-    t2 = np.array([float(s.t2_s) for s in chain.sites])
-    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
-        gl, cl = -np.expm1(-hist.store_left_s / t1[:-1]), np.exp(-hist.store_left_s / t2[:-1])
-        gr, cr = -np.expm1(-hist.store_right_s / t1[1:]), np.exp(-hist.store_right_s / t2[1:])
-    for i in range(n):
-        left, right = chain.sites[i], chain.sites[i + 1]
-        if left.attempt_dephasing > 0 and hist.attempts_left is not None:
-            cl[:, i] *= (1.0 - left.attempt_dephasing) ** hist.attempts_left[:, i]
-        if right.attempt_dephasing > 0 and hist.attempts_right is not None:
-            cr[:, i] *= (1.0 - right.attempt_dephasing) ** hist.attempts_right[:, i]
+    gl, cl, gr, cr = pauli_form.chain_decay(
+        hist.store_left_s, hist.store_right_s, np.array([float(s.t1_s) for s in chain.sites]),
+        np.array([float(s.t2_s) for s in chain.sites]), np.array([float(s.attempt_dephasing) for s in chain.sites]),
+        hist.attempts_left, hist.attempts_right)
     forms = [_hop_forms(chain, hist, i) for i in range(n)]
     gate_errors = [float(chain.sites[i].gate_error) for i in range(1, n)]
     return pauli_form.from_pauli(pauli_form.chain_states(forms, gl, cl, gr, cr, gate_errors))

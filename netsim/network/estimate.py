@@ -100,7 +100,7 @@ from netsim.network.cutoff import sample_cycles
 from netsim.network.routing import Hop, register_policy, route_hops
 from netsim.network.workload import route_work
 from netsim.qinfo.channels import decoherence_factors
-from netsim.qinfo.pauli_form import SWAP_SIGN, chain_states, correlations, decayed, from_pauli, to_pauli
+from netsim.qinfo.pauli_form import SWAP_SIGN, chain_decay, chain_states, correlations, decayed, from_pauli, to_pauli
 from netsim.scenario.model import Site
 
 #: Above this many link pairs per delivered pair (:func:`netsim.network.workload.route_work`)
@@ -118,22 +118,20 @@ _PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
 # components by 1 - p.
 
 
-def _all_decay_factors(sites: Sequence[Site], left_s: np.ndarray,
-                       right_s: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def _all_decay_factors(sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
+                       attempts_left: np.ndarray | None = None,
+                       attempts_right: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(gamma, coherence) of every hop's left and right memory after ``left_s``, ``right_s`` (N, n)
-    at once: what qinfo.decohere computes per hop (gamma = 1 - exp(-t/T1), coherence exp(-t/T2)),
-    with its checks (once per site and per array of times)."""
+    at once (:func:`netsim.qinfo.pauli_form.chain_decay`, with the sites' attempt dephasing when
+    attempt counts are given), with qinfo.decohere's checks (once per site and per array of times)."""
     for site in sites:
         decoherence_factors(0.0, site.t1_s, site.t2_s)
     for times in (left_s, right_s):
         bad = ~((times >= 0) & np.isfinite(times))
         if bad.any():
             raise ParameterError("t_s", float(times[bad].flat[0]), "a finite time >= 0 in seconds")
-    t1 = np.array([float(s.t1_s) for s in sites])
-    t2 = np.array([float(s.t2_s) for s in sites])
-    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
-        return (-np.expm1(-left_s / t1[:-1]), np.exp(-left_s / t2[:-1]),
-                -np.expm1(-right_s / t1[1:]), np.exp(-right_s / t2[1:]))
+    return chain_decay(left_s, right_s, np.array([float(s.t1_s) for s in sites]), np.array([float(s.t2_s) for s in sites]),
+                       np.array([float(s.attempt_dephasing) for s in sites]), attempts_left, attempts_right)
 
 
 def _depolarized(r: np.ndarray, site: Site, qubit: int) -> np.ndarray:
@@ -372,15 +370,9 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     first hop's decayed pair with its columns scaled by the later hops' kept correlations).
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
-    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s)
-    forms = []
-    for i, hop in enumerate(hops):
-        left, right = sites[i], sites[i + 1]
-        forms.append(_depolarized(_depolarized(to_pauli(hop.physics.state), left, 0), right, 1))
-        if left.attempt_dephasing > 0:
-            coh_l[:, i] = coh_l[:, i] * (1.0 - float(left.attempt_dephasing)) ** attempts_left[:, i]
-        if right.attempt_dephasing > 0:
-            coh_r[:, i] = coh_r[:, i] * (1.0 - float(right.attempt_dephasing)) ** attempts_right[:, i]
+    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s, attempts_left, attempts_right)
+    forms = [_depolarized(_depolarized(to_pauli(hop.physics.state), sites[i], 0), sites[i + 1], 1)
+             for i, hop in enumerate(hops)]
     states = chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]])
     return from_pauli(states) if per_cycle else from_pauli(states.mean(axis=0))
 

@@ -32,7 +32,7 @@ from __future__ import annotations
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["SWAP_SIGN", "chain_states", "correlations", "decayed", "fidelity", "from_pauli", "to_pauli"]
+__all__ = ["SWAP_SIGN", "chain_decay", "chain_states", "correlations", "decayed", "fidelity", "from_pauli", "to_pauli"]
 
 _PAULI = np.array([[[1, 0], [0, 1]], [[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]], dtype=complex)
 #: _PAULI_PAIRS[a, b] = P_a (x) P_b (4 x 4)
@@ -81,6 +81,27 @@ def correlations(r: NDArray[np.complex128], gl: NDArray[np.float64], cl: NDArray
     out[:, 2] = (gl * gr * r[..., 0, 0] + gl * (1.0 - gr) * r[..., 0, 3] + (1.0 - gl) * gr * r[..., 3, 0]
                  + (1.0 - gl) * (1.0 - gr) * r[..., 3, 3])
     return out
+
+
+def chain_decay(left_s: NDArray[np.float64], right_s: NDArray[np.float64], t1_s: NDArray[np.float64],
+                t2_s: NDArray[np.float64], dephasing: NDArray[np.float64] | None = None,
+                attempts_left: NDArray[np.float64] | None = None, attempts_right: NDArray[np.float64] | None = None,
+                ) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """(gl, cl, gr, cr), each (N, n): the memory decay of every hop's left and right qubit, as
+    :func:`chain_states` takes it, after storage times ``left_s``, ``right_s`` (N, n) at sites
+    with ``t1_s``, ``t2_s`` (n + 1,): gamma = 1 - exp(-t/T1), coherence exp(-t/T2) (no checks).
+    ``dephasing`` (n + 1,): a site's attempt dephasing a multiplies a waiting qubit's coherence
+    by (1 - a)^k for the k attempts counted in ``attempts_left`` / ``attempts_right`` (N, n)."""
+    with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
+        gl, cl = -np.expm1(-left_s / t1_s[:-1]), np.exp(-left_s / t2_s[:-1])
+        gr, cr = -np.expm1(-right_s / t1_s[1:]), np.exp(-right_s / t2_s[1:])
+    if dephasing is not None:
+        for i in range(left_s.shape[1]):
+            if dephasing[i] > 0 and attempts_left is not None:
+                cl[:, i] *= (1.0 - dephasing[i]) ** attempts_left[:, i]
+            if dephasing[i + 1] > 0 and attempts_right is not None:
+                cr[:, i] *= (1.0 - dephasing[i + 1]) ** attempts_right[:, i]
+    return gl, cl, gr, cr
 
 
 def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], cl: NDArray[np.float64],
