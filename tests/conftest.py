@@ -31,6 +31,12 @@ if os.environ.get("CI"):
     settings.load_profile("ci")
 
 
+def pytest_report_header() -> str:
+    from netsim.engine import BUILD
+
+    return f"netsim event engine: {BUILD} (netsim/engine/build.py)"
+
+
 def assert_valid_state(rho: Any, atol: float = 1e-10) -> None:
     """Fail unless every state in the batch is Hermitian, positive semidefinite, of trace 1.
 

@@ -239,9 +239,12 @@ def test_pruning_the_attempt_log_changes_nothing(monkeypatch: pytest.MonkeyPatch
     """The event engine forgets attempt sequences older than every stored qubit; pruning after every
     few deliveries must give exactly the numbers of a run that keeps them all (same seed). Two
     demands share a dephasing hub, so one flushes while the other holds qubits there, and
-    purification stacks hold qubits too (invariant of the implementation)."""
+    purification stacks hold qubits too (invariant of the implementation). The patches need the
+    plain-Python engine: a compiled module reads its own constants and methods."""
     from netsim.engine import DesOptions
-    from netsim.engine import des as des_module
+    from netsim.engine.build import plain_engine
+
+    des_module = plain_engine()
 
     def site(name: str, role: str) -> Site:
         return Site(name, role, memory_slots=8 if role == "repeater" else 2, t1_s=1.0, t2_s=0.5,  # type: ignore[arg-type]
@@ -254,8 +257,8 @@ def test_pruning_the_attempt_log_changes_nothing(monkeypatch: pytest.MonkeyPatch
     options = DesOptions(purification="bbpssw", purification_rounds=1)
 
     def fidelity_sums() -> list[float]:
-        runs, _ = simulate_des(chains, StopRule(pairs=100), [np.random.default_rng(9), np.random.default_rng(10)],
-                               options)
+        runs, _ = des_module.simulate_des(chains, StopRule(pairs=100),
+                                          [np.random.default_rng(9), np.random.default_rng(10)], options)
         return [float(r.metrics.sum_fidelity) for r in runs]
 
     kept = fidelity_sums()

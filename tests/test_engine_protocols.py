@@ -235,14 +235,16 @@ def test_no_demand_starves_between_two_busy_neighbours() -> None:
 
 def test_batched_flushing_does_not_change_results(monkeypatch: pytest.MonkeyPatch) -> None:
     # The event engine turns histories into states in batches to bound memory; the batch size
-    # must not change any figure (same seed, same numbers).
-    from netsim.engine import des
+    # must not change any figure (same seed, same numbers). The patch needs the plain-Python
+    # engine: a compiled module reads its own constants.
+    from netsim.engine.build import plain_engine
 
+    des = plain_engine()
     chain = line_chain(2, 0.2, 1e-3, qinfo.werner_state(0.9), t1_s=0.5, t2_s=0.2, length_km=5.0)
 
     def figures() -> tuple[float, ...]:
-        (run,), _ = simulate_des([chain], StopRule(pairs=300), [np.random.default_rng(3)],
-                                 DesOptions(cutoff_s=5e-3))
+        (run,), _ = des.simulate_des([chain], StopRule(pairs=300), [np.random.default_rng(3)],
+                                     DesOptions(cutoff_s=5e-3))
         m = run.metrics
         return (m.n, m.sum_fidelity, m.sum_eof, run.simulated_time_s, *run.site_qubit_s)
 

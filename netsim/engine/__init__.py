@@ -8,6 +8,8 @@ for the fast path, :mod:`netsim.engine.history` for the batched state algebra,
 :mod:`netsim.engine.ensemble` for qubit ensembles.
 """
 
+# first: choosing the compiled or the plain event engine must precede importing it (build.py)
+from netsim.engine.build import BUILD
 from netsim.engine.api import chains_from_scenario, simulate, stop_rule
 from netsim.engine.api import run as run
 from netsim.engine.chain import Chain, HopSpec, synthetic_physics
@@ -18,6 +20,6 @@ from netsim.engine.metrics import ChainRun, StopRule
 from netsim.engine.result import RunResult
 from netsim.engine.vector import simulate_chain_vector
 
-__all__ = ["Chain", "ChainRun", "DesOptions", "EnsembleResult", "History", "HopSpec", "RunResult", "StopRule",
+__all__ = ["BUILD", "Chain", "ChainRun", "DesOptions", "EnsembleResult", "History", "HopSpec", "RunResult", "StopRule",
            "chains_from_scenario", "pair_states", "run", "send_ensemble", "simulate", "simulate_chain_vector",
            "simulate_des", "stop_rule", "synthetic_physics"]

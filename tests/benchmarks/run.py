@@ -111,8 +111,10 @@ def table_text(records: list[dict[str, Any]]) -> str:
     columns = [Column("name", "figure"), Column("value", "value", 4), Column("unit", "unit"),
                Column("target", "target", 4), Column("met", "met?"), Column("ratio", "ratio", 3),
                Column("engine", "engine"), Column("baseline", "baseline")]
+    from netsim.engine import BUILD
+
     rows = [{"engine": "", **r, "met": met(r)} for r in records]
-    return render(Table("Benchmarks (one core)", columns, rows), "table")
+    return render(Table(f"Benchmarks (one core; event engine {BUILD})", columns, rows), "table")
 
 
 def merge_results(records: list[dict[str, Any]], path: Path = RESULTS) -> dict[str, Any]:
@@ -124,8 +126,10 @@ def merge_results(records: list[dict[str, Any]], path: Path = RESULTS) -> dict[s
     stamp = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
     for r in records:
         figures[r["name"]] = {**r, "met": met(r), "measured_at": stamp}
+    from netsim.engine import BUILD
+
     data = {"machine": {"python": platform.python_version(), "platform": platform.platform(),
-                        "processor": platform.processor() or platform.machine()},
+                        "processor": platform.processor() or platform.machine(), "event_engine": BUILD},
             "updated_at": stamp, "figures": dict(sorted(figures.items()))}
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(json.dumps(data, indent=2) + "\n")

@@ -1,0 +1,143 @@
+"""The compiled event engine against its plain-Python source, and the choice between them.
+
+``pip install`` compiles netsim/engine/des.py and policies.py with mypyc (netsim/_build/backend.py);
+the plain sources are the reference. Both must give the same numbers to the last bit on the same
+seeds: whole runs of bundled and generated networks (contention, shared fibres, communication
+qubits, memory transfer, attempt dephasing, cut-offs, purification) and every link pair's
+timeline. These comparisons run where the compiled build is installed and always under CI (whose
+install must build it); elsewhere they are skipped, since plain against plain would prove nothing.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import json
+import os
+import shutil
+import subprocess
+import sys
+import tomllib
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+
+from netsim import qinfo
+from netsim.engine import BUILD, Chain, DesOptions, HopSpec, StopRule, api
+from netsim.engine import des as des_in_use
+from netsim.engine.build import compiled_present, plain_engine, source_digest
+from netsim.engine.chain import synthetic_physics
+from netsim.scenario import load, load_data
+from netsim.scenario.model import Site
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT / "tests" / "benchmarks"))
+from metro import grid_metro, metro_scenario  # noqa: E402
+
+#: skipped where the compiled build is absent, except under CI, whose install must have built it
+#: (the build falls back to plain Python silently; this makes CI notice)
+compiled_only = pytest.mark.skipif(BUILD != "compiled" and not os.environ.get("CI"),
+                                   reason="the compiled engine is not installed here "
+                                   "(pip install -e . builds it where a C compiler is present)")
+NODE_PHYSICS = {"communication_qubits": 1, "memory_transfer_s": 1e-4, "memory_transfer_error": 0.01,
+                "attempt_dephasing": 1e-3}
+
+
+def _purified(path: Path, method: str) -> Any:
+    data = tomllib.loads(path.read_text())
+    data["protocol"].update(purification=method, purification_rounds=1)
+    return load_data(data, source=str(path))
+
+
+def _networks() -> dict[str, Any]:
+    return {
+        "vellmoor-mesh": load(ROOT / "scenarios" / "vellmoor-mesh.toml"),
+        "vellmoor-mesh-dejmps": _purified(ROOT / "scenarios" / "vellmoor-mesh.toml", "dejmps"),
+        "chain3-bbpssw": _purified(ROOT / "scenarios" / "chain3.toml", "bbpssw"),
+        "grid-4x4-node-physics": metro_scenario(grid_metro(4, 4, 8, 2, seed=3, physics=NODE_PHYSICS)),
+    }
+
+
+@compiled_only
+@pytest.mark.parametrize("name", list(_networks()))
+def test_compiled_engine_runs_exactly_as_its_source(name: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    scenario = _networks()[name]
+    assert des_in_use.__file__ is not None and not des_in_use.__file__.endswith(".py")
+
+    def result() -> str:
+        out = api.run(scenario, pairs=60, seed=7, ensembles=False)
+        assert all(d["engine"] == "des" for d in out.demands)  # the event engine ran, not the closed form
+        return json.dumps(out.to_dict(), sort_keys=True)
+
+    compiled = result()
+    monkeypatch.setattr(api, "simulate_des", plain_engine().simulate_des)
+    assert result() == compiled
+
+
+@compiled_only
+@pytest.mark.parametrize("purification", ["none", "dejmps"])
+def test_compiled_engine_makes_the_same_link_pairs(purification: str) -> None:
+    # Two demands through one hub with dephasing attempts, a lossy Bell measurement there, a
+    # cut-off, with and without purification: every heralded link pair (hop, times, fate) and
+    # every figure is the same in both builds.
+    def site(name: str, role: str) -> Site:
+        return Site(name, role, memory_slots=4 if role == "repeater" else 2, t1_s=1.0, t2_s=0.5,  # type: ignore[arg-type]
+                    attempt_dephasing=0.01, communication_qubits=1, bsm_success_probability=0.7)
+
+    hub, ends = site("Fenwick Hub", "repeater"), [site(n, "user") for n in ("Gale", "Holm", "Irby", "Jessop")]
+    hop = synthetic_physics(0.1, 1e-4, qinfo.werner_state(0.9))
+    chains = [Chain("Gale-Irby", (ends[0], hub, ends[2]), (HopSpec("g", hop), HopSpec("i", hop)), index=0),
+              Chain("Holm-Jessop", (ends[1], hub, ends[3]), (HopSpec("h", hop), HopSpec("j", hop)), index=1)]
+    options = DesOptions(purification=purification, purification_rounds=1, cutoff_s=1.5e-3, log_pairs=True)
+
+    def timelines(module: Any) -> tuple[list[Any], list[Any]]:
+        runs, logs = module.simulate_des(chains, StopRule(pairs=150),
+                                         [np.random.default_rng(5), np.random.default_rng(6)], options)
+        figures = [(r.metrics.n, r.metrics.sum_fidelity, r.metrics.sum_eof, r.simulated_time_s,
+                    r.hop_attempts.tolist(), r.swap_failures.tolist(), r.site_qubit_s.tolist()) for r in runs]
+        pairs = [[(p.hop, p.start, p.herald, list(p.end), p.fate) for p in log] for log in logs]
+        return figures, pairs
+
+    compiled = timelines(des_in_use)
+    assert sum(len(log) for log in compiled[1]) > 500
+    assert all(f[5][1] > 10 for f in compiled[0])  # failed swaps at the hub
+    fates = {p[4] for log in compiled[1] for p in log}
+    assert fates == ({"swapped", "swap_failed", "discarded"} if purification == "none" else {""})
+    assert json.dumps(timelines(plain_engine())) == json.dumps(compiled)  # NaN (never ended) equals NaN here
+
+
+def _build_in(tree: Path, env: dict[str, str] | None = None) -> list[str]:
+    out = subprocess.run([sys.executable, "-c", "import netsim.engine as e, netsim.engine.des as d, "
+                          "netsim.engine.policies as p; print(e.BUILD, d.__file__, p.__file__)"],
+                         cwd=tree, env={**os.environ, "PYTHONPATH": str(tree), **(env or {})},
+                         capture_output=True, text=True, check=True)
+    return out.stdout.split()
+
+
+@pytest.mark.skipif(not compiled_present(), reason="no compiled engine installed here")
+def test_edited_sources_run_as_plain_python(tmp_path: Path) -> None:
+    # A compiled module wins over its source at import: after an edit of des.py the compiled file
+    # no longer matches its recorded digest and the plain sources must run instead.
+    package = Path(des_in_use.__file__).resolve().parents[2]
+    tree = tmp_path / "tree"
+    shutil.copytree(package / "netsim", tree / "netsim", ignore=shutil.ignore_patterns("__pycache__"))
+    assert _build_in(tree)[0] == "compiled"
+    build, des_file, policies_file = _build_in(tree, {"NETSIM_PURE_PYTHON": "1"})
+    assert (build, des_file.endswith("des.py"), policies_file.endswith("policies.py")) == ("python", True, True)
+    source = tree / "netsim" / "engine" / "des.py"
+    source.write_text(source.read_text() + "\n# an edit\n")
+    build, des_file, policies_file = _build_in(tree)
+    assert (build, des_file.endswith("des.py"), policies_file.endswith("policies.py")) == ("python", True, True)
+
+
+def test_build_backend_digests_the_same_sources() -> None:
+    # The build backend records the digest that netsim.engine.build checks: the two must hash the
+    # same files in the same order.
+    spec = importlib.util.spec_from_file_location("netsim_build_backend", ROOT / "netsim" / "_build" / "backend.py")
+    assert spec is not None and spec.loader is not None
+    backend = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(backend)
+    assert backend.source_digest(ROOT) == source_digest()
+    assert [p.replace("/", ".").removesuffix(".py") for p in backend.NATIVE] == ["netsim.engine.policies",
+                                                                                  "netsim.engine.des"]
