@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 
 from netsim import qinfo
-from netsim.engine import BUILD, Chain, DesOptions, HopSpec, StopRule, api
+from netsim.engine import BUILD, Chain, DesOptions, HopSpec, StopRule, api, simulate_des
 from netsim.engine import des as des_in_use
 from netsim.engine.build import compiled_present, plain_engine, source_digest
 from netsim.engine.chain import synthetic_physics
@@ -141,3 +141,28 @@ def test_build_backend_digests_the_same_sources() -> None:
     assert backend.source_digest(ROOT) == source_digest()
     assert [p.replace("/", ".").removesuffix(".py") for p in backend.NATIVE] == ["netsim.engine.policies",
                                                                                   "netsim.engine.des"]
+
+
+def test_numpy_values_and_tuples_run_as_plain_ones() -> None:
+    # A compiled class checks its declared types exactly (a numpy integer is not an int there);
+    # the engine's entry point takes numpy numbers and any sequences, as plain Python always did,
+    # and gives the same run (invariant of the implementation).
+    chain = line_chain_for_options()
+    plain = simulate_des([chain], StopRule(pairs=40), [np.random.default_rng(2)],
+                         DesOptions(cutoff_s=0.02, purification="bbpssw", purification_rounds=1),
+                         {s.name: 4 for s in chain.sites})
+    numpy_typed = simulate_des((chain,), (StopRule(pairs=40),), (np.random.default_rng(2),),
+                               DesOptions(cutoff_s=np.float64(0.02), purification="bbpssw",
+                                          purification_rounds=np.int64(1), log_pairs=np.bool_(False)),
+                               {s.name: np.int64(4) for s in chain.sites})
+    assert json.dumps(_figures(numpy_typed[0])) == json.dumps(_figures(plain[0]))
+
+
+def line_chain_for_options() -> Chain:
+    from netsim.engine.chain import line_chain
+
+    return line_chain(2, 0.2, 1e-3, qinfo.werner_state(0.9), t1_s=0.5, t2_s=0.2, length_km=5.0)
+
+
+def _figures(runs: list[Any]) -> list[Any]:
+    return [(r.metrics.n, r.metrics.sum_fidelity, r.simulated_time_s, r.hop_attempts.tolist()) for r in runs]

@@ -50,9 +50,8 @@ from __future__ import annotations
 import math
 import operator
 from heapq import heappush
-from collections.abc import Callable
-from dataclasses import dataclass
-from typing import Any
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any, SupportsInt
 
 import numpy as np
 import simpy
@@ -63,10 +62,9 @@ from netsim import qinfo
 from netsim.engine.chain import Chain
 from netsim.engine.history import History, pair_states, rounds_between
 from netsim.engine.metrics import ChainRun, StopRule
+from netsim.engine.options import DesOptions
 from netsim.engine.policies import (
-    SchedulingPolicy,
     SlotBroker,
-    SwapPolicy,
     scheduling_policy,
     swap_policy,
 )
@@ -84,22 +82,6 @@ RECENT_ROWS = 4096
 PENDING_SCAN = 64
 #: Uniform draws are taken from a lane's stream this many at a time.
 UNIFORM_BLOCK = 1024
-
-
-@dataclass(frozen=True)
-class DesOptions:
-    """Protocol choices of an event-engine run (from :class:`netsim.scenario.model.Protocol`)."""
-
-    cutoff_s: float | None = None
-    purification: str = "none"
-    purification_rounds: int = 0
-    scheduling: str | SchedulingPolicy = "fair"
-    swap_policy: str | SwapPolicy = "asap"
-    log_pairs: bool = False
-    #: Safety net: stop with a one-line error after heralding more link pairs than this
-    #: (:mod:`netsim.engine.workload`); ``progress(count)`` is told every 4096 heralded pairs.
-    max_link_pairs: float = math.inf
-    progress: Callable[[int], None] | None = None
 
 
 class _Pair:
@@ -295,16 +277,21 @@ class _Des:
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
                  rules: list[StopRule], options: DesOptions) -> None:
         self.env = simpy.Environment()
-        self.rules, self.opt = rules, options
+        # read untyped and converted: the compiled build would check each field's declared type
+        # exactly, and options may hold numpy numbers (options.py)
+        opt: Any = options
+        self.rules = rules
         self.heralds = 0
-        self.log_pairs = options.log_pairs
-        self.cutoff = math.inf if options.cutoff_s is None else float(options.cutoff_s)
-        self.rounds = int(options.purification_rounds) if options.purification != "none" else 0
+        self.log_pairs = bool(opt.log_pairs)
+        self.max_link_pairs = float(opt.max_link_pairs)
+        self.progress: Callable[[int], None] | None = opt.progress
+        self.cutoff = math.inf if opt.cutoff_s is None else float(opt.cutoff_s)
+        self.rounds = int(opt.purification_rounds) if opt.purification != "none" else 0
         self.purify: Callable[..., Any] | None = (
-            qinfo.purify_dejmps if options.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
-        self.swapping = swap_policy(options.swap_policy)
+            qinfo.purify_dejmps if opt.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
+        self.swapping = swap_policy(opt.swap_policy)
         self.asap = self.swapping.name == "asap"
-        self.broker = SlotBroker(capacity, scheduling_policy(options.scheduling), lambda: self.env.now)
+        self.broker = SlotBroker(capacity, scheduling_policy(opt.scheduling), lambda: self.env.now)
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         for k, lane in enumerate(self.lanes):
             lane.position = k  # the order ``demand_order`` scheduling gives priority by
@@ -484,13 +471,13 @@ class _Des:
 
     def guard(self) -> None:
         """Every 4096 heralded link pairs: report progress; stop beyond ``max_link_pairs``."""
-        if self.opt.progress is not None:
-            self.opt.progress(4096)
-        if self.heralds > self.opt.max_link_pairs:
+        if self.progress is not None:
+            self.progress(4096)
+        if self.heralds > self.max_link_pairs:
             from netsim.engine.workload import RunLimitError
 
             raise RunLimitError(f"the event engine stopped after heralding {self.heralds} link pairs, more than "
-                                f"{self.opt.max_link_pairs:.3g} (4 x the larger of --max-link-pairs and the expected work); the run would take far "
+                                f"{self.max_link_pairs:.3g} (4 x the larger of --max-link-pairs and the expected work); the run would take far "
                                 "longer than its estimate: raise --max-link-pairs or ask for fewer pairs")
 
     # -- optical interfaces and attempt counts -------------------------------------------------
@@ -891,21 +878,22 @@ class _Des:
         for site, seqs in self.sequences.items():
             self.sequences[site] = seqs[seqs[:, 0] + (seqs[:, 2] - 1.0) * seqs[:, 1] >= oldest - 1e-9]
 
-def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: list[np.random.Generator],
-                 options: DesOptions | None = None, capacity: dict[str, int] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
+def simulate_des(chains: Sequence[Chain], rule: StopRule | Sequence[StopRule], rngs: Sequence[np.random.Generator],
+                 options: DesOptions | None = None,
+                 capacity: Mapping[str, SupportsInt] | None = None) -> tuple[list[ChainRun], list[list[Any]]]:
     """Run the event engine on demands that may share memory sites.
 
     Parameters
     ----------
-    chains : list of Chain
-    rule : StopRule or list of StopRule (one per chain)
+    chains : sequence of Chain
+    rule : StopRule or sequence of StopRule (one per chain)
         The run goes on until every demand has met its rule (with ``pairs``, demands that are done
         keep running and contending until the last one has its pairs); a demand stopped by
         ``time_s`` reports the pairs delivered by then.
-    rngs : list of numpy.random.Generator
+    rngs : sequence of numpy.random.Generator
         One stream per chain.
     options : DesOptions
-    capacity : dict, optional
+    capacity : mapping, optional
         Memory slots per site name; defaults to each site's ``memory_slots``.
 
     Returns
@@ -915,11 +903,15 @@ def simulate_des(chains: list[Chain], rule: StopRule | list[StopRule], rngs: lis
         ``options.log_pairs`` (each with ``hop``, ``start``, ``herald``, ``end``, ``fate``).
     """
     options = options or DesOptions()
+    # plain lists and ints: the compiled build checks the declared types exactly (build.py)
+    chains, rngs = list(chains), list(rngs)
     if capacity is None:
-        capacity = {s.name: int(s.memory_slots) for c in chains for s in c.sites}
-    rules = rule if isinstance(rule, list) else [rule] * len(chains)
-    sim = _Des(chains, rngs, capacity, rules, options)
-    _check_capacity(sim, capacity)
+        slots = {s.name: int(s.memory_slots) for c in chains for s in c.sites}
+    else:
+        slots = {str(name): int(k) for name, k in capacity.items()}
+    rules = [rule] * len(chains) if isinstance(rule, StopRule) else list(rule)
+    sim = _Des(chains, rngs, slots, rules, options)
+    _check_capacity(sim, slots)
     runs = sim.run()
     stats = sim.broker.stats()
     for r in runs:
