@@ -214,10 +214,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     ids = np.arange(cycles)
     t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
     m = cycles
-    # The per-cycle state, packed so that dropping finished cycles takes a few copies. Single
-    # entries are read and written through flat indices into the packed arrays (much cheaper
-    # than two-axis fancy indexing for the few rows an event touches): entry (row, field, hop)
-    # of per_hop is per_hop.reshape(-1)[row * stride + field * n + hop].
+    # The per-cycle state, packed so that dropping finished cycles takes a few copies; each step
+    # works on whole (rows, hops) planes of it (a few dozen numpy calls per step whatever the
+    # number of rows: the run's tail, where few cycles remain, costs little per step).
     per_hop = np.zeros((m, _PER_HOP, n))
     per_site = np.zeros((m, 2, n + 1))     # swap_t, lost_q
     per_cycle = np.zeros((m, 2))           # now, disc
@@ -227,11 +226,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     per_hop[:, _PRIO] = np.arange(n, dtype=float)
     if offset_s is not None:
         per_hop[:, _NEXT] = np.array(offset_s, dtype=float).reshape(m, n)
-    stride = _PER_HOP * n
     site_stride = 2 * (n + 1)
-    f_born, f_rdy, f_first, f_cur, f_next, f_rounds, f_seqs, f_acc_l, f_acc_r = (
-        f * n for f in (_BORN, _RDY, _FIRST, _CUR, _NEXT, _ROUNDS, _SEQS, _ACC_LEFT, _ACC_RIGHT))
-    any_shared = bool(left_shared.any() or right_shared.any())
+    pair_shared = np.array(shared[: n - 1], dtype=bool)   # the site between hops j and j + 1
+    any_shared = bool(pair_shared.any())
     counter = float(n)
     cols = np.arange(n)
     lower_cols = cols[None, :]
@@ -244,50 +241,80 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
          acc_right) = (per_hop[:, f] for f in range(_PER_HOP))
         swap_t, lost_q = per_site[:, 0], per_site[:, 1]
         now, disc = per_cycle[:, 0], per_cycle[:, 1]
-        hop_flat, site_flat, mode_flat = per_hop.reshape(-1), per_site.reshape(-1), mode.reshape(-1)
+        site_flat, mode_flat = per_site.reshape(-1), mode.reshape(-1)
         if len(rows) != m:
             rows = np.arange(m)
             row_n = rows * n
-        # 1. grant waiting requests in request order (rows without a waiting hop take no part)
+        # 1. grant waiting requests in request order (module docstring): a row's waiting hops are
+        # taken one by one by priority; attempt counts are drawn by turn (a row's first waiting
+        # hop, then its second, ...) and row, the order in which a turn-by-turn loop draws them
         pending = mode == _WAIT
-        pending_flat = pending.reshape(-1)
-        waiting = np.flatnonzero(pending.any(axis=1))
-        while len(waiting):
-            i = np.where(pending[waiting], prio[waiting], np.inf).argmin(axis=1)
-            at = waiting * n + i
+        if pending.any():
+            npend = pending.sum(axis=1)
+            turns = int(npend.max())
+            rank = None
+            if turns > 1:
+                order = np.where(pending, prio, np.inf).argsort(axis=1, kind="stable")
+                rank = np.empty((m, n), dtype=np.int64)
+                np.put_along_axis(rank, order, cols[None, :], axis=1)
             if any_shared:
-                # a hop at the row's edge reads its row neighbour's mode here: masked by *_shared
-                go = ~((left_shared[i] & (mode_flat[np.maximum(at - 1, 0)] == _TRY))
-                       | (right_shared[i] & (mode_flat[np.minimum(at + 1, m * n - 1)] == _TRY)))
-                r, h, rh = waiting[go], i[go], at[go]
+                trying = mode == _TRY
+                if rank is not None and (pending[:, :-1] & pending[:, 1:] & pair_shared).any():
+                    # two waiting neighbours at a shared site: the first granted blocks the other
+                    granted = np.zeros((m, n), dtype=bool)
+                    try_flat, granted_flat = trying.reshape(-1), granted.reshape(-1)
+                    for turn in range(turns):
+                        live = np.flatnonzero(npend > turn)
+                        i = order[live, turn]
+                        at = live * n + i
+                        # a hop at the row's edge reads its row neighbour here: masked by *_shared
+                        go = ~((left_shared[i] & try_flat[np.maximum(at - 1, 0)])
+                               | (right_shared[i] & try_flat[np.minimum(at + 1, m * n - 1)]))
+                        at = at[go]
+                        try_flat[at] = True
+                        granted_flat[at] = True
+                else:  # the shared neighbours of a waiting hop keep their mode during the grants
+                    blocked = np.zeros((m, n), dtype=bool)
+                    blocked[:, 1:] = trying[:, :-1] & pair_shared
+                    blocked[:, :-1] |= trying[:, 1:] & pair_shared
+                    granted = pending & ~blocked
             else:
-                r, h, rh = waiting, i, at
+                granted = pending
+            r, h = np.nonzero(granted)
             if len(r):
+                gi = r * n + h
                 if table is not None:
                     used_flat = used.reshape(-1)
-                    k = table.take(t_rows[ids[r]], h, used_flat[rh])
-                    used_flat[rh] += 1
+                    k = table.take(t_rows[ids[r]], h, used_flat[gi])
+                    used_flat[gi] += 1
                 else:
                     assert rng is not None
-                    k = rng.geometric(qa[h])
-                at_h = r * stride + h
-                start = np.maximum(now[r], hop_flat[at_h + f_next])
-                hop_flat[at_h + f_first] = start
-                hop_flat[at_h + f_cur] = k
-                b = start + (k - 1) * ta[h]
-                hop_flat[at_h + f_born] = b
-                hop_flat[at_h + f_rdy] = b + ra[h]
-                hop_flat[at_h + f_next] = b + ta[h]
-                hop_flat[at_h + f_rounds] += k
-                hop_flat[at_h + f_seqs] += 1
-                mode_flat[rh] = _TRY
-                _count_attempts(h, rh, at_h, n, b, start, k, ta, hop_flat, mode_flat)
-            pending_flat[at] = False
-            waiting = waiting[pending[waiting].any(axis=1)]
+                    if rank is None:
+                        k = rng.geometric(qa[h])
+                    else:
+                        turn_order = np.argsort(rank.reshape(-1)[gi], kind="stable")
+                        k = np.empty(len(gi))
+                        k[turn_order] = rng.geometric(qa[h[turn_order]])
+                rounds_k = np.zeros((m, n))
+                rounds_k.reshape(-1)[gi] = k
+                start = np.maximum(now[:, None], next_ok)
+                b = start + (rounds_k - 1) * ta
+                old = None
+                if rank is not None and (granted[:, :-1] & granted[:, 1:]).any():
+                    old = np.stack([first, cur])   # both neighbours granted: the later one sees the other's new sequence
+                np.copyto(first, start, where=granted)
+                np.copyto(cur, rounds_k, where=granted)
+                np.copyto(born, b, where=granted)
+                np.copyto(rdy, b + ra, where=granted)
+                np.copyto(next_ok, b + ta, where=granted)
+                rounds += rounds_k
+                seqs += granted
+                mode[granted] = _TRY
+                _count_attempts(granted, pending, rank, old, first, cur, born, ta, acc_left, acc_right)
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
         hop_r = t_ready.argmin(axis=1)
-        t_r = t_ready.reshape(-1)[row_n + hop_r]
+        t_r = t_ready.min(axis=1)
         held = mode == _HELD
         run_dl = np.where(held, born + cutoff, np.inf)
         for j in range(1, n):  # min over the run to the left ...
@@ -295,7 +322,7 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         for j in range(n - 2, -1, -1):  # ... and to the right
             np.minimum(run_dl[:, j], run_dl[:, j + 1], out=run_dl[:, j], where=held[:, j] & held[:, j + 1])
         hop_d = run_dl.argmin(axis=1)
-        t_d = run_dl.reshape(-1)[row_n + hop_d]
+        t_d = run_dl.min(axis=1)
         is_ready = t_r <= t_d
         np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
         lost = None
@@ -303,17 +330,23 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         r, h = rows[is_ready], hop_r[is_ready]
         rh = r * n + h
         mode_flat[rh] = _HELD
-        for side in (0, 1):
-            ok = h > 0 if side == 0 else h < n - 1
-            ok[ok] = mode_flat[rh[ok] + (-1 if side == 0 else 1)] == _HELD
-            if lost is not None:
-                ok &= ~lost.reshape(-1)[rh]
-            rr = r[ok]
-            if not len(rr):
-                continue
-            ss = h[ok] + side
-            site_flat[rr * site_stride + ss] = now[rr]
-            if not sure:
+        if sure:  # both swaps at once: the swap times are all they change
+            new = np.zeros((m, n), dtype=bool)
+            new.reshape(-1)[rh] = True
+            held_now = mode == _HELD
+            swapped = (new[:, 1:] & held_now[:, :-1]) | (new[:, :-1] & held_now[:, 1:])
+            np.copyto(swap_t[:, 1:n], now[:, None], where=swapped)
+        else:
+            for side in (0, 1):
+                ok = h > 0 if side == 0 else h < n - 1
+                ok[ok] = mode_flat[rh[ok] + (-1 if side == 0 else 1)] == _HELD
+                if lost is not None:
+                    ok &= ~lost.reshape(-1)[rh]
+                rr = r[ok]
+                if not len(rr):
+                    continue
+                ss = h[ok] + side
+                site_flat[rr * site_stride + ss] = now[rr]
                 assert rng is not None
                 fail = rng.random(len(rr)) >= swap_pa[ss]
                 if fail.any():
@@ -327,26 +360,26 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         # 3b. a run reaches its cut-off: its hops request again
         cut = ~is_ready
         if cut.any():
-            rc = rows[cut]
-            if lost is None:
-                lost = np.zeros((m, n), dtype=bool)
-            lost[rc] |= _run_mask(held[rc], hop_d[cut], cols)
-            disc[rc] += 1
+            # the run of held hops around hop_d: held hops with as many gaps before them as hop_d
+            gaps = np.cumsum(~held, axis=1)
+            run = held & (gaps == gaps.reshape(-1)[row_n + hop_d][:, None]) & cut[:, None]
+            lost = run if lost is None else lost | run
+            disc += cut
         if lost is not None:
             lo = np.where(lost, cols, n).min(axis=1)[:, None]
             hi = np.where(lost, cols, -1).max(axis=1)[:, None]
             # qubit-seconds of the lost pairs: to the swap that joined them, or to now at the run's ends
             left_end = np.where(cols > lo, swap_t[:, :n], now[:, None])
             right_end = np.where(cols < hi, swap_t[:, 1:], now[:, None])
-            lost_q[:, :n] += np.where(lost, left_end - born, 0.0)
-            lost_q[:, 1:] += np.where(lost, right_end - born, 0.0)
+            np.add(lost_q[:, :n], left_end - born, out=lost_q[:, :n], where=lost)
+            np.add(lost_q[:, 1:], right_end - born, out=lost_q[:, 1:], where=lost)
             dropped += lost
-            inner = lost & (cols > lo) & (cols < hi)
-            rank = np.where(inner, cols, np.where(cols == lo, n, n + 1))
-            np.copyto(prio, counter + rank, where=lost)
+            # request order: the run's inner hops, then its left end, then its right end
+            rank_lost = np.where(cols == lo, n, np.where(cols == hi, n + 1, cols))
+            np.copyto(prio, counter + rank_lost, where=lost)
             counter += n + 2
-            mode[lost] = _WAIT
-            rdy[lost] = np.inf
+            np.copyto(mode, _WAIT, where=lost)
+            np.copyto(rdy, np.inf, where=lost)
         # 4. delivered cycles leave; so do cycles past the horizon
         done = (mode == _HELD).all(axis=1)
         gone = done | (now > horizon_s) if math.isfinite(horizon_s) else done
@@ -382,35 +415,38 @@ _BORN, _RDY, _FIRST, _CUR, _NEXT, _PRIO, _ROUNDS, _SEQS, _DROPPED, _ACC_LEFT, _A
 _PER_HOP = 11
 
 
-def _count_attempts(h: NDArray[np.int64], rh: NDArray[np.int64], at_h: NDArray[np.int64], n: int,
-                    b: NDArray[np.float64], start: NDArray[np.float64], k: NDArray[np.float64],
-                    ta: NDArray[np.float64], hop_flat: NDArray[np.float64], mode_flat: NDArray[np.int8]) -> None:
-    """Hop ``h`` starts a sequence of ``k`` rounds from ``start``; its pair is born at ``b``.
+def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], rank: NDArray[np.int64] | None,
+                    old: NDArray[np.float64] | None, first: NDArray[np.float64], cur: NDArray[np.float64],
+                    born: NDArray[np.float64], ta: NDArray[np.float64], acc_left: NDArray[np.float64],
+                    acc_right: NDArray[np.float64]) -> None:
+    """The ``granted`` hops (rows, hops) have just started a sequence (``first``, ``cur`` rounds;
+    their pairs born at ``born``); ``pending`` the hops that waited, ``rank`` their turn when a row
+    had several (None: one each), ``old`` the (first, cur) planes before the grants when two
+    neighbours were both granted.
 
     ``acc_left[r, i]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
-    round began (``acc_right`` those of hop i + 1 at site i + 1). The new pair's counts start
-    from the neighbour's last sequence (earlier ones ended before this grant); the neighbour's
-    counts grow by this sequence while its pair lives (waiting for a herald, or stored). They
-    stop counting by themselves: once the two pairs are swapped, neither hop attempts again
-    before both are delivered or discarded. ``rh`` and ``at_h`` are the flat indices of (row,
-    hop) in ``mode_flat`` and of (row, field 0, hop) in ``hop_flat`` (see :func:`run_cycles`).
+    round began (``acc_right`` those of hop i + 1 at site i + 1). A new pair's counts start from
+    the neighbour's last sequence (earlier ones ended before this grant), its new one when the
+    neighbour was granted first in this step, both when later; a neighbour's counts grow by the
+    new sequence while its pair lives (waiting for a herald, or stored; a neighbour still waiting
+    is granted later or not at all). They stop counting by themselves: once the two pairs are
+    swapped, neither hop attempts again before both are delivered or discarded.
     """
-    f_born, f_first, f_cur, f_acc_l, f_acc_r = (f * n for f in (_BORN, _FIRST, _CUR, _ACC_LEFT, _ACC_RIGHT))
-    left, right = h > 0, h < n - 1
-    if left.any():
-        at, nb = at_h[left], at_h[left] - 1
-        hop_flat[at + f_acc_l] = _rounds_after(hop_flat[nb + f_first], ta[h[left] - 1], hop_flat[nb + f_cur], b[left])
-        alive = mode_flat[rh[left] - 1] != _WAIT
-        nb = nb[alive]
-        hop_flat[nb + f_acc_r] += _rounds_after(start[left][alive], ta[h[left][alive]], k[left][alive],
-                                                hop_flat[nb + f_born])
-    if right.any():
-        at, nb = at_h[right], at_h[right] + 1
-        hop_flat[at + f_acc_r] = _rounds_after(hop_flat[nb + f_first], ta[h[right] + 1], hop_flat[nb + f_cur], b[right])
-        alive = mode_flat[rh[right] + 1] != _WAIT
-        nb = nb[alive]
-        hop_flat[nb + f_acc_l] += _rounds_after(start[right][alive], ta[h[right][alive]], k[right][alive],
-                                                hop_flat[nb + f_born])
+    ga, gc = granted[:, :-1], granted[:, 1:]      # the left and the right hop of each inner site
+    right, left = acc_right[:, :-1], acc_left[:, 1:]
+    # the right hop's rounds after the left hop's pair began, and the left hop's after the right's
+    x = _rounds_after(first[:, 1:], ta[1:], cur[:, 1:], born[:, :-1])
+    y = _rounds_after(first[:, :-1], ta[:-1], cur[:, :-1], born[:, 1:])
+    x_own, y_own = x, y
+    if old is not None and rank is not None:
+        left_first = ga & gc & (rank[:, :-1] < rank[:, 1:])
+        right_first = ga & gc & ~left_first
+        x_own = np.where(left_first, _rounds_after(old[0][:, 1:], ta[1:], old[1][:, 1:], born[:, :-1]) + x, x)
+        y_own = np.where(right_first, _rounds_after(old[0][:, :-1], ta[:-1], old[1][:, :-1], born[:, 1:]) + y, y)
+    np.add(right, x, out=right, where=gc & ~pending[:, :-1])
+    np.copyto(right, x_own, where=ga)
+    np.add(left, y, out=left, where=ga & ~pending[:, 1:])
+    np.copyto(left, y_own, where=gc)
 
 
 def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
