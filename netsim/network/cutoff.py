@@ -44,6 +44,7 @@ from __future__ import annotations
 import functools
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -201,8 +202,6 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     n = len(q)
     qa, ta, ra = np.array(q, dtype=float), np.array(period, dtype=float), np.array(ready, dtype=float)
     tell_a = np.array(tell, dtype=float)
-    left_shared = np.array([i > 0 and shared[i - 1] for i in range(n)])
-    right_shared = np.array([i < n - 1 and shared[i] for i in range(n)])
     sure = all(p >= 1.0 for p in swap_p)
     table = draws if isinstance(draws, AttemptTable) else None
     rng = draws if isinstance(draws, np.random.Generator) else None
@@ -214,163 +213,181 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     ids = np.arange(cycles)
     t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
     m = cycles
-    # The per-cycle state, packed so that dropping finished cycles takes a few copies. Single
-    # entries are read and written through flat indices into the packed arrays (much cheaper
-    # than two-axis fancy indexing for the few rows an event touches): entry (row, field, hop)
-    # of per_hop is per_hop.reshape(-1)[row * stride + field * n + hop].
-    per_hop = np.zeros((m, _PER_HOP, n))
-    per_site = np.zeros((m, 2, n + 1))     # swap_t, lost_q
-    per_cycle = np.zeros((m, 2))           # now, disc
-    mode = np.zeros((m, n), dtype=np.int8)
-    used = np.zeros((m, n), dtype=np.int64)
-    per_hop[:, _RDY] = np.inf
-    per_hop[:, _PRIO] = np.arange(n, dtype=float)
+    # The per-cycle state, hop-major: every field is a (hops, cycles) plane whose rows are
+    # contiguous, so that a step works on whole planes with a few dozen numpy calls whatever the
+    # number of cycles (reductions over the few hops are then cheap, and the run's tail, where few
+    # cycles remain, costs little per step); packed so that dropping finished cycles takes a few copies.
+    per_hop: NDArray[Any] = np.zeros((_PER_HOP, n, m))
+    per_site: NDArray[Any] = np.zeros((2, n + 1, m))     # swap_t, lost_q
+    per_cycle: NDArray[Any] = np.zeros((2, m))           # now, disc
+    mode: NDArray[Any] = np.zeros((n, m), dtype=np.int8)
+    used: NDArray[Any] = np.zeros((n, m), dtype=np.int64)
+    per_hop[_RDY] = np.inf
+    per_hop[_PRIO] = np.arange(n, dtype=float)[:, None]
     if offset_s is not None:
-        per_hop[:, _NEXT] = np.array(offset_s, dtype=float).reshape(m, n)
-    stride = _PER_HOP * n
-    site_stride = 2 * (n + 1)
-    f_born, f_rdy, f_first, f_cur, f_next, f_rounds, f_seqs, f_acc_l, f_acc_r = (
-        f * n for f in (_BORN, _RDY, _FIRST, _CUR, _NEXT, _ROUNDS, _SEQS, _ACC_LEFT, _ACC_RIGHT))
-    any_shared = bool(left_shared.any() or right_shared.any())
+        per_hop[_NEXT] = np.array(offset_s, dtype=float).reshape(m, n).T
+    pair_shared = np.array(shared[: n - 1], dtype=bool)[:, None]   # the site between hops j and j + 1
+    any_shared = bool(pair_shared.any())
     counter = float(n)
     cols = np.arange(n)
-    lower_cols = cols[None, :]
+    hop_col = cols[:, None]
+    ta_col, ra_col = ta[:, None], ra[:, None]
     step = 0
     rows = np.arange(m)
-    row_n = rows * n
     while m and (max_steps is None or step < max_steps):
         step += 1
-        (born, rdy, first, cur, next_ok, prio, rounds, seqs, dropped, acc_left,
-         acc_right) = (per_hop[:, f] for f in range(_PER_HOP))
-        swap_t, lost_q = per_site[:, 0], per_site[:, 1]
-        now, disc = per_cycle[:, 0], per_cycle[:, 1]
-        hop_flat, site_flat, mode_flat = per_hop.reshape(-1), per_site.reshape(-1), mode.reshape(-1)
+        (born, rdy, first, cur, next_ok, prio, rounds, seqs, dropped, acc_left, acc_right) = per_hop
+        swap_t, lost_q = per_site
+        now, disc = per_cycle
         if len(rows) != m:
             rows = np.arange(m)
-            row_n = rows * n
-        # 1. grant waiting requests in request order (rows without a waiting hop take no part)
+        # 1. grant waiting requests in request order (module docstring): a cycle's waiting hops
+        # are taken one by one by priority (turn 0 its first, turn 1 its second, ...); attempt
+        # counts are drawn by turn, and within a turn by cycle
         pending = mode == _WAIT
-        pending_flat = pending.reshape(-1)
-        waiting = np.flatnonzero(pending.any(axis=1))
-        while len(waiting):
-            i = np.where(pending[waiting], prio[waiting], np.inf).argmin(axis=1)
-            at = waiting * n + i
+        if pending.any():
+            turns = int(pending.sum(axis=0).max())
+            rank = None
+            if turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
+                waiting_prio = np.where(pending, prio, np.inf)
+                rank = (waiting_prio[:, None, :] < waiting_prio[None, :, :]).sum(axis=0)
             if any_shared:
-                # a hop at the row's edge reads its row neighbour's mode here: masked by *_shared
-                go = ~((left_shared[i] & (mode_flat[np.maximum(at - 1, 0)] == _TRY))
-                       | (right_shared[i] & (mode_flat[np.minimum(at + 1, m * n - 1)] == _TRY)))
-                r, h, rh = waiting[go], i[go], at[go]
+                trying = mode == _TRY
+                if rank is not None and (pending[:-1] & pending[1:] & pair_shared).any():
+                    # two waiting neighbours at a shared site: the one granted first blocks the other
+                    granted = np.zeros((n, m), dtype=bool)
+                    for turn in range(turns):
+                        go = pending & (rank == turn)
+                        go[1:] &= ~(trying[:-1] & pair_shared)
+                        go[:-1] &= ~(trying[1:] & pair_shared)
+                        trying |= go
+                        granted |= go
+                else:  # the shared neighbours of a waiting hop keep their mode during the grants
+                    granted = pending.copy()
+                    granted[1:] &= ~(trying[:-1] & pair_shared)
+                    granted[:-1] &= ~(trying[1:] & pair_shared)
             else:
-                r, h, rh = waiting, i, at
+                granted = pending
+            if rank is None:
+                r, h = np.nonzero(granted.T)      # by cycle
+            else:
+                h, r = np.nonzero(granted)
+                by_turn = np.argsort(rank[h, r] * m + r, kind="stable")
+                h, r = h[by_turn], r[by_turn]
             if len(r):
                 if table is not None:
-                    used_flat = used.reshape(-1)
-                    k = table.take(t_rows[ids[r]], h, used_flat[rh])
-                    used_flat[rh] += 1
+                    k = table.take(t_rows[ids[r]], h, used[h, r])
+                    used[h, r] += 1
                 else:
                     assert rng is not None
-                    k = rng.geometric(qa[h])
-                at_h = r * stride + h
-                start = np.maximum(now[r], hop_flat[at_h + f_next])
-                hop_flat[at_h + f_first] = start
-                hop_flat[at_h + f_cur] = k
-                b = start + (k - 1) * ta[h]
-                hop_flat[at_h + f_born] = b
-                hop_flat[at_h + f_rdy] = b + ra[h]
-                hop_flat[at_h + f_next] = b + ta[h]
-                hop_flat[at_h + f_rounds] += k
-                hop_flat[at_h + f_seqs] += 1
-                mode_flat[rh] = _TRY
-                _count_attempts(h, rh, at_h, n, b, start, k, ta, hop_flat, mode_flat)
-            pending_flat[at] = False
-            waiting = waiting[pending[waiting].any(axis=1)]
+                    k = rng.geometric(qa[h]).astype(float)
+                rounds_k = np.zeros((n, m))
+                rounds_k[h, r] = k
+                start = np.maximum(now, next_ok)
+                b = start + (rounds_k - 1) * ta_col
+                np.copyto(first, start, where=granted)
+                np.copyto(cur, rounds_k, where=granted)
+                np.copyto(born, b, where=granted)
+                np.copyto(rdy, b + ra_col, where=granted)
+                np.copyto(next_ok, b + ta_col, where=granted)
+                rounds += rounds_k
+                seqs += granted
+                np.copyto(mode, _TRY, where=granted)
+                _count_attempts(granted, pending, first, cur, born, ta_col, acc_left, acc_right)
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
-        hop_r = t_ready.argmin(axis=1)
-        t_r = t_ready.reshape(-1)[row_n + hop_r]
+        hop_r = t_ready.argmin(axis=0)
+        t_r = t_ready.min(axis=0)
         held = mode == _HELD
         run_dl = np.where(held, born + cutoff, np.inf)
         for j in range(1, n):  # min over the run to the left ...
-            np.minimum(run_dl[:, j], run_dl[:, j - 1], out=run_dl[:, j], where=held[:, j] & held[:, j - 1])
+            np.minimum(run_dl[j], run_dl[j - 1], out=run_dl[j], where=held[j] & held[j - 1])
         for j in range(n - 2, -1, -1):  # ... and to the right
-            np.minimum(run_dl[:, j], run_dl[:, j + 1], out=run_dl[:, j], where=held[:, j] & held[:, j + 1])
-        hop_d = run_dl.argmin(axis=1)
-        t_d = run_dl.reshape(-1)[row_n + hop_d]
+            np.minimum(run_dl[j], run_dl[j + 1], out=run_dl[j], where=held[j] & held[j + 1])
+        hop_d = run_dl.argmin(axis=0)
+        t_d = run_dl.min(axis=0)
         is_ready = t_r <= t_d
         np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
         lost = None
         # 3a. a pair becomes usable: swap with held neighbours (left first, as the engine does)
         r, h = rows[is_ready], hop_r[is_ready]
-        rh = r * n + h
-        mode_flat[rh] = _HELD
-        for side in (0, 1):
-            ok = h > 0 if side == 0 else h < n - 1
-            ok[ok] = mode_flat[rh[ok] + (-1 if side == 0 else 1)] == _HELD
-            if lost is not None:
-                ok &= ~lost.reshape(-1)[rh]
-            rr = r[ok]
-            if not len(rr):
-                continue
-            ss = h[ok] + side
-            site_flat[rr * site_stride + ss] = now[rr]
-            if not sure:
+        mode[h, r] = _HELD
+        if sure:  # both swaps at once: the swap times are all they change
+            new = np.zeros((n, m), dtype=bool)
+            new[h, r] = True
+            held_now = mode == _HELD
+            swapped = (new[1:] & held_now[:-1]) | (new[:-1] & held_now[1:])
+            np.copyto(swap_t[1:n], now, where=swapped)
+        else:
+            for side in (0, 1):
+                ok = h > 0 if side == 0 else h < n - 1
+                ok[ok] = mode[h[ok] + (-1 if side == 0 else 1), r[ok]] == _HELD
+                if lost is not None:
+                    ok &= ~lost[h, r]
+                rr = r[ok]
+                if not len(rr):
+                    continue
+                ss = h[ok] + side
+                swap_t[ss, rr] = now[rr]
                 assert rng is not None
                 fail = rng.random(len(rr)) >= swap_pa[ss]
                 if fail.any():
                     rf, hf = rr[fail], h[ok][fail]
-                    both = mode[rf] == _HELD
+                    both = mode[:, rf].T == _HELD
                     if side == 0:  # the left swap fails before the right one is made
-                        both &= lower_cols <= hf[:, None]
+                        both &= cols[None, :] <= hf[:, None]
                     if lost is None:
-                        lost = np.zeros((m, n), dtype=bool)
-                    lost[rf] |= _run_mask(both, hf, cols)
+                        lost = np.zeros((n, m), dtype=bool)
+                    lost[:, rf] |= _run_mask(both, hf, cols).T
         # 3b. a run reaches its cut-off: its hops request again
         cut = ~is_ready
         if cut.any():
-            rc = rows[cut]
-            if lost is None:
-                lost = np.zeros((m, n), dtype=bool)
-            lost[rc] |= _run_mask(held[rc], hop_d[cut], cols)
-            disc[rc] += 1
+            # the run of held hops around hop_d: the held hops with as many gaps before them
+            gaps = np.cumsum(~held, axis=0)
+            run = held & (gaps == gaps[hop_d, rows]) & cut
+            lost = run if lost is None else lost | run
+            disc += cut
         if lost is not None:
-            lo = np.where(lost, cols, n).min(axis=1)[:, None]
-            hi = np.where(lost, cols, -1).max(axis=1)[:, None]
+            lo = np.where(lost, hop_col, n).min(axis=0)
+            hi = np.where(lost, hop_col, -1).max(axis=0)
             # qubit-seconds of the lost pairs: to the swap that joined them, or to now at the run's ends
-            left_end = np.where(cols > lo, swap_t[:, :n], now[:, None])
-            right_end = np.where(cols < hi, swap_t[:, 1:], now[:, None])
-            lost_q[:, :n] += np.where(lost, left_end - born, 0.0)
-            lost_q[:, 1:] += np.where(lost, right_end - born, 0.0)
+            left_end = np.where(hop_col > lo, swap_t[:n], now)
+            right_end = np.where(hop_col < hi, swap_t[1:], now)
+            np.add(lost_q[:n], left_end - born, out=lost_q[:n], where=lost)
+            np.add(lost_q[1:], right_end - born, out=lost_q[1:], where=lost)
             dropped += lost
-            inner = lost & (cols > lo) & (cols < hi)
-            rank = np.where(inner, cols, np.where(cols == lo, n, n + 1))
-            np.copyto(prio, counter + rank, where=lost)
+            # request order: the run's inner hops, then its left end, then its right end
+            rank_lost = np.where(hop_col == lo, n, np.where(hop_col == hi, n + 1, hop_col))
+            np.copyto(prio, counter + rank_lost, where=lost)
             counter += n + 2
-            mode[lost] = _WAIT
-            rdy[lost] = np.inf
+            np.copyto(mode, _WAIT, where=lost)
+            np.copyto(rdy, np.inf, where=lost)
         # 4. delivered cycles leave; so do cycles past the horizon
-        done = (mode == _HELD).all(axis=1)
+        done = (mode == _HELD).all(axis=0)
         gone = done | (now > horizon_s) if math.isfinite(horizon_s) else done
         if gone.any():
             if done.any():
                 d = rows[done]
-                sw = swap_t[d, 1:n]
-                t_del = np.maximum(np.maximum(rdy[d, 0], rdy[d, n - 1]), (sw + tell_a).max(axis=1))
-                end_left = np.concatenate([t_del[:, None], sw], axis=1)
-                end_right = np.concatenate([sw, t_del[:, None]], axis=1)
+                sw = swap_t[1:n, d]
+                t_del = np.maximum(np.maximum(rdy[0, d], rdy[n - 1, d]), (sw + tell_a[:, None]).max(axis=0))
+                end_left = np.concatenate([t_del[None, :], sw])
+                end_right = np.concatenate([sw, t_del[None, :]])
+                born_d = born[:, d]
                 o = ids[d]
                 out.finished[o] = True
                 out.delivered_s[o] = t_del
-                out.born_s[o], out.next_round_s[o] = born[d], next_ok[d]
-                out.store_left_s[o] = end_left - born[d]
-                out.store_right_s[o] = end_right - born[d]
-                out.attempts_left[o], out.attempts_right[o] = acc_left[d], acc_right[d]
+                out.born_s[o], out.next_round_s[o] = born_d.T, next_ok[:, d].T
+                out.store_left_s[o] = (end_left - born_d).T
+                out.store_right_s[o] = (end_right - born_d).T
+                out.attempts_left[o], out.attempts_right[o] = acc_left[:, d].T, acc_right[:, d].T
             g = rows[gone]
             o = ids[g]
-            out.rounds[o], out.sequences[o], out.discarded[o] = rounds[g], seqs[g], dropped[g]
-            out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[g]
+            out.rounds[o], out.sequences[o], out.discarded[o] = rounds[:, g].T, seqs[:, g].T, dropped[:, g].T
+            out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[:, g].T
             keep = ~gone
-            ids, per_hop, per_site, per_cycle, mode, used = (
-                a[keep] for a in (ids, per_hop, per_site, per_cycle, mode, used))
+            ids = ids[keep]
+            per_hop, per_site, per_cycle, mode, used = (   # compress keeps them C-contiguous
+                np.compress(keep, a, axis=-1) for a in (per_hop, per_site, per_cycle, mode, used))
             m = len(ids)
     return out
 
@@ -382,42 +399,44 @@ _BORN, _RDY, _FIRST, _CUR, _NEXT, _PRIO, _ROUNDS, _SEQS, _DROPPED, _ACC_LEFT, _A
 _PER_HOP = 11
 
 
-def _count_attempts(h: NDArray[np.int64], rh: NDArray[np.int64], at_h: NDArray[np.int64], n: int,
-                    b: NDArray[np.float64], start: NDArray[np.float64], k: NDArray[np.float64],
-                    ta: NDArray[np.float64], hop_flat: NDArray[np.float64], mode_flat: NDArray[np.int8]) -> None:
-    """Hop ``h`` starts a sequence of ``k`` rounds from ``start``; its pair is born at ``b``.
+def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], first: NDArray[np.float64],
+                    cur: NDArray[np.float64], born: NDArray[np.float64], ta: NDArray[np.float64],
+                    acc_left: NDArray[np.float64], acc_right: NDArray[np.float64]) -> None:
+    """The ``granted`` hops ((hops, cycles) planes) have just started a sequence (``first``,
+    ``cur`` rounds; their pairs born at ``born``); ``pending`` the hops that waited for a grant.
 
-    ``acc_left[r, i]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
-    round began (``acc_right`` those of hop i + 1 at site i + 1). The new pair's counts start
-    from the neighbour's last sequence (earlier ones ended before this grant); the neighbour's
-    counts grow by this sequence while its pair lives (waiting for a herald, or stored). They
-    stop counting by themselves: once the two pairs are swapped, neither hop attempts again
-    before both are delivered or discarded. ``rh`` and ``at_h`` are the flat indices of (row,
-    hop) in ``mode_flat`` and of (row, field 0, hop) in ``hop_flat`` (see :func:`run_cycles`).
+    ``acc_left[i, r]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
+    round began (``acc_right`` those of hop i + 1 at site i + 1). A new pair counts the
+    neighbour's current sequence; the counts of a neighbour's live pair (waiting for a herald,
+    or stored) grow by the new sequence. A neighbour that waited has no round after the new pair's
+    birth from its last sequence (that ended before its pair was stored, and so before now): two
+    neighbours granted in one step count each other's new sequence, whichever was granted first.
+    The counts stop by themselves: once the two pairs are swapped, neither hop attempts again
+    before both are delivered or discarded.
     """
-    f_born, f_first, f_cur, f_acc_l, f_acc_r = (f * n for f in (_BORN, _FIRST, _CUR, _ACC_LEFT, _ACC_RIGHT))
-    left, right = h > 0, h < n - 1
-    if left.any():
-        at, nb = at_h[left], at_h[left] - 1
-        hop_flat[at + f_acc_l] = _rounds_after(hop_flat[nb + f_first], ta[h[left] - 1], hop_flat[nb + f_cur], b[left])
-        alive = mode_flat[rh[left] - 1] != _WAIT
-        nb = nb[alive]
-        hop_flat[nb + f_acc_r] += _rounds_after(start[left][alive], ta[h[left][alive]], k[left][alive],
-                                                hop_flat[nb + f_born])
-    if right.any():
-        at, nb = at_h[right], at_h[right] + 1
-        hop_flat[at + f_acc_r] = _rounds_after(hop_flat[nb + f_first], ta[h[right] + 1], hop_flat[nb + f_cur], b[right])
-        alive = mode_flat[rh[right] + 1] != _WAIT
-        nb = nb[alive]
-        hop_flat[nb + f_acc_l] += _rounds_after(start[right][alive], ta[h[right][alive]], k[right][alive],
-                                                hop_flat[nb + f_born])
+    ga, gc = granted[:-1], granted[1:]      # the left and the right hop of each inner site
+    right, left = acc_right[:-1], acc_left[1:]
+    # the right hop's rounds after the left hop's pair began, and the left hop's after the right's
+    x = _rounds_after(first[1:], ta[1:], cur[1:], born[:-1])
+    y = _rounds_after(first[:-1], ta[:-1], cur[:-1], born[1:])
+    np.add(right, x, out=right, where=gc & ~pending[:-1])
+    np.copyto(right, x, where=ga)
+    np.add(left, y, out=left, where=ga & ~pending[1:])
+    np.copyto(left, y, where=gc)
 
 
 def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
                   after_s: NDArray[np.float64]) -> NDArray[np.float64]:
     """How many of the rounds start + m period (m = 0 .. k - 1) begin strictly after ``after``
     (a round starting with it, to 1e-9 of a period, does not count: the qubit's own round)."""
-    return np.maximum(0.0, k - np.maximum(0.0, np.floor((after_s - start_s) / period_s + 1e-9) + 1.0))
+    t = np.subtract(after_s, start_s)   # in place from here: the same operations, fewer temporaries
+    t /= period_s
+    t += 1e-9
+    np.floor(t, out=t)
+    t += 1.0
+    np.maximum(0.0, t, out=t)
+    np.subtract(k, t, out=t)
+    return np.maximum(0.0, t, out=t)
 
 
 def _run_mask(held: NDArray[np.bool_], hop: NDArray[np.int64], cols: NDArray[np.int64]) -> NDArray[np.bool_]:
