@@ -9,7 +9,8 @@ netsim installs as plain Python and runs the same engine more slowly. Beside the
 the build writes the SHA-256 of the sources it compiled; ``netsim.engine.build`` uses the
 compiled modules only while the sources still match it.
 
-This directory is not a package and is not installed; it is on the path only while pip builds.
+This directory is on the path only while pip builds; it ships in the source distribution (which
+builds through it) and in the installed package, which never imports it.
 """
 
 from __future__ import annotations
