@@ -30,7 +30,8 @@ Metro figures (``engine.run`` on generated grids, see ``metro.py``; timed end to
 run`` does it: routing, budget bounds, simulation, states, figures; ensembles off):
 
 - ``mesh_event_pairs_per_s``: 7x7 grid, 24 demands, 4 slots per site, 200 pairs per demand,
-  target >= 10,000 delivered pairs per wall second; ratio to the event engine on the lone chain.
+  target >= 10,000 delivered pairs per wall second (best of three runs); ratio to the event
+  engine on the lone chain.
   The generator states emission, coherence, gates and fibre; the node keys it does not state
   come from the built-in defaults (demonstrated NV values: one communication qubit per site,
   0.5 ms / 3 % memory transfer, 1e-3 attempt dephasing, indistinguishability 0.8), so this
@@ -42,7 +43,7 @@ run`` does it: routing, budget bounds, simulation, states, figures; ensembles of
   colour-centre values of their own (one communication qubit, 0.1 ms / 1 % transfer, 1e-3
   attempt dephasing; no target); ratio to the grid above.
 - ``demand_scaling_ratio``: wall time per delivered pair per hop with 100 demands over that with
-  10 demands, 10x10 grid (target <= 1.5).
+  10 demands, 10x10 grid (target <= 1.5; best of three runs of each, interleaved).
 - ``site_scaling_ratio``: the same on a 20x20 grid over a 5x5 grid, 10 demands (target <= 1.5;
   best of three runs of each, interleaved).
   Both scaling records also carry ``simulation_only_ratio``: the same ratio for the time spent in
@@ -263,10 +264,11 @@ def _metro_run(rows: int, cols: int, demands: int, slots: int = 4, pairs: int = 
 
 
 def mesh_event_pairs_per_s() -> list[dict[str, Any]]:
-    """7x7 grid, 24 demands, 4 slots, 200 pairs each, end to end (best of two)."""
+    """7x7 grid, 24 demands, 4 slots, 200 pairs each, end to end (best of three: this shared
+    machine's speed drifts by up to 1.7x between runs)."""
     _metro_run(2, 2, 2, pairs=10)  # imports and caches warm
     best, pairs, engines, sim, cpu = math.inf, 0, "", math.inf, math.inf
-    for _ in range(2):
+    for _ in range(3):
         cpu_start = time.process_time()
         wall, pairs, _, engines, sim_s = _metro_run(7, 7, 24)
         best, sim, cpu = min(best, wall), min(sim, sim_s), min(cpu, time.process_time() - cpu_start)
@@ -335,9 +337,13 @@ def _per_pair_hop(rows: int, cols: int, demands: int, pairs: int = 200) -> tuple
 
 
 def demand_scaling_ratio() -> list[dict[str, Any]]:
-    """Time per delivered pair per hop, 100 over 10 demands on a 10x10 grid."""
-    few, engines, few_sim = _per_pair_hop(10, 10, 10)
-    many, _, many_sim = _per_pair_hop(10, 10, 100)
+    """Time per delivered pair per hop, 100 over 10 demands on a 10x10 grid (best of three, the
+    two interleaved: single runs of each gave 1.09 to 1.74 on one commit on this shared machine)."""
+    few, many, few_sim, many_sim, engines = math.inf, math.inf, math.inf, math.inf, ""
+    for _ in range(3):
+        f, engines, f_sim = _per_pair_hop(10, 10, 10)
+        m, _, m_sim = _per_pair_hop(10, 10, 100)
+        few, few_sim, many, many_sim = min(few, f), min(few_sim, f_sim), min(many, m), min(many_sim, m_sim)
     return [{"name": "demand_scaling_ratio", "value": many / few, "unit": "x", "target": 1.5,
              "higher_is_better": False, "baseline": "10 demands", "ratio": many / few, "engine": engines,
              "s_per_pair_hop_10": few, "s_per_pair_hop_100": many, "simulation_only_ratio": many_sim / few_sim}]
