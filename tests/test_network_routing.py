@@ -115,3 +115,34 @@ def test_route_hops_errors() -> None:
         route_hops(graph, [SW, U3])
     with pytest.raises(ParameterError, match="consecutive sites joined by a link"):
         route_hops(graph, [U1, SW, U3])
+
+
+def test_least_loss_without_the_view_finds_the_views_routes() -> None:
+    # find_route runs the default policy on the full graph with the other users hidden by the
+    # weight; it must give the route networkx's Dijkstra gives on the relay view, ties included
+    # (a grid of equal links has many equal-loss routes; invariant of the implementation).
+    import sys
+    from pathlib import Path
+
+    import networkx as nx
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent / "benchmarks"))
+    from metro import geometric_metro, grid_metro, metro_scenario
+
+    from netsim.network.routing import LeastLoss
+
+    checked = 0
+    for data in (grid_metro(6, 6, 12, 2, seed=4), geometric_metro(30, 12, 2, seed=8)):
+        scenario = metro_scenario(data)
+        graph = build_graph(scenario)
+        users = [n for n, d in graph.nodes(data=True) if d["site"].role == "user"]
+        for a, b in itertools.islice(itertools.combinations(users, 2), 120):
+            try:
+                on_view = LeastLoss().route(relay_graph(graph, a, b), a, b)
+            except nx.NetworkXNoPath:
+                with pytest.raises(ParameterError):
+                    find_route(graph, a, b)
+                continue
+            assert find_route(graph, a, b) == on_view
+            checked += 1
+    assert checked > 150

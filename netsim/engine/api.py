@@ -356,13 +356,15 @@ def _check_slots(scenario: Scenario, chains: list[Chain], rounds: int) -> None:
                                      f"({rounds + 1} per hop end)")
 
 
-def _analytic(scenario: Scenario, graph: Any = None) -> list[dict[str, Any]]:
-    """The budget's figures beside each simulated demand (its demand rows only, on ``graph``)."""
+def _analytic(scenario: Scenario, graph: Any = None, chains: list[Chain] | None = None) -> list[dict[str, Any]]:
+    """The budget's figures beside each simulated demand (its demand rows only, on ``graph``,
+    along the routes of ``chains`` when given: one per demand, as simulated)."""
     from netsim.network.budget import demand_rows
 
     keep = ("expected_rate_per_s", "expected_fidelity", "expected_eof_ebits", "route_bound_bits_per_s",
             "single_path_bits_per_s", "multipath_bits_per_s")
-    return [{k: row.get(k) for k in keep} for row in demand_rows(scenario, graph)[0]]
+    routes = None if chains is None else [c.route for c in chains]
+    return [{k: row.get(k) for k in keep} for row in demand_rows(scenario, graph, routes=routes)[0]]
 
 
 def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = None,
@@ -408,7 +410,7 @@ def run(scenario: Scenario, *, pairs: int | None = None, time_s: float | None = 
                          max_link_pairs=GUARD_FACTOR * max(float(max_link_pairs), serial), progress=progress)
     runs = simulate(chains, rule=rule, seed=seed, options=options)
     rows = [demand_row(c, r) for c, r in zip(chains, runs)]
-    for row, extra, demand in zip(rows, _analytic(scenario, graph), scenario.demands):
+    for row, extra, demand in zip(rows, _analytic(scenario, graph, chains), scenario.demands):
         row.update(extra)
         row.update(verdicts(row, demand.min_fidelity, demand.min_rate_per_s))
     if ensembles:

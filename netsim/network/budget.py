@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import itertools
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -150,15 +150,17 @@ def budget(scenario: Scenario, policy: str | None = None) -> Budget:
     return Budget(scenario.name, links, rows, warnings)
 
 
-def demand_rows(scenario: Scenario, graph: nx.Graph | None = None,
-                policy: str | None = None) -> tuple[list[dict[str, Any]], list[str]]:
+def demand_rows(scenario: Scenario, graph: nx.Graph | None = None, policy: str | None = None,
+                routes: Sequence[Sequence[str]] | None = None) -> tuple[list[dict[str, Any]], list[str]]:
     """The demand rows of :func:`budget` and their warnings, without the link rows, on ``graph``
-    (built from ``scenario`` when not given; ``engine.run`` passes the one it routed on)."""
+    (built from ``scenario`` when not given; ``engine.run`` passes the one it routed on, and the
+    routes it found there, one per demand, so that they are not searched again)."""
     graph = build_graph(scenario) if graph is None else graph
     rows, warnings = [], []
     users = frozenset(n for n, d in graph.nodes(data=True) if d["site"].role == "user")
-    for demand in scenario.demands:
-        row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing, users)
+    for k, demand in enumerate(scenario.demands):
+        row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing, users,
+                                   list(routes[k]) if routes is not None and routes[k] else None)
         rows.append(row)
         warnings += [warning] if warning else []
     return rows, warnings
@@ -218,7 +220,8 @@ def _physics_figures(physics: Any) -> dict[str, Any]:
             "eof_ebits": eof_ebits(physics.state)}
 
 
-def _demand_row(graph: nx.Graph, demand: Demand, policy: str, users: frozenset[str]) -> tuple[dict[str, Any], str]:
+def _demand_row(graph: nx.Graph, demand: Demand, policy: str, users: frozenset[str],
+                route: list[str] | None = None) -> tuple[dict[str, Any], str]:
     # other end users never relay (netsim.network.routing.relay_graph): passed as sites to leave
     # out, the same bounds as on the relay view without its filtering at every access
     row: dict[str, Any] = {
@@ -228,7 +231,7 @@ def _demand_row(graph: nx.Graph, demand: Demand, policy: str, users: frozenset[s
         "multipath_bits_per_s": multipath_capacity(graph, demand.a, demand.b, exclude=users),
     }
     try:
-        route = find_route(graph, demand.a, demand.b, policy)
+        route = find_route(graph, demand.a, demand.b, policy) if route is None else route
     except ParameterError as exc:
         row["route"] = None
         return row, f"demands[{demand.index}] ({demand.name}): {exc}"

@@ -73,6 +73,19 @@ class LeastLoss:
         return list(nx.dijkstra_path(graph, a, b, weight="loss_db"))
 
 
+def _least_loss(graph: nx.Graph, a: str, b: str) -> list[str]:
+    """:class:`LeastLoss` on :func:`relay_graph` without building the view: the other end users
+    are hidden by the weight function instead (networkx skips an edge whose weight is None),
+    so the search meets the same neighbours in the same order and returns the same route, with
+    no filter at every step (a 20x20 grid: ~3 ms a route)."""
+    hidden = {n for n, data in graph.nodes(data=True) if n not in (a, b) and data["site"].role == "user"}
+
+    def weight(u: str, v: str, d: dict) -> float | None:  # type: ignore[type-arg]
+        return None if v in hidden else d["loss_db"]  # type: ignore[no-any-return]
+
+    return list(nx.dijkstra_path(graph, a, b, weight=weight))
+
+
 class FewestHops:
     """The route with the fewest heralded hops (light paths between memory sites, what the
     tables call hops: a passive switch adds links but no hop); ties broken by the smaller loss
@@ -145,6 +158,8 @@ def find_route(graph: nx.Graph, a: str, b: str, policy: str | RoutingPolicy = "l
             raise ParameterError(label, site, "one of " + ", ".join(map(str, graph.nodes)))
     chosen = _policy(policy)
     try:
+        if type(chosen) is LeastLoss:
+            return _least_loss(graph, a, b)
         return chosen.route(relay_graph(graph, a, b), a, b)
     except nx.NetworkXNoPath:
         raise ParameterError("route", f"{a} -> {b}",
