@@ -54,7 +54,8 @@ class Request:
     time_s: float
     sequence: int
     need: dict[str, int]
-    #: per site: slots needed by the requests queued ahead of this one (kept by the broker)
+    #: per site: slots needed by the requests queued ahead of this one, plus the broker's
+    #: ``shift`` of that site (kept by the broker; see SlotBroker._grant_all)
     ahead: dict[str, int] = field(default_factory=dict, compare=False, repr=False)
 
 
@@ -153,6 +154,8 @@ class SlotBroker:
         self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
         self.blocked: dict[str, list[Request]] = {site: [] for site in capacity}
         self.total: dict[str, int] = dict.fromkeys(capacity, 0)  # slots needed by the waiting, per site
+        #: per site: subtracted from every waiting request's ``ahead`` there (_grant_all)
+        self.shift: dict[str, int] = dict.fromkeys(capacity, 0)
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
         # occupancy statistics per site (see stats())
@@ -174,17 +177,17 @@ class SlotBroker:
         if key is None:
             self._full_pass()
         else:
-            own, queues, total, ahead = key(req), self.queues, self.total, req.ahead
+            own, queues, total, ahead, shift = key(req), self.queues, self.total, req.ahead, self.shift
             for site, k in need.items():
                 queue = queues[site]
                 if queue and key(queue[-1]) > own:
                     at = bisect.bisect_right(queue, own, key=key)
                     queue.insert(at, req)
-                    ahead[site] = sum(other.need[site] for other in queue[:at])
+                    ahead[site] = sum(other.need[site] for other in queue[:at]) + shift[site]
                     for other in queue[at + 1:]:
                         other.ahead[site] += k
                 else:
-                    ahead[site] = total[site]
+                    ahead[site] = total[site] + shift[site]
                     queue.append(req)
                 total[site] += k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
@@ -253,9 +256,9 @@ class SlotBroker:
 
     def _blocker(self, req: Request) -> str | None:
         """A site where ``req`` does not fit behind the requests ahead of it, or None if it fits."""
-        free, ahead = self.free, req.ahead
+        free, ahead, shift = self.free, req.ahead, self.shift
         for site, k in req.need.items():
-            if free[site] - ahead[site] < k:
+            if free[site] - (ahead[site] - shift[site]) < k:
                 return site
         return None
 
@@ -270,7 +273,7 @@ class SlotBroker:
             self._full_pass()
             return
         fitting: list[Request] = []
-        blocked, free = self.blocked, self.free
+        blocked, free, shift = self.blocked, self.free, self.shift
         for site in changed:
             filed = blocked[site]
             if not filed:
@@ -279,7 +282,7 @@ class SlotBroker:
             for req in filed:
                 ahead = req.ahead
                 for other, k in req.need.items():  # _blocker, inlined
-                    if free[other] - ahead[other] < k:
+                    if free[other] - (ahead[other] - shift[other]) < k:
                         blocked[other].append(req)
                         break
                 else:
@@ -304,7 +307,7 @@ class SlotBroker:
         """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
         now, free, capacity, since, spent, peak = (self.clock(), self.free, self.capacity, self._since,
                                                   self._time_at, self._peak)
-        queues, total, incremental = self.queues, self.total, self._key is not None
+        queues, total, shift, incremental = self.queues, self.total, self.shift, self._key is not None
         for req in granted:
             for s, k in req.need.items():
                 in_use = capacity[s] - free[s]
@@ -314,11 +317,15 @@ class SlotBroker:
                 if in_use + k > peak[s]:
                     peak[s] = in_use + k
                 if incremental:
+                    # every request behind this one has k fewer slots ahead: the site's shift
+                    # grows by k and the few ahead of it (grants come from near the head: 0.1
+                    # ahead and 6.6 behind on average on a 100-demand grid) are compensated
                     queue = queues[s]
                     at = queue.index(req)
                     del queue[at]
-                    for other in queue[at:]:
-                        other.ahead[s] -= k
+                    shift[s] += k
+                    for other in queue[:at]:
+                        other.ahead[s] += k
                     total[s] -= k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
