@@ -279,8 +279,15 @@ class SlotBroker:
             if not filed:
                 continue
             blocked[site] = []
+            room = free[site] + shift[site]
             for req in filed:
                 ahead = req.ahead
+                if room - ahead[site] < req.need[site]:
+                    # still no room at the site it waits for (three re-tests in four on a
+                    # 100-demand grid): filed there again, its other sites not looked at (any
+                    # site where it does not fit serves; the grants are the same)
+                    blocked[site].append(req)
+                    continue
                 for other, k in req.need.items():  # _blocker, inlined
                     if free[other] - (ahead[other] - shift[other]) < k:
                         blocked[other].append(req)
