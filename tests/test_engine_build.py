@@ -27,7 +27,7 @@ from netsim import qinfo
 from netsim.engine import BUILD, Chain, DesOptions, HopSpec, StopRule, api, simulate_des
 from netsim.engine import des as des_in_use
 from netsim.engine.build import compiled_present, plain_engine, source_digest
-from netsim.engine.chain import synthetic_physics
+from netsim.engine.chain import line_chain, synthetic_physics
 from netsim.scenario import load, load_data
 from netsim.scenario.model import Site
 
@@ -147,7 +147,7 @@ def test_numpy_values_and_tuples_run_as_plain_ones() -> None:
     # A compiled class checks its declared types exactly (a numpy integer is not an int there);
     # the engine's entry point takes numpy numbers and any sequences, as plain Python always did,
     # and gives the same run (invariant of the implementation).
-    chain = line_chain_for_options()
+    chain = line_chain(2, 0.2, 1e-3, qinfo.werner_state(0.9), t1_s=0.5, t2_s=0.2, length_km=5.0)
     plain = simulate_des([chain], StopRule(pairs=40), [np.random.default_rng(2)],
                          DesOptions(cutoff_s=0.02, purification="bbpssw", purification_rounds=1),
                          {s.name: 4 for s in chain.sites})
@@ -156,12 +156,6 @@ def test_numpy_values_and_tuples_run_as_plain_ones() -> None:
                                           purification_rounds=np.int64(1), log_pairs=np.bool_(False)),
                                {s.name: np.int64(4) for s in chain.sites})
     assert json.dumps(_figures(numpy_typed[0])) == json.dumps(_figures(plain[0]))
-
-
-def line_chain_for_options() -> Chain:
-    from netsim.engine.chain import line_chain
-
-    return line_chain(2, 0.2, 1e-3, qinfo.werner_state(0.9), t1_s=0.5, t2_s=0.2, length_km=5.0)
 
 
 def _figures(runs: list[Any]) -> list[Any]:

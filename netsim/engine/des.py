@@ -177,7 +177,7 @@ class _Lane:
         self.log: list[_Pair] = []
         self.need = path_need(chain, slots_per_end)
         self.position = 0
-        self.iface_ends: list[list[int]] = [[] for _ in range(n)]  # per hop: its limited sites (_Des.iface_index)
+        self.iface_ends: list[list[int]] = [[] for _ in range(n)]  # per hop: its limited sites (indices into _Des.iface_free)
         self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
         self.end_set: list[int] = [-1] * n  # per hop: index of its dephasing sites in _Des.end_sets
         self.ready = [float(v) for v in chain.ready_s]
@@ -310,7 +310,7 @@ class _Des:
         #: sites with a limited number of optical interfaces, numbered: free interfaces per site
         #: in a list (per-event lookups by index, not by name)
         limited = [name for name, site in sites.items() if site.communication_qubits is not None]
-        self.iface_index = {name: k for k, name in enumerate(limited)}
+        iface_index = {name: k for k, name in enumerate(limited)}
         self.iface_free = [int(sites[name].communication_qubits) for name in limited]  # type: ignore[arg-type]
         #: waiting interface requests [sequence, site indices, then, waiting], filed under each of
         #: their sites (an entry granted through one site is skipped and dropped at the others)
@@ -330,7 +330,7 @@ class _Des:
         self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
-            lane.iface_ends = [[self.iface_index[site.name] for site in c.sites[i:i + 2] if site.name in self.iface_index]
+            lane.iface_ends = [[iface_index[site.name] for site in c.sites[i:i + 2] if site.name in iface_index]
                                for i in range(c.n_hops)]
             lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
                                    for i in range(c.n_hops)]
