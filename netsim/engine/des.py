@@ -81,8 +81,9 @@ PRUNE_SEQUENCES = 50_000
 RECENT_ROWS = 4096
 #: At most this many attempt sequences logged since the last read are counted where they lie.
 PENDING_SCAN = 64
-#: Uniform draws are taken from a lane's stream this many at a time.
-UNIFORM_BLOCK = 1024
+#: Uniform draws are taken from a lane's stream this many at a time (the stream gives the same
+#: numbers in blocks of any size; a small block keeps 100 lanes' buffered draws in cache).
+UNIFORM_BLOCK = 64
 
 
 class _Pair:
