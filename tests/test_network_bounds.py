@@ -310,3 +310,16 @@ def test_waiting_time_against_exact_rational_arithmetic(q: list[float]) -> None:
             none = math.prod((1 - v) ** c for v, c in zip(groups, counts))
             exact += (-1) ** (k + 1) * ways / (1 - none)
     assert expected_rounds(q) == pytest.approx(float(exact), rel=1e-12)
+
+
+@pytest.mark.parametrize("n", [17, 20, 30])
+@pytest.mark.parametrize("p", ["1/200", "1/5"])
+def test_long_chain_waiting_time_against_exact_rational_sum(n: int, p: str) -> None:
+    """Beyond 16 hops expected_rounds sums P(N > t) numerically (the alternating form cancels
+    too much in floats); checked against Shchukin, Schmidt & van Loock's (PRA 100, 032322, 2019)
+    E[N] = sum_k C(n, k) (-1)^(k+1) / (1 - (1 - p)^k) evaluated in exact rational arithmetic."""
+    from fractions import Fraction
+
+    q = Fraction(p)
+    exact = sum(Fraction(math.comb(n, k) * (-1) ** (k + 1)) / (1 - (1 - q) ** k) for k in range(1, n + 1))
+    assert expected_rounds([float(q)] * n) == pytest.approx(float(exact), rel=1e-12)
