@@ -87,16 +87,22 @@ UNIFORM_BLOCK = 64
 
 
 class _Pair:
-    """A heralded link pair of hop ``hop`` whose state is valid from ``start``; ``end`` holds the
-    times its left and right qubits were Bell-measured, delivered or dropped."""
+    """A heralded link pair of hop ``hop`` whose state is valid from ``start``; ``end_left`` and
+    ``end_right`` hold the times its left and right qubits were Bell-measured, delivered or
+    dropped (``end`` gives both)."""
 
-    __slots__ = ("end", "fate", "herald", "hop", "start", "state_id")
+    __slots__ = ("end_left", "end_right", "fate", "herald", "hop", "start", "state_id")
 
     def __init__(self, hop: int, start: float, herald: float) -> None:
         self.hop, self.start, self.herald = hop, start, herald
         self.state_id = 0
-        self.end = [math.nan, math.nan]
+        self.end_left = self.end_right = math.nan
         self.fate = ""
+
+    @property
+    def end(self) -> list[float]:
+        """[left, right]: the times its two qubits left memory."""
+        return [self.end_left, self.end_right]
 
     def __repr__(self) -> str:
         return (f"_Pair(hop={self.hop}, start={self.start}, herald={self.herald}, end={self.end}, "
@@ -136,22 +142,53 @@ _FIRE: list[Callable[[Any], None]] = [_Call.fire]
 _FIRST = operator.itemgetter(0)  # shared: simpy only reads and then drops the list
 
 
-class _Counts:
-    """Per-lane counters in plain lists (numpy scalar updates are slow per event)."""
+class _Hop:
+    """One hop of a lane: what an attempt reads, the hop's state and its counts, in one object.
 
-    def __init__(self, n: int) -> None:
-        self.attempts, self.successes, self.busy_s, self.discards = [0] * n, [0] * n, [0.0] * n, [0] * n
-        self.purification_failures = [0] * n
-        self.swap_failures, self.site_qubit_s = [0] * (n + 1), [0.0] * (n + 1)
+    The compiled build keeps these fields unboxed in the object itself, so an event touches a few
+    cache lines of it; kept as ~20 per-hop lists of boxed numbers, each field cost a line or two,
+    and with 100 demands that state no longer fits in the core's cache."""
 
-    def add_to(self, run: ChainRun) -> None:
-        run.hop_attempts += self.attempts
-        run.hop_successes += self.successes
-        run.hop_busy_s += self.busy_s
-        run.hop_discards += self.discards
-        run.purification_failures += self.purification_failures
-        run.swap_failures += self.swap_failures
-        run.site_qubit_s += self.site_qubit_s
+    __slots__ = ("attempting", "attempts", "busy_left", "busy_right", "busy_s", "discards", "end_set",
+                 "flight_born", "flight_k", "herald", "iface_ends", "links", "log_fail", "need_pair",
+                 "next_round", "p", "period", "purification_failures", "ready", "successes", "transfer")
+
+    def __init__(self, links: tuple[int, ...], period: float, p: float, herald: float, ready: float,
+                 end_set: int, iface_ends: list[int], transfer: _Call) -> None:
+        #: indices into _Des.link_free of the fibre links its light path uses
+        self.links = links
+        # plain floats: numpy scalars are slow in the per-event arithmetic
+        self.period, self.p, self.herald, self.ready = period, p, herald, ready
+        self.log_fail = math.log1p(-p) if p < 1.0 else 0.0
+        #: index of its set of dephasing sites in _Des.end_sets (-1: none)
+        self.end_set = end_set
+        #: its sites with a limited number of optical interfaces (indices into _Des.iface_free)
+        self.iface_ends = iface_ends
+        #: the event of its pair in flight (a hop has at most one; simpy is done with an event
+        #: once it has called it back, so each attempt reuses it)
+        self.transfer = transfer
+        self.next_round = 0.0
+        self.busy_left = self.busy_right = False  # that end's slot holds a qubit
+        self.attempting = False
+        self.need_pair = True
+        #: a pair not yet heralded and in memory: its successful round and rounds (0: none)
+        self.flight_born, self.flight_k = 0.0, 0
+        self.attempts = self.successes = self.discards = self.purification_failures = 0
+        self.busy_s = 0.0
+
+
+class _Node:
+    """One site of a lane's chain: the live segments ending (``left``) and starting (``right``)
+    there, what a swap there reads, and the site's counts."""
+
+    __slots__ = ("left", "pos", "qubit_s", "right", "swap_failures", "swap_p")
+
+    def __init__(self, pos: float, swap_p: float) -> None:
+        self.pos, self.swap_p = pos, swap_p
+        self.left: _Seg | None = None
+        self.right: _Seg | None = None
+        self.swap_failures = 0
+        self.qubit_s = 0.0
 
 
 class _Lane:
@@ -160,17 +197,10 @@ class _Lane:
     def __init__(self, chain: Chain, rng: np.random.Generator, slots_per_end: int, rule: StopRule) -> None:
         n = chain.n_hops
         self.chain, self.rng, self.rule, self.n = chain, rng, rule, n
-        self.count = _Counts(n)
         self._uniforms: list[float] = []
         self._next_uniform = 0
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
-        self.next_round = [0.0] * n
-        self.busy = [[False] * n, [False] * n]  # busy[side][hop]: that end's slot holds a qubit
-        self.attempting = [False] * n
-        self.need_pair = [True] * n
         self.last_delivery_s = 0.0
-        self.left_seg: list[_Seg | None] = [None] * (n + 1)
-        self.right_seg: list[_Seg | None] = [None] * (n + 1)
         self.active = False  # a cycle is running under a granted reservation
         self.rows: list[tuple[float, list[float], list[float], list[int], list[float]]] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
@@ -178,28 +208,25 @@ class _Lane:
         self.log: list[_Pair] = []
         self.need = path_need(chain, slots_per_end)
         self.position = 0
-        self.iface_ends: list[list[int]] = [[] for _ in range(n)]  # per hop: its limited sites (indices into _Des.iface_free)
-        self.dephasing_ends: list[list[str]] = [[] for _ in range(n)]
-        self.end_set: list[int] = [-1] * n  # per hop: index of its dephasing sites in _Des.end_sets
-        self.ready = [float(v) for v in chain.ready_s]
-        #: per hop: (successful round, rounds) of a pair not yet heralded and in memory, else None
-        self.inflight: list[tuple[float, int] | None] = [None] * n
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
-        # plain floats: numpy scalars are slow in the per-event arithmetic
-        self.p = [float(v) for v in chain.p]
-        self.period = [float(v) for v in chain.period_s]
-        self.herald = [float(v) for v in chain.herald_s]
-        self.links = [hop.links for hop in chain.hops]
-        self.swap_p = [chain.swap_success(j) if 0 < j < n else 1.0 for j in range(n + 1)]
-        self.pos = [float(v) for v in chain.position_s]
-        self.log_fail = [math.log1p(-p) if p < 1.0 else 0.0 for p in self.p]
-        #: per hop, what an attempt reads: (link indices into _Des.link_free, period, p,
-        #: log(1 - p), ready, end_set)
-        self.hop_constants: list[tuple[tuple[int, ...], float, float, float, float, int]] = []
-        #: per hop: the event of its pair in flight (a hop has at most one; simpy is done with an
-        #: event once it has called it back, so each attempt reuses it)
-        self.transfers: list[_Call] = []
+        #: per hop, its constants, state and counts (made by _Des, which numbers the links and
+        #: the limited sites)
+        self.hops: list[_Hop] = []
+        #: per site of the chain (n + 1)
+        self.nodes = [_Node(float(chain.position_s[j]), chain.swap_success(j) if 0 < j < n else 1.0)
+                      for j in range(n + 1)]
+
+    def add_counts(self) -> None:
+        """Add the hops' and sites' counts to the lane's ChainRun."""
+        run = self.run
+        run.hop_attempts += [h.attempts for h in self.hops]
+        run.hop_successes += [h.successes for h in self.hops]
+        run.hop_busy_s += [h.busy_s for h in self.hops]
+        run.hop_discards += [h.discards for h in self.hops]
+        run.purification_failures += [h.purification_failures for h in self.hops]
+        run.swap_failures += [v.swap_failures for v in self.nodes]
+        run.site_qubit_s += [v.qubit_s for v in self.nodes]
 
     def uniform(self) -> float:
         """The lane's next uniform draw in [0, 1) (drawn from its stream in blocks)."""
@@ -300,8 +327,8 @@ class _Des:
         #: per fibre link (indexed as in ``link_index``): when its current attempt sequence ends
         self.link_index: dict[str, int] = {}
         for lane in self.lanes:
-            for links in lane.links:
-                for name in links:
+            for hop in lane.chain.hops:
+                for name in hop.links:
                     self.link_index.setdefault(name, len(self.link_index))
         self.link_free = [0.0] * len(self.link_index)
         self.finished = self.env.event()
@@ -331,17 +358,18 @@ class _Des:
         self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
-            lane.iface_ends = [[iface_index[site.name] for site in c.sites[i:i + 2] if site.name in iface_index]
-                               for i in range(c.n_hops)]
-            lane.dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
-                                   for i in range(c.n_hops)]
-            for ends in lane.dephasing_ends:
+            dephasing_ends = [[site.name for site in c.sites[i:i + 2] if site.name in self.sequences]
+                              for i in range(c.n_hops)]
+            for ends in dephasing_ends:
                 if ends and tuple(ends) not in self.end_sets:
                     self.end_sets.append(tuple(ends))
-            lane.end_set = [self.end_sets.index(tuple(ends)) if ends else -1 for ends in lane.dephasing_ends]
-            link_ids = [tuple(self.link_index[name] for name in links) for links in lane.links]
-            lane.hop_constants = list(zip(link_ids, lane.period, lane.p, lane.log_fail, lane.ready, lane.end_set))
-            lane.transfers = [_Call(self.transferred, ()) for _ in range(c.n_hops)]
+            lane.hops = [
+                _Hop(tuple(self.link_index[name] for name in c.hops[i].links), float(c.period_s[i]), float(c.p[i]),
+                     float(c.herald_s[i]), float(c.ready_s[i]),
+                     self.end_sets.index(tuple(dephasing_ends[i])) if dephasing_ends[i] else -1,
+                     [iface_index[site.name] for site in c.sites[i:i + 2] if site.name in iface_index],
+                     _Call(self.transferred, ()))
+                for i in range(c.n_hops)]
         #: per site with attempt dephasing: the indices of the end sets it belongs to
         self.site_end_sets: dict[str, set[int]] = {name: set() for name in self.sequences}
         for index, end_set in enumerate(self.end_sets):
@@ -359,17 +387,18 @@ class _Des:
 
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
-        n = lane.n
-        lane.busy = [[False] * n, [False] * n]
-        lane.need_pair = [True] * n
-        for i in range(n):
+        for hop in lane.hops:
+            hop.busy_left = hop.busy_right = False
+            hop.need_pair = True
+        for i in range(lane.n):
             self.maybe_start(lane, i)
 
     def begin(self, lane: _Lane, i: int) -> None:
         """Hop ``i`` starts making a pair: it takes an optical interface at each limited end, then
         attempts."""
-        lane.attempting[i] = True
-        ends = lane.iface_ends[i]
+        hop = lane.hops[i]
+        hop.attempting = True
+        ends = hop.iface_ends
         if ends:
             self.acquire(ends, lane, i)
         else:
@@ -378,17 +407,18 @@ class _Des:
     def attempt(self, lane: _Lane, i: int) -> None:
         """Hop ``i`` attempts until its next success; the clock jumps to the moment its pair is
         heralded and moved to memory (one event: nothing else depends on the herald itself)."""
-        links, period, p, log_fail, ready, end_set = lane.hop_constants[i]
+        hop = lane.hops[i]
         env = self.env
         now = env._now
-        start = lane.next_round[i]
+        start = hop.next_round
         if start < now:
             start = now
         link_free = self.link_free
+        links = hop.links
         for link in links:
             if link_free[link] > start:
                 start = link_free[link]
-        if p >= 1.0:
+        if hop.p >= 1.0:
             k = 1
         else:  # K ~ Geometric(p) on {1, 2, ...} by inversion, P(K > m) = (1 - p)^m (lane.uniform inlined)
             at = lane._next_uniform
@@ -396,52 +426,52 @@ class _Des:
                 lane._uniforms = lane.rng.random(UNIFORM_BLOCK).tolist()
                 at = 0
             lane._next_uniform = at + 1
-            k = int(math.log(1.0 - lane._uniforms[at]) / log_fail) + 1
+            k = int(math.log(1.0 - lane._uniforms[at]) / hop.log_fail) + 1
+        period = hop.period
         born = start + (k - 1) * period
         free = born + period
         for link in links:
             link_free[link] = free
-        if end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
-            self.new_sequences += (start, period, k, end_set)
-        lane.next_round[i] = free
-        lane.inflight[i] = (born, k)
+        if hop.end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
+            self.new_sequences += (start, period, k, hop.end_set)
+        hop.next_round = free
+        hop.flight_born, hop.flight_k = born, k
         # Environment.schedule, inlined (the same time arithmetic: now + delay)
-        event = lane.transfers[i]  # its one in-flight pair's event, reused (see _Lane.transfers)
+        event = hop.transfer  # its one in-flight pair's event, reused (see _Hop.transfer)
         event.args = (lane, i, born, k)
         event.callbacks = _FIRE
-        heappush(env._queue, (now + (born + ready - now), NORMAL, next(env._eid), event))  # type: ignore[attr-defined,misc]
+        heappush(env._queue, (now + (born + hop.ready - now), NORMAL, next(env._eid), event))  # type: ignore[attr-defined,misc]
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
         hold it in memory: interfaces free, the pair usable."""
-        lane.inflight[i] = None
-        count = lane.count
-        count.attempts[i] += k
-        count.successes[i] += 1
+        hop = lane.hops[i]
+        hop.flight_k = 0
+        hop.attempts += k
+        hop.successes += 1
         self.heralds += 1
         if not self.heralds & 4095:
             self.guard()
-        count.busy_s[i] += k * lane.period[i]
-        pair = _Pair(i, born, born + lane.herald[i])
+        hop.busy_s += k * hop.period
+        pair = _Pair(i, born, born + hop.herald)
         if self.log_pairs:
             lane.log.append(pair)
-        if lane.iface_ends[i]:
-            self.release_interfaces(lane.iface_ends[i])
+        if hop.iface_ends:
+            self.release_interfaces(hop.iface_ends)
         if self.rounds:
             self.climb(lane, i, pair, lane.chain.link_states[i], 0)
             return
-        lane.attempting[i] = False  # hand_over, inlined
-        lane.need_pair[i] = False
-        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        hop.attempting = False  # hand_over, inlined
+        hop.need_pair = False
+        hop.busy_left = hop.busy_right = True
         now = self.env._now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, born + self.cutoff))
 
     @staticmethod
-    def count_success(lane: _Lane, i: int, k: int) -> None:
-        count = lane.count
-        count.attempts[i] += k
-        count.successes[i] += 1
-        count.busy_s[i] += k * lane.period[i]
+    def count_success(hop: _Hop, k: int) -> None:
+        hop.attempts += k
+        hop.successes += 1
+        hop.busy_s += k * hop.period
 
     def absorb_log(self, merge: bool = False) -> None:
         """File the attempt sequences started since the last read under their sites (in one
@@ -573,25 +603,26 @@ class _Des:
 
     def hand_over(self, lane: _Lane, i: int, pair: _Pair) -> None:
         """Hop ``i`` gives its (purified) pair to the chain."""
-        lane.attempting[i] = False
-        lane.need_pair[i] = False
-        lane.busy[LEFT][i] = lane.busy[RIGHT][i] = True
+        hop = lane.hops[i]
+        hop.attempting = False
+        hop.need_pair = False
+        hop.busy_left = hop.busy_right = True
         now = self.env._now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
     def add_segment(self, lane: _Lane, seg: _Seg) -> None:
         n, lo, hi = lane.n, seg.lo, seg.hi
-        left_seg, right_seg = lane.left_seg, lane.right_seg
-        right_seg[lo] = seg
-        left_seg[hi] = seg
+        node_lo, node_hi = lane.nodes[lo], lane.nodes[hi]
+        node_lo.right = seg
+        node_hi.left = seg
         if lo == 0 and hi == n:
             self.deliver(lane, seg)
             return
         if seg.deadline < lane.cut_at:
             self.arm_cutoff(lane, seg.deadline)
-        at_lo = lo > 0 and left_seg[lo] is not None
-        at_hi = hi < n and right_seg[hi] is not None
+        at_lo = lo > 0 and node_lo.left is not None
+        at_hi = hi < n and node_hi.right is not None
         if self.asap:
             if at_lo:
                 self.swap(lane, lo)
@@ -606,20 +637,20 @@ class _Des:
                 self.swap(lane, j)
 
     def swap(self, lane: _Lane, j: int) -> None:
-        left, right = lane.left_seg[j], lane.right_seg[j]
+        node = lane.nodes[j]
+        left, right = node.left, node.right
         if not (left and right and left.alive and right.alive):
             return
         now = self.env._now
         left.alive = right.alive = False
-        lane.left_seg[j] = lane.right_seg[j] = None
-        left.pairs[-1].end[RIGHT] = right.pairs[0].end[LEFT] = now
-        success = lane.swap_p[j] >= 1.0 or lane.uniform() < lane.swap_p[j]
-        pos = lane.pos
-        to_lo, to_hi = pos[j] - pos[left.lo], pos[right.hi] - pos[j]
+        node.left = node.right = None
+        left.pairs[-1].end_right = right.pairs[0].end_left = now
+        success = node.swap_p >= 1.0 or lane.uniform() < node.swap_p
+        to_lo, to_hi = node.pos - lane.nodes[left.lo].pos, lane.nodes[right.hi].pos - node.pos
         if success:
             # site j's two slots free at once; hops j - 1 and j need no new pair (their pairs
             # live on in the joined segment), so nothing starts (free_slot, short-cut)
-            lane.busy[RIGHT][j - 1] = lane.busy[LEFT][j] = False
+            lane.hops[j - 1].busy_right = lane.hops[j].busy_left = False
             left.pairs[-1].fate = right.pairs[0].fate = "swapped"
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
@@ -632,7 +663,7 @@ class _Des:
         self.mark_lost(lane, left.pairs + right.pairs)
         self.free_slot(lane, j - 1, RIGHT, now)
         self.free_slot(lane, j, LEFT, now)
-        lane.count.swap_failures[j] += 1
+        node.swap_failures += 1
         for p in left.pairs + right.pairs:
             p.fate = "swap_failed"
         self.drop(lane, left, now + to_lo, None)
@@ -642,22 +673,21 @@ class _Des:
         """Forget ``seg``; its end slots free at the given times (None: not this end)."""
         seg.alive = False
         if lo_time is not None:
-            lane.right_seg[seg.lo] = None
-            seg.pairs[0].end[LEFT] = lo_time
+            lane.nodes[seg.lo].right = None
+            seg.pairs[0].end_left = lo_time
             self.free_slot(lane, seg.lo, LEFT, lo_time)
         if hi_time is not None:
-            lane.left_seg[seg.hi] = None
-            seg.pairs[-1].end[RIGHT] = hi_time
+            lane.nodes[seg.hi].left = None
+            seg.pairs[-1].end_right = hi_time
             self.free_slot(lane, seg.hi - 1, RIGHT, hi_time)
         for p in seg.pairs:  # lost pairs held their slots too (delivered ones count in flush)
-            self.held(lane, p, p.end[LEFT], p.end[RIGHT])
+            self.held(lane, p, p.end_left, p.end_right)
 
     @staticmethod
     def held(lane: _Lane, pair: _Pair, left_until: float, right_until: float) -> None:
         """Add the qubit-seconds ``pair`` spent in its two memories to the site occupancy."""
-        qubit_s = lane.count.site_qubit_s
-        qubit_s[pair.hop] += left_until - pair.start
-        qubit_s[pair.hop + 1] += right_until - pair.start
+        lane.nodes[pair.hop].qubit_s += left_until - pair.start
+        lane.nodes[pair.hop + 1].qubit_s += right_until - pair.start
 
     def arm_cutoff(self, lane: _Lane, deadline: float) -> None:
         """One pending cut-off timer per lane, at the earliest deadline of its live segments."""
@@ -670,47 +700,53 @@ class _Des:
             return
         lane.cut_at = math.inf
         now = self.env.now
-        for seg in list(lane.right_seg):
+        for seg in [node.right for node in lane.nodes]:
             if seg is not None and seg.alive and seg.deadline <= now:
                 for p in seg.pairs:
                     p.fate = "discarded"
-                    lane.count.discards[p.hop] += 1
+                    lane.hops[p.hop].discards += 1
                 self.mark_lost(lane, seg.pairs)
                 self.drop(lane, seg, now, now)
-        nxt = min((s.deadline for s in lane.right_seg if s is not None and s.alive), default=math.inf)
+        nxt = min((node.right.deadline for node in lane.nodes if node.right is not None and node.right.alive),
+                  default=math.inf)
         if nxt < lane.cut_at:
             self.arm_cutoff(lane, nxt)
 
     def mark_lost(self, lane: _Lane, pairs: list[_Pair]) -> None:
         """The hops of lost pairs must make new ones (once their slots are free)."""
         for p in pairs:
-            lane.need_pair[p.hop] = True
+            lane.hops[p.hop].need_pair = True
             self.maybe_start(lane, p.hop)
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
         if when > self.env._now:
             self.at(when, self.free_slot, lane, i, side, when)
             return
-        lane.busy[side][i] = False
-        if lane.active and lane.need_pair[i] and not lane.attempting[i] and not lane.busy[1 - side][i]:
+        hop = lane.hops[i]
+        if side == LEFT:
+            hop.busy_left = False
+            other_busy = hop.busy_right
+        else:
+            hop.busy_right = False
+            other_busy = hop.busy_left
+        if lane.active and hop.need_pair and not hop.attempting and not other_busy:
             self.begin(lane, i)
 
     def maybe_start(self, lane: _Lane, i: int) -> None:
         """Start hop ``i`` if it needs a pair, its slots are free and its cycle is running."""
-        if lane.active and lane.need_pair[i] and not lane.attempting[i]:
-            busy = lane.busy
-            if not (busy[LEFT][i] or busy[RIGHT][i]):
-                self.begin(lane, i)
+        hop = lane.hops[i]
+        if lane.active and hop.need_pair and not hop.attempting and not (hop.busy_left or hop.busy_right):
+            self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
         t_d = max(seg.info_lo, seg.info_hi)
         seg.alive = False
-        lane.right_seg[0] = lane.left_seg[lane.n] = None
-        seg.pairs[0].end[LEFT] = seg.pairs[-1].end[RIGHT] = t_d
+        lane.nodes[0].right = lane.nodes[lane.n].left = None
+        seg.pairs[0].end_left = seg.pairs[-1].end_right = t_d
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
-        lane.rows.append((t_d, [p.end[LEFT] - p.start for p in seg.pairs],
-                          [p.end[RIGHT] - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
+        lane.rows.append((t_d, [p.end_left - p.start for p in seg.pairs],
+                          [p.end_right - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
                           [p.start for p in seg.pairs]))
         self.at(t_d, self.close_cycle, lane, t_d)
 
@@ -757,7 +793,7 @@ class _Des:
     def purified(self, lane: _Lane, i: int, other: _Pair, p: float, out: NDArray[np.complex128], level: int,
                  measured: float) -> None:
         if lane.uniform() >= p:
-            lane.count.purification_failures[i] += 1
+            lane.hops[i].purification_failures += 1
             self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
             self.begin(lane, i)
             return
@@ -814,10 +850,10 @@ class _Des:
         return out
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
-        for i, flight in enumerate(lane.inflight):  # heralded by the end, still moving to memory
-            if flight is not None and flight[0] + lane.herald[i] <= self.env.now:
-                self.count_success(lane, i, flight[1])
-        lane.count.add_to(lane.run)
+        for hop in lane.hops:  # heralded by the end, still moving to memory
+            if hop.flight_k and hop.flight_born + hop.herald <= self.env.now:
+                self.count_success(hop, hop.flight_k)
+        lane.add_counts()
         self.flush(lane, now)
         lane.run.simulated_time_s = now
         lane.run.interrupted = interrupted
@@ -885,7 +921,7 @@ class _Des:
             return
         oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
-            segs = [seg for seg in ln.left_seg + ln.right_seg if seg is not None]
+            segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
             starts += [t for row in ln.rows for t in row[4]]
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]

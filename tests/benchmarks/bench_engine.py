@@ -116,20 +116,21 @@ class PerAttemptDes(PLAIN._Des):  # type: ignore[name-defined,misc]
     """
 
     def attempt(self, lane: Any, i: int) -> None:
-        lane.attempting[i] = True
-        start = max(self.env.now, lane.next_round[i], *(self.link_free[n] for n in lane.hop_constants[i][0]))
+        hop = lane.hops[i]
+        hop.attempting = True
+        start = max(self.env.now, hop.next_round, *(self.link_free[n] for n in hop.links))
         self.at(start, self._round, lane, i, start, 1)
 
     def _round(self, lane: Any, i: int, t: float, k: int) -> None:
-        period = lane.period[i]
-        for link in lane.hop_constants[i][0]:
-            self.link_free[link] = t + period
-        if lane.rng.random() < lane.p[i]:
-            lane.next_round[i] = t + period
-            lane.inflight[i] = (t, k)
-            self.at(t + lane.ready[i], self.transferred, lane, i, t, k)
+        hop = lane.hops[i]
+        for link in hop.links:
+            self.link_free[link] = t + hop.period
+        if lane.rng.random() < hop.p:
+            hop.next_round = t + hop.period
+            hop.flight_born, hop.flight_k = t, k
+            self.at(t + hop.ready, self.transferred, lane, i, t, k)
         else:
-            self.at(t + period, self._round, lane, i, t + period, k + 1)
+            self.at(t + hop.period, self._round, lane, i, t + hop.period, k + 1)
 
 
 def _des(chain: Chain, pairs: int, seed: int, engine: Any = _Des, cutoff_s: float = CUTOFF_S) -> ChainRun:
