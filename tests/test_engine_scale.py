@@ -191,6 +191,35 @@ def test_batched_attempt_counts_equal_the_one_by_one_count() -> None:
     assert batched.tolist() == one_by_one and sum(one_by_one) > 0
 
 
+def test_final_attempt_count_of_all_demands_at_once_equals_each_demand_alone() -> None:
+    """At the end of a run the event engine counts the attempts every stored qubit of every
+    demand saw, site by site over all demands at once; it must give exactly what counting each
+    demand on its own gives (integer arithmetic on the logged rounds: exact equality, common
+    practice). A generated grid whose sites all have attempt dephasing (the built-in node
+    defaults), 8 demands sharing sites, stopped part-way so that rows remain."""
+    from netsim.engine import DesOptions
+    from netsim.engine.api import chains_from_scenario
+    from netsim.engine.des import _Des
+
+    chains = chains_from_scenario(metro_scenario(grid_metro(4, 4, 8, 4, seed=5)))
+    chains = [c for c in chains if c.n_hops > 1]
+    slots = {s.name: int(s.memory_slots) for c in chains for s in c.sites}
+    sim = _Des(chains, [np.random.default_rng(k) for k in range(len(chains))], slots,
+               [StopRule(pairs=10**6)] * len(chains), DesOptions(cutoff_s=0.5))
+    for lane in sim.lanes:
+        sim.request(lane)
+    sim.env.run(until=2.0)
+    sim.ended = True
+    rows = [sim.take_rows(lane, sim.env.now) for lane in sim.lanes]
+    assert len(sim.sequences) > 10 and all(len(r[0]) > 0 for r in rows)
+    together = sim.count_attempts(list(zip(sim.lanes, rows)))
+    for lane, r, both in zip(sim.lanes, rows, together):
+        (alone,) = sim.count_attempts([(lane, r)])
+        assert both is not None and alone is not None
+        assert both[0].tolist() == alone[0].tolist() and both[1].tolist() == alone[1].tolist()
+    assert sum(float(both[0].sum() + both[1].sum()) for both in together if both is not None) > 0
+
+
 def test_purification_step_attempt_counts_equal_the_batched_count() -> None:
     """A purification step counts a site's attempts itself: sequences logged since the last read
     where they lie, short stretches of the filed log one by one (des._rounds_in), long ones with

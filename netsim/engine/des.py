@@ -50,6 +50,7 @@ from __future__ import annotations
 import gc
 import math
 import operator
+from array import array
 from heapq import heappush
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any, SupportsInt
@@ -84,6 +85,8 @@ PENDING_SCAN = 64
 #: Uniform draws are taken from a lane's stream this many at a time (the stream gives the same
 #: numbers in blocks of any size; a small block keeps 100 lanes' buffered draws in cache).
 UNIFORM_BLOCK = 64
+#: Attempt sequences not yet filed are moved from a list into an array this many values at a time.
+LOG_BLOCK = 4 * 4096
 
 
 class _Pair:
@@ -202,7 +205,14 @@ class _Lane:
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
         self.last_delivery_s = 0.0
         self.active = False  # a cycle is running under a granted reservation
-        self.rows: list[tuple[float, list[float], list[float], list[int], list[float]]] = []
+        #: delivered pairs not yet turned into states, flat, one row per pair (n entries per pair
+        #: but the first): delivery time; each hop's storage time at its left and right end, its
+        #: pair's state index and start. Unboxed: a run may hold every row until its end.
+        self.row_delivered: array[float] = array("d")
+        self.row_left: array[float] = array("d")
+        self.row_right: array[float] = array("d")
+        self.row_state: array[int] = array("q")
+        self.row_start: array[float] = array("d")
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
@@ -294,6 +304,11 @@ def path_need(chain: Chain, per_end: int) -> dict[str, int]:
     return need
 
 
+#: A lane's delivered rows in delivery order: delivery times (N,); storage times left and right,
+#: state indices and starts (N, n) (see _Lane.row_delivered).
+_Rows = tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], NDArray[np.int64], NDArray[np.float64]]
+
+
 class _Des:
     """One event-engine run over a group of demands that share memory sites.
 
@@ -355,6 +370,10 @@ class _Des:
         self.recent: dict[str, NDArray[np.float64]] = {name: np.zeros((0, 3)) for name in self.sequences}
         #: attempt sequences (start, period, rounds, index into end_sets) not yet filed
         self.new_sequences: list[float] = []  # flat: start, period, rounds, end-set index, ...
+        #: earlier ones, moved out of ``new_sequences`` LOG_BLOCK values at a time as (M, 4) arrays
+        #: (their boxed numbers are freed while still in cache; one growing array.array would
+        #: copy itself over and over as it grows)
+        self.log_blocks: list[NDArray[np.float64]] = []
         self.end_sets: list[tuple[str, ...]] = []  # the distinct sets of a hop's dephasing sites
         for lane in self.lanes:
             c = lane.chain
@@ -433,7 +452,11 @@ class _Des:
         for link in links:
             link_free[link] = free
         if hop.end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
-            self.new_sequences += (start, period, k, hop.end_set)
+            pending = self.new_sequences
+            pending += (start, period, k, hop.end_set)
+            if len(pending) >= LOG_BLOCK:
+                self.log_blocks.append(np.array(pending, dtype=float).reshape(-1, 4))
+                self.new_sequences = []
         hop.next_round = free
         hop.flight_born, hop.flight_k = born, k
         # Environment.schedule, inlined (the same time arithmetic: now + delay)
@@ -477,9 +500,12 @@ class _Des:
         """File the attempt sequences started since the last read under their sites (in one
         batched pass: grouped by the hop's set of dephasing sites, sorted by start) in ``recent``;
         merge ``recent`` into ``sequences`` when ``merge`` or once it is long."""
-        if self.new_sequences:
-            new = np.array(self.new_sequences, dtype=float).reshape(-1, 4)
-            self.new_sequences = []
+        if self.new_sequences or self.log_blocks:
+            blocks = self.log_blocks
+            if self.new_sequences:
+                blocks.append(np.array(self.new_sequences, dtype=float).reshape(-1, 4))
+            new = np.concatenate(blocks) if len(blocks) > 1 else blocks[0]
+            self.new_sequences, self.log_blocks = [], []
             key = new[:, 3].astype(np.int64)
             order = np.argsort(key, kind="stable")
             bounds = np.searchsorted(key[order], np.arange(len(self.end_sets) + 1))
@@ -577,7 +603,7 @@ class _Des:
         if site not in self.sequences:
             return 0
         pending = self.new_sequences
-        if len(pending) > 4 * PENDING_SCAN:
+        if self.log_blocks or len(pending) > 4 * PENDING_SCAN:
             self.absorb_log()
             pending = self.new_sequences
         total = 0
@@ -745,9 +771,12 @@ class _Des:
         seg.pairs[0].end_left = seg.pairs[-1].end_right = t_d
         for p in seg.pairs:
             p.fate = p.fate or "delivered"
-        lane.rows.append((t_d, [p.end_left - p.start for p in seg.pairs],
-                          [p.end_right - p.start for p in seg.pairs], [p.state_id for p in seg.pairs],
-                          [p.start for p in seg.pairs]))
+        pairs = seg.pairs
+        lane.row_delivered.append(t_d)
+        lane.row_left.extend([p.end_left - p.start for p in pairs])
+        lane.row_right.extend([p.end_right - p.start for p in pairs])
+        lane.row_state.extend([p.state_id for p in pairs])
+        lane.row_start.extend([p.start for p in pairs])
         self.at(t_d, self.close_cycle, lane, t_d)
 
     def close_cycle(self, lane: _Lane, t_d: float) -> None:
@@ -755,7 +784,7 @@ class _Des:
         was_done = rule.pairs is not None and rule.done(run, self.env.now)
         run.add_interval(t_d, lane.last_delivery_s)
         lane.last_delivery_s = t_d
-        if len(lane.rows) >= FLUSH_ROWS:
+        if len(lane.row_delivered) >= FLUSH_ROWS:
             limit = rule.time_s
             self.flush(lane, min(self.env.now, math.inf if limit is None else float(limit)))
         lane.active = False
@@ -840,58 +869,99 @@ class _Des:
             except KeyboardInterrupt:
                 interrupted = True
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
-            out = []
-            for rule, lane in zip(self.rules, self.lanes):
-                timed = rule.time_s is not None and not interrupted
-                out.append(self.finish(lane, float(rule.time_s) if timed else self.env.now, interrupted))  # type: ignore[arg-type]
+            uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.env.now
+                     for rule in self.rules]
+            rows = [self.take_rows(lane, upto) for lane, upto in zip(self.lanes, uptos)]
+            counts = self.count_attempts(list(zip(self.lanes, rows)))  # every demand's at once
+            out = [self.finish(lane, upto, interrupted, r, c)
+                   for lane, upto, r, c in zip(self.lanes, uptos, rows, counts)]
         finally:
             if collecting:
                 gc.enable()
         return out
 
-    def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
+    def finish(self, lane: _Lane, now: float, interrupted: bool, rows: _Rows,
+               counts: tuple[NDArray[np.float64], NDArray[np.float64]] | None) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
             if hop.flight_k and hop.flight_born + hop.herald <= self.env.now:
                 self.count_success(hop, hop.flight_k)
         lane.add_counts()
-        self.flush(lane, now)
+        self.add_states(lane, rows, counts)
         lane.run.simulated_time_s = now
         lane.run.interrupted = interrupted
         return lane.run
 
     def flush(self, lane: _Lane, upto: float) -> None:
         """Turn the recorded histories delivered by ``upto`` into states and figures."""
-        ready = sorted(r for r in lane.rows if r[0] <= upto)
-        lane.rows = [r for r in lane.rows if r[0] > upto]
+        rows = self.take_rows(lane, upto)
+        self.add_states(lane, rows, self.count_attempts([(lane, rows)])[0])
+        self.prune_sequences()
+
+    def take_rows(self, lane: _Lane, upto: float) -> _Rows:
+        """The lane's recorded rows delivered by ``upto``, in delivery order, taken from the lane:
+        (delivery time (N,), storage times left and right, state indices, starts (N, n))."""
+        n = lane.chain.n_hops
+        delivered = np.array(lane.row_delivered, dtype=float)
+        left = np.array(lane.row_left, dtype=float).reshape(-1, n)
+        right = np.array(lane.row_right, dtype=float).reshape(-1, n)
+        state = np.array(lane.row_state, dtype=np.int64).reshape(-1, n)
+        start = np.array(lane.row_start, dtype=float).reshape(-1, n)
+        due = delivered <= upto
+        # a lane delivers in time order (its next cycle starts after this delivery), so this
+        # keeps the order in which the rows were recorded
+        ready = np.flatnonzero(due)
+        ready = ready[np.argsort(delivered[ready], kind="stable")]
+        kept = np.flatnonzero(~due)
+        lane.row_delivered = array("d", delivered[kept].tobytes())
+        lane.row_left = array("d", left[kept].tobytes())
+        lane.row_right = array("d", right[kept].tobytes())
+        lane.row_state = array("q", state[kept].tobytes())
+        lane.row_start = array("d", start[kept].tobytes())
+        return delivered[ready], left[ready], right[ready], state[ready], start[ready]
+
+    def add_states(self, lane: _Lane, rows: _Rows, counts: tuple[NDArray[np.float64], NDArray[np.float64]] | None) -> None:
+        """Turn ``rows`` (:meth:`take_rows`) into states and add them to the lane's figures;
+        ``counts``: the attempts its stored qubits saw (:meth:`count_attempts`)."""
         n, run = lane.chain.n_hops, lane.run
-        for lo in range(0, len(ready), 20_000):
-            part = ready[lo:lo + 20_000]
-            hist = History(np.array([r[0] for r in part]), np.array([r[1] for r in part]),
-                           np.array([r[2] for r in part]), np.array([r[3] for r in part], dtype=np.int64),
-                           lane.extra)
-            self.count_attempts(lane, hist, [r[4] for r in part])
+        delivered, left, right, state, _ = rows
+        for lo in range(0, len(delivered), 20_000):
+            part = slice(lo, lo + 20_000)
+            hist = History(delivered[part], left[part], right[part], state[part], lane.extra)
+            if counts is not None:
+                hist.attempts_left, hist.attempts_right = counts[0][part], counts[1][part]
             run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
             run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
             run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
-        self.prune_sequences()
 
-    def count_attempts(self, lane: _Lane, hist: History, starts: list[list[float]]) -> None:
-        """Fill ``hist.attempts_left/right`` where a site of the chain has attempt dephasing (at
-        flush time every attempt up to the deliveries is logged). Same count as :meth:`attempts_at`
-        for every stored qubit, in one batched pass per hop end."""
-        c = lane.chain
-        if not any(site.name in self.sequences for site in c.sites):
-            return
-        begin = np.asarray(starts, dtype=float).reshape(len(hist), c.n_hops)
-        out = []
-        for store, offset in ((hist.store_left_s, 0), (hist.store_right_s, 1)):
-            counts = np.zeros(store.shape)
-            for i in range(c.n_hops):
-                name = c.sites[i + offset].name
-                if name in self.sequences:
-                    counts[:, i] = self.attempts_many(name, self.sorted_log(name), begin[:, i], begin[:, i] + store[:, i])
+    def count_attempts(self, due: list[tuple[_Lane, _Rows]]) -> list[tuple[NDArray[np.float64], NDArray[np.float64]] | None]:
+        """Per lane, the attempts each stored qubit of its ``rows`` saw at its site, left and
+        right (N, n), or None where no site of the chain has attempt dephasing (at flush time
+        every attempt up to the deliveries is logged). Same count as :meth:`attempts_at` for every
+        stored qubit, in one batched pass per site over all the lanes given: each site's log is
+        read once, not once per hop end of every demand."""
+        out: list[tuple[NDArray[np.float64], NDArray[np.float64]] | None] = []
+        #: per site: (counts to fill, hop, after, until) of every hop end there
+        wanted: dict[str, list[tuple[NDArray[np.float64], int, NDArray[np.float64], NDArray[np.float64]]]] = {}
+        for lane, (_, left, right, _, begin) in due:
+            c = lane.chain
+            if not any(site.name in self.sequences for site in c.sites):
+                out.append(None)
+                continue
+            counts = (np.zeros(left.shape), np.zeros(right.shape))
+            for store, offset in ((left, 0), (right, 1)):
+                for i in range(c.n_hops):
+                    name = c.sites[i + offset].name
+                    if name in self.sequences:
+                        wanted.setdefault(name, []).append((counts[offset], i, begin[:, i], begin[:, i] + store[:, i]))
             out.append(counts)
-        hist.attempts_left, hist.attempts_right = out
+        for name, ends in wanted.items():
+            found = self.attempts_many(name, self.sorted_log(name), np.concatenate([e[2] for e in ends]),
+                                       np.concatenate([e[3] for e in ends]))
+            at = 0
+            for target, i, after, _ in ends:
+                target[:, i] = found[at:at + len(after)]
+                at += len(after)
+        return out
 
     def attempts_many(self, site: str, log: NDArray[np.float64], after_s: NDArray[np.float64],
                       until_s: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -923,7 +993,7 @@ class _Des:
         for ln in self.lanes:
             segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
-            starts += [t for row in ln.rows for t in row[4]]
+            starts += ln.row_start.tolist()
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
         for site, seqs in self.sequences.items():
