@@ -247,6 +247,16 @@ class _Lane:
         return self._uniforms[self._next_uniform - 1]
 
 
+def _later(a: float, b: float) -> float:
+    """``max(a, b)`` of two floats (the builtin goes through generic comparisons when compiled)."""
+    return b if b > a else a
+
+
+def _earlier(a: float, b: float) -> float:
+    """``min(a, b)`` of two floats."""
+    return b if b < a else a
+
+
 def _rounds_in(start: float, period: float, k: float, after_s: float, until_s: float) -> int:
     """:func:`netsim.engine.history.rounds_between` for one sequence, in plain Python."""
     lo = max(0.0, math.floor((after_s - start) / period + 1e-9) + 1.0)
@@ -589,9 +599,14 @@ class _Des:
                 granted.append(entry)
         for entry in granted:
             for site in entry[1]:
-                waiting[site].remove(entry)
+                queue = waiting[site]
+                at = 0
+                while queue[at] is not entry:  # list.remove, by identity (no == on the entries)
+                    at += 1
+                del queue[at]
         for entry in granted:
-            self.attempt(*entry[2])
+            lane, i = entry[2]
+            self.attempt(lane, i)
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand.
@@ -681,9 +696,9 @@ class _Des:
             # outcomes known at j (this swap, and what j learnt of each side) travel on to the
             # far ends: the joined pair's ends know everything at these times
             joined = _Seg(left.lo, right.hi, left.pairs + right.pairs,
-                          max(left.info_lo, now + to_lo, right.info_lo + to_lo),
-                          max(right.info_hi, now + to_hi, left.info_hi + to_hi),
-                          min(left.deadline, right.deadline))
+                          _later(_later(left.info_lo, now + to_lo), right.info_lo + to_lo),
+                          _later(_later(right.info_hi, now + to_hi), left.info_hi + to_hi),
+                          _earlier(left.deadline, right.deadline))
             self.add_segment(lane, joined)
             return
         self.mark_lost(lane, left.pairs + right.pairs)
@@ -765,7 +780,7 @@ class _Des:
             self.begin(lane, i)
 
     def deliver(self, lane: _Lane, seg: _Seg) -> None:
-        t_d = max(seg.info_lo, seg.info_hi)
+        t_d = _later(seg.info_lo, seg.info_hi)
         seg.alive = False
         lane.nodes[0].right = lane.nodes[lane.n].left = None
         seg.pairs[0].end_left = seg.pairs[-1].end_right = t_d
