@@ -20,6 +20,7 @@ from typing import Any, NoReturn
 
 from netsim import __version__
 from netsim.errors import NetsimError, format_value, shorten
+from netsim.interrupts import interrupt_deferred
 
 __all__ = ["OneLineParser", "build_parser", "main", "seed_value"]
 
@@ -128,7 +129,8 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    with interrupt_deferred():  # the commands' modules load here (see netsim.interrupts)
+        parser = build_parser()
     args, extra = parser.parse_known_args(argv)
     if extra:
         print(_unknown_option(parser, getattr(args, "command", None), extra), file=sys.stderr)

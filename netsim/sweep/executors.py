@@ -42,6 +42,7 @@ from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wai
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any
 
+from netsim.interrupts import interrupt_deferred as _interrupt_deferred
 from netsim.errors import ParameterError
 from netsim.sweep.store import PointRecord
 from netsim.sweep.worker import PointFunction, PointTask, execute, utc_now
@@ -96,37 +97,6 @@ def _start_forkserver() -> None:
     finally:
         signal.signal(signal.SIGINT, previous)
         signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
-
-
-@contextlib.contextmanager
-def _interrupt_deferred() -> Iterator[None]:
-    """Hold a Ctrl-C back until the block has ended, then raise it as usual.
-
-    ``ProcessPoolExecutor.submit`` starts a worker when none is idle: the fork server forks the
-    child, the coordinator writes the child its pickled arguments (which name the semaphores of
-    the pool's queues and of the start-report queue) and then waits for the child's pid; only
-    after that is the child entered in the pool's process table. A KeyboardInterrupt raised in
-    that wait left a child nobody knew of: :func:`_stop` could not end it, the coordinator
-    exited and released the semaphores, and the child, still unpickling, printed a
-    FileNotFoundError traceback. Masking SIGINT in this thread does not help: the signal then
-    goes to another thread of the process and Python still raises it in the main thread. So the
-    Python handler itself is replaced for the block, which is short: it lasts until the fork
-    server has forked the worker (at most its own start-up, if it is still importing numpy).
-    """
-    if threading.current_thread() is not threading.main_thread() or signal.getsignal(signal.SIGINT) is None:
-        yield  # KeyboardInterrupt is only raised in the main thread; None: a handler Python cannot restore
-        return
-    caught: list[Any] = []
-    previous = signal.signal(signal.SIGINT, lambda signum, frame: caught.append(frame))
-    try:
-        yield
-    finally:
-        signal.signal(signal.SIGINT, previous)
-        if caught:
-            if callable(previous):
-                previous(signal.SIGINT, caught[0])  # the default handler raises KeyboardInterrupt
-            elif previous == signal.SIG_DFL:
-                signal.raise_signal(signal.SIGINT)
 
 
 def _watch(pid: int) -> None:
@@ -252,7 +222,7 @@ class _PoolRound:
             if task is None:
                 return True
             try:
-                with _interrupt_deferred():  # submit may start a worker (see _interrupt_deferred)
+                with _interrupt_deferred():  # submit may start a worker (see netsim.interrupts)
                     self.in_flight[self.pool.submit(_run_point, self.owner.function, task)] = task
             except BrokenProcessPool:
                 self.backlog.give_back(task, self.isolating)
