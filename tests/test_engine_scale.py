@@ -110,13 +110,25 @@ def _plain_pass(free: dict[str, int], order: list[dict[str, int]]) -> list[int]:
     return granted
 
 
-@pytest.mark.parametrize("policy", sorted(SCHEDULING))
+class _PlugIn:
+    """A scheduling plug-in without a sort key (first come, first served): the broker serves it
+    with its full pass instead of the per-site files."""
+
+    name = "plug-in"
+
+    @staticmethod
+    def order(requests: list[Request]) -> list[Request]:
+        return sorted(requests, key=lambda r: (r.time_s, r.sequence))
+
+
+@pytest.mark.parametrize("policy", [*sorted(SCHEDULING), "plug-in"])
 def test_incremental_broker_grants_what_a_full_pass_grants(policy: str) -> None:
     rng = np.random.default_rng(9)
     sites = [f"S{k}" for k in range(6)]
     capacity = {s: int(rng.integers(1, 4)) for s in sites}
     now = [0.0]
-    broker = SlotBroker(capacity, SCHEDULING[policy], lambda: now[0])
+    rule = _PlugIn() if policy == "plug-in" else SCHEDULING[policy]
+    broker = SlotBroker(capacity, rule, lambda: now[0])
     free = dict(capacity)
     waiting: list[tuple[Request, int]] = []
     held: list[dict[str, int]] = []
@@ -135,7 +147,7 @@ def test_incremental_broker_grants_what_a_full_pass_grants(policy: str) -> None:
             req = Request(int(rng.integers(5)), now[0], step, need)
             waiting.append((req, step))
             broker.request(req.demand_index, need, lambda step=step: by_broker.append(step))
-        order = SCHEDULING[policy].order([r for r, _ in waiting])
+        order = rule.order([r for r, _ in waiting])
         for k in _plain_pass(free, [r.need for r in order]):
             held.append(order[k].need)
             by_reference.append(next(s for r, s in waiting if r is order[k]))

@@ -54,9 +54,12 @@ class Request:
     time_s: float
     sequence: int
     need: dict[str, int]
-    #: per site: slots needed by the requests queued ahead of this one, plus the broker's
-    #: ``shift`` of that site (kept by the broker; see SlotBroker._grant_all)
-    ahead: dict[str, int] = field(default_factory=dict, compare=False, repr=False)
+    #: the broker's numbers of the sites of ``need`` and the slots needed at each, in its order
+    sites: list[int] = field(default_factory=list, compare=False, repr=False)
+    counts: list[int] = field(default_factory=list, compare=False, repr=False)
+    #: per site of ``sites``: slots needed by the requests queued ahead of this one, plus the
+    #: broker's ``shift`` of that site (kept by the broker; see SlotBroker._grant_all)
+    ahead: list[int] = field(default_factory=list, compare=False, repr=False)
     #: the policy's sort key of this request, set by the broker when it has one
     rank: tuple[float, ...] = field(default=(), compare=False, repr=False)
 
@@ -155,90 +158,118 @@ class SlotBroker:
 
     def __init__(self, capacity: dict[str, int], policy: SchedulingPolicy,
                  clock: Callable[[], float] = lambda: 0.0) -> None:
-        self.free, self.policy, self.clock = dict(capacity), policy, clock
+        self.policy, self.clock = policy, clock
+        #: the sites, numbered: every per-site figure below is a list indexed by that number
+        #: (the per-cycle bookkeeping by name was a tenth of a grid run's instructions)
+        self.names: list[str] = list(capacity)
+        self.number: dict[str, int] = {name: k for k, name in enumerate(self.names)}
+        n = len(self.names)
+        self.capacity = dict(capacity)
+        self.limit: list[int] = [capacity[name] for name in self.names]
+        self.room: list[int] = list(self.limit)  # free slots per site
         self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
-        self.queues: dict[str, list[Request]] = {site: [] for site in capacity}
-        self.blocked: dict[str, list[Request]] = {site: [] for site in capacity}
-        self.total: dict[str, int] = dict.fromkeys(capacity, 0)  # slots needed by the waiting, per site
+        self.queues: list[list[Request]] = [[] for _ in range(n)]
+        self.blocked: list[list[Request]] = [[] for _ in range(n)]
+        self.total: list[int] = [0] * n  # slots needed by the waiting, per site
         #: per site: subtracted from every waiting request's ``ahead`` there (_grant_all)
-        self.shift: dict[str, int] = dict.fromkeys(capacity, 0)
+        self.shift: list[int] = [0] * n
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
         # occupancy statistics per site (see stats())
-        self.capacity = dict(capacity)
-        self._since = dict.fromkeys(capacity, 0.0)
+        self._since: list[float] = [0.0] * n
         #: per site: time spent with 0, 1, ... slots in use (index = slots in use)
-        self._time_at: dict[str, list[float]] = {s: [0.0] * (int(k) + 1) for s, k in capacity.items()}
-        self._peak = dict.fromkeys(capacity, 0)
-        self._requests = dict.fromkeys(capacity, 0)
-        self._waited = dict.fromkeys(capacity, 0)
-        self._loads: dict[str, dict[int, int]] = {s: {} for s in capacity}
+        self._time_at: list[list[float]] = [[0.0] * (int(k) + 1) for k in self.limit]
+        self._peak: list[int] = [0] * n
+        self._requests: list[int] = [0] * n
+        self._waited: list[int] = [0] * n
+        self._loads: list[dict[int, int]] = [{} for _ in range(n)]
+
+    @property
+    def free(self) -> dict[str, int]:
+        """Free slots per site name."""
+        return {name: self.room[k] for k, name in enumerate(self.names)}
 
     def request(self, demand_index: int, need: dict[str, int], on_grant: Callable[[], None]) -> None:
         self._sequence += 1
-        short = self._count_request(need)
+        number = self.number
+        sites = [number[name] for name in need]
+        counts = list(need.values())
+        short = self._count_request(sites, counts)
         req = Request(demand_index, self.clock(), self._sequence, need)
+        req.sites, req.counts = sites, counts
         self.waiting[req.sequence] = (req, on_grant)
         key = self._key
         if key is None:
             self._full_pass()
         else:
             own = req.rank = key(req)
-            queues, total, ahead, shift = self.queues, self.total, req.ahead, self.shift
-            for site, k in need.items():
+            queues, total, shift = self.queues, self.total, self.shift
+            ahead = req.ahead = [0] * len(sites)
+            for j in range(len(sites)):
+                site, k = sites[j], counts[j]
                 queue = queues[site]
                 if queue and queue[-1].rank > own:
                     at = bisect.bisect_right(queue, own, key=_rank)
                     queue.insert(at, req)
-                    ahead[site] = sum(other.need[site] for other in queue[:at]) + shift[site]
+                    ahead[j] = sum(other.counts[other.sites.index(site)] for other in queue[:at]) + shift[site]
                     for other in queue[at + 1:]:
-                        other.ahead[site] += k
+                        other.ahead[other.sites.index(site)] += k
                 else:
-                    ahead[site] = total[site] + shift[site]
+                    ahead[j] = total[site] + shift[site]
                     queue.append(req)
                 total[site] += k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
-            if blocker is None:
+            if blocker < 0:
                 self._grant_all([req])
             else:
                 bisect.insort(self.blocked[blocker], req, key=_rank)
         if req.sequence in self.waiting:
-            for site in short or list(need):
-                self._waited[site] += 1
+            waited = self._waited
+            for site in short or sites:
+                waited[site] += 1
 
-    def _count_request(self, need: dict[str, int]) -> list[str]:
+    def _count_request(self, sites: list[int], counts: list[int]) -> list[int]:
         """Record what a new request meets at each of its sites (slots in use + queued before it
         + its own need) and return the sites where that exceeds the capacity."""
         short = []
-        capacity, free, total, loads, requests = self.capacity, self.free, self.total, self._loads, self._requests
+        limit, room, total, loads, requests = self.limit, self.room, self.total, self._loads, self._requests
         incremental = self._key is not None
-        for site, k in need.items():
-            queued = total[site] if incremental else sum(r.need.get(site, 0) for r, _ in self.waiting.values())
-            load = capacity[site] - free[site] + queued + k
-            counts = loads[site]
-            counts[load] = counts.get(load, 0) + 1
+        for j in range(len(sites)):
+            site, k = sites[j], counts[j]
+            if incremental:
+                queued = total[site]
+            else:
+                name = self.names[site]
+                queued = sum(r.need.get(name, 0) for r, _ in self.waiting.values())
+            load = limit[site] - room[site] + queued + k
+            seen = loads[site]
+            seen[load] = seen.get(load, 0) + 1
             requests[site] += 1
-            if load > capacity[site]:
+            if load > limit[site]:
                 short.append(site)
         return short
 
     def release(self, need: dict[str, int]) -> None:
-        now, free, capacity, since, spent = self.clock(), self.free, self.capacity, self._since, self._time_at
-        for site, k in need.items():  # credit the time since the last change (see _tick)
-            in_use = capacity[site] - free[site]
+        now, room, limit, since, spent, number = (self.clock(), self.room, self.limit, self._since,
+                                                  self._time_at, self.number)
+        changed = []
+        for name, k in need.items():  # credit the time since the last change (see _tick)
+            site = number[name]
+            in_use = limit[site] - room[site]
             spent[site][in_use] += now - since[site]
             since[site] = now
-            free[site] += k
+            room[site] += k
+            changed.append(site)
         if not self.waiting:
             return
         if self._key is None:
             self._full_pass()
         else:
-            self._pass(need)
+            self._pass(changed)
 
-    def _tick(self, site: str, now: float) -> None:
+    def _tick(self, site: int, now: float) -> None:
         """Credit the time since the last change to the current number of slots in use."""
-        self._time_at[site][self.capacity[site] - self.free[site]] += now - self._since[site]
+        self._time_at[site][self.limit[site] - self.room[site]] += now - self._since[site]
         self._since[site] = now
 
     def stats(self) -> dict[str, dict[str, Any]]:
@@ -247,7 +278,7 @@ class SlotBroker:
         that were short), ``loads`` ({slots in use + queued + own need at the request: count})."""
         out: dict[str, dict[str, Any]] = {}
         now = self.clock()
-        for site in self.capacity:
+        for site, name in enumerate(self.names):
             self._tick(site, now)
             spent = {in_use: t for in_use, t in enumerate(self._time_at[site]) if t > 0}
             total = sum(spent.values())
@@ -257,19 +288,20 @@ class SlotBroker:
                 p99 = in_use
                 if total > 0 and running >= 0.99 * total:
                     break
-            out[site] = {"peak": self._peak[site], "p99": p99, "requests": self._requests[site],
+            out[name] = {"peak": self._peak[site], "p99": p99, "requests": self._requests[site],
                          "waited": self._waited[site], "loads": dict(self._loads[site])}
         return out
 
-    def _blocker(self, req: Request) -> str | None:
-        """A site where ``req`` does not fit behind the requests ahead of it, or None if it fits."""
-        free, ahead, shift = self.free, req.ahead, self.shift
-        for site, k in req.need.items():
-            if free[site] - (ahead[site] - shift[site]) < k:
+    def _blocker(self, req: Request) -> int:
+        """A site where ``req`` does not fit behind the requests ahead of it, or -1 if it fits."""
+        room, ahead, shift, sites, counts = self.room, req.ahead, self.shift, req.sites, req.counts
+        for j in range(len(sites)):
+            site = sites[j]
+            if room[site] - (ahead[j] - shift[site]) < counts[j]:
                 return site
-        return None
+        return -1
 
-    def _pass(self, changed: dict[str, int]) -> None:
+    def _pass(self, changed: list[int]) -> None:
         """Grant every waiting request that fits after slots at ``changed`` were freed.
 
         A waiting request is filed under a site where it did not fit; its room there can only
@@ -284,13 +316,14 @@ class SlotBroker:
             self._full_pass()
             return
         fitting: list[Request] = []
-        blocked, free, shift = self.blocked, self.free, self.shift
+        blocked, room, shift = self.blocked, self.room, self.shift
         for site in changed:
             filed = blocked[site]
-            room = free[site] + shift[site]
+            free = room[site] + shift[site]
             n = 0
             for req in filed:
-                if room - req.ahead[site] < req.need[site]:
+                j = req.sites.index(site)
+                if free - req.ahead[j] < req.counts[j]:
                     break
                 n += 1
             if n == 0:
@@ -298,9 +331,10 @@ class SlotBroker:
             head = filed[:n]
             del filed[:n]
             for req in head:
-                ahead = req.ahead
-                for other, k in req.need.items():  # _blocker, inlined
-                    if free[other] - (ahead[other] - shift[other]) < k:
+                ahead, sites, counts = req.ahead, req.sites, req.counts
+                for j in range(len(sites)):  # _blocker, inlined
+                    other = sites[j]
+                    if room[other] - (ahead[j] - shift[other]) < counts[j]:
                         bisect.insort(blocked[other], req, key=_rank)
                         break
                 else:
@@ -313,26 +347,30 @@ class SlotBroker:
         """Grant in policy order. A request that cannot be served earmarks what it needs, so
         later requests may use only slots it does not need (no demand starves: the slots it
         waits for can only accumulate)."""
-        used: dict[str, int] = {}
+        used = [0] * len(self.names)
+        room = self.room
         fitting = []
         for req in self.policy.order([r for r, _ in self.waiting.values()]):
-            if all(self.free[s] - used.get(s, 0) >= k for s, k in req.need.items()):
+            sites, counts = req.sites, req.counts
+            if all(room[sites[j]] - used[sites[j]] >= counts[j] for j in range(len(sites))):
                 fitting.append(req)
-            for s, k in req.need.items():
-                used[s] = used.get(s, 0) + k
+            for j in range(len(sites)):
+                used[sites[j]] += counts[j]
         self._grant_all(fitting)
 
     def _grant_all(self, granted: list[Request]) -> None:
         """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
-        now, free, capacity, since, spent, peak = (self.clock(), self.free, self.capacity, self._since,
-                                                  self._time_at, self._peak)
+        now, room, limit, since, spent, peak = (self.clock(), self.room, self.limit, self._since,
+                                               self._time_at, self._peak)
         queues, total, shift, incremental = self.queues, self.total, self.shift, self._key is not None
         for req in granted:
-            for s, k in req.need.items():
-                in_use = capacity[s] - free[s]
+            sites, counts = req.sites, req.counts
+            for j in range(len(sites)):
+                s, k = sites[j], counts[j]
+                in_use = limit[s] - room[s]
                 spent[s][in_use] += now - since[s]  # credit the time since the last change (_tick)
                 since[s] = now
-                free[s] -= k
+                room[s] -= k
                 if in_use + k > peak[s]:
                     peak[s] = in_use + k
                 if incremental:
@@ -346,7 +384,7 @@ class SlotBroker:
                     del queue[at]
                     shift[s] += k
                     for other in queue[:at]:
-                        other.ahead[s] += k
+                        other.ahead[other.sites.index(s)] += k
                     total[s] -= k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
