@@ -205,9 +205,9 @@ class _Lane:
         self.run = ChainRun.zeros(n, engine="des", min_fidelity=chain.min_fidelity)
         self.last_delivery_s = 0.0
         self.active = False  # a cycle is running under a granted reservation
-        #: delivered pairs not yet turned into states, flat, one row per pair (n entries per pair
-        #: but the first): delivery time; each hop's storage time at its left and right end, its
-        #: pair's state index and start. Unboxed: a run may hold every row until its end.
+        #: delivered pairs not yet turned into states, flat: per pair its delivery time, and per
+        #: hop (n values a pair) its storage time at the left and right end, its pair's state
+        #: index and start. Unboxed: a run may hold every row until its end.
         self.row_delivered: array[float] = array("d")
         self.row_left: array[float] = array("d")
         self.row_right: array[float] = array("d")

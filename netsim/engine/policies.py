@@ -164,7 +164,6 @@ class SlotBroker:
         self.names: list[str] = list(capacity)
         self.number: dict[str, int] = {name: k for k, name in enumerate(self.names)}
         n = len(self.names)
-        self.capacity = dict(capacity)
         self.limit: list[int] = [capacity[name] for name in self.names]
         self.room: list[int] = list(self.limit)  # free slots per site
         self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
