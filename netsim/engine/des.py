@@ -480,12 +480,10 @@ class _Des:
         hold it in memory: interfaces free, the pair usable."""
         hop = lane.hops[i]
         hop.flight_k = 0
-        hop.attempts += k
-        hop.successes += 1
+        self.count_success(hop, k)
         self.heralds += 1
         if not self.heralds & 4095:
             self.guard()
-        hop.busy_s += k * hop.period
         pair = _Pair(i, born, born + hop.herald)
         if self.log_pairs:
             lane.log.append(pair)
@@ -502,6 +500,7 @@ class _Des:
 
     @staticmethod
     def count_success(hop: _Hop, k: int) -> None:
+        """Count a heralded pair of ``hop`` that took ``k`` rounds."""
         hop.attempts += k
         hop.successes += 1
         hop.busy_s += k * hop.period
