@@ -185,3 +185,30 @@ def test_purification_step_decay_matches_qutip_lindblad() -> None:
     coherences = [math.exp(-h / t) * f for t, f in zip(t2, dephased)]
     got = decay_pair(rho, gammas[0], coherences[0], gammas[1], coherences[1])
     assert np.abs(got - state.full()).max() < 1e-8
+
+
+def test_link_states_with_transfer_errors_match_qutip_depolarizing() -> None:
+    """Each end's memory transfer error p depolarizes its qubit of the heralded pair: against
+    (1 - p) rho + p tr_q(rho) (x) I/2 built with QuTiP's partial trace (an independent library;
+    the depolarizing channel's definition, Nielsen & Chuang (2000) eq. 8.102)."""
+    import qutip
+
+    from netsim.qinfo.states import random_density_matrices
+
+    states = random_density_matrices(3, 4, seed=11)
+    errors = [0.0, 0.05, 0.2, 0.03]
+    sites = tuple(Site(f"S{k}", "user" if k in (0, 3) else "repeater", **{**IDEAL, "memory_transfer_error": errors[k]})
+                  for k in range(4))
+    hops = tuple(HopSpec(f"S{k}-S{k + 1}", synthetic_physics(0.5, 1e-3, states[k])) for k in range(3))
+    got = Chain("S0-S3", sites, hops).link_states
+
+    def depolarize(rho: qutip.Qobj, p: float, qubit: int) -> qutip.Qobj:
+        kept = rho.ptrace(1 - qubit)
+        mixed = qutip.qeye(2) / 2
+        replaced = qutip.tensor(mixed, kept) if qubit == 0 else qutip.tensor(kept, mixed)
+        return (1 - p) * rho + p * replaced
+
+    for i in range(3):
+        rho = qutip.Qobj(states[i], dims=[[2, 2], [2, 2]])
+        want = depolarize(depolarize(rho, errors[i], 0), errors[i + 1], 1)
+        np.testing.assert_allclose(got[i], want.full(), atol=1e-13)

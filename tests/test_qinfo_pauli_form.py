@@ -83,3 +83,26 @@ def test_swap_matches_an_explicit_qutip_bell_measurement() -> None:
     got = pauli_form.from_pauli(pauli_form.chain_states(forms, zeros, zeros + 1, zeros, zeros + 1, [0.0]))[0]
     np.testing.assert_allclose(got, qutip_swap(rho_1, rho_2), atol=1e-12)
     assert math.isclose(float(np.real(np.trace(got))), 1.0, abs_tol=1e-12)
+
+
+def test_chain_decay_with_attempt_dephasing_is_the_product_of_its_factors() -> None:
+    """The coherence of a waiting qubit is exp(-t/T2) times (1 - a)^k for the k attempts at its
+    site (the model's definition, DESIGN: attempt dephasing), also for a = 0 and a = 1 (total:
+    one attempt erases it, none keeps it) and T2 = inf."""
+    rng = np.random.default_rng(12)
+    n_chains, n = 9, 4
+    left, right = rng.uniform(0, 2, (n_chains, n)), rng.uniform(0, 2, (n_chains, n))
+    attempts_left = rng.integers(0, 40, (n_chains, n)).astype(float)
+    attempts_right = rng.integers(0, 40, (n_chains, n)).astype(float)
+    attempts_left[0] = attempts_right[0] = 0.0
+    t1, t2 = np.array([3.0, 1.0, np.inf, 2.0, 5.0]), np.array([1.0, 0.5, np.inf, 4.0, 0.2])
+    dephasing = np.array([0.0, 1e-3, 1.0, 0.25, 0.0])
+    gl, cl, gr, cr = pauli_form.chain_decay(left, right, t1, t2, dephasing, attempts_left, attempts_right)
+    for c in range(n_chains):
+        for i in range(n):
+            assert gl[c, i] == pytest.approx(1 - math.exp(-left[c, i] / t1[i]), abs=1e-15)
+            assert gr[c, i] == pytest.approx(1 - math.exp(-right[c, i] / t1[i + 1]), abs=1e-15)
+            want_l = math.exp(-left[c, i] / t2[i]) * (1 - dephasing[i]) ** attempts_left[c, i]
+            want_r = math.exp(-right[c, i] / t2[i + 1]) * (1 - dephasing[i + 1]) ** attempts_right[c, i]
+            assert cl[c, i] == pytest.approx(want_l, rel=1e-12, abs=1e-300)
+            assert cr[c, i] == pytest.approx(want_r, rel=1e-12, abs=1e-300)

@@ -20,7 +20,7 @@ from functools import cached_property
 import numpy as np
 from numpy.typing import NDArray
 
-from netsim.errors import ParameterError
+from netsim.errors import ParameterError, probability
 from netsim.hardware.fibre import propagation_delay_s
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Site
@@ -147,18 +147,23 @@ class Chain:
         """Heralded state of each hop, shape (n_hops, 4, 4), qubit 0 at the left site.
 
         Each end's ``memory_transfer_error`` p depolarizes its qubit (rho -> (1 - p) rho + p I/2;
-        :func:`netsim.qinfo.depolarizing`). It is applied to the heralded state, before memory
+        :func:`netsim.qinfo.depolarizing`, applied in Pauli form). It is applied to the heralded state, before memory
         decay: exact for pure dephasing, and off by at most p (1 - exp(-t/T1)) otherwise.
         """
-        from netsim import qinfo
+        from netsim.qinfo import pauli_form
 
         states = np.stack([np.asarray(h.physics.state, dtype=complex) for h in self.hops])
-        for qubit in (0, 1):  # channels on different qubits commute; one batched call per error value
-            errors = np.array([float(self.sites[i + qubit].memory_transfer_error) for i in range(self.n_hops)])
-            for p in sorted(set(errors[errors > 0].tolist())):
-                hops = np.flatnonzero(errors == p)
-                states[hops] = qinfo.depolarizing(p).apply(states[hops], qubit=qubit)
-        return states
+        kept = np.ones((self.n_hops, 2, 4))  # per hop and qubit: what depolarizing keeps of each Pauli component
+        for i in range(self.n_hops):
+            for qubit in (0, 1):
+                p = probability("memory_transfer_error", float(self.sites[i + qubit].memory_transfer_error))
+                kept[i, qubit, 1:] = 1.0 - p
+        if np.all(kept == 1.0):
+            return states
+        # in Pauli form depolarizing p on a qubit scales its X, Y, Z components by 1 - p
+        # (netsim.qinfo.pauli_form); the two qubits' channels commute
+        forms = pauli_form.to_pauli(states) * kept[:, 0, :, None] * kept[:, 1, None, :]
+        return pauli_form.from_pauli(forms)
 
     @cached_property
     def interface_waits(self) -> tuple[tuple[int, tuple[int, ...]], ...]:

@@ -124,8 +124,8 @@ def _all_decay_factors(sites: Sequence[Site], left_s: np.ndarray, right_s: np.nd
     """(gamma, coherence) of every hop's left and right memory after ``left_s``, ``right_s`` (N, n)
     at once (:func:`netsim.qinfo.pauli_form.chain_decay`, with the sites' attempt dephasing when
     attempt counts are given), with qinfo.decohere's checks (once per site and per array of times)."""
-    for site in sites:
-        decoherence_factors(0.0, site.t1_s, site.t2_s)
+    for t1, t2 in {(site.t1_s, site.t2_s) for site in sites}:
+        decoherence_factors(0.0, t1, t2)
     for times in (left_s, right_s):
         bad = ~((times >= 0) & np.isfinite(times))
         if bad.any():

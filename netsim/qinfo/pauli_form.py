@@ -29,6 +29,8 @@ resource pair by outcome-averaged teleportation, C. H. Bennett et al., Phys. Rev
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 from numpy.typing import NDArray
 
@@ -37,27 +39,40 @@ __all__ = ["SWAP_SIGN", "chain_decay", "chain_states", "correlations", "decayed"
 _PAULI = np.array([[[1, 0], [0, 1]], [[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]], dtype=complex)
 #: _PAULI_PAIRS[a, b] = P_a (x) P_b (4 x 4)
 _PAULI_PAIRS = np.einsum("aij,bkl->abikjl", _PAULI, _PAULI).reshape(4, 4, 4, 4)
+#: (16, 16) matrices of to_pauli and from_pauli: R[ab] = sum_ij rho[ij] P_ab[ji]; rho[ij] = sum_ab R[ab] P_ab[ij] / 4
+_TO_PAULI = np.ascontiguousarray(_PAULI_PAIRS.transpose(3, 2, 0, 1).reshape(16, 16))
+_FROM_PAULI = np.ascontiguousarray(_PAULI_PAIRS.reshape(16, 16) / 4.0)
 #: v = SWAP_SIGN * (R2[1, 1], R2[2, 2], R2[3, 3]) prefixed with 1: what a swap keeps of its later pair
 SWAP_SIGN = np.array([1.0, 1.0, -1.0, 1.0])
 
 
 def to_pauli(rho: NDArray[np.complex128]) -> NDArray[np.complex128]:
     """R[..., a, b] = tr(rho P_a (x) P_b) of (..., 4, 4) states (complex: exact for any 4 x 4 input)."""
-    return np.einsum("abji,...ij->...ab", _PAULI_PAIRS, np.asarray(rho, dtype=complex))
+    rho = np.asarray(rho, dtype=complex)
+    # tr(rho P) = sum_ij rho_ij P_ji: one (.., 16) x (16, 16) product
+    return (rho.reshape(-1, 16) @ _TO_PAULI).reshape(rho.shape)
 
 
-def from_pauli(r: NDArray[np.complex128]) -> NDArray[np.complex128]:
-    """The (..., 4, 4) states of Pauli forms ``r`` (..., 4, 4)."""
-    return np.einsum("...ab,abij->...ij", r, _PAULI_PAIRS) / 4.0
+def from_pauli(r: NDArray[Any]) -> NDArray[np.complex128]:
+    """The (..., 4, 4) states of Pauli forms ``r`` (..., 4, 4), real or complex."""
+    r = np.asarray(r)
+    flat = r.reshape(-1, 16)
+    if np.iscomplexobj(flat):
+        out = flat @ _FROM_PAULI
+    else:  # two real products: a real form times the complex Pauli pairs
+        out = np.empty((len(flat), 16), dtype=complex)
+        out.real = flat @ _FROM_PAULI.real
+        out.imag = flat @ _FROM_PAULI.imag
+    return out.reshape(r.shape[:-2] + (4, 4))
 
 
-def decayed(r: NDArray[np.complex128], gl: NDArray[np.float64], cl: NDArray[np.float64],
+def decayed(r: NDArray[Any], gl: NDArray[np.float64], cl: NDArray[np.float64],
             gr: NDArray[np.float64], cr: NDArray[np.float64]) -> NDArray[np.complex128]:
     """A_L r A_R^T: memory decay (gamma, coherence factor) of qubit 0 (``gl``, ``cl``) and qubit
     1 (``gr``, ``cr``), per state; ``r`` one Pauli form (4, 4) or one per state (N, 4, 4),
-    factors (N,); returns (N, 4, 4)."""
+    factors (N,); returns (N, 4, 4), real when ``r`` is."""
     n = len(gl)
-    rows = np.empty((n, 4, 4), dtype=complex)
+    rows = np.empty((n, 4, 4), dtype=np.result_type(r, gl))
     rows[:, 0] = r[..., 0, :]
     rows[:, 1] = cl[:, None] * r[..., 1, :]
     rows[:, 2] = cl[:, None] * r[..., 2, :]
@@ -93,15 +108,29 @@ def chain_decay(left_s: NDArray[np.float64], right_s: NDArray[np.float64], t1_s:
     ``dephasing`` (n + 1,): a site's attempt dephasing a multiplies a waiting qubit's coherence
     by (1 - a)^k for the k attempts counted in ``attempts_left`` / ``attempts_right`` (N, n)."""
     with np.errstate(over="ignore"):  # t / T2 beyond the largest float: exp(-inf) = 0
-        gl, cl = -np.expm1(-left_s / t1_s[:-1]), np.exp(-left_s / t2_s[:-1])
-        gr, cr = -np.expm1(-right_s / t1_s[1:]), np.exp(-right_s / t2_s[1:])
-    if dephasing is not None:
-        for i in range(left_s.shape[1]):
-            if dephasing[i] > 0 and attempts_left is not None:
-                cl[:, i] *= (1.0 - dephasing[i]) ** attempts_left[:, i]
-            if dephasing[i + 1] > 0 and attempts_right is not None:
-                cr[:, i] *= (1.0 - dephasing[i + 1]) ** attempts_right[:, i]
+        gl, gr = -np.expm1(-left_s / t1_s[:-1]), -np.expm1(-right_s / t1_s[1:])
+        cl = _coherence(left_s, t2_s[:-1], None if dephasing is None else dephasing[:-1], attempts_left)
+        cr = _coherence(right_s, t2_s[1:], None if dephasing is None else dephasing[1:], attempts_right)
     return gl, cl, gr, cr
+
+
+def _coherence(t_s: NDArray[np.float64], t2_s: NDArray[np.float64], dephasing: NDArray[np.float64] | None,
+               attempts: NDArray[np.float64] | None) -> NDArray[np.float64]:
+    """exp(-t/T2) (1 - a)^k per qubit, as one exp(-t/T2 + k log(1 - a)) where 0 <= a < 1."""
+    exponent = -t_s / t2_s
+    whole = None  # the hops whose site's attempt dephasing is total (a = 1): (1 - a)^k by power
+    if dephasing is not None and attempts is not None and np.any(dephasing > 0):
+        d = np.asarray(dephasing, dtype=float)
+        partial = d < 1.0
+        log_kept = np.zeros(len(d))
+        log_kept[partial] = np.log1p(-d[partial])
+        exponent += attempts * log_kept
+        if not partial.all():
+            whole = ~partial
+    out = np.exp(exponent)
+    if whole is not None and attempts is not None:
+        out[:, whole] *= np.power(0.0, attempts[:, whole])
+    return out
 
 
 def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], cl: NDArray[np.float64],
@@ -113,14 +142,31 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
     ``gl, cl, gr, cr`` (N, n): each hop's memory decay of its left and right qubit (gamma,
     coherence factor); ``gate_errors[i - 1]`` (i = 1 .. n - 1): the gate error of the site joining
     hop i - 1 and hop i.
+
+    Pauli forms of states (Hermitian) are real; forms whose imaginary parts are rounding noise
+    (as :func:`to_pauli` leaves them) are computed in real arithmetic, and the result is real.
+    The later hops' kept correlations (:func:`correlations`) are taken for all hops at once.
     """
-    out = decayed(pairs[0], gl[:, 0], cl[:, 0], gr[:, 0], cr[:, 0])
-    if len(pairs) == 1:
+    forms = [np.real_if_close(p, tol=1000) for p in pairs]
+    out = decayed(forms[0], gl[:, 0], cl[:, 0], gr[:, 0], cr[:, 0])
+    if len(forms) == 1:
         return out
-    weights = np.ones((len(out), 4), dtype=complex)
-    for i in range(1, len(pairs)):
-        weights[:, 1:] *= (correlations(pairs[i], gl[:, i], cl[:, i], gr[:, i], cr[:, i])
-                           * (SWAP_SIGN[1:] * (1.0 - gate_errors[i - 1])))
+    later = forms[1:]
+    if all(p.ndim == 2 for p in later):
+        r = np.stack(later)                                                  # (n - 1, 4, 4)
+    else:  # some hops have one pair per chain (purified pairs)
+        r = np.stack([np.broadcast_to(p, (len(gl), 4, 4)) for p in later], axis=1)  # (N, n - 1, 4, 4)
+    keep = 1.0 - np.asarray(gate_errors, dtype=float)
+    both = cl[:, 1:] * cr[:, 1:]
+    g1, g2 = gl[:, 1:], gr[:, 1:]
+    r00, r03, r30, r33 = r[..., 0, 0], r[..., 0, 3], r[..., 3, 0], r[..., 3, 3]
+    # <ZZ> after decay: gl gr r00 + gl (1 - gr) r03 + (1 - gl) gr r30 + (1 - gl)(1 - gr) r33
+    zz = r33 + g1 * (r03 - r33) + g2 * (r30 - r33) + (g1 * g2) * (r00 - r03 - r30 + r33)
+    weights = np.empty((len(gl), 4), dtype=np.result_type(out, r))
+    weights[:, 0] = 1.0
+    weights[:, 1] = (both * (r[..., 1, 1] * (SWAP_SIGN[1] * keep))).prod(axis=1)
+    weights[:, 2] = (both * (r[..., 2, 2] * (SWAP_SIGN[2] * keep))).prod(axis=1)
+    weights[:, 3] = (zz * (SWAP_SIGN[3] * keep)).prod(axis=1)
     return out * weights[:, None, :]
 
 
