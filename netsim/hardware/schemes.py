@@ -341,7 +341,7 @@ def path_physics(path: LightPath) -> LinkPhysics:
     way, the same state is returned with its two qubits swapped (qubit 0 at ``path.site_a``).
     """
     if not path.is_canonical:
-        return _swapped(path_physics(path.reversed()))
+        return swapped_ends(path_physics(path.reversed()))
     scheme = path.first.scheme
     if scheme not in SCHEME_FUNCTIONS:
         raise ParameterError(f"links[{path.first.index}].scheme", scheme, "one of " + ", ".join(SCHEMES))
@@ -352,7 +352,8 @@ def path_physics(path: LightPath) -> LinkPhysics:
 _SWAP = np.eye(4)[[0, 2, 1, 3]]
 
 
-def _swapped(physics: LinkPhysics) -> LinkPhysics:
+def swapped_ends(physics: LinkPhysics) -> LinkPhysics:
+    """The same link physics seen from its other end: the state's two qubits exchanged."""
     from dataclasses import replace
 
     return replace(physics, state=_SWAP @ physics.state @ _SWAP)

@@ -26,7 +26,8 @@ from dataclasses import replace
 
 import networkx as nx
 
-from netsim.hardware.schemes import link_physics
+from netsim.hardware.lightpath import LightPath
+from netsim.hardware.schemes import link_physics, path_physics, swapped_ends
 from netsim.hardware.types import LinkPhysics
 from netsim.scenario.model import Link, Scenario, Site
 
@@ -69,9 +70,27 @@ def _timing_physics(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
     return link_physics(link, site_a, site_b)
 
 
+_PHYSICS_CACHE: dict[tuple[tuple[Link, ...], Site, Site], LinkPhysics] = {}
+
+
+def cached_path_physics(links: tuple[Link, ...], site_a: Site, site_b: Site) -> LinkPhysics:
+    """:func:`netsim.hardware.schemes.path_physics` of the light path ``links`` from ``site_a`` to
+    ``site_b``, kept for the process: the graph's edges and the routes' hops share it, and a path
+    walked the other way is the same physics with its qubits swapped (as path_physics returns it)."""
+    key = (links, site_a, site_b)
+    physics = _PHYSICS_CACHE.get(key)
+    if physics is None:
+        if len(_PHYSICS_CACHE) > 4096:
+            _PHYSICS_CACHE.clear()
+        back = _PHYSICS_CACHE.get((links[::-1], site_b, site_a))
+        physics = swapped_ends(back) if back is not None else path_physics(LightPath.join(links, site_a, site_b))
+        _PHYSICS_CACHE[key] = physics
+    return physics
+
+
 def _edge_attributes(link: Link, site_a: Site, site_b: Site) -> dict[str, object]:
     memory_ends = is_memory_site(site_a) and is_memory_site(site_b)
-    physics = link_physics(link, site_a, site_b) if memory_ends else None
+    physics = cached_path_physics((link,), site_a, site_b) if memory_ends else None
     clock = physics if physics is not None else _timing_physics(link, site_a, site_b)
     per_use = plob_bits_per_use(clock.transmissivity)
     mode_rate = clock.modes / clock.attempt_period_s

@@ -16,10 +16,8 @@ from typing import Protocol
 import networkx as nx
 
 from netsim.errors import ParameterError
-from netsim.hardware.lightpath import LightPath
-from netsim.hardware.schemes import path_physics
 from netsim.hardware.types import LinkPhysics
-from netsim.network.graph import is_memory_site
+from netsim.network.graph import cached_path_physics, is_memory_site
 from netsim.scenario.model import Link, Site
 
 __all__ = [
@@ -216,16 +214,4 @@ def route_hops(graph: nx.Graph, route: Sequence[str]) -> list[Hop]:
 
 
 def _hop(links: tuple[Link, ...], site_a: Site, site_b: Site) -> Hop:
-    return Hop(site_a.name, site_b.name, links, _cached_physics(links, site_a, site_b))
-
-
-_PHYSICS_CACHE: dict[tuple[tuple[Link, ...], Site, Site], LinkPhysics] = {}
-
-
-def _cached_physics(links: tuple[Link, ...], site_a: Site, site_b: Site) -> LinkPhysics:
-    key = (links, site_a, site_b)
-    if key not in _PHYSICS_CACHE:
-        if len(_PHYSICS_CACHE) > 4096:
-            _PHYSICS_CACHE.clear()
-        _PHYSICS_CACHE[key] = path_physics(LightPath.join(links, site_a, site_b))
-    return _PHYSICS_CACHE[key]
+    return Hop(site_a.name, site_b.name, links, cached_path_physics(links, site_a, site_b))

@@ -131,11 +131,11 @@ def clear_result_caches() -> None:
     everything a fresh ``netsim run`` process computes: the cut-off timeline samples, the light
     paths' physics, the channel figures and the capacity maximisations. A benchmark that times
     the same network twice in one process would otherwise time the second run without them."""
-    from netsim.network import channel, cutoff, routing
+    from netsim.network import channel, cutoff, graph
     from netsim.qinfo import capacity
 
     cutoff._sample.cache_clear()
-    routing._PHYSICS_CACHE.clear()
+    graph._PHYSICS_CACHE.clear()
     for cached in (channel.encoding_holevo_bits, channel.link_capacity_bits, channel.werner_eof_ebits,
                    capacity._capacity_cached):
         cached.cache_clear()
