@@ -271,6 +271,7 @@ def test_pruning_the_attempt_log_changes_nothing(monkeypatch: pytest.MonkeyPatch
 
     monkeypatch.setattr(des_module, "FLUSH_ROWS", 5)
     monkeypatch.setattr(des_module, "PRUNE_SEQUENCES", 10)
+    monkeypatch.setattr(des_module, "ROW_STAGE", 4)  # the pruning reads staged starts too
     monkeypatch.setattr(des_module._Des, "prune_sequences", spy)
     assert fidelity_sums() == pytest.approx(kept, rel=1e-12)
     assert sizes and max(sizes) < 300        # without pruning the log ends with about 1900 sequences

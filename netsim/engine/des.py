@@ -76,6 +76,9 @@ __all__ = ["DesOptions", "simulate_des"]
 LEFT, RIGHT = 0, 1
 #: Recorded histories are turned into states in batches of this many (bounded memory).
 FLUSH_ROWS = 20_000
+#: Per-hop row values a lane stages as boxed lists before moving them into its flat arrays
+#: (about 130 kB per lane at most)
+ROW_STAGE = 1024
 #: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
 PRUNE_SEQUENCES = 50_000
 #: Attempt sequences a site's log holds apart from the sorted whole before they are merged in.
@@ -213,6 +216,13 @@ class _Lane:
         self.row_right: array[float] = array("d")
         self.row_state: array[int] = array("q")
         self.row_start: array[float] = array("d")
+        #: the per-hop values of the latest rows, boxed, moved into the arrays above in blocks
+        #: (spill_rows): array.extend converts item by item through argument parsing, about ten
+        #: times what a list append and one numpy conversion per block cost
+        self.stage_left: list[float] = []
+        self.stage_right: list[float] = []
+        self.stage_state: list[int] = []
+        self.stage_start: list[float] = []
         self.extra: list[list[NDArray[np.complex128]]] = [[] for _ in range(n)]
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
@@ -226,6 +236,15 @@ class _Lane:
         #: per site of the chain (n + 1)
         self.nodes = [_Node(float(chain.position_s[j]), chain.swap_success(j) if 0 < j < n else 1.0)
                       for j in range(n + 1)]
+
+    def spill_rows(self) -> None:
+        """Move the staged per-hop row values into the flat arrays."""
+        if self.stage_left:
+            self.row_left.frombytes(np.array(self.stage_left, dtype=float).tobytes())
+            self.row_right.frombytes(np.array(self.stage_right, dtype=float).tobytes())
+            self.row_state.frombytes(np.array(self.stage_state, dtype=np.int64).tobytes())
+            self.row_start.frombytes(np.array(self.stage_start, dtype=float).tobytes())
+            self.stage_left, self.stage_right, self.stage_state, self.stage_start = [], [], [], []
 
     def add_counts(self) -> None:
         """Add the hops' and sites' counts to the lane's ChainRun."""
@@ -787,10 +806,14 @@ class _Des:
             p.fate = p.fate or "delivered"
         pairs = seg.pairs
         lane.row_delivered.append(t_d)
-        lane.row_left.extend([p.end_left - p.start for p in pairs])
-        lane.row_right.extend([p.end_right - p.start for p in pairs])
-        lane.row_state.extend([p.state_id for p in pairs])
-        lane.row_start.extend([p.start for p in pairs])
+        left, right, state, start = lane.stage_left, lane.stage_right, lane.stage_state, lane.stage_start
+        for p in pairs:
+            left.append(p.end_left - p.start)
+            right.append(p.end_right - p.start)
+            state.append(p.state_id)
+            start.append(p.start)
+        if len(left) >= ROW_STAGE:
+            lane.spill_rows()
         self.at(t_d, self.close_cycle, lane, t_d)
 
     def close_cycle(self, lane: _Lane, t_d: float) -> None:
@@ -915,6 +938,7 @@ class _Des:
         """The lane's recorded rows delivered by ``upto``, in delivery order, taken from the lane:
         (delivery time (N,), storage times left and right, state indices, starts (N, n))."""
         n = lane.chain.n_hops
+        lane.spill_rows()
         delivered = np.array(lane.row_delivered, dtype=float)
         left = np.array(lane.row_left, dtype=float).reshape(-1, n)
         right = np.array(lane.row_right, dtype=float).reshape(-1, n)
@@ -1007,7 +1031,7 @@ class _Des:
         for ln in self.lanes:
             segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
-            starts += ln.row_start.tolist()
+            starts += ln.row_start.tolist() + ln.stage_start
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
         for site, seqs in self.sequences.items():
