@@ -110,7 +110,10 @@ def _components(chains: list[Chain], per_end: int = 1) -> list[list[int]]:
     for site, ks in users.items():
         count = sites[site].communication_qubits
         if count and len(ks) > 1:
-            ends = sum(sum(1 for i in range(chains[k].n_hops) if site in chains[k].site_names[i:i + 2]) for k in ks)
+            ends = 0
+            for k in ks:
+                names = chains[k].site_names
+                ends += sum(1 for i in range(chains[k].n_hops) if site in names[i:i + 2])
             if ends > count:
                 for k in ks[1:]:
                     parent[root(k)] = root(ks[0])

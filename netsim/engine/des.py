@@ -364,7 +364,7 @@ class _Des:
             qinfo.purify_dejmps if opt.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
         self.swapping = swap_policy(opt.swap_policy)
         self.asap = self.swapping.name == "asap"
-        self.broker = SlotBroker(capacity, scheduling_policy(opt.scheduling), lambda: self.env.now)
+        self.broker = SlotBroker(capacity, scheduling_policy(opt.scheduling), lambda: self.env._now)
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         for k, lane in enumerate(self.lanes):
             lane.position = k  # the order ``demand_order`` scheduling gives priority by
@@ -427,7 +427,8 @@ class _Des:
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
         env = self.env
-        env.schedule(_Call(fn, args), NORMAL, t - env._now)  # type: ignore[arg-type]
+        # Environment.schedule, inlined as in attempt (the same time arithmetic: now + delay)
+        heappush(env._queue, (env._now + (t - env._now), NORMAL, next(env._eid), _Call(fn, args)))  # type: ignore[attr-defined,misc]
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -758,7 +759,7 @@ class _Des:
         if token != lane.cut_token:  # superseded by an earlier deadline
             return
         lane.cut_at = math.inf
-        now = self.env.now
+        now = self.env._now
         for seg in [node.right for node in lane.nodes]:
             if seg is not None and seg.alive and seg.deadline <= now:
                 for p in seg.pairs:
@@ -818,17 +819,17 @@ class _Des:
 
     def close_cycle(self, lane: _Lane, t_d: float) -> None:
         rule, run = lane.rule, lane.run
-        was_done = rule.pairs is not None and rule.done(run, self.env.now)
+        was_done = rule.pairs is not None and rule.done(run, self.env._now)
         run.add_interval(t_d, lane.last_delivery_s)
         lane.last_delivery_s = t_d
         if len(lane.row_delivered) >= FLUSH_ROWS:
             limit = rule.time_s
-            self.flush(lane, min(self.env.now, math.inf if limit is None else float(limit)))
+            self.flush(lane, min(self.env._now, math.inf if limit is None else float(limit)))
         lane.active = False
         self.broker.release(lane.need)
         self.request(lane)
         if rule.pairs is not None:  # a pairs rule, once met, stays met
-            if not was_done and rule.done(run, self.env.now):
+            if not was_done and rule.done(run, self.env._now):
                 self.pending -= 1
                 self.check_finished()
         elif rule.time_s is None:  # precision: may be met and lost again
@@ -837,7 +838,7 @@ class _Des:
     def check_finished(self) -> None:
         """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
         if self.pending <= 0 and not self.finished.triggered and all(
-                r.done(ln.run, self.env.now) for r, ln in zip(self.rules, self.lanes)):
+                r.done(ln.run, self.env._now) for r, ln in zip(self.rules, self.lanes)):
             self.finished.succeed()
 
     # -- purification -------------------------------------------------------------------------
@@ -850,7 +851,7 @@ class _Des:
             self.begin(lane, i)
             return
         other, other_rho = stack.pop(level)
-        c, now = lane.chain, self.env.now
+        c, now = lane.chain, self.env._now
         p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
                              self.bring(c, i, rho, item.start, now))
         self.held(lane, item, now, now)  # pair 2 is measured at once
@@ -860,11 +861,11 @@ class _Des:
                  measured: float) -> None:
         if lane.uniform() >= p:
             lane.hops[i].purification_failures += 1
-            self.held(lane, other, self.env.now, self.env.now)  # pair 1 waits for the outcome
+            self.held(lane, other, self.env._now, self.env._now)  # pair 1 waits for the outcome
             self.begin(lane, i)
             return
         self.held(lane, other, measured, measured)  # the kept pair lives on as a new pair from then
-        item = _Pair(i, measured, self.env.now)
+        item = _Pair(i, measured, self.env._now)
         if level + 1 == self.rounds:
             lane.extra[i].append(out)
             item.state_id = len(lane.extra[i])
@@ -906,7 +907,7 @@ class _Des:
             except KeyboardInterrupt:
                 interrupted = True
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
-            uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.env.now
+            uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.env._now
                      for rule in self.rules]
             rows = [self.take_rows(lane, upto) for lane, upto in zip(self.lanes, uptos)]
             counts = self.count_attempts(list(zip(self.lanes, rows)))  # every demand's at once
@@ -920,7 +921,7 @@ class _Des:
     def finish(self, lane: _Lane, now: float, interrupted: bool, rows: _Rows,
                counts: tuple[NDArray[np.float64], NDArray[np.float64]] | None) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
-            if hop.flight_k and hop.flight_born + hop.herald <= self.env.now:
+            if hop.flight_k and hop.flight_born + hop.herald <= self.env._now:
                 self.count_success(hop, hop.flight_k)
         lane.add_counts()
         self.add_states(lane, rows, counts)
@@ -1027,7 +1028,7 @@ class _Des:
         self.absorb_log(merge=True)
         if sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
-        oldest = self.env.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
+        oldest = self.env._now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
             segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
