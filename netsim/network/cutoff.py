@@ -222,6 +222,10 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     per_cycle: NDArray[Any] = np.zeros((2, m))           # now, disc
     mode: NDArray[Any] = np.zeros((n, m), dtype=np.int8)
     used: NDArray[Any] = np.zeros((n, m), dtype=np.int64)
+    #: per cycle, its hops in priority order (priorities are distinct within a cycle and change only
+    #: when a hop is lost, to values above all others): a waiting hop's turn is then the number of
+    #: waiting hops before it in this order, O(n) per cycle rather than n^2 comparisons
+    order: NDArray[Any] = np.repeat(np.arange(n)[:, None], m, axis=1)
     per_hop[_RDY] = np.inf
     per_hop[_PRIO] = np.arange(n, dtype=float)[:, None]
     if offset_s is not None:
@@ -249,8 +253,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             turns = int(pending.sum(axis=0).max())
             rank = None
             if turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
-                waiting_prio = np.where(pending, prio, np.inf)
-                rank = (waiting_prio[:, None, :] < waiting_prio[None, :, :]).sum(axis=0)
+                rank = np.empty((n, m), dtype=np.int64)   # meaningful for the waiting hops only
+                rank[order, rows] = np.cumsum(pending[order, rows], axis=0) - 1
             if any_shared:
                 trying = mode == _TRY
                 if rank is not None and (pending[:-1] & pending[1:] & pair_shared).any():
@@ -359,6 +363,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             # request order: the run's inner hops, then its left end, then its right end
             rank_lost = np.where(hop_col == lo, n, np.where(hop_col == hi, n + 1, hop_col))
             np.copyto(prio, counter + rank_lost, where=lost)
+            moved = np.flatnonzero(lost.any(axis=0))
+            order[:, moved] = np.argsort(prio[:, moved], axis=0)
             counter += n + 2
             np.copyto(mode, _WAIT, where=lost)
             np.copyto(rdy, np.inf, where=lost)
@@ -386,8 +392,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[:, g].T
             keep = ~gone
             ids = ids[keep]
-            per_hop, per_site, per_cycle, mode, used = (   # compress keeps them C-contiguous
-                np.compress(keep, a, axis=-1) for a in (per_hop, per_site, per_cycle, mode, used))
+            per_hop, per_site, per_cycle, mode, used, order = (   # compress keeps them C-contiguous
+                np.compress(keep, a, axis=-1) for a in (per_hop, per_site, per_cycle, mode, used, order))
             m = len(ids)
     return out
 
