@@ -15,6 +15,7 @@ of the link's total dB on the side of ``a``.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 from netsim.errors import ParameterError
 from netsim.hardware.fibre import loss_db
@@ -26,6 +27,9 @@ __all__ = ["LightPath"]
 @dataclass(frozen=True)
 class LightPath:
     """Links joined end to end from memory site ``site_a`` to memory site ``site_b``.
+
+    Its lengths and losses are computed once (cached properties: the path is immutable, and a
+    heralding scheme reads them several times).
 
     Attributes
     ----------
@@ -63,19 +67,19 @@ class LightPath:
         """The link whose heralding settings the whole path uses."""
         return self.links[0]
 
-    @property
+    @cached_property
     def length_km(self) -> float:
         return sum(link.length_km for link in self.links)
 
-    @property
+    @cached_property
     def fibre_loss_db(self) -> float:
         return sum(loss_db(k.length_km, k.attenuation_db_per_km) for k in self.links)
 
-    @property
+    @cached_property
     def extra_loss_db(self) -> float:
         return sum(k.extra_loss_db for k in self.links)
 
-    @property
+    @cached_property
     def loss_db(self) -> float:
         return self.fibre_loss_db + self.extra_loss_db
 
@@ -127,5 +131,9 @@ class LightPath:
 
     def arm_losses_db(self) -> tuple[float, float]:
         """Loss in dB from ``site_a`` to the station and from the station to ``site_b``."""
+        return self._arm_losses_db
+
+    @cached_property
+    def _arm_losses_db(self) -> tuple[float, float]:
         to_station = self.loss_up_to_db(self.station_fraction * self.length_km)
         return to_station, max(self.loss_db - to_station, 0.0)
