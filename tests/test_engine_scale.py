@@ -197,6 +197,8 @@ def test_batched_attempt_counts_equal_the_one_by_one_count() -> None:
     sim.longest_s["X"] = max((k - 1) * p for _, p, k in seqs)
     after = rng.uniform(0, 1, 300)
     after[:20] = [s[0] for s in seqs[:20]]  # windows opening exactly at a sequence's own round
+    after[20:40] = [s + (k - 1) * p for s, p, k in seqs[100:120]]  # ... or at its last round
+    after[40:60] = [s + (k - 1) * p - 1e-6 for s, p, k in seqs[200:220]]  # ... or just before it
     until = after + rng.exponential(0.05, 300)
     batched = sim.attempts_many("X", np.array(seqs), after, until)
     one_by_one = [sim.attempts_at("X", a, u) for a, u in zip(after, until)]

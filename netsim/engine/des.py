@@ -1015,7 +1015,15 @@ class _Des:
                       until_s: NDArray[np.float64]) -> NDArray[np.float64]:
         """:meth:`attempts_at` for many intervals at once (``log``: the site's sequences as an
         (M, 3) array, sorted by start)."""
-        lo = np.searchsorted(log[:, 0], after_s - self.longest_s[site] - 1e-9, side="left")
+        if not len(log):
+            return np.zeros(len(after_s))
+        # the sequences to read start before until_s and may have a round after after_s: none of
+        # those whose last round starts before after_s (by more than the rounding of the round
+        # count) and none that start before after_s - the longest sequence; ``reach`` is the
+        # latest last-round start of the sequences up to each one, so it rises with the index
+        reach = np.maximum.accumulate(log[:, 0] + (log[:, 2] - 1.0) * log[:, 1])
+        lo = np.maximum(np.searchsorted(log[:, 0], after_s - self.longest_s[site] - 1e-9, side="left"),
+                        np.searchsorted(reach, after_s - 1e-9, side="left"))
         hi = np.searchsorted(log[:, 0], until_s, side="right")
         width = np.maximum(hi - lo, 0)
         total = int(width.sum())
