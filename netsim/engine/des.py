@@ -221,8 +221,8 @@ class _Lane:
         self.row_state: array[int] = array("q")
         self.row_start: array[float] = array("d")
         #: the per-hop values of the latest rows, boxed, moved into the arrays above in blocks
-        #: (spill_rows): array.extend converts item by item through argument parsing, about ten
-        #: times what a list append and one numpy conversion per block cost
+        #: (spill_rows): array.extend parses every item as a call argument, which costs more than
+        #: a list append and one struct pack per block
         self.stage_left: list[float] = []
         self.stage_right: list[float] = []
         self.stage_state: list[int] = []
