@@ -253,8 +253,10 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             turns = int(pending.sum(axis=0).max())
             rank = None
             if turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
-                rank = np.empty((n, m), dtype=np.int64)   # meaningful for the waiting hops only
-                rank[order, rows] = np.cumsum(pending[order, rows], axis=0) - 1
+                at = (order * m + rows).ravel()  # flat positions, in priority order per cycle
+                flat = np.empty(n * m, dtype=np.int64)   # meaningful for the waiting hops only
+                np.put(flat, at, np.cumsum(np.take(pending, at).reshape(n, m), axis=0) - 1)
+                rank = flat.reshape(n, m)
             if any_shared:
                 trying = mode == _TRY
                 if rank is not None and (pending[:-1] & pending[1:] & pair_shared).any():
