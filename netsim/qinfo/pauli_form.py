@@ -93,9 +93,15 @@ def correlations(r: NDArray[np.complex128], gl: NDArray[np.float64], cl: NDArray
     both = cl * cr
     out[:, 0] = both * r[..., 1, 1]
     out[:, 1] = both * r[..., 2, 2]
-    out[:, 2] = (gl * gr * r[..., 0, 0] + gl * (1.0 - gr) * r[..., 0, 3] + (1.0 - gl) * gr * r[..., 3, 0]
-                 + (1.0 - gl) * (1.0 - gr) * r[..., 3, 3])
+    out[:, 2] = _decayed_zz(r, gl, gr)
     return out
+
+
+def _decayed_zz(r: NDArray[Any], gl: NDArray[np.float64], gr: NDArray[np.float64]) -> NDArray[Any]:
+    """<ZZ> of pairs ``r`` after memory decay gamma ``gl`` (qubit 0) and ``gr`` (qubit 1), by
+    broadcasting (one pair or one per state; one hop or several)."""
+    return (gl * gr * r[..., 0, 0] + gl * (1.0 - gr) * r[..., 0, 3] + (1.0 - gl) * gr * r[..., 3, 0]
+            + (1.0 - gl) * (1.0 - gr) * r[..., 3, 3])
 
 
 def chain_decay(left_s: NDArray[np.float64], right_s: NDArray[np.float64], t1_s: NDArray[np.float64],
@@ -158,10 +164,7 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
         r = np.stack([np.broadcast_to(p, (len(gl), 4, 4)) for p in later], axis=1)  # (N, n - 1, 4, 4)
     keep = 1.0 - np.asarray(gate_errors, dtype=float)
     both = cl[:, 1:] * cr[:, 1:]
-    g1, g2 = gl[:, 1:], gr[:, 1:]
-    r00, r03, r30, r33 = r[..., 0, 0], r[..., 0, 3], r[..., 3, 0], r[..., 3, 3]
-    # <ZZ> after decay: gl gr r00 + gl (1 - gr) r03 + (1 - gl) gr r30 + (1 - gl)(1 - gr) r33
-    zz = r33 + g1 * (r03 - r33) + g2 * (r30 - r33) + (g1 * g2) * (r00 - r03 - r30 + r33)
+    zz = _decayed_zz(r, gl[:, 1:], gr[:, 1:])
     weights = np.empty((len(gl), 4), dtype=np.result_type(out, r))
     weights[:, 0] = 1.0
     weights[:, 1] = (both * (r[..., 1, 1] * (SWAP_SIGN[1] * keep))).prod(axis=1)
