@@ -226,6 +226,7 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     #: when a hop is lost, to values above all others): a waiting hop's turn is then the number of
     #: waiting hops before it in this order, O(n) per cycle rather than n^2 comparisons
     order: NDArray[Any] = np.repeat(np.arange(n)[:, None], m, axis=1)
+    reordered = False   # whether any cycle's order has changed (else a turn is a plain running count)
     per_hop[_RDY] = np.inf
     per_hop[_PRIO] = np.arange(n, dtype=float)[:, None]
     if offset_s is not None:
@@ -252,7 +253,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         if pending.any():
             turns = int(pending.sum(axis=0).max())
             rank = None
-            if turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
+            if turns > 1 and not reordered:  # every cycle's hops still in chain order
+                rank = np.cumsum(pending, axis=0) - 1
+            elif turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
                 at = (order * m + rows).ravel()  # flat positions, in priority order per cycle
                 flat = np.empty(n * m, dtype=np.int64)   # meaningful for the waiting hops only
                 np.put(flat, at, np.cumsum(np.take(pending, at).reshape(n, m), axis=0) - 1)
@@ -305,13 +308,12 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         hop_r = t_ready.argmin(axis=0)
         t_r = t_ready.min(axis=0)
         held = mode == _HELD
-        run_dl = np.where(held, born + cutoff, np.inf)
-        for j in range(1, n):  # min over the run to the left ...
-            np.minimum(run_dl[j], run_dl[j - 1], out=run_dl[j], where=held[j] & held[j - 1])
-        for j in range(n - 2, -1, -1):  # ... and to the right
-            np.minimum(run_dl[j], run_dl[j + 1], out=run_dl[j], where=held[j] & held[j + 1])
-        hop_d = run_dl.argmin(axis=0)
-        t_d = run_dl.min(axis=0)
+        # the earliest cut-off: a run's is the least of its pairs' (b + cutoff), so the earliest of
+        # all runs is the least over all held pairs, and the first pair reaching it lies in the
+        # first run that does (the run is then found from it, step 3b)
+        dl = np.where(held, born + cutoff, np.inf)
+        hop_d = dl.argmin(axis=0)
+        t_d = dl.min(axis=0)
         is_ready = t_r <= t_d
         np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
         lost = None
@@ -367,6 +369,7 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             np.copyto(prio, counter + rank_lost, where=lost)
             moved = np.flatnonzero(lost.any(axis=0))
             order[:, moved] = np.argsort(prio[:, moved], axis=0)
+            reordered = True
             counter += n + 2
             np.copyto(mode, _WAIT, where=lost)
             np.copyto(rdy, np.inf, where=lost)
