@@ -61,6 +61,7 @@ multiplies the coherence by E[exp(i phi)] = exp(-sigma^2 / 2) (Hermans et al. 20
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -124,7 +125,7 @@ def pair_visibility(site_a: Site, site_b: Site) -> float:
     Derived in the module docstring (common mode plus orthogonal own modes); two identical sites
     give their own ``photon_indistinguishability``.
     """
-    return float(np.sqrt(site_a.photon_indistinguishability * site_b.photon_indistinguishability))
+    return math.sqrt(site_a.photon_indistinguishability * site_b.photon_indistinguishability)
 
 
 def _scale_coherence(rho: np.ndarray, i: int, j: int, factor: float) -> np.ndarray:
@@ -236,20 +237,24 @@ def single_photon_herald(path: LightPath) -> Herald:
     alpha = path.first.bright_state_population
     pa, pb = _arm_efficiencies(path, path.site_a.emission_efficiency, path.site_b.emission_efficiency)
     vis = pair_visibility(path.site_a, path.site_b)
-    coherence = float(np.sqrt(vis) * np.exp(-path.first.phase_noise_rad ** 2 / 2.0))
+    coherence = math.sqrt(vis) * math.exp(-path.first.phase_noise_rad ** 2 / 2.0)
     w_one, w_two = alpha * (1 - alpha) * (pa + pb), alpha ** 2 * (pa + pb - pa * pb * (3.0 - vis) / 2.0)
     p_true = w_one + w_two
-    psi = np.zeros(4)
-    psi[2], psi[1] = np.sqrt(pa), np.sqrt(pb)          # |10> and |01> before correction
-    psi = psi / np.linalg.norm(psi) if pa + pb > 0 else psi
-    raw_true = (w_one * _scale_coherence(np.outer(psi, psi), 1, 2, coherence)
-                + w_two * np.diag([0.0, 0.0, 0.0, 1.0]))
-    no_click = np.diag([(1 - alpha) ** 2, alpha * (1 - alpha) * (1 - pb),
-                        alpha * (1 - alpha) * (1 - pa), alpha ** 2 * (1 - pa) * (1 - pb)])
+    # Written entry by entry after the correction X on qubit 1 (|01> -> |00>, |10> -> |11>,
+    # |11> -> |10>): the one-photon state's |01> and |10> weights P_b / (P_a + P_b) and
+    # P_a / (P_a + P_b) move to |00> and |11>, its coherence to <00|rho|11>, and |11> to |10>.
+    total = pa + pb
+    if total > 0:
+        on_00, on_11, between = w_one * (pb / total), w_one * (pa / total), w_one * (math.sqrt(pa * pb) / total * coherence)
+    else:
+        on_00 = on_11 = between = 0.0
+    rho_true = _normalised_diagonal_plus((on_00, 0.0, w_two, on_11), between)
+    no_click = ((1 - alpha) ** 2, alpha * (1 - alpha) * (1 - pb), alpha * (1 - alpha) * (1 - pa),
+                alpha ** 2 * (1 - pa) * (1 - pb))   # |00>, |01>, |10>, |11> before the correction
     d = path.first.dark_count_probability
     period = _station_timing(path)
-    return Herald(p_true * (1 - d), _flip_b(_normalised(raw_true)), 2.0 * d * (1 - d) * float(np.trace(no_click)),
-                  _flip_b(_normalised(no_click)),
+    return Herald(p_true * (1 - d), rho_true, 2.0 * d * (1 - d) * sum(no_click),
+                  _normalised_diagonal_plus((no_click[1], no_click[0], no_click[3], no_click[2]), 0.0),
                   period, period)
 
 
@@ -313,17 +318,20 @@ def direct_herald(path: LightPath) -> Herald:
     return Herald(p_true, PHI_PLUS, p_false, MIXED, period, period)
 
 
+def _normalised_diagonal_plus(diagonal: tuple[float, float, float, float], coherence: float) -> np.ndarray:
+    """The state with ``diagonal`` weights and ``coherence`` in <00|rho|11> (and its conjugate),
+    normalised (I/4 when the weights sum to zero): built from plain floats in one array."""
+    trace = sum(diagonal)
+    if not trace > 0:
+        return MIXED.copy()
+    w00, w01, w10, w11 = (w / trace for w in diagonal)
+    c = coherence / trace
+    return np.array([[w00, 0.0, 0.0, c], [0.0, w01, 0.0, 0.0], [0.0, 0.0, w10, 0.0], [c, 0.0, 0.0, w11]])
+
+
 def _normalised(rho: np.ndarray) -> np.ndarray:
     trace = float(np.trace(rho).real)
     return rho / trace if trace > 0 else MIXED.copy()
-
-
-_X_ON_B = np.kron(np.eye(2), np.array([[0.0, 1.0], [1.0, 0.0]]))
-
-
-def _flip_b(rho: np.ndarray) -> np.ndarray:
-    """Apply X to qubit 1 (the Psi -> Phi correction)."""
-    return _X_ON_B @ rho @ _X_ON_B
 
 
 SCHEME_FUNCTIONS: dict[str, Callable[[LightPath], Herald]] = {
@@ -367,7 +375,7 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
     else:
         rho = MIXED.copy()
     modes = int(path.first.modes)
-    round_p = float(-np.expm1(modes * np.log1p(-p))) if p < 1 else 1.0
+    round_p = -math.expm1(modes * math.log1p(-p)) if p < 1 else 1.0
     loss = path.loss_db
     # A midpoint station or source is a node between two channels: the worse arm bounds the link.
     bound_loss = max(path.arm_losses_db()) if path.first.scheme in STATION_SCHEMES else loss
@@ -376,10 +384,15 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
         transmissivity=db_to_transmissivity(loss), success_probability=p, modes=modes,
         round_success_probability=round_p, attempt_period_s=herald.attempt_period_s,
         herald_delay_s=herald.herald_delay_s, state=rho,
-        fidelity=float(np.real(np.trace(PHI_PLUS @ rho))),
+        fidelity=_phi_plus_fidelity(rho),
         dark_count_fraction=herald.p_false / p if p > 0 else 0.0,
         bound_transmissivity=db_to_transmissivity(bound_loss),
     )
+
+
+def _phi_plus_fidelity(rho: np.ndarray) -> float:
+    """<Phi+|rho|Phi+> = (rho_00,00 + rho_00,11 + rho_11,00 + rho_11,11) / 2 (real part)."""
+    return float((rho[0, 0] + rho[0, 3] + rho[3, 0] + rho[3, 3]).real) / 2.0
 
 
 def link_physics(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
