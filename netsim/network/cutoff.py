@@ -236,7 +236,6 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     counter = float(n)
     cols = np.arange(n)
     hop_col = cols[:, None]
-    ta_col, ra_col = ta[:, None], ra[:, None]
     step = 0
     rows = np.arange(m)
     while m and (max_steps is None or step < max_steps):
@@ -290,19 +289,16 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                 else:
                     assert rng is not None
                     k = rng.geometric(qa[h]).astype(float)
-                rounds_k = np.zeros((n, m))
-                rounds_k[h, r] = k
-                start = np.maximum(now, next_ok)
-                b = start + (rounds_k - 1) * ta_col
-                np.copyto(first, start, where=granted)
-                np.copyto(cur, rounds_k, where=granted)
-                np.copyto(born, b, where=granted)
-                np.copyto(rdy, b + ra_col, where=granted)
-                np.copyto(next_ok, b + ta_col, where=granted)
-                rounds += rounds_k
-                seqs += granted
-                np.copyto(mode, _TRY, where=granted)
-                _count_attempts(granted, pending, first, cur, born, ta_col, acc_left, acc_right)
+                # written at the granted hops only (after the first step a few per cent of the
+                # plane), through flat positions: every plane is C-contiguous
+                at = h * m + r
+                start = np.maximum(now[r], _flat(next_ok).take(at))
+                b = start + (k - 1) * ta[h]
+                for plane, values in ((first, start), (cur, k), (born, b), (rdy, b + ra[h]), (next_ok, b + ta[h]),
+                                      (rounds, _flat(rounds).take(at) + k), (seqs, _flat(seqs).take(at) + 1.0)):
+                    _flat(plane).put(at, values)
+                _flat(mode).put(at, _TRY)
+                _count_attempts(granted, pending, first, cur, born, ta, acc_left, acc_right, m)
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
         hop_r = t_ready.argmin(axis=0)
@@ -410,11 +406,19 @@ _BORN, _RDY, _FIRST, _CUR, _NEXT, _PRIO, _ROUNDS, _SEQS, _DROPPED, _ACC_LEFT, _A
 _PER_HOP = 11
 
 
+def _flat(plane: NDArray[Any]) -> NDArray[Any]:
+    """A (hops, cycles) plane as one flat view: the planes are C-contiguous (they are made so and
+    kept so by ``np.compress``), so values put through the view land in the plane."""
+    assert plane.flags.c_contiguous
+    return plane.ravel()
+
+
 def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], first: NDArray[np.float64],
                     cur: NDArray[np.float64], born: NDArray[np.float64], ta: NDArray[np.float64],
-                    acc_left: NDArray[np.float64], acc_right: NDArray[np.float64]) -> None:
-    """The ``granted`` hops ((hops, cycles) planes) have just started a sequence (``first``,
-    ``cur`` rounds; their pairs born at ``born``); ``pending`` the hops that waited for a grant.
+                    acc_left: NDArray[np.float64], acc_right: NDArray[np.float64], m: int) -> None:
+    """The ``granted`` hops ((hops, cycles) planes, C-contiguous, ``m`` cycles) have just started
+    a sequence (``first``, ``cur`` rounds; their pairs born at ``born``); ``pending`` the hops
+    that waited for a grant; ``ta`` (hops,) the periods.
 
     ``acc_left[i, r]`` counts the rounds hop i - 1 starts at site i after hop i's current pair's
     round began (``acc_right`` those of hop i + 1 at site i + 1). A new pair counts the
@@ -423,17 +427,22 @@ def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], firs
     birth from its last sequence (that ended before its pair was stored, and so before now): two
     neighbours granted in one step count each other's new sequence, whichever was granted first.
     The counts stop by themselves: once the two pairs are swapped, neither hop attempts again
-    before both are delivered or discarded.
+    before both are delivered or discarded. Only the inner sites next to a granted hop change.
     """
-    ga, gc = granted[:-1], granted[1:]      # the left and the right hop of each inner site
-    right, left = acc_right[:-1], acc_left[1:]
+    at = np.flatnonzero(granted[:-1] | granted[1:])   # inner site j (joining hops j and j + 1), cycle r: j * m + r
+    nb = at + m                                       # the same cycle's right hop
+    site = at // m
+    left_new, right_new = _flat(granted).take(at), _flat(granted).take(nb)
+    first_f, cur_f, born_f = _flat(first), _flat(cur), _flat(born)
     # the right hop's rounds after the left hop's pair began, and the left hop's after the right's
-    x = _rounds_after(first[1:], ta[1:], cur[1:], born[:-1])
-    y = _rounds_after(first[:-1], ta[:-1], cur[:-1], born[1:])
-    np.add(right, x, out=right, where=gc & ~pending[:-1])
-    np.copyto(right, x, where=ga)
-    np.add(left, y, out=left, where=ga & ~pending[1:])
-    np.copyto(left, y, where=gc)
+    x = _rounds_after(first_f.take(nb), ta[site + 1], cur_f.take(nb), born_f.take(at))
+    y = _rounds_after(first_f.take(at), ta[site], cur_f.take(at), born_f.take(nb))
+    right = _flat(acc_right)
+    old = right.take(at)
+    right.put(at, np.where(left_new, x, np.where(right_new & ~_flat(pending).take(at), old + x, old)))
+    left = _flat(acc_left)
+    old = left.take(nb)
+    left.put(nb, np.where(right_new, y, np.where(left_new & ~_flat(pending).take(nb), old + y, old)))
 
 
 def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
