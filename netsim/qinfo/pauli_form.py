@@ -85,16 +85,13 @@ def decayed(r: NDArray[Any], gl: NDArray[np.float64], cl: NDArray[np.float64],
     return out
 
 
-def correlations(r: NDArray[np.complex128], gl: NDArray[np.float64], cl: NDArray[np.float64],
-                 gr: NDArray[np.float64], cr: NDArray[np.float64]) -> NDArray[np.complex128]:
-    """diag(A_L r A_R^T)[1:] (N, 3): the <XX>, <YY>, <ZZ> of decayed pairs (as :func:`decayed`),
-    all a swap keeps of them."""
-    out = np.empty((len(gl), 3), dtype=complex)
+def correlations(r: NDArray[Any], gl: NDArray[np.float64], cl: NDArray[np.float64],
+                 gr: NDArray[np.float64], cr: NDArray[np.float64]) -> NDArray[Any]:
+    """diag(A_L r A_R^T)[1:] (..., 3): the <XX>, <YY>, <ZZ> of decayed pairs (as :func:`decayed`),
+    all a swap keeps of them, by broadcasting: factors (N,) or (N, hops), ``r`` one form (4, 4),
+    one per hop (hops, 4, 4) or one per state and hop (N, hops, 4, 4)."""
     both = cl * cr
-    out[:, 0] = both * r[..., 1, 1]
-    out[:, 1] = both * r[..., 2, 2]
-    out[:, 2] = _decayed_zz(r, gl, gr)
-    return out
+    return np.stack([both * r[..., 1, 1], both * r[..., 2, 2], _decayed_zz(r, gl, gr)], axis=-1)
 
 
 def _decayed_zz(r: NDArray[Any], gl: NDArray[np.float64], gr: NDArray[np.float64]) -> NDArray[Any]:
@@ -163,13 +160,10 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
     else:  # some hops have one pair per chain (purified pairs)
         r = np.stack([np.broadcast_to(p, (len(gl), 4, 4)) for p in later], axis=1)  # (N, n - 1, 4, 4)
     keep = 1.0 - np.asarray(gate_errors, dtype=float)
-    both = cl[:, 1:] * cr[:, 1:]
-    zz = _decayed_zz(r, gl[:, 1:], gr[:, 1:])
+    kept = correlations(r, gl[:, 1:], cl[:, 1:], gr[:, 1:], cr[:, 1:])               # (N, n - 1, 3)
     weights = np.empty((len(gl), 4), dtype=np.result_type(out, r))
     weights[:, 0] = 1.0
-    weights[:, 1] = (both * (r[..., 1, 1] * (SWAP_SIGN[1] * keep))).prod(axis=1)
-    weights[:, 2] = (both * (r[..., 2, 2] * (SWAP_SIGN[2] * keep))).prod(axis=1)
-    weights[:, 3] = (zz * (SWAP_SIGN[3] * keep)).prod(axis=1)
+    weights[:, 1:] = (kept * (SWAP_SIGN[1:] * keep[:, None])).prod(axis=1)
     return out * weights[:, None, :]
 
 
