@@ -160,3 +160,37 @@ def test_numpy_values_and_tuples_run_as_plain_ones() -> None:
 
 def _figures(runs: list[Any]) -> list[Any]:
     return [(r.metrics.n, r.metrics.sum_fidelity, r.simulated_time_s, r.hop_attempts.tolist()) for r in runs]
+
+
+@pytest.mark.skipif(shutil.which("gcc") is None and shutil.which("cc") is None, reason="no C compiler here")
+def test_a_failed_compile_leaves_no_digest(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # A compiled module that fails to build is skipped with a warning, and an editable build keeps
+    # the file of the previous build in place. The digest must then go: written beside that old
+    # file, it would make the old engine run as if it were the edited one (seen in development).
+    from setuptools import Distribution, Extension
+
+    spec = importlib.util.spec_from_file_location("netsim_build_backend", ROOT / "netsim" / "_build" / "backend.py")
+    assert spec is not None and spec.loader is not None
+    backend = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(backend)
+    package = tmp_path / "pkg"
+    package.mkdir()
+    (package / "__init__.py").write_text("")
+    (package / "good.c").write_text('#include <Python.h>\nstatic struct PyModuleDef m = {PyModuleDef_HEAD_INIT, "good", 0, -1, 0};\n'
+                                    "PyMODINIT_FUNC PyInit_good(void) { return PyModule_Create(&m); }\n")
+    (package / "bad.c").write_text("this is not C\n")
+    monkeypatch.chdir(tmp_path)
+
+    def build(source: str) -> list[str]:
+        dist = Distribution({"name": "pkg", "packages": ["pkg"],
+                             "ext_modules": [Extension("pkg.good", [source], optional=True)]})
+        command = backend._BuildWithDigest(dist)
+        command.inplace, command.force = True, True
+        command.ensure_finalized()
+        command.run()
+        return sorted(path.name for path in package.iterdir() if path.suffix in (".so", ".pyd", ".sha256"))
+
+    first = build("pkg/good.c")
+    assert backend.DIGEST_FILE in first and len(first) == 2
+    assert build("pkg/bad.c") == [name for name in first if name != backend.DIGEST_FILE]  # the old module stays
+    assert backend.DIGEST_FILE in build("pkg/good.c")

@@ -39,13 +39,28 @@ def source_digest(root: Path = ROOT) -> str:
 
 
 class _BuildWithDigest(build_ext):
-    """build_ext that records, beside the compiled modules, which sources they came from."""
+    """build_ext that records, beside the compiled modules, which sources they came from.
+
+    The digest is written only when every extension compiled in this run. An optional extension
+    that fails leaves a warning and, in an in-place (editable) build, the file of an earlier
+    build in place: with a fresh digest beside it, the old engine would run as if current.
+    """
 
     def run(self) -> None:
-        super().run()
+        self.failed: list[str] = []
         built = [Path(self.get_ext_fullpath(ext.name)) for ext in self.extensions]
-        if built and all(path.exists() for path in built):
+        if built:
+            (built[-1].parent / DIGEST_FILE).unlink(missing_ok=True)
+        super().run()
+        if built and not self.failed and all(path.exists() for path in built):
             (built[-1].parent / DIGEST_FILE).write_text(source_digest() + "\n")
+
+    def build_extension(self, ext: Any) -> None:
+        try:
+            super().build_extension(ext)
+        except Exception:  # an optional one is then skipped with a warning (build_ext)
+            self.failed.append(ext.name)
+            raise
 
 
 def _extensions() -> list[Any]:
