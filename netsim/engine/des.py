@@ -49,11 +49,10 @@ from __future__ import annotations
 
 import gc
 import math
-import operator
 import struct
 from array import array
 from heapq import heappush
-from collections.abc import Callable, Iterator, Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any, Final, SupportsInt
 
 import numpy as np
@@ -118,6 +117,34 @@ class _Pair:
                 f"fate={self.fate!r})")
 
 
+class _Wait:
+    """A hop waiting for an optical interface at each site of ``ends``, filed under each of them
+    (an entry granted through one site is skipped and dropped at the others)."""
+
+    __slots__ = ("ends", "hop", "lane", "sequence", "waiting")
+
+    def __init__(self, sequence: int, ends: list[int], lane: _Lane, hop: int) -> None:
+        self.sequence, self.ends, self.lane, self.hop = sequence, ends, lane, hop
+        self.waiting = True
+
+
+def _merged(a: list[_Wait], b: list[_Wait]) -> list[_Wait]:
+    """Two lists in request order merged into one (the order ``sorted`` by sequence gives: from
+    ``a`` first on equal sequences, i.e. an entry filed under both sites comes twice)."""
+    out: list[_Wait] = []
+    i = j = 0
+    while i < len(a) and j < len(b):
+        if b[j].sequence < a[i].sequence:
+            out.append(b[j])
+            j += 1
+        else:
+            out.append(a[i])
+            i += 1
+    out.extend(a[i:])
+    out.extend(b[j:])
+    return out
+
+
 class _Seg:
     """A run of joined link pairs from site ``lo`` to site ``hi``."""
 
@@ -132,23 +159,47 @@ class _Seg:
 
 class _Call:
     """A bare simpy event that calls ``fn(*args)`` when processed (scheduled with
-    ``Environment.schedule``; no closure per event)."""
+    ``Environment.schedule``; no closure per event). It carries its own time, which it sets as
+    its engine's clock (``_Des.now``) before the call: simpy has just set its own to the same
+    value, but the handlers read a typed field of the engine rather than an attribute of the
+    Python environment (an untyped read, then untyped arithmetic, in the compiled build)."""
 
-    __slots__ = ("args", "callbacks", "fn")
+    __slots__ = ("args", "callbacks", "fn", "owner", "time")
     _ok = True
     _value = None
 
-    def __init__(self, fn: Callable[..., None], args: tuple[Any, ...]) -> None:
-        self.fn, self.args = fn, args
+    def __init__(self, owner: _Des, fn: Callable[..., None], args: tuple[Any, ...], time: float) -> None:
+        self.owner, self.fn, self.args, self.time = owner, fn, args, time
         self.callbacks: list[Callable[[Any], None]] | None = _FIRE  # shared: simpy only reads and then drops the list
 
     @staticmethod
     def fire(event: _Call) -> None:
+        event.owner.now = event.time
         event.fn(*event.args)
 
 
 _FIRE: Final[list[Callable[[Any], None]]] = [_Call.fire]
-_FIRST: Final = operator.itemgetter(0)
+_PUSH: Final = heappush
+
+
+class _Serial:
+    """simpy's event counter (``Environment._eid``, which breaks ties between events at the same
+    time and priority) as an object the engine counts with directly: ``next()`` gives 0, 1, 2,
+    ... as the ``itertools.count`` it replaces, and the engine takes the next value from
+    ``value`` without a call."""
+
+    __slots__ = ("value",)
+
+    def __init__(self) -> None:
+        self.value = 0
+
+    def __iter__(self) -> _Serial:
+        return self
+
+    def __next__(self) -> object:  # (object: mypyc's slot for an int-returning __next__ does not compile)
+        value = self.value
+        self.value = value + 1
+        return value
 _NORMAL: Final = NORMAL  # simpy's priority of an ordinary event
 
 
@@ -358,7 +409,11 @@ class _Des:
         #: simpy's event queue and event counter (the same objects for the environment's life),
         #: held here so that scheduling an event reads no attribute of the Python environment
         self.queue: list[Any] = self.env._queue
-        self.eid: Iterator[int] = self.env._eid
+        #: the event counter, shared with simpy (nothing is scheduled yet: it starts at 0)
+        self.eid = _Serial()
+        self.env._eid = self.eid  # type: ignore[assignment]  # simpy only calls next() on it
+        #: the simulated time, set by every engine event as it fires (_Call.fire)
+        self.now = 0.0
         # read untyped and converted: the compiled build would check each field's declared type
         # exactly, and options may hold numpy numbers (options.py)
         opt: Any = options
@@ -373,7 +428,7 @@ class _Des:
             qinfo.purify_dejmps if opt.purification == "dejmps" else qinfo.purify_bbpssw) if self.rounds else None
         self.swapping = swap_policy(opt.swap_policy)
         self.asap = self.swapping.name == "asap"
-        self.broker = SlotBroker(capacity, scheduling_policy(opt.scheduling), lambda: self.env._now)
+        self.broker = SlotBroker(capacity, scheduling_policy(opt.scheduling), lambda: self.now)
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         for k, lane in enumerate(self.lanes):
             lane.position = k  # the order ``demand_order`` scheduling gives priority by
@@ -393,9 +448,8 @@ class _Des:
         limited = [name for name, site in sites.items() if site.communication_qubits is not None]
         iface_index = {name: k for k, name in enumerate(limited)}
         self.iface_free = [int(sites[name].communication_qubits) for name in limited]  # type: ignore[arg-type]
-        #: waiting interface requests [sequence, site indices, then, waiting], filed under each of
-        #: their sites (an entry granted through one site is skipped and dropped at the others)
-        self.iface_waiting: list[list[list[Any]]] = [[] for _ in limited]
+        #: the waiting interface requests filed under each site, in request order
+        self.iface_waiting: list[list[_Wait]] = [[] for _ in limited]
         self.iface_sequence = 0
         #: per site with attempt dephasing: its attempt sequences, (M, 3) rows (start, period,
         #: rounds) sorted by start (see sorted_log)
@@ -425,7 +479,7 @@ class _Des:
                      float(c.herald_s[i]), float(c.ready_s[i]),
                      self.end_sets.index(tuple(dephasing_ends[i])) if dephasing_ends[i] else -1,
                      [iface_index[site.name] for site in c.sites[i:i + 2] if site.name in iface_index],
-                     _Call(self.transferred, ()))
+                     _Call(self, self.transferred, (), 0.0))
                 for i in range(c.n_hops)]
         #: per site with attempt dephasing: the indices of the end sets it belongs to
         self.site_end_sets: dict[str, set[int]] = {name: set() for name in self.sequences}
@@ -435,9 +489,13 @@ class _Des:
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
-        env = self.env
         # Environment.schedule, inlined as in attempt (the same time arithmetic: now + delay)
-        heappush(self.queue, (env._now + (t - env._now), _NORMAL, next(self.eid), _Call(fn, args)))
+        now = self.now
+        when = now + (t - now)
+        serial = self.eid
+        eid = serial.value
+        serial.value = eid + 1
+        _PUSH(self.queue, (when, _NORMAL, eid, _Call(self, fn, args, when)))
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -466,8 +524,7 @@ class _Des:
         """Hop ``i`` attempts until its next success; the clock jumps to the moment its pair is
         heralded and moved to memory (one event: nothing else depends on the herald itself)."""
         hop = lane.hops[i]
-        env = self.env
-        now = env._now
+        now = self.now
         start = hop.next_round
         if start < now:
             start = now
@@ -500,9 +557,14 @@ class _Des:
         hop.flight_born, hop.flight_k = born, k
         # Environment.schedule, inlined (the same time arithmetic: now + delay)
         event = hop.transfer  # its one in-flight pair's event, reused (see _Hop.transfer)
+        when = now + (born + hop.ready - now)
         event.args = (lane, i, born, k)
+        event.time = when
         event.callbacks = _FIRE
-        heappush(self.queue, (now + (born + hop.ready - now), _NORMAL, next(self.eid), event))
+        serial = self.eid
+        eid = serial.value
+        serial.value = eid + 1
+        _PUSH(self.queue, (when, _NORMAL, eid, event))
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
@@ -524,7 +586,7 @@ class _Des:
         hop.attempting = False  # hand_over, inlined
         hop.need_pair = False
         hop.busy_left = hop.busy_right = True
-        now = self.env._now
+        now = self.now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, born + self.cutoff))
 
     @staticmethod
@@ -589,11 +651,11 @@ class _Des:
                 break
         else:  # nothing else can fit now: only this one is new
             for site in ends:
-                free[site] -= 1
+                free[site] = free[site] - 1  # (a typed read and write: `-=` on an item is generic when compiled)
             self.attempt(lane, i)
             return
         self.iface_sequence += 1
-        entry = [self.iface_sequence, ends, (lane, i), True]
+        entry = _Wait(self.iface_sequence, ends, lane, i)
         for site in ends:
             self.iface_waiting[site].append(entry)
 
@@ -603,38 +665,37 @@ class _Des:
         A granted request leaves the queues of all its sites at once, so the queues hold only
         waiting requests."""
         free, waiting = self.iface_free, self.iface_waiting
-        candidates: list[list[Any]] | None = None
+        candidates: list[_Wait] | None = None
         for site in ends:
-            free[site] += 1
+            free[site] = free[site] + 1
             queue = waiting[site]
             if queue:
                 # each queue is in request order; an entry filed under both sites comes twice
-                candidates = queue if candidates is None else sorted(candidates + queue, key=_FIRST)
+                candidates = queue if candidates is None else _merged(candidates, queue)
         if candidates is None:
             return
-        granted = []
+        granted: list[_Wait] = []
         for entry in candidates:
-            if not entry[3]:  # granted already (it came through the other site too)
+            if not entry.waiting:  # granted already (it came through the other site too)
                 continue
-            need = entry[1]
+            need = entry.ends
             for site in need:
                 if free[site] <= 0:
                     break
             else:
                 for site in need:
-                    free[site] -= 1
-                entry[3] = False
+                    free[site] = free[site] - 1
+                entry.waiting = False
                 granted.append(entry)
         for entry in granted:
-            for site in entry[1]:
+            for site in entry.ends:
                 queue = waiting[site]
                 at = 0
                 while queue[at] is not entry:  # list.remove, by identity (no == on the entries)
                     at += 1
                 del queue[at]
         for entry in granted:
-            lane, i = entry[2]
-            self.attempt(lane, i)
+            self.attempt(entry.lane, entry.hop)
 
     def attempts_at(self, site: str, after_s: float, until_s: float) -> int:
         """Attempts started at ``site`` in (after_s, until_s) by any hop of any demand.
@@ -676,7 +737,7 @@ class _Des:
         hop.attempting = False
         hop.need_pair = False
         hop.busy_left = hop.busy_right = True
-        now = self.env._now
+        now = self.now
         self.add_segment(lane, _Seg(i, i + 1, [pair], now, now, pair.start + self.cutoff))
 
     # -- segments, swaps, delivery ------------------------------------------------------------
@@ -699,9 +760,9 @@ class _Des:
                 self.swap(lane, hi)
             return
         for j in (lo,) * at_lo + (hi,) * at_hi:
-            delay = self.swapping.swap_delay_s(j, n, self.env._now)
+            delay = self.swapping.swap_delay_s(j, n, self.now)
             if delay > 0:
-                self.at(self.env._now + delay, self.swap, lane, j)
+                self.at(self.now + delay, self.swap, lane, j)
             else:
                 self.swap(lane, j)
 
@@ -710,7 +771,7 @@ class _Des:
         left, right = node.left, node.right
         if not (left and right and left.alive and right.alive):
             return
-        now = self.env._now
+        now = self.now
         left.alive = right.alive = False
         node.left = node.right = None
         left.pairs[-1].end_right = right.pairs[0].end_left = now
@@ -768,7 +829,7 @@ class _Des:
         if token != lane.cut_token:  # superseded by an earlier deadline
             return
         lane.cut_at = math.inf
-        now = self.env._now
+        now = self.now
         for seg in [node.right for node in lane.nodes]:
             if seg is not None and seg.alive and seg.deadline <= now:
                 for p in seg.pairs:
@@ -788,7 +849,7 @@ class _Des:
             self.maybe_start(lane, p.hop)
 
     def free_slot(self, lane: _Lane, i: int, side: int, when: float) -> None:
-        if when > self.env._now:
+        if when > self.now:
             self.at(when, self.free_slot, lane, i, side, when)
             return
         hop = lane.hops[i]
@@ -828,17 +889,17 @@ class _Des:
 
     def close_cycle(self, lane: _Lane, t_d: float) -> None:
         rule, run = lane.rule, lane.run
-        was_done = rule.pairs is not None and rule.done(run, self.env._now)
+        was_done = rule.pairs is not None and rule.done(run, self.now)
         run.add_interval(t_d, lane.last_delivery_s)
         lane.last_delivery_s = t_d
         if len(lane.row_delivered) >= FLUSH_ROWS:
             limit = rule.time_s
-            self.flush(lane, min(self.env._now, math.inf if limit is None else float(limit)))
+            self.flush(lane, min(self.now, math.inf if limit is None else float(limit)))
         lane.active = False
         self.broker.release(lane.need)
         self.request(lane)
         if rule.pairs is not None:  # a pairs rule, once met, stays met
-            if not was_done and rule.done(run, self.env._now):
+            if not was_done and rule.done(run, self.now):
                 self.pending -= 1
                 self.check_finished()
         elif rule.time_s is None:  # precision: may be met and lost again
@@ -847,7 +908,7 @@ class _Des:
     def check_finished(self) -> None:
         """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
         if self.pending <= 0 and not self.finished.triggered and all(
-                r.done(ln.run, self.env._now) for r, ln in zip(self.rules, self.lanes)):
+                r.done(ln.run, self.now) for r, ln in zip(self.rules, self.lanes)):
             self.finished.succeed()
 
     # -- purification -------------------------------------------------------------------------
@@ -860,7 +921,7 @@ class _Des:
             self.begin(lane, i)
             return
         other, other_rho = stack.pop(level)
-        c, now = lane.chain, self.env._now
+        c, now = lane.chain, self.now
         p, out = self.purify(self.bring(c, i, other_rho, other.start, now),  # type: ignore[misc]
                              self.bring(c, i, rho, item.start, now))
         self.held(lane, item, now, now)  # pair 2 is measured at once
@@ -870,11 +931,11 @@ class _Des:
                  measured: float) -> None:
         if lane.uniform() >= p:
             lane.hops[i].purification_failures += 1
-            self.held(lane, other, self.env._now, self.env._now)  # pair 1 waits for the outcome
+            self.held(lane, other, self.now, self.now)  # pair 1 waits for the outcome
             self.begin(lane, i)
             return
         self.held(lane, other, measured, measured)  # the kept pair lives on as a new pair from then
-        item = _Pair(i, measured, self.env._now)
+        item = _Pair(i, measured, self.now)
         if level + 1 == self.rounds:
             lane.extra[i].append(out)
             item.state_id = len(lane.extra[i])
@@ -915,6 +976,7 @@ class _Des:
                 self.env.run(until=self.finished)
             except KeyboardInterrupt:
                 interrupted = True
+            self.now = float(self.env._now)  # (an interrupt may come between simpy's clock and the event's)
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
             uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.env._now
                      for rule in self.rules]

@@ -212,11 +212,13 @@ class SlotBroker:
                     queue.insert(at, req)
                     ahead[j] = sum(other.counts[other.sites.index(site)] for other in queue[:at]) + shift[site]
                     for other in queue[at + 1:]:
-                        other.ahead[other.sites.index(site)] += k
+                        ahead_other = other.ahead
+                        at_site = other.sites.index(site)
+                        ahead_other[at_site] = ahead_other[at_site] + k
                 else:
                     ahead[j] = total[site] + shift[site]
                     queue.append(req)
-                total[site] += k
+                total[site] = total[site] + k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
             if blocker < 0:
                 self._grant_all([req])
@@ -225,7 +227,7 @@ class SlotBroker:
         if req.sequence in self.waiting:
             waited = self._waited
             for site in short or sites:
-                waited[site] += 1
+                waited[site] = waited[site] + 1
 
     def _count_request(self, sites: list[int], counts: list[int]) -> list[int]:
         """Record what a new request meets at each of its sites (slots in use + queued before it
@@ -243,7 +245,7 @@ class SlotBroker:
             load = limit[site] - room[site] + queued + k
             seen = loads[site]
             seen[load] = seen.get(load, 0) + 1
-            requests[site] += 1
+            requests[site] = requests[site] + 1
             if load > limit[site]:
                 short.append(site)
         return short
@@ -255,9 +257,10 @@ class SlotBroker:
         for name, k in need.items():  # credit the time since the last change (see _tick)
             site = number[name]
             in_use = limit[site] - room[site]
-            spent[site][in_use] += now - since[site]
+            per_use = spent[site]
+            per_use[in_use] = per_use[in_use] + (now - since[site])
             since[site] = now
-            room[site] += k
+            room[site] = room[site] + k
             changed.append(site)
         if not self.waiting:
             return
@@ -268,7 +271,8 @@ class SlotBroker:
 
     def _tick(self, site: int, now: float) -> None:
         """Credit the time since the last change to the current number of slots in use."""
-        self._time_at[site][self.limit[site] - self.room[site]] += now - self._since[site]
+        per_use, in_use = self._time_at[site], self.limit[site] - self.room[site]
+        per_use[in_use] = per_use[in_use] + (now - self._since[site])
         self._since[site] = now
 
     def stats(self) -> dict[str, dict[str, Any]]:
@@ -354,7 +358,7 @@ class SlotBroker:
             if all(room[sites[j]] - used[sites[j]] >= counts[j] for j in range(len(sites))):
                 fitting.append(req)
             for j in range(len(sites)):
-                used[sites[j]] += counts[j]
+                used[sites[j]] = used[sites[j]] + counts[j]
         self._grant_all(fitting)
 
     def _grant_all(self, granted: list[Request]) -> None:
@@ -367,9 +371,10 @@ class SlotBroker:
             for j in range(len(sites)):
                 s, k = sites[j], counts[j]
                 in_use = limit[s] - room[s]
-                spent[s][in_use] += now - since[s]  # credit the time since the last change (_tick)
+                per_use = spent[s]  # credit the time since the last change (_tick)
+                per_use[in_use] = per_use[in_use] + (now - since[s])
                 since[s] = now
-                room[s] -= k
+                room[s] = room[s] - k
                 if in_use + k > peak[s]:
                     peak[s] = in_use + k
                 if incremental:
@@ -381,10 +386,12 @@ class SlotBroker:
                     while queue[at] is not req:  # grants come from near the head (below)
                         at += 1
                     del queue[at]
-                    shift[s] += k
+                    shift[s] = shift[s] + k
                     for other in queue[:at]:
-                        other.ahead[other.sites.index(s)] += k
-                    total[s] -= k
+                        ahead_other = other.ahead
+                        at_site = other.sites.index(s)
+                        ahead_other[at_site] = ahead_other[at_site] + k
+                    total[s] = total[s] - k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
             on_grant()
