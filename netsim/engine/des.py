@@ -175,7 +175,8 @@ class _Call:
     @staticmethod
     def fire(event: _Call) -> None:
         event.owner.now = event.time
-        event.fn(*event.args)
+        fn = event.fn  # (read first: a call through the attribute is a generic lookup when compiled)
+        fn(*event.args)
 
 
 _FIRE: Final[list[Callable[[Any], None]]] = [_Call.fire]
@@ -282,6 +283,8 @@ class _Lane:
         self.stacks: list[dict[int, tuple[_Pair, NDArray[np.complex128]]]] = [{} for _ in range(n)]
         self.log: list[_Pair] = []
         self.need = path_need(chain, slots_per_end)
+        #: ``need`` as the broker's site numbers and counts (SlotBroker.numbered), set by _Des
+        self.numbered: tuple[list[int], list[int]] = ([], [])
         self.position = 0
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
@@ -432,6 +435,7 @@ class _Des:
         self.lanes = [_Lane(c, r, self.rounds + 1, rule) for c, r, rule in zip(chains, rngs, rules)]
         for k, lane in enumerate(self.lanes):
             lane.position = k  # the order ``demand_order`` scheduling gives priority by
+            lane.numbered = self.broker.numbered(lane.need)
         #: per fibre link (indexed as in ``link_index``): when its current attempt sequence ends
         self.link_index: dict[str, int] = {}
         for lane in self.lanes:
@@ -499,7 +503,7 @@ class _Des:
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
-        self.broker.request(lane.position, lane.need, lambda: self.start_cycle(lane))
+        self.broker.request(lane.position, lane.need, lambda: self.start_cycle(lane), lane.numbered)
 
     def start_cycle(self, lane: _Lane) -> None:
         lane.active = True
@@ -549,7 +553,10 @@ class _Des:
             link_free[link] = free
         if hop.end_set >= 0:  # filed under its dephasing sites when the log is read (absorb_log)
             pending = self.new_sequences
-            pending += (start, period, k, hop.end_set)
+            pending.append(start)  # (four appends: += of a tuple is a generic call when compiled)
+            pending.append(period)
+            pending.append(k)
+            pending.append(hop.end_set)
             if len(pending) >= LOG_BLOCK:
                 self.log_blocks.append(np.array(pending, dtype=float).reshape(-1, 4))
                 self.new_sequences = []
@@ -693,7 +700,7 @@ class _Des:
                 at = 0
                 while queue[at] is not entry:  # list.remove, by identity (no == on the entries)
                     at += 1
-                del queue[at]
+                queue.pop(at)  # (pop, not del: del on a list item is a generic call when compiled)
         for entry in granted:
             self.attempt(entry.lane, entry.hop)
 
@@ -896,7 +903,7 @@ class _Des:
             limit = rule.time_s
             self.flush(lane, min(self.now, math.inf if limit is None else float(limit)))
         lane.active = False
-        self.broker.release(lane.need)
+        self.broker.release(lane.need, lane.numbered)
         self.request(lane)
         if rule.pairs is not None:  # a pairs rule, once met, stays met
             if not was_done and rule.done(run, self.now):

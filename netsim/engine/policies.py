@@ -86,6 +86,9 @@ class SwapPolicy(Protocol):
 class _Sorted:
     name: str
     key: Callable[[Request], tuple[float, ...]]
+    #: whether a new request always sorts after every waiting one (its key only grows with the
+    #: request time and sequence): the broker then files it last without comparing keys
+    newest_last: bool = False
 
     def order(self, requests: list[Request]) -> list[Request]:
         return sorted(requests, key=self.key)
@@ -104,7 +107,7 @@ class _Asap:
 
 
 SCHEDULING: dict[str, SchedulingPolicy] = {
-    "fair": _Sorted("fair", lambda r: (r.time_s, r.sequence)),
+    "fair": _Sorted("fair", lambda r: (r.time_s, r.sequence), newest_last=True),
     "demand_order": _Sorted("demand_order", lambda r: (r.demand_index, r.time_s, r.sequence)),
 }
 SWAPPING: dict[str, SwapPolicy] = {"asap": _Asap()}
@@ -142,7 +145,8 @@ class SlotBroker:
     """Grants path reservations of memory slots in the order a scheduling policy gives.
 
     ``request(demand_index, need, on_grant)`` queues a reservation; ``on_grant()`` is called once
-    its slots are taken (at once when they are free). ``release(need)`` returns slots.
+    its slots are taken (at once when they are free). ``release(need)`` returns slots. Both take
+    ``need`` in the broker's numbering too (:meth:`numbered`), for a caller that repeats it.
 
     The rule is the one in the module docstring. In one grant pass the slots a request may use at
     a site are ``max(0, free - needs of every waiting request ordered before it)``: a request
@@ -174,6 +178,7 @@ class SlotBroker:
         self.shift: list[int] = [0] * n
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
+        self._newest_last = isinstance(policy, _Sorted) and policy.newest_last
         # occupancy statistics per site (see stats())
         self._since: list[float] = [0.0] * n
         #: per site: time spent with 0, 1, ... slots in use (index = slots in use)
@@ -181,18 +186,25 @@ class SlotBroker:
         self._peak: list[int] = [0] * n
         self._requests: list[int] = [0] * n
         self._waited: list[int] = [0] * n
-        self._loads: list[dict[int, int]] = [{} for _ in range(n)]
+        #: per site: requests that met each load (index = slots in use + queued + own need)
+        self._loads: list[list[int]] = [[] for _ in range(n)]
 
     @property
     def free(self) -> dict[str, int]:
         """Free slots per site name."""
         return {name: self.room[k] for k, name in enumerate(self.names)}
 
-    def request(self, demand_index: int, need: dict[str, int], on_grant: Callable[[], None]) -> None:
-        self._sequence += 1
+    def numbered(self, need: dict[str, int]) -> tuple[list[int], list[int]]:
+        """``need`` as (site numbers, slots at each), the form :meth:`request` and :meth:`release`
+        work with; a caller that asks for the same ``need`` again and again passes it to them
+        (the lists are only read)."""
         number = self.number
-        sites = [number[name] for name in need]
-        counts = list(need.values())
+        return [number[name] for name in need], list(need.values())
+
+    def request(self, demand_index: int, need: dict[str, int], on_grant: Callable[[], None],
+                numbered: tuple[list[int], list[int]] | None = None) -> None:
+        self._sequence += 1
+        sites, counts = self.numbered(need) if numbered is None else numbered
         short = self._count_request(sites, counts)
         req = Request(demand_index, self.clock(), self._sequence, need)
         req.sites, req.counts = sites, counts
@@ -202,12 +214,12 @@ class SlotBroker:
             self._full_pass()
         else:
             own = req.rank = key(req)
-            queues, total, shift = self.queues, self.total, self.shift
+            queues, total, shift, newest_last = self.queues, self.total, self.shift, self._newest_last
             ahead = req.ahead = [0] * len(sites)
             for j in range(len(sites)):
                 site, k = sites[j], counts[j]
                 queue = queues[site]
-                if queue and queue[-1].rank > own:
+                if queue and not newest_last and queue[-1].rank > own:
                     at = bisect.bisect_right(queue, own, key=_rank)
                     queue.insert(at, req)
                     ahead[j] = sum(other.counts[other.sites.index(site)] for other in queue[:at]) + shift[site]
@@ -222,6 +234,8 @@ class SlotBroker:
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
             if blocker < 0:
                 self._grant_all([req])
+            elif newest_last:
+                self.blocked[blocker].append(req)
             else:
                 bisect.insort(self.blocked[blocker], req, key=_rank)
         if req.sequence in self.waiting:
@@ -244,30 +258,31 @@ class SlotBroker:
                 queued = sum(r.need.get(name, 0) for r, _ in self.waiting.values())
             load = limit[site] - room[site] + queued + k
             seen = loads[site]
-            seen[load] = seen.get(load, 0) + 1
+            if load >= len(seen):
+                seen.extend([0] * (load + 1 - len(seen)))
+            seen[load] = seen[load] + 1
             requests[site] = requests[site] + 1
             if load > limit[site]:
                 short.append(site)
         return short
 
-    def release(self, need: dict[str, int]) -> None:
-        now, room, limit, since, spent, number = (self.clock(), self.room, self.limit, self._since,
-                                                  self._time_at, self.number)
-        changed = []
-        for name, k in need.items():  # credit the time since the last change (see _tick)
-            site = number[name]
+    def release(self, need: dict[str, int], numbered: tuple[list[int], list[int]] | None = None) -> None:
+        """Return the slots of ``need`` (``numbered``: as :meth:`numbered` gives it)."""
+        now, room, limit, since, spent = self.clock(), self.room, self.limit, self._since, self._time_at
+        sites, counts = self.numbered(need) if numbered is None else numbered
+        for j in range(len(sites)):  # credit the time since the last change (see _tick)
+            site, k = sites[j], counts[j]
             in_use = limit[site] - room[site]
             per_use = spent[site]
             per_use[in_use] = per_use[in_use] + (now - since[site])
             since[site] = now
             room[site] = room[site] + k
-            changed.append(site)
         if not self.waiting:
             return
         if self._key is None:
             self._full_pass()
         else:
-            self._pass(changed)
+            self._pass(sites)
 
     def _tick(self, site: int, now: float) -> None:
         """Credit the time since the last change to the current number of slots in use."""
@@ -278,7 +293,7 @@ class SlotBroker:
     def stats(self) -> dict[str, dict[str, Any]]:
         """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
         for a reservation there, ``waited`` (requests not granted at once, counted at the sites
-        that were short), ``loads`` ({slots in use + queued + own need at the request: count})."""
+        that were short), ``loads`` ({slots in use + queued + own need at the request: count}, by load)."""
         out: dict[str, dict[str, Any]] = {}
         now = self.clock()
         for site, name in enumerate(self.names):
@@ -292,7 +307,7 @@ class SlotBroker:
                 if total > 0 and running >= 0.99 * total:
                     break
             out[name] = {"peak": self._peak[site], "p99": p99, "requests": self._requests[site],
-                         "waited": self._waited[site], "loads": dict(self._loads[site])}
+                         "waited": self._waited[site], "loads": {load: count for load, count in enumerate(self._loads[site]) if count}}
         return out
 
     def _blocker(self, req: Request) -> int:
@@ -385,9 +400,10 @@ class SlotBroker:
                     at = 0
                     while queue[at] is not req:  # grants come from near the head (below)
                         at += 1
-                    del queue[at]
+                    queue.pop(at)  # (pop, not del: del on a list item is a generic call when compiled)
                     shift[s] = shift[s] + k
-                    for other in queue[:at]:
+                    for x in range(at):
+                        other = queue[x]
                         ahead_other = other.ahead
                         at_site = other.sites.index(s)
                         ahead_other[at_site] = ahead_other[at_site] + k
