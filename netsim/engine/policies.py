@@ -28,7 +28,7 @@ from __future__ import annotations
 
 import bisect
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Protocol
 
 from netsim.errors import ParameterError
@@ -46,22 +46,29 @@ __all__ = [
 ]
 
 
-@dataclass
 class Request:
-    """A waiting path reservation: which demand, when it asked, and slots needed per site."""
+    """A waiting path reservation: which demand, when it asked, and slots needed per site.
 
-    demand_index: int
-    time_s: float
-    sequence: int
-    need: dict[str, int]
-    #: the broker's numbers of the sites of ``need`` and the slots needed at each, in its order
-    sites: list[int] = field(default_factory=list, compare=False, repr=False)
-    counts: list[int] = field(default_factory=list, compare=False, repr=False)
-    #: per site of ``sites``: slots needed by the requests queued ahead of this one, plus the
-    #: broker's ``shift`` of that site (kept by the broker; see SlotBroker._grant_all)
-    ahead: list[int] = field(default_factory=list, compare=False, repr=False)
-    #: the policy's sort key of this request, set by the broker when it has one
-    rank: tuple[float, ...] = field(default=(), compare=False, repr=False)
+    (A plain class rather than a dataclass: the compiled broker makes one per cycle, and a
+    dataclass's generated ``__init__`` runs as interpreted Python. Requests compare by identity,
+    as the broker always did.)"""
+
+    __slots__ = ("ahead", "counts", "demand_index", "need", "rank", "sequence", "sites", "time_s")
+
+    def __init__(self, demand_index: int, time_s: float, sequence: int, need: dict[str, int]) -> None:
+        self.demand_index, self.time_s, self.sequence, self.need = demand_index, time_s, sequence, need
+        #: the broker's numbers of the sites of ``need`` and the slots needed at each, in its order
+        self.sites: list[int] = []
+        self.counts: list[int] = []
+        #: per site of ``sites``: slots needed by the requests queued ahead of this one, plus the
+        #: broker's ``shift`` of that site (kept by the broker; see SlotBroker._grant_all)
+        self.ahead: list[int] = []
+        #: the policy's sort key of this request, set by the broker when it has one
+        self.rank: tuple[float, ...] = ()
+
+    def __repr__(self) -> str:
+        return (f"Request(demand_index={self.demand_index!r}, time_s={self.time_s!r}, "
+                f"sequence={self.sequence!r}, need={self.need!r})")
 
 
 class SchedulingPolicy(Protocol):
