@@ -63,7 +63,7 @@ from numpy.typing import NDArray
 from netsim import qinfo
 from netsim.engine.chain import Chain
 from netsim.engine.history import History, pair_states, rounds_between
-from netsim.engine.metrics import ChainRun, StopRule
+from netsim.engine.metrics import ChainRun, StopRule, pair_figures
 from netsim.engine.options import DesOptions
 from netsim.engine.policies import (
     SlotBroker,
@@ -78,6 +78,9 @@ LEFT, RIGHT = 0, 1
 # dict on every use (the tests that change one patch the plain-Python engine).
 #: Recorded histories are turned into states in batches of this many (bounded memory).
 FLUSH_ROWS: Final = 20_000
+#: States are made in chunks of this many pairs per lane, and their figures computed in batches
+#: of about this many pairs across lanes (bounded memory).
+STATE_CHUNK: Final = 20_000
 #: Per-hop row values a lane stages as boxed lists before moving them into its flat arrays
 #: (about 130 kB per lane at most)
 ROW_STAGE: Final = 1024
@@ -395,6 +398,19 @@ def path_need(chain: Chain, per_end: int) -> dict[str, int]:
 #: A lane's delivered rows in delivery order: delivery times (N,); storage times left and right,
 #: state indices and starts (N, n) (see _Lane.row_delivered).
 _Rows = tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64], NDArray[np.int64], NDArray[np.float64]]
+
+
+def _add_figures(batch: list[tuple[ChainRun, NDArray[np.complex128], NDArray[np.float64]]]) -> None:
+    """Add each (run, states, delivery times) of ``batch`` to its run's figures, in order, the
+    per-pair figures of all of them found in one pass (:func:`netsim.engine.metrics.pair_figures`)."""
+    if not batch:
+        return
+    figures = pair_figures(np.concatenate([states for _, states, _ in batch]))
+    at = 0
+    for run, states, delivered_s in batch:
+        part = slice(at, at + len(states))
+        run.metrics.add_figures(states, delivered_s, *(f[part] for f in figures))
+        at += len(states)
 
 
 class _Des:
@@ -989,20 +1005,18 @@ class _Des:
                      for rule in self.rules]
             rows = [self.take_rows(lane, upto) for lane, upto in zip(self.lanes, uptos)]
             counts = self.count_attempts(list(zip(self.lanes, rows)))  # every demand's at once
-            out = [self.finish(lane, upto, interrupted, r, c)
-                   for lane, upto, r, c in zip(self.lanes, uptos, rows, counts)]
+            out = [self.finish(lane, upto, interrupted) for lane, upto in zip(self.lanes, uptos)]
+            self.add_states(list(zip(self.lanes, rows, counts)))  # every demand's at once
         finally:
             if collecting:
                 gc.enable()
         return out
 
-    def finish(self, lane: _Lane, now: float, interrupted: bool, rows: _Rows,
-               counts: tuple[NDArray[np.float64], NDArray[np.float64]] | None) -> ChainRun:
+    def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
             if hop.flight_k and hop.flight_born + hop.herald <= self.env._now:
                 self.count_success(hop, hop.flight_k)
         lane.add_counts()
-        self.add_states(lane, rows, counts)
         lane.run.simulated_time_s = now
         lane.run.interrupted = interrupted
         return lane.run
@@ -1010,7 +1024,7 @@ class _Des:
     def flush(self, lane: _Lane, upto: float) -> None:
         """Turn the recorded histories delivered by ``upto`` into states and figures."""
         rows = self.take_rows(lane, upto)
-        self.add_states(lane, rows, self.count_attempts([(lane, rows)])[0])
+        self.add_states([(lane, rows, self.count_attempts([(lane, rows)])[0])])
         self.prune_sequences()
 
     def take_rows(self, lane: _Lane, upto: float) -> _Rows:
@@ -1036,19 +1050,32 @@ class _Des:
         lane.row_start = array("d", start[kept].tobytes())
         return delivered[ready], left[ready], right[ready], state[ready], start[ready]
 
-    def add_states(self, lane: _Lane, rows: _Rows, counts: tuple[NDArray[np.float64], NDArray[np.float64]] | None) -> None:
-        """Turn ``rows`` (:meth:`take_rows`) into states and add them to the lane's figures;
-        ``counts``: the attempts its stored qubits saw (:meth:`count_attempts`)."""
-        n, run = lane.chain.n_hops, lane.run
-        delivered, left, right, state, _ = rows
-        for lo in range(0, len(delivered), 20_000):
-            part = slice(lo, lo + 20_000)
-            hist = History(delivered[part], left[part], right[part], state[part], lane.extra)
-            if counts is not None:
-                hist.attempts_left, hist.attempts_right = counts[0][part], counts[1][part]
-            run.metrics.add(pair_states(lane.chain, hist), hist.delivered_s)
-            run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
-            run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
+    def add_states(self, due: list[tuple[_Lane, _Rows, tuple[NDArray[np.float64], NDArray[np.float64]] | None]]) -> None:
+        """Turn each lane's ``rows`` (:meth:`take_rows`) into states and add them to its figures;
+        with ``counts``, the attempts its stored qubits saw (:meth:`count_attempts`). The states
+        are made per lane (its own chain) in chunks of STATE_CHUNK pairs; their per-pair figures
+        (fidelity, EoF, coherent information) in batches of about that many pairs across lanes:
+        a few hundred pairs per demand left numpy's per-call cost to dominate."""
+        batch: list[tuple[ChainRun, NDArray[np.complex128], NDArray[np.float64]]] = []
+        size = 0
+        for lane, rows, counts in due:
+            n, run = lane.chain.n_hops, lane.run
+            delivered, left, right, state, _ = rows
+            for lo in range(0, len(delivered), STATE_CHUNK):
+                part = slice(lo, lo + STATE_CHUNK)
+                hist = History(delivered[part], left[part], right[part], state[part], lane.extra)
+                if counts is not None:
+                    hist.attempts_left, hist.attempts_right = counts[0][part], counts[1][part]
+                states = pair_states(lane.chain, hist)
+                run.site_qubit_s[:n] += hist.store_left_s.sum(axis=0)
+                run.site_qubit_s[1:] += hist.store_right_s.sum(axis=0)
+                if len(states):
+                    batch.append((run, states, hist.delivered_s))
+                    size += len(states)
+                if size >= STATE_CHUNK:
+                    _add_figures(batch)
+                    batch, size = [], 0
+        _add_figures(batch)
 
     def count_attempts(self, due: list[tuple[_Lane, _Rows]]) -> list[tuple[NDArray[np.float64], NDArray[np.float64]] | None]:
         """Per lane, the attempts each stored qubit of its ``rows`` saw at its site, left and

@@ -17,7 +17,7 @@ from numpy.typing import NDArray
 from netsim import qinfo
 from netsim.qinfo.states import partial_trace
 
-__all__ = ["Z95", "ChainRun", "PairMetrics", "StopRule", "phi_plus_fidelity"]
+__all__ = ["Z95", "ChainRun", "PairMetrics", "StopRule", "pair_figures", "phi_plus_fidelity"]
 
 #: Two-sided 95 % quantile of the standard normal distribution (common practice).
 Z95 = 1.959963984540054
@@ -26,6 +26,19 @@ Z95 = 1.959963984540054
 def phi_plus_fidelity(states: NDArray[np.complex128]) -> NDArray[np.float64]:
     """<Phi+|rho|Phi+> = (rho_00,00 + rho_00,11 + rho_11,00 + rho_11,11) / 2, batched."""
     return np.real(states[..., 0, 0] + states[..., 0, 3] + states[..., 3, 0] + states[..., 3, 3]) / 2.0
+
+
+def pair_figures(states: NDArray[np.complex128]) -> tuple[NDArray[np.float64], ...]:
+    """Per state (N, 4, 4): fidelity to Phi+, entanglement of formation, and the coherent
+    information towards each end (qinfo.coherent_information, S(AB) found once): S(B) - S(AB)
+    and S(A) - S(AB), clipped at 0. Each state's figures depend on that state alone, so states
+    of several demands can go through in one batch."""
+    f = phi_plus_fidelity(states)
+    e = np.asarray(qinfo.entanglement_of_formation(states), dtype=float)
+    s_ab = np.asarray(qinfo.von_neumann_entropy(states), dtype=float)
+    c = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 1)), dtype=float) - s_ab, 0.0, None)
+    c_a = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 0)), dtype=float) - s_ab, 0.0, None)
+    return f, e, c, c_a
 
 
 @dataclass
@@ -53,13 +66,15 @@ class PairMetrics:
         """Add a chunk of delivered states (N, 4, 4) and their delivery times (N,), in order."""
         if len(states) == 0:
             return
-        f = phi_plus_fidelity(states)
+        self.add_figures(states, delivered_s, *pair_figures(states))
+
+    def add_figures(self, states: NDArray[np.complex128], delivered_s: NDArray[np.float64],
+                    f: NDArray[np.float64], e: NDArray[np.float64], c: NDArray[np.float64],
+                    c_a: NDArray[np.float64]) -> None:
+        """:meth:`add` with the states' :func:`pair_figures` already computed (in order)."""
+        if len(states) == 0:
+            return
         self._add_useful(np.asarray(delivered_s, dtype=float)[f >= self.threshold - 1e-12])
-        e = np.asarray(qinfo.entanglement_of_formation(states), dtype=float)
-        # coherent information towards each end (qinfo.coherent_information), S(AB) found once
-        s_ab = np.asarray(qinfo.von_neumann_entropy(states), dtype=float)
-        c = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 1)), dtype=float) - s_ab, 0.0, None)
-        c_a = np.clip(np.asarray(qinfo.von_neumann_entropy(partial_trace(states, 0)), dtype=float) - s_ab, 0.0, None)
         self.n += len(states)
         self.sum_fidelity += float(f.sum())
         self.sum_fidelity_sq += float((f * f).sum())
