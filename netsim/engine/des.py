@@ -204,6 +204,8 @@ class _Serial:
         value = self.value
         self.value = value + 1
         return value
+
+
 _NORMAL: Final = NORMAL  # simpy's priority of an ordinary event
 
 
