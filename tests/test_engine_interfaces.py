@@ -215,15 +215,18 @@ def test_budget_expected_fidelity_counts_transfer_errors() -> None:
     """The closed-form budget: a transfer error p depolarizes one qubit of a (twirled) Werner hop
     pair, multiplying its Werner parameter by 1 - p (depolarizing convention, Nielsen & Chuang 2010
     (memory)); two users with p = 0.02 and a repeater with p = 0.05 on both of its qubits give
-    w' = w 0.98^2 0.95^2, F = (1 + 3 w') / 4."""
+    w' = w 0.98^2 0.95^2, F = (1 + 3 w') / 4. The memories dephase only (T1 = 1e12 s): the transfer
+    error acts on the heralded pair before the memories' decay, as in the engine, and only pure
+    dephasing commutes with it (with T1 the order is checked against the engine's own state in
+    tests/test_network_estimate.py)."""
     from netsim.network import budget
 
     def scenario(user_p: float, relay_p: float) -> object:
         return load_data({
             "network": {"name": "Ashby line"},
-            "sites": [{"name": "Ashby", "role": "user", "memory_transfer_error": user_p},
-                      {"name": "Bramble Relay", "role": "repeater", "memory_transfer_error": relay_p},
-                      {"name": "Crane", "role": "user", "memory_transfer_error": user_p}],
+            "sites": [{"name": "Ashby", "role": "user", "memory_transfer_error": user_p, "t1_s": 1e12},
+                      {"name": "Bramble Relay", "role": "repeater", "memory_transfer_error": relay_p, "t1_s": 1e12},
+                      {"name": "Crane", "role": "user", "memory_transfer_error": user_p, "t1_s": 1e12}],
             "links": [{"ends": ["Ashby", "Bramble Relay"], "length_km": 10.0},
                       {"ends": ["Bramble Relay", "Crane"], "length_km": 10.0}],
             "demands": [{"users": ["Ashby", "Crane"]}],

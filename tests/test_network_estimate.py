@@ -154,19 +154,25 @@ def test_highest_rate_picks_the_route_with_the_best_closed_form_rate() -> None:
 # --- the Pauli-form chain of netsim.network.estimate against the qinfo operations it replaced ---
 # Reference: the formulation the estimate used before (qinfo.decohere, qinfo.depolarizing(p).apply
 # and qinfo.entanglement_swap on (N, 4, 4) states, which tests/test_qinfo_* check against QuTiP
-# and explicit Bell measurements), copied here unchanged in what it computes.
+# and explicit Bell measurements), copied here unchanged in what it computes, except that the
+# fixed-storage state now takes the memory transfer error before the decay, as the engine does
+# (it took it after; the two differ where T1 and the transfer error both act).
 
-def _reference_delivered(hops, sites, storage):  # type: ignore[no-untyped-def]
+def _reference_delivered(hops, sites, storage, transfer_first=True):  # type: ignore[no-untyped-def]
     from netsim import qinfo
 
     out = None
     for i, hop in enumerate(hops):
         left, right = sites[i], sites[i + 1]
-        rho = qinfo.decohere(np.asarray(hop.physics.state, dtype=complex), storage[i][0], left.t1_s, left.t2_s, qubit=0)
-        rho = qinfo.decohere(rho, storage[i][1], right.t1_s, right.t2_s, qubit=1)
-        for qubit, site in ((0, left), (1, right)):
-            if site.memory_transfer_error > 0:
-                rho = qinfo.depolarizing(float(site.memory_transfer_error)).apply(rho, qubit=qubit, dims=(2, 2))
+        rho = np.asarray(hop.physics.state, dtype=complex)
+        for step in ("transfer", "decay") if transfer_first else ("decay", "transfer"):
+            if step == "decay":
+                rho = qinfo.decohere(rho, storage[i][0], left.t1_s, left.t2_s, qubit=0)
+                rho = qinfo.decohere(rho, storage[i][1], right.t1_s, right.t2_s, qubit=1)
+                continue
+            for qubit, site in ((0, left), (1, right)):
+                if site.memory_transfer_error > 0:
+                    rho = qinfo.depolarizing(float(site.memory_transfer_error)).apply(rho, qubit=qubit, dims=(2, 2))
         out = rho if out is None else qinfo.entanglement_swap(out, rho, bsm_depolarizing=float(left.gate_error))
     return out
 
@@ -230,3 +236,28 @@ def test_pauli_form_chain_equals_the_qinfo_operations_it_replaced(n: int) -> Non
     np.testing.assert_allclose(per_cycle, want, rtol=0, atol=1e-13)
     np.testing.assert_allclose(estimate._mean_delivered(hops, sites, left_s, right_s, att_l, att_r),
                                want.mean(axis=0), rtol=0, atol=1e-13)
+
+
+def test_fixed_storage_state_takes_the_transfer_error_before_the_decay_as_the_engine_does() -> None:
+    """The estimate's state for fixed storage times is the engine's own state computation with
+    those times (invariant of the implementation: netsim.engine.history.pair_states on
+    Chain.link_states, where each end's memory transfer error acts on the heralded pair and the
+    memories decay after it). With T1 finite and a transfer error, the other order (decay, then
+    transfer error, which the estimate once took) differs by about p (1 - exp(-t/T1)); this
+    check resolves that difference."""
+    from netsim.engine import Chain, HopSpec
+    from netsim.engine.history import History, pair_states
+    from netsim.network import estimate
+
+    sites = (Site("Ulva", "user", t1_s=0.05, t2_s=0.03, memory_transfer_error=0.1),
+             Site("Kell", "repeater", t1_s=0.04, t2_s=0.02, memory_transfer_error=0.2, gate_error=0.01),
+             Site("Vorn", "user", t1_s=0.06, t2_s=0.05, memory_transfer_error=0.05))
+    chain = Chain("Ulva-Vorn", sites, (HopSpec("Ulva-Kell", synthetic_physics(0.2, 1e-3)),
+                                       HopSpec("Kell-Vorn", synthetic_physics(0.3, 1e-3))))
+    storage = [(0.01, 0.02), (0.015, 0.005)]
+    history = History(np.array([1.0]), np.array([[s[0] for s in storage]]), np.array([[s[1] for s in storage]]),
+                      np.zeros((1, 2), dtype=np.int64), [[], []])
+    engine_state = pair_states(chain, history)[0]
+    np.testing.assert_allclose(estimate._delivered(chain.hops, sites, storage), engine_state, rtol=0, atol=1e-13)
+    other_order = _reference_delivered(chain.hops, sites, storage, transfer_first=False)
+    assert np.abs(other_order - engine_state).max() > 1e-4

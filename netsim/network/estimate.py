@@ -28,7 +28,8 @@ Shchukin, Schmidt & van Loock, PRA 100, 032322 (2019): E[max_i K_i T] for hops o
 E[max_{i in S} H_i] ~= expected_wait_s(S) - max_S T_i + max_S h_i, exact for equal periods and
 herald delays. E[b_i] = T_i (1/q_i - 1).
 
-The fidelity: each hop's heralded state is decohered at each of its two sites for that qubit's
+The fidelity: each hop's heralded state, with each end's memory transfer error (depolarizing)
+applied to it as the engine does, is decohered at each of its two sites for that qubit's
 expected storage time (amplitude damping with T1 and total coherence exp(-t/T2),
 :func:`netsim.qinfo.decohere`), and the hops are swapped left to right with each inner site's
 gate error (:func:`netsim.qinfo.entanglement_swap`). This is the engine's own state computation
@@ -100,7 +101,7 @@ from netsim.network.cutoff import sample_cycles
 from netsim.network.routing import Hop, register_policy, route_hops
 from netsim.network.workload import route_work
 from netsim.qinfo.channels import decoherence_factors
-from netsim.qinfo.pauli_form import SWAP_SIGN, chain_decay, chain_states, correlations, decayed, from_pauli, to_pauli
+from netsim.qinfo.pauli_form import chain_decay, chain_states, from_pauli, to_pauli
 from netsim.scenario.model import Site
 
 #: Above this many link pairs per delivered pair (:func:`netsim.network.workload.route_work`)
@@ -305,28 +306,12 @@ def estimate_route(graph: nx.Graph, route: Sequence[str]) -> RouteEstimate:
 
 
 def _delivered(hops: Sequence[Hop], sites: Sequence[Site], storage: Sequence[tuple[float, float]]) -> np.ndarray:
-    """The delivered state for fixed storage times: each hop's state decohered at its two sites
-    (qinfo.decohere), then depolarized by each end's memory transfer error, then swapped left to
-    right with each inner site's gate error (qinfo.entanglement_swap); in Pauli form (above)."""
-    out, weights = None, np.ones(4, dtype=complex)
-    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, np.array([[s[0] for s in storage]], dtype=float),
-                                                        np.array([[s[1] for s in storage]], dtype=float))
-    for i, hop in enumerate(hops):
-        left, right = sites[i], sites[i + 1]
-        gl, cl, gr, cr = gamma_l[:, i], coh_l[:, i], gamma_r[:, i], coh_r[:, i]
-        r = to_pauli(hop.physics.state)
-        if out is None:
-            out = _depolarized(_depolarized(decayed(r, gl, cl, gr, cr)[0], left, 0), right, 1)
-            continue
-        kept = correlations(r, gl, cl, gr, cr)[0] * _transfer_kept(left) * _transfer_kept(right)
-        weights[1:] *= SWAP_SIGN[1:] * kept * (1.0 - _gate_error(left))
-    assert out is not None
-    return from_pauli(out * weights[None, :])
-
-
-def _transfer_kept(site: Site) -> float:
-    """The factor by which a site's memory transfer error (depolarizing p) keeps a correlation."""
-    return 1.0 - probability("memory_transfer_error", float(site.memory_transfer_error))
+    """The delivered state for fixed storage times: :func:`_mean_delivered` for one cycle with
+    those times. As in the engine, each end's memory transfer error acts on the heralded state
+    and the memories' decay (qinfo.decohere) after it; then the swaps, with each inner site's gate
+    error (qinfo.entanglement_swap). No attempt dephasing: the attempts are not sampled here."""
+    return _mean_delivered(hops, sites, np.array([[s[0] for s in storage]], dtype=float),
+                           np.array([[s[1] for s in storage]], dtype=float), None, None)
 
 
 def _gate_error(site: Site) -> float:
@@ -360,7 +345,8 @@ def cutoff_scan_point(graph: nx.Graph, hops: Sequence[Hop], cutoff_s: float,
 
 
 def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
-                    attempts_left: np.ndarray, attempts_right: np.ndarray, per_cycle: bool = False) -> np.ndarray:
+                    attempts_left: np.ndarray | None, attempts_right: np.ndarray | None,
+                    per_cycle: bool = False) -> np.ndarray:
     """Mean delivered state over sampled storage times ``left_s``, ``right_s`` (N, n).
 
     As the engine does, each end's memory transfer error is applied to the heralded state before
