@@ -511,13 +511,17 @@ class _Des:
 
     def at(self, t: float, fn: Callable[..., None], *args: Any) -> None:
         """Call ``fn(*args)`` at simulated time ``t`` (>= now) as one simpy event."""
-        # Environment.schedule, inlined as in attempt (the same time arithmetic: now + delay)
         now = self.now
-        when = now + (t - now)
+        when = now + (t - now)  # Environment.schedule's time arithmetic: now + delay
+        self.schedule(when, _Call(self, fn, args, when))
+
+    def schedule(self, when: float, event: _Call) -> None:
+        """Put ``event`` on simpy's queue at ``when``, as ``Environment.schedule`` does (simpy's
+        4-tuple, the next value of the shared event counter breaking ties)."""
         serial = self.eid
         eid = serial.value
         serial.value = eid + 1
-        _PUSH(self.queue, (when, _NORMAL, eid, _Call(self, fn, args, when)))
+        _PUSH(self.queue, (when, _NORMAL, eid, event))
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -580,16 +584,12 @@ class _Des:
                 self.new_sequences = []
         hop.next_round = free
         hop.flight_born, hop.flight_k = born, k
-        # Environment.schedule, inlined (the same time arithmetic: now + delay)
         event = hop.transfer  # its one in-flight pair's event, reused (see _Hop.transfer)
-        when = now + (born + hop.ready - now)
+        when = now + (born + hop.ready - now)  # Environment.schedule's time arithmetic: now + delay
         event.args = (lane, i, born, k)
         event.time = when
         event.callbacks = _FIRE
-        serial = self.eid
-        eid = serial.value
-        serial.value = eid + 1
-        _PUSH(self.queue, (when, _NORMAL, eid, event))
+        self.schedule(when, event)
 
     def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
         """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends

@@ -15,17 +15,12 @@ import numpy as np
 from numpy.typing import NDArray
 
 from netsim import qinfo
-from netsim.qinfo.states import partial_trace
+from netsim.qinfo.states import partial_trace, phi_plus_fidelity
 
 __all__ = ["Z95", "ChainRun", "PairMetrics", "StopRule", "pair_figures", "phi_plus_fidelity"]
 
 #: Two-sided 95 % quantile of the standard normal distribution (common practice).
 Z95 = 1.959963984540054
-
-
-def phi_plus_fidelity(states: NDArray[np.complex128]) -> NDArray[np.float64]:
-    """<Phi+|rho|Phi+> = (rho_00,00 + rho_00,11 + rho_11,00 + rho_11,11) / 2, batched."""
-    return np.real(states[..., 0, 0] + states[..., 0, 3] + states[..., 3, 0] + states[..., 3, 3]) / 2.0
 
 
 def pair_figures(states: NDArray[np.complex128]) -> tuple[NDArray[np.float64], ...]:

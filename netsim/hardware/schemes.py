@@ -71,6 +71,7 @@ from netsim.errors import ParameterError
 from netsim.hardware.fibre import FIBRE_SPEED_KM_PER_S, db_to_transmissivity
 from netsim.hardware.lightpath import LightPath
 from netsim.hardware.types import LinkPhysics
+from netsim.qinfo.states import phi_plus_fidelity
 from netsim.scenario.model import SCHEMES, Link, Site
 
 __all__ = [
@@ -384,15 +385,10 @@ def assemble(path: LightPath, herald: Herald) -> LinkPhysics:
         transmissivity=db_to_transmissivity(loss), success_probability=p, modes=modes,
         round_success_probability=round_p, attempt_period_s=herald.attempt_period_s,
         herald_delay_s=herald.herald_delay_s, state=rho,
-        fidelity=_phi_plus_fidelity(rho),
+        fidelity=float(phi_plus_fidelity(rho)),
         dark_count_fraction=herald.p_false / p if p > 0 else 0.0,
         bound_transmissivity=db_to_transmissivity(bound_loss),
     )
-
-
-def _phi_plus_fidelity(rho: np.ndarray) -> float:
-    """<Phi+|rho|Phi+> = (rho_00,00 + rho_00,11 + rho_11,00 + rho_11,11) / 2 (real part)."""
-    return float((rho[0, 0] + rho[0, 3] + rho[3, 0] + rho[3, 3]).real) / 2.0
 
 
 def link_physics(link: Link, site_a: Site, site_b: Site) -> LinkPhysics:
