@@ -177,3 +177,28 @@ def test_run_cycles_gives_the_figures_recorded_before_its_rewrite(index: int) ->
            "next_round_s": out.next_round_s[f].sum()}
     for key, value in recorded.items():
         assert got[key] == pytest.approx(value, rel=1e-12, abs=0.0), key
+
+
+def test_the_samplers_array_helpers_give_numpys_own_results() -> None:
+    """The fast forms in run_cycles against numpy itself (a reference library): the geometric
+    draws are the numbers ``Generator.geometric`` gives from the same generator (inversion below
+    p = 1/3, numpy's own draw above, the generator left in the same state), the running count is
+    ``np.cumsum`` along the hops, the positions are ``np.nonzero``."""
+    from netsim.network.cutoff import _geometric, _nonzero, _running_count
+    g = np.random.default_rng(7)
+    for trial in range(40):
+        size = int(g.integers(0, 2000))
+        if trial % 3 == 0:
+            p = g.uniform(1e-12, 0.3333, size)
+        elif trial % 3 == 1:
+            p = np.full(size, 10 ** g.uniform(-300, -0.5))    # down to 1e-300: the int64 cap
+        else:
+            p = g.uniform(1e-6, 1.0, size)                  # above 1/3 too: numpy's search
+        seed = int(g.integers(1 << 30))
+        ours, theirs = np.random.default_rng(seed), np.random.default_rng(seed)
+        assert np.array_equal(_geometric(ours, p), theirs.geometric(p).astype(float))
+        assert ours.random() == theirs.random()
+        plane = g.random((int(g.integers(1, 30)), int(g.integers(1, 500)))) < 0.3
+        assert np.array_equal(_running_count(plane), np.cumsum(plane, axis=0))
+        for got, want in zip(_nonzero(plane), np.nonzero(plane)):
+            assert np.array_equal(got, want)

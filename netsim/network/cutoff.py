@@ -253,11 +253,11 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             turns = int(pending.sum(axis=0).max())
             rank = None
             if turns > 1 and not reordered:  # every cycle's hops still in chain order
-                rank = np.cumsum(pending, axis=0) - 1
+                rank = _running_count(pending) - 1
             elif turns > 1:  # priorities differ within a cycle: a hop's turn is the number of waiting hops before it
                 at = (order * m + rows).ravel()  # flat positions, in priority order per cycle
                 flat = np.empty(n * m, dtype=np.int64)   # meaningful for the waiting hops only
-                np.put(flat, at, np.cumsum(np.take(pending, at).reshape(n, m), axis=0) - 1)
+                np.put(flat, at, _running_count(np.take(pending, at).reshape(n, m)) - 1)
                 rank = flat.reshape(n, m)
             if any_shared:
                 trying = mode == _TRY
@@ -277,9 +277,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             else:
                 granted = pending
             if rank is None:
-                r, h = np.nonzero(granted.T)      # by cycle
+                r, h = _nonzero(np.ascontiguousarray(granted.T))      # by cycle
             else:
-                h, r = np.nonzero(granted)
+                h, r = _nonzero(granted)
                 by_turn = np.argsort(rank[h, r] * m + r, kind="stable")
                 h, r = h[by_turn], r[by_turn]
             if len(r):
@@ -288,7 +288,7 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                     used[h, r] += 1
                 else:
                     assert rng is not None
-                    k = rng.geometric(qa[h]).astype(float)
+                    k = _geometric(rng, qa[h])
                 # written at the granted hops only (after the first step a few per cent of the
                 # plane), through flat positions: every plane is C-contiguous
                 at = h * m + r
@@ -306,15 +306,23 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
         held = mode == _HELD
         # the earliest cut-off: a run's is the least of its pairs' (b + cutoff), so the earliest of
         # all runs is the least over all held pairs, and the first pair reaching it lies in the
-        # first run that does (the run is then found from it, step 3b)
-        dl = np.where(held, born + cutoff, np.inf)
-        hop_d = dl.argmin(axis=0)
-        t_d = dl.min(axis=0)
-        is_ready = t_r <= t_d
-        np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
+        # first run that does (the run is then found from it, step 3b). No cycle needs it when
+        # even the least birth in the plane (held or not) reaches its cut-off after every cycle's
+        # next pair is usable (float addition is monotone: the test is exact)
+        if float(born.min()) + cutoff >= float(t_r.max()):
+            hop_d = None
+            np.maximum(now, t_r, out=now)
+            is_ready = np.ones(m, dtype=bool)
+            r, h = rows, hop_r
+        else:
+            dl = np.where(held, born + cutoff, np.inf)
+            hop_d = dl.argmin(axis=0)
+            t_d = dl.min(axis=0)
+            is_ready = t_r <= t_d
+            np.maximum(now, np.where(is_ready, t_r, t_d), out=now)
+            r, h = rows[is_ready], hop_r[is_ready]
         lost = None
         # 3a. a pair becomes usable: swap with held neighbours (left first, as the engine does)
-        r, h = rows[is_ready], hop_r[is_ready]
         mode[h, r] = _HELD
         if sure:  # both swaps at once: the swap times are all they change
             new = np.zeros((n, m), dtype=bool)
@@ -345,9 +353,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                     lost[:, rf] |= _run_mask(both, hf, cols).T
         # 3b. a run reaches its cut-off: its hops request again
         cut = ~is_ready
-        if cut.any():
+        if hop_d is not None and cut.any():
             # the run of held hops around hop_d: the held hops with as many gaps before them
-            gaps = np.cumsum(~held, axis=0)
+            gaps = _running_count(~held)
             run = held & (gaps == gaps[hop_d, rows]) & cut
             lost = run if lost is None else lost | run
             disc += cut
@@ -411,6 +419,37 @@ def _flat(plane: NDArray[Any]) -> NDArray[Any]:
     kept so by ``np.compress``), so values put through the view land in the plane."""
     assert plane.flags.c_contiguous
     return plane.ravel()
+
+
+def _geometric(rng: np.random.Generator, p: NDArray[np.float64]) -> NDArray[np.float64]:
+    """``rng.geometric(p)`` as floats. Where every p < 1/3 numpy draws by inversion,
+    ceil(-E / log(1 - p)) with E a standard exponential (capped at the largest int64); the same
+    draws taken here from one vector of exponentials, without numpy's per-element parameter
+    handling (twice as fast; the same numbers from the same generator)."""
+    if len(p) and float(p.max()) < _INVERSION_BELOW:
+        return np.minimum(np.ceil(-rng.standard_exponential(len(p)) / np.log1p(-p)), _INT64_MAX)
+    return rng.geometric(p).astype(float)
+
+
+#: numpy's switch from a search to inversion in its geometric draws, and the cap of its int64 result.
+_INVERSION_BELOW = 0.333333333333333333333333
+_INT64_MAX = float(np.iinfo(np.int64).max)
+
+
+def _running_count(plane: NDArray[np.bool_]) -> NDArray[np.int64]:
+    """``np.cumsum(plane, axis=0)`` of a (hops, cycles) boolean plane, a row at a time (numpy's
+    cumsum along the first axis of a C-contiguous plane takes three times as long)."""
+    out = plane.astype(np.intp)
+    for i in range(1, len(out)):
+        out[i] += out[i - 1]
+    return out
+
+
+def _nonzero(plane: NDArray[np.bool_]) -> tuple[NDArray[np.int64], NDArray[np.int64]]:
+    """``np.nonzero`` of a C-contiguous 2-d plane, through its flat positions (a third of the time)."""
+    at = np.flatnonzero(plane)
+    row = at // plane.shape[1]
+    return row, at - row * plane.shape[1]
 
 
 def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], first: NDArray[np.float64],

@@ -274,20 +274,26 @@ def _with_cutoff(hops: Sequence[Hop], sites: Sequence[Site], cutoff_s: float, q:
              for i, h in enumerate(hops)]
     shared = [s.communication_qubits == 1 for s in sites[1:-1]]
     swaps = [s.bsm_success_probability for s in sites[1:-1]]
-    fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
     work = route_work(q, period, ready, swaps, cutoff_s, shared)
     if work.link_pairs > MAX_SAMPLED_LINK_PAIRS:
         # the sampler would step through every discarded try of 1200 cycles: far too long for
         # a planning figure; the rate is the order of magnitude of netsim.network.workload
         nan_state = np.full((4, 4), np.nan, dtype=complex)
+        fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
         return RouteEstimate(1.0 / work.seconds, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops),
                              nan_state, True, False)
     sample = sample_cycles(tuple(q), tuple(period), tuple(ready), tuple(tell), cutoff_s, tuple(shared), tuple(swaps))
     if sample is None:
         nan_state = np.full((4, 4), np.nan, dtype=complex)
+        fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
         return RouteEstimate(0.0, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops), nan_state, True, True)
-    state = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s,
-                            sample.attempts_left, sample.attempts_right)
+    # the sampled cycles and, as one more row with nothing stored, the no-decay state (each row's
+    # state is computed on its own: the same numbers as two calls)
+    fresh = np.zeros((1, len(hops)))
+    forms = _chain_forms(hops, sites, *(np.concatenate([times, fresh]) for times in (
+        sample.store_left_s, sample.store_right_s, sample.attempts_left, sample.attempts_right)))
+    state = from_pauli(forms[:-1].mean(axis=0))
+    fid0 = _fidelity(from_pauli(forms[-1]))
     storage = tuple((float(a), float(b)) for a, b in zip(sample.store_left_s.mean(axis=0),
                                                          sample.store_right_s.mean(axis=0)))
     rate = 1.0 / float(sample.delivered_s.mean())
@@ -356,11 +362,17 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     first hop's decayed pair with its columns scaled by the later hops' kept correlations).
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
+    states = _chain_forms(hops, sites, left_s, right_s, attempts_left, attempts_right)
+    return from_pauli(states) if per_cycle else from_pauli(states.mean(axis=0))
+
+
+def _chain_forms(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
+                 attempts_left: np.ndarray | None, attempts_right: np.ndarray | None) -> np.ndarray:
+    """The Pauli forms (N, 4, 4) of the delivered states of :func:`_mean_delivered`, one per row."""
     gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s, attempts_left, attempts_right)
     forms = [_depolarized(_depolarized(to_pauli(hop.physics.state), sites[i], 0), sites[i + 1], 1)
              for i, hop in enumerate(hops)]
-    states = chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]])
-    return from_pauli(states) if per_cycle else from_pauli(states.mean(axis=0))
+    return chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]])
 
 
 def _fidelity(state: np.ndarray) -> float:
