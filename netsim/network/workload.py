@@ -140,15 +140,19 @@ def route_work(q: Sequence[float], period_s: Sequence[float], ready_s: Sequence[
     if cutoff_s is None or n < 2:
         log_seconds = max(t - p for t, p in zip(log_t, log_q)) - log_swaps + log_pur
         return RouteWork(math.log(n) - log_swaps + log_pur, log_seconds)
+    # per hop, the log of its success within the cut-off after waiting for a neighbour that shares
+    # its site's one communication qubit; then, per choice of the oldest hop, the sum over the others
+    terms = []
+    for i in range(n):
+        wait = max([ready_s[j] for j in (i - 1, i + 1)
+                    if 0 <= j < n and shared[min(i, j)]], default=0.0)
+        terms.append(_log_success_within(q[i], (cutoff_s - ready_s[i] - wait) / period_s[i]))
     best = -math.inf
     for oldest in range(n):
         log_p = 0.0
         for i in range(n):
-            if i == oldest:
-                continue
-            wait = max([ready_s[j] for j in (i - 1, i + 1)
-                        if 0 <= j < n and shared[min(i, j)]], default=0.0)
-            log_p += _log_success_within(q[i], (cutoff_s - ready_s[i] - wait) / period_s[i])
+            if i != oldest:
+                log_p += terms[i]
         best = max(best, log_p)
     if best == -math.inf:
         return RouteWork(math.inf, math.inf)
