@@ -102,6 +102,7 @@ from netsim.network.routing import Hop, register_policy, route_hops
 from netsim.network.workload import route_work
 from netsim.qinfo.channels import decoherence_factors
 from netsim.qinfo.pauli_form import chain_decay, chain_states, from_pauli, to_pauli
+from netsim.qinfo.states import phi_plus_fidelity
 from netsim.scenario.model import Site
 
 #: Above this many link pairs per delivered pair (:func:`netsim.network.workload.route_work`)
@@ -111,7 +112,6 @@ MAX_SAMPLED_LINK_PAIRS = 2000.0
 
 __all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "cutoff_scan_point", "estimate_hops", "estimate_route", "expected_storage_s"]
 
-_PHI_PLUS = np.array([1, 0, 0, 1], dtype=complex) / math.sqrt(2)
 
 # The chain's states are computed in Pauli form (netsim.qinfo.pauli_form: an exact rewrite of
 # decohere / depolarizing / entanglement_swap of netsim.qinfo, the same arithmetic the event
@@ -345,7 +345,7 @@ def cutoff_scan_point(graph: nx.Graph, hops: Sequence[Hop], cutoff_s: float,
         return None
     states = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s, sample.attempts_left,
                              sample.attempts_right, per_cycle=True)
-    fid = np.real(np.einsum("i,nij,j->n", _PHI_PLUS.conj(), states, _PHI_PLUS))
+    fid = phi_plus_fidelity(states)
     rate = 1.0 / float(sample.delivered_s.mean())
     return rate, rate * float(np.mean(fid >= min_fidelity)), float(fid.mean())
 
@@ -376,7 +376,7 @@ def _chain_forms(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray,
 
 
 def _fidelity(state: np.ndarray) -> float:
-    return float(np.real(_PHI_PLUS.conj() @ state @ _PHI_PLUS))
+    return float(phi_plus_fidelity(state))
 
 
 class HighestRate:
