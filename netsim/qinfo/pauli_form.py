@@ -90,8 +90,14 @@ def correlations(r: NDArray[Any], gl: NDArray[np.float64], cl: NDArray[np.float6
     """diag(A_L r A_R^T)[1:] (..., 3): the <XX>, <YY>, <ZZ> of decayed pairs (as :func:`decayed`),
     all a swap keeps of them, by broadcasting: factors (N,) or (N, hops), ``r`` one form (4, 4),
     one per hop (hops, 4, 4) or one per state and hop (N, hops, 4, 4)."""
+    return np.stack(_kept(r, gl, cl, gr, cr), axis=-1)
+
+
+def _kept(r: NDArray[Any], gl: NDArray[np.float64], cl: NDArray[np.float64],
+          gr: NDArray[np.float64], cr: NDArray[np.float64]) -> tuple[NDArray[Any], NDArray[Any], NDArray[Any]]:
+    """The <XX>, <YY> and <ZZ> of :func:`correlations`, as three arrays."""
     both = cl * cr
-    return np.stack([both * r[..., 1, 1], both * r[..., 2, 2], _decayed_zz(r, gl, gr)], axis=-1)
+    return both * r[..., 1, 1], both * r[..., 2, 2], _decayed_zz(r, gl, gr)
 
 
 def _decayed_zz(r: NDArray[Any], gl: NDArray[np.float64], gr: NDArray[np.float64]) -> NDArray[Any]:
@@ -163,16 +169,11 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
     factor = SWAP_SIGN[1:] * keep[:, None]                                        # (n - 1, 3)
     # the later hops' kept <XX>, <YY>, <ZZ> (:func:`correlations`), each (N, n - 1), and their
     # products over the hops one component at a time (numpy reduces an (N, n - 1) array along its
-    # last axis a few times faster than an (N, n - 1, 3) one along its middle; the same products
-    # in the same order)
+    # last axis a few times faster than an (N, n - 1, 3) one along its middle; for real forms, the
+    # forms of states, the same products in the same order)
     weights = np.empty((len(gl), 4), dtype=np.result_type(out, r))
     weights[:, 0] = 1.0
-    if np.iscomplexobj(r):  # not a state's form (those are real): numpy's complex products
-        # group differently in the two layouts, so these keep the one they always had
-        weights[:, 1:] = (correlations(r, gl[:, 1:], cl[:, 1:], gr[:, 1:], cr[:, 1:]) * factor).prod(axis=1)
-        return out * weights[:, None, :]
-    both = cl[:, 1:] * cr[:, 1:]
-    kept = (both * r[..., 1, 1], both * r[..., 2, 2], _decayed_zz(r, gl[:, 1:], gr[:, 1:]))
+    kept = _kept(r, gl[:, 1:], cl[:, 1:], gr[:, 1:], cr[:, 1:])
     for j in range(3):
         weights[:, j + 1] = (kept[j] * factor[:, j]).prod(axis=1)
     return out * weights[:, None, :]
