@@ -1003,7 +1003,7 @@ class _Des:
                 interrupted = True
             self.now = float(self.env._now)  # (an interrupt may come between simpy's clock and the event's)
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
-            uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.env._now
+            uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.now
                      for rule in self.rules]
             rows = [self.take_rows(lane, upto) for lane, upto in zip(self.lanes, uptos)]
             counts = self.count_attempts(list(zip(self.lanes, rows)))  # every demand's at once
@@ -1016,7 +1016,7 @@ class _Des:
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
-            if hop.flight_k and hop.flight_born + hop.herald <= self.env._now:
+            if hop.flight_k and hop.flight_born + hop.herald <= self.now:
                 self.count_success(hop, hop.flight_k)
         lane.add_counts()
         lane.run.simulated_time_s = now
@@ -1143,7 +1143,7 @@ class _Des:
         self.absorb_log(merge=True)
         if sum(len(v) for v in self.sequences.values()) < PRUNE_SEQUENCES:
             return
-        oldest = self.env._now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
+        oldest = self.now - max(float(ln.chain.ready_s.max() + ln.chain.position_s[-1]) for ln in self.lanes)
         for ln in self.lanes:
             segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
