@@ -143,6 +143,13 @@ _RECORDED_CYCLE_CASES = [
     # an attempt table on five hops, some sites shared, event times on one lattice (ties)
     ((0.3, 0.1, 0.05, 0.2, 0.4), (1e-4, 1e-4, 1e-4, 1e-4, 1e-4), (3e-4, 3e-4, 3e-4, 3e-4, 3e-4),
      (1e-5, 1e-5, 1e-5, 1e-5), 0.001, (False, True, True, False), (1.0, 1.0, 1.0, 1.0), 200, 6, {"table": True}),
+    # no pair ever lost (a cut-off that never acts, sure swaps): six hops with every inner site
+    # shared, as on the generated metro grids, and four on an attempt table with offsets
+    ((0.015, 0.013, 0.02, 0.013, 0.011, 0.015), (1.5e-5, 3.7e-5, 2e-5, 3.7e-5, 4e-5, 1.5e-5),
+     (5.1e-4, 5.4e-4, 5.2e-4, 5.4e-4, 5.5e-4, 5.1e-4), (1e-4, 7e-5, 5e-5, 7e-5, 1e-4), 0.5, (True,) * 5,
+     (1.0,) * 5, 400, 7, {}),
+    ((0.3, 0.1, 0.05, 0.2), (1e-4, 1e-4, 1e-4, 1e-4), (3e-4, 3e-4, 3e-4, 3e-4), (1e-5, 1e-5, 1e-5), 1.0,
+     (False, True, False), (1.0, 1.0, 1.0), 300, 8, {"table": True}),
 ]
 
 
@@ -151,7 +158,8 @@ def test_run_cycles_gives_the_figures_recorded_before_its_rewrite(index: int) ->
     """The timeline sampler after its rewrites (flat indices, then whole hop-major planes per
     step: fewer numpy calls per event, the same draws in the same order and the same arithmetic)
     against the figures the code gave before them, recorded in tests/data/cutoff_cycle_figures.json
-    (cases 0-3 before the first, 4-5 before the second): equal to float rounding (in fact exactly)."""
+    (cases 0-3 before the first, 4-5 before the second, 6-7 before attempt counts were taken from
+    the current sequences while no pair is lost): equal to float rounding (in fact exactly)."""
     import json
     from pathlib import Path
 

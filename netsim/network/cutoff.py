@@ -234,6 +234,11 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     pair_shared = np.array(shared[: n - 1], dtype=bool)[:, None]   # the site between hops j and j + 1
     any_shared = bool(pair_shared.any())
     counter = float(n)
+    # Attempt counts (_count_attempts) are kept step by step only once some cycle has lost a pair:
+    # until then every hop has had at most one sequence in its cycle, and the counts so far are
+    # those of _attempts_now, taken from the current sequences when a cycle is delivered or when
+    # the first pair is lost (the same numbers; most chains that deliver never lose one).
+    counting = False
     cols = np.arange(n)
     hop_col = cols[:, None]
     step = 0
@@ -298,7 +303,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                                       (rounds, _flat(rounds).take(at) + k), (seqs, _flat(seqs).take(at) + 1.0)):
                     _flat(plane).put(at, values)
                 _flat(mode).put(at, _TRY)
-                _count_attempts(granted, pending, first, cur, born, ta, acc_left, acc_right, m)
+                if counting:
+                    _count_attempts(granted, pending, first, cur, born, ta, acc_left, acc_right, m)
         # 2. the next event: a hop's pair becomes usable, or a run's cut-off
         t_ready = np.where(mode == _TRY, rdy, np.inf)
         hop_r = t_ready.argmin(axis=0)
@@ -360,6 +366,9 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             lost = run if lost is None else lost | run
             disc += cut
         if lost is not None:
+            if not counting:
+                acc_left[:], acc_right[:] = _attempts_now(first, cur, born, seqs, ta)
+                counting = True
             lo = np.where(lost, hop_col, n).min(axis=0)
             hi = np.where(lost, hop_col, -1).max(axis=0)
             # qubit-seconds of the lost pairs: to the swap that joined them, or to now at the run's ends
@@ -394,7 +403,11 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                 out.born_s[o], out.next_round_s[o] = born_d.T, next_ok[:, d].T
                 out.store_left_s[o] = (end_left - born_d).T
                 out.store_right_s[o] = (end_right - born_d).T
-                out.attempts_left[o], out.attempts_right[o] = acc_left[:, d].T, acc_right[:, d].T
+                if counting:
+                    out.attempts_left[o], out.attempts_right[o] = acc_left[:, d].T, acc_right[:, d].T
+                else:
+                    left_d, right_d = _attempts_now(first[:, d], cur[:, d], born_d, seqs[:, d], ta)
+                    out.attempts_left[o], out.attempts_right[o] = left_d.T, right_d.T
             g = rows[gone]
             o = ids[g]
             out.rounds[o], out.sequences[o], out.discarded[o] = rounds[:, g].T, seqs[:, g].T, dropped[:, g].T
@@ -482,6 +495,20 @@ def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], firs
     left = _flat(acc_left)
     old = left.take(nb)
     left.put(nb, np.where(right_new, y, np.where(left_new & ~_flat(pending).take(nb), old + y, old)))
+
+
+def _attempts_now(first: NDArray[np.float64], cur: NDArray[np.float64], born: NDArray[np.float64],
+                  seqs: NDArray[np.float64], ta: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """The counts of :func:`_count_attempts` ((left, right), (hops, cycles) planes) for cycles in
+    which no pair has been lost: each hop has then started at most one sequence (``seqs``), the
+    current one (``first``, ``cur`` rounds, its pair born at ``born``), and a qubit's count is its
+    neighbour's rounds after its birth, whichever hop was granted first (a hop with no sequence
+    yet counts none)."""
+    left, right = np.zeros_like(born), np.zeros_like(born)
+    has = seqs > 0
+    np.copyto(right[:-1], _rounds_after(first[1:], ta[1:, None], cur[1:], born[:-1]), where=has[:-1])
+    np.copyto(left[1:], _rounds_after(first[:-1], ta[:-1, None], cur[:-1], born[1:]), where=has[1:])
+    return left, right
 
 
 def _rounds_after(start_s: NDArray[np.float64], period_s: NDArray[np.float64], k: NDArray[np.float64],
