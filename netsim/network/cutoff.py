@@ -234,10 +234,11 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     pair_shared = np.array(shared[: n - 1], dtype=bool)[:, None]   # the site between hops j and j + 1
     any_shared = bool(pair_shared.any())
     counter = float(n)
-    # Attempt counts (_count_attempts) are kept step by step only once some cycle has lost a pair:
-    # until then every hop has had at most one sequence in its cycle, and the counts so far are
-    # those of _attempts_now, taken from the current sequences when a cycle is delivered or when
-    # the first pair is lost (the same numbers; most chains that deliver never lose one).
+    # Attempt counts (_count_attempts) and the rounds and sequences per hop are kept step by step
+    # only once some cycle has lost a pair: until then every hop has had at most one sequence in
+    # its cycle, and they follow from the current sequences (_attempts_now; the rounds are the
+    # current sequence's, the sequences one where a hop has one) when a cycle leaves or the first
+    # pair is lost (the same numbers; most chains that deliver never lose one).
     counting = False
     cols = np.arange(n)
     hop_col = cols[:, None]
@@ -299,9 +300,11 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                 at = h * m + r
                 start = np.maximum(now[r], _flat(next_ok).take(at))
                 b = start + (k - 1) * ta[h]
-                for plane, values in ((first, start), (cur, k), (born, b), (rdy, b + ra[h]), (next_ok, b + ta[h]),
-                                      (rounds, _flat(rounds).take(at) + k), (seqs, _flat(seqs).take(at) + 1.0)):
+                for plane, values in ((first, start), (cur, k), (born, b), (rdy, b + ra[h]), (next_ok, b + ta[h])):
                     _flat(plane).put(at, values)
+                if counting:
+                    _flat(rounds).put(at, _flat(rounds).take(at) + k)
+                    _flat(seqs).put(at, _flat(seqs).take(at) + 1.0)
                 _flat(mode).put(at, _TRY)
                 if counting:
                     _count_attempts(granted, pending, first, cur, born, ta, acc_left, acc_right, m)
@@ -367,7 +370,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
             disc += cut
         if lost is not None:
             if not counting:
-                acc_left[:], acc_right[:] = _attempts_now(first, cur, born, seqs, ta)
+                acc_left[:], acc_right[:] = _attempts_now(first, cur, born, ta)
+                rounds[:], seqs[:] = cur, cur > 0
                 counting = True
             lo = np.where(lost, hop_col, n).min(axis=0)
             hi = np.where(lost, hop_col, -1).max(axis=0)
@@ -405,12 +409,16 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                 out.store_right_s[o] = (end_right - born_d).T
                 if counting:
                     out.attempts_left[o], out.attempts_right[o] = acc_left[:, d].T, acc_right[:, d].T
-                else:
-                    left_d, right_d = _attempts_now(first[:, d], cur[:, d], born_d, seqs[:, d], ta)
-                    out.attempts_left[o], out.attempts_right[o] = left_d.T, right_d.T
+                else:  # on the whole planes: cheaper than gathering four of them first
+                    left_all, right_all = _attempts_now(first, cur, born, ta)
+                    out.attempts_left[o], out.attempts_right[o] = left_all[:, d].T, right_all[:, d].T
             g = rows[gone]
             o = ids[g]
-            out.rounds[o], out.sequences[o], out.discarded[o] = rounds[:, g].T, seqs[:, g].T, dropped[:, g].T
+            if counting:
+                out.rounds[o], out.sequences[o] = rounds[:, g].T, seqs[:, g].T
+            else:
+                out.rounds[o], out.sequences[o] = cur[:, g].T, (cur[:, g] > 0).T
+            out.discarded[o] = dropped[:, g].T
             out.discards[o], out.lost_qubit_s[o] = disc[g], lost_q[:, g].T
             keep = ~gone
             ids = ids[keep]
@@ -498,14 +506,14 @@ def _count_attempts(granted: NDArray[np.bool_], pending: NDArray[np.bool_], firs
 
 
 def _attempts_now(first: NDArray[np.float64], cur: NDArray[np.float64], born: NDArray[np.float64],
-                  seqs: NDArray[np.float64], ta: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+                  ta: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """The counts of :func:`_count_attempts` ((left, right), (hops, cycles) planes) for cycles in
-    which no pair has been lost: each hop has then started at most one sequence (``seqs``), the
-    current one (``first``, ``cur`` rounds, its pair born at ``born``), and a qubit's count is its
-    neighbour's rounds after its birth, whichever hop was granted first (a hop with no sequence
-    yet counts none)."""
+    which no pair has been lost: each hop has then started at most one sequence, the current one
+    (``first``, ``cur`` rounds, its pair born at ``born``; no rounds: none yet), and a qubit's
+    count is its neighbour's rounds after its birth, whichever hop was granted first (a hop with
+    no sequence yet counts none)."""
     left, right = np.zeros_like(born), np.zeros_like(born)
-    has = seqs > 0
+    has = cur > 0
     np.copyto(right[:-1], _rounds_after(first[1:], ta[1:, None], cur[1:], born[:-1]), where=has[:-1])
     np.copyto(left[1:], _rounds_after(first[:-1], ta[:-1, None], cur[:-1], born[1:]), where=has[1:])
     return left, right
