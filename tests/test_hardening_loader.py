@@ -261,6 +261,19 @@ def test_a_long_site_name_is_shortened_where_it_is_echoed(tmp_path, capsys) -> N
     assert "links[0].ends[0]: 'Orrin www" in line and "(100006 characters) is not allowed; it is not the name of a site" in line
 
 
+def test_a_long_near_miss_of_a_long_site_name_is_shortened_in_the_did_you_mean(tmp_path, capsys) -> None:
+    # found by the mutation test below: a site renamed to 1,000 characters and a link end one
+    # character off it; the value was shortened, the suggestion echoed whole
+    site = "Orrin La" + "[" * 992
+    path = tmp_path / "near.toml"
+    path.write_text(TWO.replace('"Orrin Lab"', f"'{site}'", 1).replace('ends = ["Orrin Lab"', f"ends = ['{site}b'"),
+                    encoding="utf-8")
+    # two problems: the unknown end, and the demand its link no longer serves
+    line = _one_line_refusal(*_cli(["check", str(path)], capsys), "check", problems=2)
+    assert len(line) < 400
+    assert "did you mean 'Orrin La" + "[" * 52 + "'... (1000 characters)?" in line
+
+
 def test_long_values_through_options_are_shortened(tmp_path, capsys) -> None:
     (tmp_path / "base.toml").write_text(CHAIN3, encoding="utf-8")
     line = _one_line_refusal(*_cli(["run", str(tmp_path / "base.toml"), "--seed", "s" * 100_000], capsys), "run")

@@ -27,9 +27,11 @@ def join(path: str, key: Any) -> str:
 
 
 def suggest(word: str, candidates: Iterable[str]) -> str:
-    """`` did you mean 'x'?`` for the closest candidate (difflib), or an empty string."""
+    """`` did you mean 'x'?`` for the closest candidate (difflib), or an empty string. A long
+    candidate is shortened as the value is (a site named by 1,000 characters would otherwise
+    be shown whole beside its shortened misspelling)."""
     matches = difflib.get_close_matches(word, list(candidates), n=1, cutoff=0.5)
-    return f"; did you mean {matches[0]!r}?" if matches else ""
+    return f"; did you mean {format_value(matches[0])}?" if matches else ""
 
 
 def unknown_key(path: str, key: Any, known: Sequence[str], hint: str = "") -> Problem:
