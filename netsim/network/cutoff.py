@@ -13,6 +13,12 @@ states, each hop state linear in its memory channel, so the mean delivered state
 over the sampled cycles of the swapped, decohered hop states). A fixed seed makes every call
 with the same inputs return the same figures.
 
+The cycles are stepped event by event, all at once on (hops, cycles) planes, except those that
+lose no pair when every draw is an attempt count (sure swaps; the draws then come from an
+:class:`AttemptTable`, per cycle, hop and sequence): such a cycle's timeline follows from its
+first draws in closed form (:func:`_quiet_cycles`), with the same numbers as stepping it. On
+chains whose cut-off seldom acts, as on the generated metro grids, that is every cycle.
+
 The rules sampled (those of the event engine for one demand alone, swap-asap, path reservation)
 --------------------------------------------------------------------------------------------
 - A cycle starts with every hop needing a pair. A hop that needs a pair requests the optical
@@ -137,7 +143,7 @@ class AttemptTable:
 
     def _draw(self, cycles: int, columns: int) -> NDArray[np.float64]:
         q = np.broadcast_to(self.q[None, :, None], (cycles, len(self.q), columns))
-        return self.rng.geometric(q).astype(float)
+        return _geometric(self.rng, q.ravel()).reshape(q.shape)   # rng.geometric(q), as floats
 
     def take(self, cycle: NDArray[np.int64], hop: NDArray[np.int64], used: NDArray[np.int64]) -> NDArray[np.float64]:
         """Rounds of the ``used``-th sequence (0-based) of ``hop`` in ``cycle`` (arrays)."""
@@ -177,8 +183,12 @@ def _sample(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[float,
         # a delivery needs every swap to succeed in one cycle, 1 / prod(p) tries on average: far
         # beyond the steps allowed, no cycle would finish (swap success 1e-308 ran for minutes)
         return None
-    out = run_cycles(q, period, ready, tell, cutoff, shared, swap_p, cycles=cycles,
-                     draws=np.random.default_rng(seed), max_steps=ESTIMATE_STEPS)
+    rng = np.random.default_rng(seed)
+    # with sure swaps every draw is an attempt count: drawn per cycle, hop and sequence (an
+    # attempt table), so that the cycles that lose no pair are finished in closed form
+    draws = AttemptTable(rng, np.array(q), cycles, columns=1) if all(p >= 1.0 for p in swap_p) else rng
+    out = run_cycles(q, period, ready, tell, cutoff, shared, swap_p, cycles=cycles, draws=draws,
+                     max_steps=ESTIMATE_STEPS)
     if not out.finished.all():
         return None  # cycles that never finish: treat as no delivery
     return CycleSample(out.delivered_s, out.store_left_s, out.store_right_s, out.discards,
@@ -193,8 +203,10 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     """Run ``cycles`` independent cycles of the chain under the rules of the module docstring.
 
     ``draws``: a generator (attempt counts and swap outcomes drawn as the cycles need them; the
-    estimate) or an :class:`AttemptTable` (rows ``table_rows`` of it, default 0 .. cycles - 1;
-    sure swaps only; the vectorised engine, which may run a cycle again with another offset).
+    estimate with swaps that can fail) or an :class:`AttemptTable` (rows ``table_rows`` of it,
+    default 0 .. cycles - 1; sure swaps only; the estimate, and the vectorised engine, which may
+    run a cycle again with another offset). With a table the cycles that lose no pair are
+    finished in closed form (:func:`_quiet_cycles`) and only the others are stepped.
     ``offset_s`` (cycles, n): per cycle and hop, the earliest start of the first round after the
     cycle's start (the carry of the previous cycle; default 0). A cycle still running after
     ``max_steps`` events or past ``horizon_s`` is left unfinished.
@@ -212,7 +224,12 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
 
     ids = np.arange(cycles)
     t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
-    m = cycles
+    offsets = None if offset_s is None else np.array(offset_s, dtype=float).reshape(cycles, n)
+    if table is not None and n >= 2 and (max_steps is None or max_steps >= n):
+        # the cycles that lose no pair are finished at once (_quiet_cycles); the others are
+        # stepped below, drawing the same table entries they would have drawn anyway
+        ids = _quiet_cycles(out, table, t_rows, offsets, ta, ra, tell_a, shared[: n - 1], cutoff, horizon_s)
+    m = len(ids)
     # The per-cycle state, hop-major: every field is a (hops, cycles) plane whose rows are
     # contiguous, so that a step works on whole planes with a few dozen numpy calls whatever the
     # number of cycles (reductions over the few hops are then cheap, and the run's tail, where few
@@ -229,8 +246,8 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     reordered = False   # whether any cycle's order has changed (else a turn is a plain running count)
     per_hop[_RDY] = np.inf
     per_hop[_PRIO] = np.arange(n, dtype=float)[:, None]
-    if offset_s is not None:
-        per_hop[_NEXT] = np.array(offset_s, dtype=float).reshape(m, n).T
+    if offsets is not None:
+        per_hop[_NEXT] = offsets[ids].T
     pair_shared = np.array(shared[: n - 1], dtype=bool)[:, None]   # the site between hops j and j + 1
     any_shared = bool(pair_shared.any())
     counter = float(n)
@@ -426,6 +443,59 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                 np.compress(keep, a, axis=-1) for a in (per_hop, per_site, per_cycle, mode, used, order))
             m = len(ids)
     return out
+
+
+def _quiet_cycles(out: CycleRun, table: AttemptTable, t_rows: NDArray[np.int64], offsets: NDArray[np.float64] | None,
+                  ta: NDArray[np.float64], ra: NDArray[np.float64], tell: NDArray[np.float64],
+                  shared: tuple[bool, ...], cutoff: float, horizon_s: float) -> NDArray[np.int64]:
+    """Finish in closed form, in ``out``, every cycle of :func:`run_cycles` (attempt-table draws:
+    sure swaps) that loses no pair, and return the indices of the others.
+
+    With no pair lost each hop makes one attempt sequence in its cycle, the first of its table
+    row. At the start every hop requests in chain order and is granted unless its left
+    neighbour shares their site and was granted: a hop so held back ("late") waits for that
+    neighbour, and for its right one if they share a site (which was granted, as the late hop was
+    not), and is granted when the later of them has its pair usable. Two late hops are never
+    neighbours, so nothing else orders the grants. The pairs are then swapped as they become
+    usable, each site at the later of its two hops' times, and the cycle ends as in step 4 of
+    :func:`run_cycles`. No pair is lost when the last pair is usable no later than the earliest
+    pair's cut-off (the test of step 2 then takes a usable pair at every step; float addition is
+    monotone). The arithmetic is the stepped run's, value for value: the same numbers."""
+    n = len(ta)
+    cycles = len(t_rows)
+    k = table.table[t_rows, :, 0].T             # (hops, cycles): the first sequence's rounds
+    next_ok = np.zeros((n, cycles)) if offsets is None else offsets.T
+    first, born, usable = np.empty((n, cycles)), np.empty((n, cycles)), np.empty((n, cycles))
+    early = [True] * n
+    for i in range(1, n):
+        early[i] = not (shared[i - 1] and early[i - 1])
+    for late in (False, True):   # the early hops first: a late hop's start reads its neighbours'
+        for i in range(n):
+            if early[i] == late:
+                continue
+            now = np.zeros(cycles) if not late else (
+                np.maximum(usable[i - 1], usable[i + 1]) if i + 1 < n and shared[i] else usable[i - 1])
+            first[i] = np.maximum(now, next_ok[i])
+            born[i] = first[i] + (k[i] - 1) * ta[i]
+            usable[i] = born[i] + ra[i]
+    last = usable.max(axis=0)
+    quiet = last <= born.min(axis=0) + cutoff
+    if math.isfinite(horizon_s):
+        quiet &= last <= horizon_s
+    q = np.flatnonzero(quiet)
+    if len(q):
+        b, r = born[:, q], usable[:, q]
+        sw = np.maximum(r[:-1], r[1:])
+        t_del = np.maximum(np.maximum(r[0], r[n - 1]), (sw + tell[:, None]).max(axis=0))
+        left, right = _attempts_now(first[:, q], k[:, q], b, ta)
+        out.finished[q] = True
+        out.delivered_s[q] = t_del
+        out.born_s[q], out.next_round_s[q] = b.T, (b + ta[:, None]).T
+        out.store_left_s[q] = (np.concatenate([t_del[None, :], sw]) - b).T
+        out.store_right_s[q] = (np.concatenate([sw, t_del[None, :]]) - b).T
+        out.attempts_left[q], out.attempts_right[q] = left.T, right.T
+        out.rounds[q], out.sequences[q] = k[:, q].T, 1.0
+    return np.flatnonzero(~quiet)
 
 
 #: Rows of the packed per-hop state of :func:`run_cycles`: born, ready, first round of the last
