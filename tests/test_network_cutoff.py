@@ -187,6 +187,47 @@ def test_run_cycles_gives_the_figures_recorded_before_its_rewrite(index: int) ->
         assert got[key] == pytest.approx(value, rel=1e-12, abs=0.0), key
 
 
+def test_cycles_that_lose_no_pair_give_the_same_numbers_in_closed_form_as_stepped() -> None:
+    """run_cycles with an attempt table finishes the cycles that lose no pair in closed form
+    (_quiet_cycles); stepping every cycle (closed_form=False) reads the same table entries, so
+    every field of every cycle must be equal, exactly: random chains with every pattern of
+    shared sites, event times on one lattice (ties), start offsets, horizons and table rows, and
+    cut-offs from always acting to never."""
+    from netsim.network.cutoff import AttemptTable, run_cycles
+    g = np.random.default_rng(11)
+    quiet = 0
+    for case in range(60):
+        n = int(g.integers(2, 10))
+        q = tuple(float(x) for x in g.uniform(0.2, 0.9, n))
+        lattice = case % 4 == 0
+        period = (1.0,) * n if lattice else tuple(float(x) for x in g.uniform(1, 3, n))
+        ready = (1.0,) * n if lattice else tuple(float(x) for x in g.uniform(0.5, 2, n))
+        tell = tuple(float(x) for x in g.uniform(0, 2, n - 1))
+        cutoff = float(g.choice([6.0, 12.0, 1e9]))
+        shared = tuple(bool(x) for x in g.integers(0, 2, n - 1)) if case % 3 else (True,) * (n - 1)
+        cycles = int(g.integers(1, 120))
+        kw: dict[str, Any] = {"horizon_s": float(g.choice([np.inf, 30.0])), "max_steps": 600}
+        if case % 2:
+            kw["offset_s"] = g.uniform(0, 3, (cycles, n))
+        rows = np.sort(g.choice(200, cycles, replace=False)) if case % 5 == 0 else None
+        got = []
+        for closed in (True, False):
+            table = AttemptTable(np.random.default_rng(case), np.array(q), 200 if rows is not None else cycles)
+            got.append(run_cycles(q, period, ready, tell, cutoff, shared, (1.0,) * (n - 1), cycles=cycles, draws=table,
+                                  table_rows=rows, closed_form=closed, **kw))
+        fast, stepped = got
+        assert np.array_equal(fast.finished, stepped.finished)
+        f = fast.finished
+        for name in fast.__dataclass_fields__:
+            a, b = getattr(fast, name), getattr(stepped, name)
+            if name in ("rounds", "sequences", "discarded", "discards", "lost_qubit_s"):
+                assert np.array_equal(a, b), (case, name)
+            elif name != "finished":
+                assert np.array_equal(a[f], b[f]), (case, name)
+        quiet += int((fast.discards == 0).sum())
+    assert quiet > 1000   # the closed form did serve many of the cycles
+
+
 def test_the_samplers_array_helpers_give_numpys_own_results() -> None:
     """The fast forms in run_cycles against numpy itself (a reference library): the geometric
     draws are the numbers ``Generator.geometric`` gives from the same generator (inversion below

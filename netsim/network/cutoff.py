@@ -199,14 +199,15 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
                cutoff: float, shared: tuple[bool, ...], swap_p: tuple[float, ...], *, cycles: int,
                draws: np.random.Generator | AttemptTable, offset_s: NDArray[np.float64] | None = None,
                table_rows: NDArray[np.int64] | None = None, max_steps: int | None = None,
-               horizon_s: float = np.inf) -> CycleRun:
+               horizon_s: float = np.inf, closed_form: bool = True) -> CycleRun:
     """Run ``cycles`` independent cycles of the chain under the rules of the module docstring.
 
     ``draws``: a generator (attempt counts and swap outcomes drawn as the cycles need them; the
     estimate with swaps that can fail) or an :class:`AttemptTable` (rows ``table_rows`` of it,
     default 0 .. cycles - 1; sure swaps only; the estimate, and the vectorised engine, which may
     run a cycle again with another offset). With a table the cycles that lose no pair are
-    finished in closed form (:func:`_quiet_cycles`) and only the others are stepped.
+    finished in closed form (:func:`_quiet_cycles`) and only the others are stepped
+    (``closed_form=False``: every cycle stepped, the same numbers; for checks).
     ``offset_s`` (cycles, n): per cycle and hop, the earliest start of the first round after the
     cycle's start (the carry of the previous cycle; default 0). A cycle still running after
     ``max_steps`` events or past ``horizon_s`` is left unfinished.
@@ -225,7 +226,7 @@ def run_cycles(q: tuple[float, ...], period: tuple[float, ...], ready: tuple[flo
     ids = np.arange(cycles)
     t_rows = np.arange(cycles) if table_rows is None else np.asarray(table_rows)
     offsets = None if offset_s is None else np.array(offset_s, dtype=float).reshape(cycles, n)
-    if table is not None and n >= 2 and (max_steps is None or max_steps >= n):
+    if closed_form and table is not None and n >= 2 and (max_steps is None or max_steps >= n):
         # the cycles that lose no pair are finished at once (_quiet_cycles); the others are
         # stepped below, drawing the same table entries they would have drawn anyway
         ids = _quiet_cycles(out, table, t_rows, offsets, ta, ra, tell_a, shared[: n - 1], cutoff, horizon_s)
