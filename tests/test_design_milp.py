@@ -202,6 +202,39 @@ def test_designed_scenario_is_complete_and_candidate_free() -> None:
             assert row["expected_fidelity"] == pytest.approx(planned["expected_fidelity"])
 
 
+def test_verdicts_give_the_estimate_of_the_network_as_built() -> None:
+    """A link is built with the most modes any chosen route over it needs, so a demand whose own
+    option asked for fewer gets more on a shared link: its verdict's design rate and fidelity are
+    the planning estimate on the built network (the budget of design.toml), not the option's
+    figure (a design showed 0.64 pairs/s beside a simulated 0.72 for that reason). Invented
+    star of Corby: two demands from Alva Lab share its one fibre to the relay."""
+    from netsim.design.verify import design_and_check
+    scenario = load_data({
+        "network": {"name": "Corby star"}, "defaults": FAST, "costs": {"currency": "kEUR", **PRICES[0]},
+        "sites": [{"name": "Alva Lab", "role": "user"}, {"name": "Birk Lab", "role": "user"},
+                  {"name": "Corran Lab", "role": "user"}, {"name": "Dunmore Relay", "role": "repeater"}],
+        "links": [{"ends": ["Alva Lab", "Dunmore Relay"], "length_km": 18.0},
+                  {"ends": ["Dunmore Relay", "Birk Lab"], "length_km": 20.0},
+                  {"ends": ["Dunmore Relay", "Corran Lab"], "length_km": 25.0}],
+        "demands": [{"users": ["Alva Lab", "Birk Lab"], "min_rate_per_s": 400.0, "min_fidelity": 0.7},
+                    {"users": ["Alva Lab", "Corran Lab"], "min_rate_per_s": 20.0, "min_fidelity": 0.7}]})
+    checked = design_and_check(scenario, DesignOptions(), pairs=30, rounds=1)
+    assert checked.scenario is not None and checked.verdicts
+    rows = {row["demand"]: row for row in budget(checked.scenario).demands}
+    raised = 0
+    for verdict in checked.verdicts:
+        row = rows[verdict["demand"]]
+        assert verdict["expected_rate_per_s"] == pytest.approx(row["expected_rate_per_s"], rel=1e-12)
+        assert verdict["expected_fidelity"] == pytest.approx(row["expected_fidelity"], rel=1e-12)
+        planned = checked.design.routes[verdict["demand"]]
+        graph = build_graph(checked.scenario)
+        modes = [checked.design.modes[graph.edges[u, v]["link"].name] for u, v in itertools.pairwise(planned["route"])]
+        if max(modes) > planned["modes_level"]:
+            raised += 1
+            assert verdict["expected_rate_per_s"] > planned["expected_rate_per_s"]
+    assert raised == 1   # Alva Lab-Corran Lab: one mode asked for, two on the shared fibre
+
+
 def test_candidates_are_not_built_until_chosen() -> None:
     """Candidates are kept apart: the built network of the ring has one relay and two fibres."""
     scenario = ring((5.0, 5.0), PRICES[0])

@@ -74,8 +74,9 @@ VERDICT_COLUMNS = (
 
 
 def verdict_table(checked: Checked) -> Table:
-    notes = ["Design figures: the planning estimate of each demand alone (memory decay and the cut-off "
-             "included; hops taking turns at a shared optical interface are not). Simulated: every "
+    notes = ["Design figures: the planning estimate of each demand alone on the network as built (its "
+             "links' modes and its sites' memories; memory decay and the cut-off included; hops taking "
+             "turns at a shared optical interface are not). Simulated: every "
              "demand together (contention for fibres, memory slots and interfaces, memory decay)."]
     for v in checked.verdicts:
         if v["simulated_route"] and v["planned_route"] and v["simulated_route"] != v["planned_route"]:
