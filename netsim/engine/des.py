@@ -1115,14 +1115,17 @@ class _Des:
         (M, 3) array, sorted by start)."""
         if not len(log):
             return np.zeros(len(after_s))
+        # the log's columns as contiguous arrays, copied once: numpy's searchsorted copies a
+        # strided column at every call, and gathers from a 2-d log go through its slower fancy indexing
+        start, period, rounds_k = np.ascontiguousarray(log.T)
         # the sequences to read start before until_s and may have a round after after_s: none of
         # those whose last round starts before after_s (by more than the rounding of the round
         # count) and none that start before after_s - the longest sequence; ``reach`` is the
         # latest last-round start of the sequences up to each one, so it rises with the index
-        reach = np.maximum.accumulate(log[:, 0] + (log[:, 2] - 1.0) * log[:, 1])
-        lo = np.maximum(np.searchsorted(log[:, 0], after_s - self.longest_s[site] - 1e-9, side="left"),
+        reach = np.maximum.accumulate(start + (rounds_k - 1.0) * period)
+        lo = np.maximum(np.searchsorted(start, after_s - self.longest_s[site] - 1e-9, side="left"),
                         np.searchsorted(reach, after_s - 1e-9, side="left"))
-        hi = np.searchsorted(log[:, 0], until_s, side="right")
+        hi = np.searchsorted(start, until_s, side="right")
         width = np.maximum(hi - lo, 0)
         total = int(width.sum())
         if total == 0:
@@ -1130,7 +1133,8 @@ class _Des:
         query = np.repeat(np.arange(len(after_s)), width)
         first = np.cumsum(width) - width
         seq = np.repeat(lo, width) + (np.arange(total) - np.repeat(first, width))
-        rounds = rounds_between(log[seq, 0], log[seq, 1], log[seq, 2], after_s[query], until_s[query])
+        rounds = rounds_between(start.take(seq), period.take(seq), rounds_k.take(seq), after_s.take(query),
+                                until_s.take(query))
         return np.bincount(query, weights=rounds, minlength=len(after_s)).astype(float)
 
     def prune_sequences(self) -> None:
