@@ -61,16 +61,14 @@ def verdicts(designed: Scenario, design: Design, result: dict[str, Any]) -> list
         route = sim.get("route") or []
         simulated_route = " > ".join(route) if isinstance(route, (list, tuple)) else str(route)
         planned_route = " > ".join(planned.get("route", []))
-        # the estimate on the network as built (the run's budget columns): a link shared with a
-        # demand that needs more modes is built with them, and a demand's option level may be lower
-        expected_rate = sim.get("expected_rate_per_s", planned.get("expected_rate_per_s"))
-        expected_fidelity = sim.get("expected_fidelity", planned.get("expected_fidelity"))
         rows.append({
             "demand": demand.name, "index": demand.index, "min_rate_per_s": demand.min_rate_per_s,
-            "expected_rate_per_s": expected_rate, "rate_per_s": rate,
+            # the estimate on the network as built (the run's budget columns), not the design
+            # option's: a fibre shared with a demand that needs more modes is built with them
+            "expected_rate_per_s": sim["expected_rate_per_s"], "rate_per_s": rate,
             "useful_rate_per_s": useful,
             "rate_ci95": sim.get("rate_ci95"), "min_fidelity": demand.min_fidelity,
-            "expected_fidelity": expected_fidelity, "fidelity_mean": fidelity,
+            "expected_fidelity": sim["expected_fidelity"], "fidelity_mean": fidelity,
             "planned_route": planned_route, "simulated_route": simulated_route,
             "verdict": "met" if not reasons else "missed", "reason": "; ".join(reasons),
         })
