@@ -82,8 +82,8 @@ FLUSH_ROWS: Final = 20_000
 #: of about this many pairs across lanes (bounded memory).
 STATE_CHUNK: Final = 20_000
 #: Per-hop row values a lane stages as boxed lists before moving them into its flat arrays
-#: (about 130 kB per lane at most)
-ROW_STAGE: Final = 1024
+#: (about 8 kB per lane at most)
+ROW_STAGE: Final = 64
 #: The attempt log of sites with attempt dephasing is pruned at a flush once it holds this many.
 PRUNE_SEQUENCES: Final = 50_000
 #: Attempt sequences a site's log holds apart from the sorted whole before they are merged in.
@@ -94,7 +94,7 @@ PENDING_SCAN: Final = 64
 #: numbers in blocks of any size; a small block keeps 100 lanes' buffered draws in cache).
 UNIFORM_BLOCK: Final = 64
 #: Attempt sequences not yet filed are moved from a list into an array this many values at a time.
-LOG_BLOCK: Final = 4 * 4096
+LOG_BLOCK: Final = 4 * 1024
 
 
 class _Pair:
@@ -271,15 +271,18 @@ class _Lane:
         self.active = False  # a cycle is running under a granted reservation
         #: delivered pairs not yet turned into states, flat: per pair its delivery time, and per
         #: hop (n values a pair) its storage time at the left and right end, its pair's state
-        #: index and start. Unboxed: a run may hold every row until its end.
+        #: index and start. Unboxed: a run may hold every row until its end. The per-hop values
+        #: are kept as packed blocks (``d`` and ``q`` native values), joined only when the rows
+        #: are read (take_rows): one growing array per lane was copied over and over by realloc
+        #: as it grew, which on a 100-demand grid streamed megabytes through the core's cache
         self.row_delivered: array[float] = array("d")
-        self.row_left: array[float] = array("d")
-        self.row_right: array[float] = array("d")
-        self.row_state: array[int] = array("q")
-        self.row_start: array[float] = array("d")
-        #: the per-hop values of the latest rows, boxed, moved into the arrays above in blocks
-        #: (spill_rows): array.extend parses every item as a call argument, which costs more than
-        #: a list append and one struct pack per block
+        self.row_left: list[bytes] = []
+        self.row_right: list[bytes] = []
+        self.row_state: list[bytes] = []
+        self.row_start: list[bytes] = []
+        #: the per-hop values of the latest rows, boxed, packed into the blocks above ROW_STAGE
+        #: at a time (spill_rows): array.extend parses every item as a call argument, which costs
+        #: more than a list append and one struct pack per block
         self.stage_left: list[float] = []
         self.stage_right: list[float] = []
         self.stage_state: list[int] = []
@@ -301,13 +304,13 @@ class _Lane:
                       for j in range(n + 1)]
 
     def spill_rows(self) -> None:
-        """Move the staged per-hop row values into the flat arrays."""
+        """Pack the staged per-hop row values into blocks."""
         k = len(self.stage_left)
         if k:  # struct packs a list of floats about three times faster than numpy or array convert it
-            self.row_left.frombytes(struct.pack(f"{k}d", *self.stage_left))
-            self.row_right.frombytes(struct.pack(f"{k}d", *self.stage_right))
-            self.row_state.frombytes(struct.pack(f"{k}q", *self.stage_state))
-            self.row_start.frombytes(struct.pack(f"{k}d", *self.stage_start))
+            self.row_left.append(struct.pack(f"{k}d", *self.stage_left))
+            self.row_right.append(struct.pack(f"{k}d", *self.stage_right))
+            self.row_state.append(struct.pack(f"{k}q", *self.stage_state))
+            self.row_start.append(struct.pack(f"{k}d", *self.stage_start))
             self.stage_left, self.stage_right, self.stage_state, self.stage_start = [], [], [], []
 
     def add_counts(self) -> None:
@@ -1035,10 +1038,10 @@ class _Des:
         n = lane.chain.n_hops
         lane.spill_rows()
         delivered = np.array(lane.row_delivered, dtype=float)
-        left = np.array(lane.row_left, dtype=float).reshape(-1, n)
-        right = np.array(lane.row_right, dtype=float).reshape(-1, n)
-        state = np.array(lane.row_state, dtype=np.int64).reshape(-1, n)
-        start = np.array(lane.row_start, dtype=float).reshape(-1, n)
+        left = np.frombuffer(b"".join(lane.row_left), dtype=float).reshape(-1, n)
+        right = np.frombuffer(b"".join(lane.row_right), dtype=float).reshape(-1, n)
+        state = np.frombuffer(b"".join(lane.row_state), dtype=np.int64).reshape(-1, n)
+        start = np.frombuffer(b"".join(lane.row_start), dtype=float).reshape(-1, n)
         due = delivered <= upto
         # a lane delivers in time order (its next cycle starts after this delivery), so this
         # keeps the order in which the rows were recorded
@@ -1046,10 +1049,10 @@ class _Des:
         ready = ready[np.argsort(delivered[ready], kind="stable")]
         kept = np.flatnonzero(~due)
         lane.row_delivered = array("d", delivered[kept].tobytes())
-        lane.row_left = array("d", left[kept].tobytes())
-        lane.row_right = array("d", right[kept].tobytes())
-        lane.row_state = array("q", state[kept].tobytes())
-        lane.row_start = array("d", start[kept].tobytes())
+        lane.row_left = [left[kept].tobytes()] if len(kept) else []
+        lane.row_right = [right[kept].tobytes()] if len(kept) else []
+        lane.row_state = [state[kept].tobytes()] if len(kept) else []
+        lane.row_start = [start[kept].tobytes()] if len(kept) else []
         return delivered[ready], left[ready], right[ready], state[ready], start[ready]
 
     def add_states(self, due: list[tuple[_Lane, _Rows, tuple[NDArray[np.float64], NDArray[np.float64]] | None]]) -> None:
@@ -1151,7 +1154,7 @@ class _Des:
         for ln in self.lanes:
             segs = [seg for seg in [v.left for v in ln.nodes] + [v.right for v in ln.nodes] if seg is not None]
             starts = [p.start for seg in segs for p in seg.pairs]
-            starts += ln.row_start.tolist() + ln.stage_start
+            starts += np.frombuffer(b"".join(ln.row_start), dtype=float).tolist() + ln.stage_start
             starts += [item.start for stack in ln.stacks for item, _ in stack.values()]
             oldest = min([oldest, *starts])
         for site, seqs in self.sequences.items():
