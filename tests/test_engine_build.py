@@ -107,6 +107,32 @@ def test_compiled_engine_makes_the_same_link_pairs(purification: str) -> None:
     assert json.dumps(timelines(plain_engine())) == json.dumps(compiled)  # NaN (never ended) equals NaN here
 
 
+@pytest.mark.parametrize("name", ["grid-4x4-node-physics", "vellmoor-mesh-dejmps"])
+def test_the_engine_steps_simpy_as_simpy_does(name: str, monkeypatch: pytest.MonkeyPatch) -> None:
+    # The engine processes simpy's queue itself (_Des.step_until_finished, compiled with it)
+    # instead of calling Environment.run. Driving the same plain engine with simpy's own
+    # Environment.run(until=finished) must give the same run to the last bit: the events, their
+    # order (time, priority, counter) and the handlers they call are simpy's either way.
+    scenario = _networks()[name]
+    plain = plain_engine()
+
+    def result() -> str:
+        out = api.run(scenario, pairs=40, seed=3, ensembles=False)
+        return json.dumps(out.to_dict(), sort_keys=True)
+
+    monkeypatch.setattr(api, "simulate_des", plain.simulate_des)
+    own = result()
+    stepped: list[int] = []
+
+    def simpy_run(self: Any) -> None:
+        stepped.append(len(self.queue))
+        self.env.run(until=self.finished)
+
+    monkeypatch.setattr(plain._Des, "step_until_finished", simpy_run)
+    assert result() == own
+    assert stepped  # simpy's own loop ran
+
+
 def _build_in(tree: Path, env: dict[str, str] | None = None) -> list[str]:
     out = subprocess.run([sys.executable, "-c", "import netsim.engine as e, netsim.engine.des as d, "
                           "netsim.engine.policies as p; print(e.BUILD, d.__file__, p.__file__)"],

@@ -51,7 +51,7 @@ import gc
 import math
 import struct
 from array import array
-from heapq import heappush
+from heapq import heappop, heappush
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any, Final, SupportsInt
 
@@ -161,19 +161,28 @@ class _Seg:
 
 
 class _Call:
-    """A bare simpy event that calls ``fn(*args)`` when processed (scheduled with
-    ``Environment.schedule``; no closure per event). It carries its own time, which it sets as
-    its engine's clock (``_Des.now``) before the call: simpy has just set its own to the same
-    value, but the handlers read a typed field of the engine rather than an attribute of the
-    Python environment (an untyped read, then untyped arithmetic, in the compiled build)."""
+    """A bare simpy event that calls ``fn(*args)`` when processed (on simpy's queue as
+    ``Environment.schedule`` puts it; no closure per event). It carries its own time, which is set
+    as its engine's clock (``_Des.now``) before the call: the handlers read a typed field of the
+    engine rather than an attribute of the Python environment (an untyped read, then untyped
+    arithmetic, in the compiled build). The engine's loop calls the handlers of the two commonest
+    kinds directly (``kind``); simpy's own ``Environment.step`` would call ``fire``, with the same
+    outcome (a test runs both)."""
 
-    __slots__ = ("args", "callbacks", "fn", "owner", "time")
+    __slots__ = ("args", "callbacks", "fn", "index", "kind", "lane", "owner", "time")
     _ok = True
     _value = None
 
-    def __init__(self, owner: _Des, fn: Callable[..., None], args: tuple[Any, ...], time: float) -> None:
+    def __init__(self, owner: _Des, fn: Callable[..., None], args: tuple[Any, ...], time: float,
+                 kind: int = 0, lane: _Lane | None = None, index: int = 0) -> None:
         self.owner, self.fn, self.args, self.time = owner, fn, args, time
         self.callbacks: list[Callable[[Any], None]] | None = _FIRE  # shared: simpy only reads and then drops the list
+        #: what the engine's loop calls for it directly (_Des.step_until_finished): 0, ``fn(*args)``;
+        #: TRANSFERRED or CLOSING, that handler of ``lane`` (hop ``index``) with no argument tuple
+        #: or generic call (``fn`` and ``args`` then make the same call, for a generic simpy step)
+        self.kind = kind
+        self.lane = lane
+        self.index = index
 
     @staticmethod
     def fire(event: _Call) -> None:
@@ -182,8 +191,15 @@ class _Call:
         fn(*event.args)
 
 
+#: _Call kinds: a hop's pair heralded and in memory (_Des.transferred; args (lane, hop)), a lane's
+#: cycle closing after a delivery (_Des.close_cycle; args (lane,))
+TRANSFERRED: Final = 1
+CLOSING: Final = 2
+
+
 _FIRE: Final[list[Callable[[Any], None]]] = [_Call.fire]
 _PUSH: Final = heappush
+_POP: Final = heappop
 
 
 class _Serial:
@@ -296,6 +312,9 @@ class _Lane:
         self.position = 0
         self.cut_token = 0  # identifies the one pending cut-off timer of this lane
         self.cut_at = math.inf
+        #: its cycle's event that closes it after a delivery (made by _Des), and the delivery time
+        self.closing: _Call | None = None
+        self.delivered_at = 0.0
         #: per hop, its constants, state and counts (made by _Des, which numbers the links and
         #: the limited sites)
         self.hops: list[_Hop] = []
@@ -504,8 +523,9 @@ class _Des:
                      float(c.herald_s[i]), float(c.ready_s[i]),
                      self.end_sets.index(tuple(dephasing_ends[i])) if dephasing_ends[i] else -1,
                      [iface_index[site.name] for site in c.sites[i:i + 2] if site.name in iface_index],
-                     _Call(self, self.transferred, (), 0.0))
+                     _Call(self, self.transferred, (lane, i), 0.0, TRANSFERRED, lane, i))
                 for i in range(c.n_hops)]
+            lane.closing = _Call(self, self.close_cycle, (lane,), 0.0, CLOSING, lane)
         #: per site with attempt dephasing: the indices of the end sets it belongs to
         self.site_end_sets: dict[str, set[int]] = {name: set() for name in self.sequences}
         for index, end_set in enumerate(self.end_sets):
@@ -589,15 +609,15 @@ class _Des:
         hop.flight_born, hop.flight_k = born, k
         event = hop.transfer  # its one in-flight pair's event, reused (see _Hop.transfer)
         when = now + (born + hop.ready - now)  # Environment.schedule's time arithmetic: now + delay
-        event.args = (lane, i, born, k)
         event.time = when
         event.callbacks = _FIRE
         self.schedule(when, event)
 
-    def transferred(self, lane: _Lane, i: int, born: float, k: int) -> None:
-        """Hop ``i``'s pair (successful round at ``born``, ``k`` rounds) was heralded and both ends
+    def transferred(self, lane: _Lane, i: int) -> None:
+        """Hop ``i``'s pair in flight (``flight_born``, ``flight_k``) was heralded and both ends
         hold it in memory: interfaces free, the pair usable."""
         hop = lane.hops[i]
+        born, k = hop.flight_born, hop.flight_k
         hop.flight_k = 0
         self.count_success(hop, k)
         self.heralds += 1
@@ -913,9 +933,18 @@ class _Des:
             start.append(p.start)
         if len(left) >= ROW_STAGE:
             lane.spill_rows()
-        self.at(t_d, self.close_cycle, lane, t_d)
+        # the lane's closing event, reused (its next cycle starts only once this one closes)
+        lane.delivered_at = t_d
+        event = lane.closing
+        assert event is not None
+        now = self.now
+        when = now + (t_d - now)  # as at()
+        event.time = when
+        event.callbacks = _FIRE
+        self.schedule(when, event)
 
-    def close_cycle(self, lane: _Lane, t_d: float) -> None:
+    def close_cycle(self, lane: _Lane) -> None:
+        t_d = lane.delivered_at
         rule, run = lane.rule, lane.run
         was_done = rule.pairs is not None and rule.done(run, self.now)
         run.add_interval(t_d, lane.last_delivery_s)
@@ -937,7 +966,15 @@ class _Des:
         """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
         if self.pending <= 0 and not self.finished.triggered and all(
                 r.done(ln.run, self.now) for r, ln in zip(self.rules, self.lanes)):
-            self.finished.succeed()
+            # Event.succeed, with the engine's clock (simpy's is set only as the run ends, see
+            # step_until_finished): at now, after the events already queued for now
+            finished = self.finished
+            finished._ok = True
+            finished._value = None
+            serial = self.eid
+            eid = serial.value
+            serial.value = eid + 1
+            _PUSH(self.queue, (self.now, _NORMAL, eid, finished))
 
     # -- purification -------------------------------------------------------------------------
     def climb(self, lane: _Lane, i: int, item: _Pair, rho: NDArray[np.complex128], level: int) -> None:
@@ -1001,10 +1038,10 @@ class _Des:
         gc.disable()
         try:
             try:
-                self.env.run(until=self.finished)
+                self.step_until_finished()
             except KeyboardInterrupt:
                 interrupted = True
-            self.now = float(self.env._now)  # (an interrupt may come between simpy's clock and the event's)
+            self.env._now = self.now
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
             uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.now
                      for rule in self.rules]
@@ -1016,6 +1053,50 @@ class _Des:
             if collecting:
                 gc.enable()
         return out
+
+    def step_until_finished(self) -> None:
+        """Process simpy's queue until ``finished`` is processed: ``Environment.run(until=
+        self.finished)``, step by step as ``Environment.step`` does it, in the compiled build
+        compiled with the engine (simpy's interpreted loop was about 7 % of a 7x7 grid run).
+
+        The queue, its 4-tuples and their order (time, priority, then the shared event counter)
+        are simpy's own. An engine event (:class:`_Call`) sets the engine's clock and calls its
+        handler; any other simpy event has its callbacks called, and a failed one that is not
+        defused raises as simpy would. simpy's own clock is set when the run ends (no handler
+        reads it: they read ``now``)."""
+        queue = self.queue
+        finished = self.finished
+        env = self.env
+        while True:
+            if not queue:
+                raise RuntimeError(f'No scheduled events left but "until" event was not triggered: {finished}')
+            when, _, _, event = _POP(queue)
+            if type(event) is _Call:
+                call: _Call = event
+                call.callbacks = None
+                self.now = call.time
+                kind = call.kind
+                if kind:
+                    lane = call.lane
+                    assert lane is not None
+                    if kind == TRANSFERRED:
+                        self.transferred(lane, call.index)
+                    else:
+                        self.close_cycle(lane)
+                else:
+                    fn = call.fn  # (read first: a call through the attribute is a generic lookup when compiled)
+                    fn(*call.args)
+                continue
+            env._now = when
+            callbacks, event.callbacks = event.callbacks, None
+            for callback in callbacks:
+                callback(event)
+            if event is finished:
+                return
+            if not event._ok and not hasattr(event, "_defused"):
+                failure = type(event._value)(*event._value.args)
+                failure.__cause__ = event._value
+                raise failure
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
