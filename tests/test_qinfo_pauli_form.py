@@ -74,6 +74,32 @@ def test_chain_equals_swaps_one_by_one_on_generic_states() -> None:
         np.testing.assert_allclose(got[c], out, atol=1e-12)
 
 
+@pytest.mark.parametrize("n", [1, 2, 5])
+def test_chain_mean_is_the_mean_of_the_chain_states(n: int) -> None:
+    """chain_mean (the planning estimate's mean delivered state, from weighted means) against
+    the mean of chain_states, one form per chain, on generic complex states (not Bell-diagonal),
+    per-chain later pairs (as purified pairs are), gate errors and unequal T1, T2 per site:
+    equal to rounding (invariant of the implementation: two ways to the same sum)."""
+    rng = np.random.default_rng(21 + n)
+    n_chains = 300
+    bell = qinfo.bell_state("phi+")
+    pairs = [pauli_form.to_pauli(0.8 * bell + 0.2 * p) for p in random_density_matrices(n, 4, seed=22 + n)]
+    if n > 2:
+        pairs[2] = pauli_form.to_pauli(0.8 * bell + 0.2 * random_density_matrices(n_chains, 4, seed=23))
+    t1, t2 = rng.uniform(0.5, 3.0, n + 1), rng.uniform(0.2, 2.0, n + 1)
+    left, right = rng.uniform(0, 0.2, (n_chains, n)), rng.uniform(0, 0.2, (n_chains, n))
+    gl, cl = _decay(left, t1[:-1], t2[:-1])
+    gr, cr = _decay(right, t1[1:], t2[1:])
+    gates = list(rng.uniform(0, 0.1, n - 1))
+    want = pauli_form.chain_states(pairs, gl, cl, gr, cr, gates).mean(axis=0)
+    got = pauli_form.chain_mean(pairs, gl, cl, gr, cr, gates)
+    np.testing.assert_allclose(got, want, rtol=0, atol=1e-14)
+    assert np.abs(want).max() > 0.1 and np.abs(want[1:, 1:]).max() > 0.05  # correlations survive
+    with pytest.raises(ValueError, match="one form"):
+        pauli_form.chain_mean([pauli_form.to_pauli(random_density_matrices(n_chains, 4, seed=24))] + pairs[1:],
+                              gl, cl, gr, cr, gates)
+
+
 def test_swap_matches_an_explicit_qutip_bell_measurement() -> None:
     """One swap in Pauli form against QuTiP's explicit Bell measurement with Pauli corrections
     (conftest.qutip_swap)."""

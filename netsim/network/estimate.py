@@ -101,7 +101,7 @@ from netsim.network.cutoff import sample_cycles
 from netsim.network.routing import Hop, register_policy, route_hops
 from netsim.network.workload import route_work
 from netsim.qinfo.channels import decoherence_factors
-from netsim.qinfo.pauli_form import chain_decay, chain_states, from_pauli, to_pauli
+from netsim.qinfo.pauli_form import chain_decay, chain_mean, chain_states, from_pauli, to_pauli
 from netsim.qinfo.states import phi_plus_fidelity
 from netsim.scenario.model import Site
 
@@ -287,13 +287,9 @@ def _with_cutoff(hops: Sequence[Hop], sites: Sequence[Site], cutoff_s: float, q:
         nan_state = np.full((4, 4), np.nan, dtype=complex)
         fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
         return RouteEstimate(0.0, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops), nan_state, True, True)
-    # the sampled cycles and, as one more row with nothing stored, the no-decay state (each row's
-    # state is computed on its own: the same numbers as two calls)
-    fresh = np.zeros((1, len(hops)))
-    forms = _chain_forms(hops, sites, *(np.concatenate([times, fresh]) for times in (
-        sample.store_left_s, sample.store_right_s, sample.attempts_left, sample.attempts_right)))
-    state = from_pauli(forms[:-1].mean(axis=0))
-    fid0 = _fidelity(from_pauli(forms[-1]))
+    state = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s, sample.attempts_left,
+                            sample.attempts_right)
+    fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
     storage = tuple((float(a), float(b)) for a, b in zip(sample.store_left_s.mean(axis=0),
                                                          sample.store_right_s.mean(axis=0)))
     rate = 1.0 / float(sample.delivered_s.mean())
@@ -362,17 +358,14 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     first hop's decayed pair with its columns scaled by the later hops' kept correlations).
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
-    states = _chain_forms(hops, sites, left_s, right_s, attempts_left, attempts_right)
-    return from_pauli(states) if per_cycle else from_pauli(states.mean(axis=0))
-
-
-def _chain_forms(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
-                 attempts_left: np.ndarray | None, attempts_right: np.ndarray | None) -> np.ndarray:
-    """The Pauli forms (N, 4, 4) of the delivered states of :func:`_mean_delivered`, one per row."""
     gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s, attempts_left, attempts_right)
     forms = [_depolarized(_depolarized(to_pauli(hop.physics.state), sites[i], 0), sites[i + 1], 1)
              for i, hop in enumerate(hops)]
-    return chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]])
+    gates = [_gate_error(site) for site in sites[1:-1]]
+    if per_cycle:
+        return from_pauli(chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, gates))
+    # the mean form in closed form from a few weighted means (no (N, 4, 4) forms)
+    return from_pauli(chain_mean(forms, gamma_l, coh_l, gamma_r, coh_r, gates))
 
 
 def _fidelity(state: np.ndarray) -> float:

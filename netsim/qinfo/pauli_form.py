@@ -34,7 +34,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-__all__ = ["SWAP_SIGN", "chain_decay", "chain_states", "correlations", "decayed", "fidelity", "from_pauli", "to_pauli"]
+__all__ = ["SWAP_SIGN", "chain_decay", "chain_mean", "chain_states", "correlations", "decayed", "fidelity", "from_pauli", "to_pauli"]
 
 _PAULI = np.array([[[1, 0], [0, 1]], [[0, 1], [1, 0]], [[0, -1j], [1j, 0]], [[1, 0], [0, -1]]], dtype=complex)
 #: _PAULI_PAIRS[a, b] = P_a (x) P_b (4 x 4)
@@ -160,7 +160,48 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
     out = decayed(forms[0], gl[:, 0], cl[:, 0], gr[:, 0], cr[:, 0])
     if len(forms) == 1:
         return out
-    later = forms[1:]
+    return out * _swap_weights(forms[1:], gl, cl, gr, cr, gate_errors, out.dtype)[:, None, :]
+
+
+def chain_mean(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], cl: NDArray[np.float64],
+               gr: NDArray[np.float64], cr: NDArray[np.float64], gate_errors: list[float]) -> NDArray[Any]:
+    """The mean over the N chains of :func:`chain_states` (4, 4), without the N forms.
+
+    Each chain's form is its first pair r decayed, ``A r A'^T``, with its columns scaled by the
+    swap weights w (N, 4). The rows of ``A r`` are 1, c_L, c_L and (gamma_L, 1 - gamma_L) times
+    rows of r, and the columns of ``(A r) A'^T`` likewise with c_R, gamma_R: the mean is a sum of
+    nine fixed 4x4 matrices made from r, each column b weighted by a mean of (1, c_L, gamma_L)
+    times (1, c_R, gamma_R) times w_b. Equal to ``chain_states(...).mean(axis=0)`` up to rounding
+    (a test compares them); the first pair must be one form (4, 4) for all chains."""
+    forms = [np.real_if_close(p, tol=1000) for p in pairs]
+    r = forms[0]
+    if r.ndim != 2:
+        raise ValueError("chain_mean: the first pair must be one form (4, 4) for all chains")
+    n = len(gl)
+    dtype = np.result_type(r, gl)
+    weights = (np.ones((n, 4), dtype=dtype) if len(forms) == 1
+               else _swap_weights(forms[1:], gl, cl, gr, cr, gate_errors, dtype))
+    left = np.stack([np.ones(n), cl[:, 0], gl[:, 0]], axis=1)                 # (N, 3)
+    right = np.stack([np.ones(n), cr[:, 0], gr[:, 0]], axis=1)                # (N, 3)
+    # means[k, m, b] = mean over chains of left_k right_m w_b
+    means = np.einsum("ck,cm,cb->kmb", left, right, weights) / n
+    # the rows of A r by factor (1, c_L, gamma_L), then the columns of each by (1, c_R, gamma_R)
+    rows = np.zeros((3, 4, 4), dtype=r.dtype)
+    rows[0, 0], rows[0, 3] = r[0], r[3]
+    rows[1, 1], rows[1, 2] = r[1], r[2]
+    rows[2, 3] = r[0] - r[3]
+    parts = np.zeros((3, 3, 4, 4), dtype=r.dtype)
+    parts[:, 0, :, 0], parts[:, 0, :, 3] = rows[:, :, 0], rows[:, :, 3]
+    parts[:, 1, :, 1], parts[:, 1, :, 2] = rows[:, :, 1], rows[:, :, 2]
+    parts[:, 2, :, 3] = rows[:, :, 0] - rows[:, :, 3]
+    return np.einsum("kmab,kmb->ab", parts, means)
+
+
+def _swap_weights(later: list[NDArray[Any]], gl: NDArray[np.float64], cl: NDArray[np.float64],
+                  gr: NDArray[np.float64], cr: NDArray[np.float64], gate_errors: list[float],
+                  dtype: Any) -> NDArray[Any]:
+    """(N, 4): what the swaps keep of each chain's first pair, column by column: 1, then the
+    products over the later hops of their kept <XX>, <YY>, <ZZ> (signed, times 1 - gate error)."""
     if all(p.ndim == 2 for p in later):
         r = np.stack(later)                                                  # (n - 1, 4, 4)
     else:  # some hops have one pair per chain (purified pairs)
@@ -171,12 +212,12 @@ def chain_states(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], c
     # products over the hops one component at a time (numpy reduces an (N, n - 1) array along its
     # last axis a few times faster than an (N, n - 1, 3) one along its middle; for real forms, the
     # forms of states, the same products in the same order)
-    weights = np.empty((len(gl), 4), dtype=np.result_type(out, r))
+    weights = np.empty((len(gl), 4), dtype=np.result_type(dtype, r))
     weights[:, 0] = 1.0
     kept = _kept(r, gl[:, 1:], cl[:, 1:], gr[:, 1:], cr[:, 1:])
     for j in range(3):
         weights[:, j + 1] = (kept[j] * factor[:, j]).prod(axis=1)
-    return out * weights[:, None, :]
+    return weights
 
 
 def fidelity(r: NDArray[np.complex128]) -> NDArray[np.float64]:
