@@ -287,9 +287,13 @@ def _with_cutoff(hops: Sequence[Hop], sites: Sequence[Site], cutoff_s: float, q:
         nan_state = np.full((4, 4), np.nan, dtype=complex)
         fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
         return RouteEstimate(0.0, math.nan, fid0, wait, ((math.inf, math.inf),) * len(hops), nan_state, True, True)
-    state = _mean_delivered(hops, sites, sample.store_left_s, sample.store_right_s, sample.attempts_left,
-                            sample.attempts_right)
-    fid0 = _fidelity(_delivered(hops, sites, [(0.0, 0.0)] * len(hops)))
+    # the sampled cycles and, as one more row with nothing stored, the no-decay state: one pass
+    # for the decay factors, then the mean of the cycles and the state of that row
+    fresh = np.zeros((1, len(hops)))
+    forms, gl, cl, gr, cr, gates = _chain_parts(hops, sites, *(np.concatenate([times, fresh]) for times in (
+        sample.store_left_s, sample.store_right_s, sample.attempts_left, sample.attempts_right)))
+    state = from_pauli(chain_mean(forms, gl[:-1], cl[:-1], gr[:-1], cr[:-1], gates))
+    fid0 = _fidelity(from_pauli(chain_states(forms, gl[-1:], cl[-1:], gr[-1:], cr[-1:], gates)[0]))
     storage = tuple((float(a), float(b)) for a, b in zip(sample.store_left_s.mean(axis=0),
                                                          sample.store_right_s.mean(axis=0)))
     rate = 1.0 / float(sample.delivered_s.mean())
@@ -358,14 +362,24 @@ def _mean_delivered(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarr
     first hop's decayed pair with its columns scaled by the later hops' kept correlations).
     ``per_cycle``: return the (N, 4, 4) delivered states of the sampled cycles instead of their mean.
     """
-    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s, attempts_left, attempts_right)
-    forms = [_depolarized(_depolarized(to_pauli(hop.physics.state), sites[i], 0), sites[i + 1], 1)
-             for i, hop in enumerate(hops)]
-    gates = [_gate_error(site) for site in sites[1:-1]]
+    forms, gamma_l, coh_l, gamma_r, coh_r, gates = _chain_parts(hops, sites, left_s, right_s, attempts_left,
+                                                                attempts_right)
     if per_cycle:
         return from_pauli(chain_states(forms, gamma_l, coh_l, gamma_r, coh_r, gates))
     # the mean form in closed form from a few weighted means (no (N, 4, 4) forms)
     return from_pauli(chain_mean(forms, gamma_l, coh_l, gamma_r, coh_r, gates))
+
+
+def _chain_parts(hops: Sequence[Hop], sites: Sequence[Site], left_s: np.ndarray, right_s: np.ndarray,
+                 attempts_left: np.ndarray | None, attempts_right: np.ndarray | None,
+                 ) -> tuple[list[np.ndarray], np.ndarray, np.ndarray, np.ndarray, np.ndarray, list[float]]:
+    """What :func:`netsim.qinfo.pauli_form.chain_states` and ``chain_mean`` take for the storage
+    times (N, n) of :func:`_mean_delivered`: the hops' heralded pairs in Pauli form with each
+    end's memory transfer error, the memories' decay factors, the inner sites' gate errors."""
+    gamma_l, coh_l, gamma_r, coh_r = _all_decay_factors(sites, left_s, right_s, attempts_left, attempts_right)
+    forms = [_depolarized(_depolarized(to_pauli(hop.physics.state), sites[i], 0), sites[i + 1], 1)
+             for i, hop in enumerate(hops)]
+    return forms, gamma_l, coh_l, gamma_r, coh_r, [_gate_error(site) for site in sites[1:-1]]
 
 
 def _fidelity(state: np.ndarray) -> float:

@@ -183,8 +183,8 @@ def chain_mean(pairs: list[NDArray[np.complex128]], gl: NDArray[np.float64], cl:
                else _swap_weights(forms[1:], gl, cl, gr, cr, gate_errors, dtype))
     left = np.stack([np.ones(n), cl[:, 0], gl[:, 0]], axis=1)                 # (N, 3)
     right = np.stack([np.ones(n), cr[:, 0], gr[:, 0]], axis=1)                # (N, 3)
-    # means[k, m, b] = mean over chains of left_k right_m w_b
-    means = np.einsum("ck,cm,cb->kmb", left, right, weights) / n
+    # means[k, m, b] = mean over chains of left_k right_m w_b (one matrix product)
+    means = ((left[:, :, None] * weights[:, None, :]).reshape(n, 12).T @ right).reshape(3, 4, 3).transpose(0, 2, 1) / n
     # the rows of A r by factor (1, c_L, gamma_L), then the columns of each by (1, c_R, gamma_R)
     rows = np.zeros((3, 4, 4), dtype=r.dtype)
     rows[0, 0], rows[0, 3] = r[0], r[3]
