@@ -968,15 +968,7 @@ class _Des:
         """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
         if self.pending <= 0 and not self.finished.triggered and all(
                 r.done(ln.run, self.now) for r, ln in zip(self.rules, self.lanes)):
-            # Event.succeed, with the engine's clock (simpy's is set only as the run ends, see
-            # step_until_finished): at now, after the events already queued for now
-            finished = self.finished
-            finished._ok = True
-            finished._value = None
-            serial = self.eid
-            eid = serial.value
-            serial.value = eid + 1
-            _PUSH(self.queue, (self.now, _NORMAL, eid, finished))
+            self.finished.succeed()
 
     # -- purification -------------------------------------------------------------------------
     def climb(self, lane: _Lane, i: int, item: _Pair, rho: NDArray[np.complex128], level: int) -> None:
@@ -1043,7 +1035,7 @@ class _Des:
                 self.step_until_finished()
             except KeyboardInterrupt:
                 interrupted = True
-            self.env._now = self.now
+            self.now = float(self.env._now)  # (an interrupt may come between simpy's clock and the event's)
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
             uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.now
                      for rule in self.rules]
@@ -1064,8 +1056,8 @@ class _Des:
         The queue, its 4-tuples and their order (time, priority, then the shared event counter)
         are simpy's own. An engine event (:class:`_Call`) sets the engine's clock and calls its
         handler; any other simpy event has its callbacks called, and a failed one that is not
-        defused raises as simpy would. simpy's own clock is set when the run ends (no handler
-        reads it: they read ``now``)."""
+        defused raises as simpy would. simpy's clock is set as ``step`` sets it (the handlers
+        read the engine's ``now``; anything else may read simpy's)."""
         queue = self.queue
         finished = self.finished
         env = self.env
@@ -1073,6 +1065,7 @@ class _Des:
             if not queue:
                 raise RuntimeError(f'No scheduled events left but "until" event was not triggered: {finished}')
             when, _, _, event = _POP(queue)
+            env._now = when
             if type(event) is _Call:
                 call: _Call = event
                 call.callbacks = None
@@ -1089,7 +1082,6 @@ class _Des:
                     fn = call.fn  # (read first: a call through the attribute is a generic lookup when compiled)
                     fn(*call.args)
                 continue
-            env._now = when
             callbacks, event.callbacks = event.callbacks, None
             for callback in callbacks:
                 callback(event)

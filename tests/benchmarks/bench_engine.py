@@ -121,7 +121,7 @@ class PerAttemptDes(PLAIN._Des):  # type: ignore[name-defined,misc]
     def attempt(self, lane: Any, i: int) -> None:
         hop = lane.hops[i]
         hop.attempting = True
-        start = max(self.env.now, hop.next_round, *(self.link_free[n] for n in hop.links))
+        start = max(self.now, hop.next_round, *(self.link_free[n] for n in hop.links))
         self.at(start, self._round, lane, i, start, 1)
 
     def _round(self, lane: Any, i: int, t: float, k: int) -> None:
@@ -131,7 +131,7 @@ class PerAttemptDes(PLAIN._Des):  # type: ignore[name-defined,misc]
         if lane.rng.random() < hop.p:
             hop.next_round = t + hop.period
             hop.flight_born, hop.flight_k = t, k
-            self.at(t + hop.ready, self.transferred, lane, i, t, k)
+            self.at(t + hop.ready, self.transferred, lane, i)  # (reads flight_born, flight_k)
         else:
             self.at(t + hop.period, self._round, lane, i, t + hop.period, k + 1)
 
