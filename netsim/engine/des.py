@@ -1050,8 +1050,8 @@ class _Des:
 
     def step_until_finished(self) -> None:
         """Process simpy's queue until ``finished`` is processed: ``Environment.run(until=
-        self.finished)``, step by step as ``Environment.step`` does it, in the compiled build
-        compiled with the engine (simpy's interpreted loop was about 7 % of a 7x7 grid run).
+        self.finished)``, step by step as ``Environment.step`` does it, but compiled with the rest
+        of the engine (simpy's interpreted loop was about 7 % of a 7x7 grid run).
 
         The queue, its 4-tuples and their order (time, priority, then the shared event counter)
         are simpy's own. An engine event (:class:`_Call`) sets the engine's clock and calls its
