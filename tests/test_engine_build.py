@@ -109,10 +109,12 @@ def test_compiled_engine_makes_the_same_link_pairs(purification: str) -> None:
 
 @pytest.mark.parametrize("name", ["grid-4x4-node-physics", "vellmoor-mesh-dejmps"])
 def test_the_engine_steps_simpy_as_simpy_does(name: str, monkeypatch: pytest.MonkeyPatch) -> None:
-    # The engine processes simpy's queue itself (_Des.step_until_finished, compiled with it)
-    # instead of calling Environment.run. Driving the same plain engine with simpy's own
-    # Environment.run(until=finished) must give the same run to the last bit: the events, their
-    # order (time, priority, counter) and the handlers they call are simpy's either way.
+    # The compiled engine keeps its events on its own heap (des.OWN_QUEUE) and processes them
+    # with simpy's queue in its own loop (_Des.step_until_finished). The same plain engine run
+    # three ways must give the same run to the last bit: its events on its own heap, its events
+    # on simpy's queue stepped by its loop, and its events on simpy's queue stepped by simpy's own
+    # Environment.run(until=finished). Either way the events, their order (time, priority,
+    # counter) and the handlers they call are simpy's.
     scenario = _networks()[name]
     plain = plain_engine()
 
@@ -121,16 +123,72 @@ def test_the_engine_steps_simpy_as_simpy_does(name: str, monkeypatch: pytest.Mon
         return json.dumps(out.to_dict(), sort_keys=True)
 
     monkeypatch.setattr(api, "simulate_des", plain.simulate_des)
+    on_heap: list[int] = []
+    push = plain._push_call
+
+    def counted_push(heap: list[Any], event: Any) -> None:
+        on_heap.append(1)
+        push(heap, event)
+
+    monkeypatch.setattr(plain, "_push_call", counted_push)
+    monkeypatch.setattr(plain, "OWN_QUEUE", True)
     own = result()
+    assert len(on_heap) > 1000  # the engine's heap carried the run
+    monkeypatch.setattr(plain, "OWN_QUEUE", False)
+    assert result() == own
     stepped: list[int] = []
 
     def simpy_run(self: Any) -> None:
+        assert not self.calls
         stepped.append(len(self.queue))
         self.env.run(until=self.finished)
 
     monkeypatch.setattr(plain._Des, "step_until_finished", simpy_run)
     assert result() == own
-    assert stepped  # simpy's own loop ran
+    assert stepped and stepped[0] > 0  # simpy's own loop ran the engine's events
+
+
+def test_the_engines_heap_gives_events_in_simpys_order() -> None:
+    # _push_call and _pop_call against a sort by (time, counter), as simpy orders events of one
+    # priority: many ties in time, pushes and pops interleaved as in a run (every new event is
+    # at or after the last one taken), times from arithmetic such as now + (t - now).
+    des = plain_engine()
+    rng = np.random.default_rng(11)
+    heap: list[Any] = []
+    waiting: list[tuple[float, int]] = []
+    taken: list[tuple[float, int]] = []
+    now, seq, largest = 0.0, 0, 0
+    for step in range(4000):
+        for _ in range(40 if step == 0 else int(rng.integers(0 if heap else 1, 3))):  # about 40 waiting
+            when = now + float(rng.choice([0.0, 1e-9, 0.25, 0.5, rng.exponential()]))
+            call = des._Call(None, print, (), when)
+            call.seq = seq
+            des._push_call(heap, call)
+            waiting.append((when, seq))
+            seq += 1
+        largest = max(largest, len(heap))
+        first = des._pop_call(heap)
+        now = first.time
+        taken.append((first.time, first.seq))
+        expected = min(waiting)
+        waiting.remove(expected)
+        assert taken[-1] == expected
+    while heap:
+        first = des._pop_call(heap)
+        taken.append((first.time, first.seq))
+    assert taken == sorted(taken) and len(taken) == seq and len(set(taken)) == seq
+    assert largest >= 40 and len({t for t, _ in taken}) < seq * 0.9  # a deep heap, many ties
+    # and the merge with simpy's queue: a simpy entry (time, priority, counter, event) comes after
+    # an engine event exactly when simpy's tuple order puts it after (time, NORMAL, seq)
+    from simpy.events import NORMAL, URGENT
+
+    for _ in range(500):
+        call = des._Call(None, print, (), float(rng.choice([1.0, 2.0])))
+        call.seq = int(rng.integers(0, 6))
+        entry = (float(rng.choice([1.0, 2.0])), int(rng.choice([URGENT, NORMAL])), int(rng.integers(0, 6)), None)
+        if entry[1] == NORMAL and entry[2] == call.seq:
+            continue  # one counter value is never given twice
+        assert des._simpy_later(entry, call) == (entry[:3] > (call.time, NORMAL, call.seq))
 
 
 def _build_in(tree: Path, env: dict[str, str] | None = None) -> list[str]:

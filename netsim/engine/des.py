@@ -163,21 +163,22 @@ class _Seg:
 
 
 class _Call:
-    """A bare simpy event that calls ``fn(*args)`` when processed (on simpy's queue as
-    ``Environment.schedule`` puts it; no closure per event). It carries its own time, which is set
-    as its engine's clock (``_Des.now``) before the call: the handlers read a typed field of the
-    engine rather than an attribute of the Python environment (an untyped read, then untyped
-    arithmetic, in the compiled build). The engine's loop calls the handlers of the two commonest
-    kinds directly (``kind``); simpy's own ``Environment.step`` would call ``fire``, with the same
-    outcome (a test runs both)."""
+    """An engine event: ``fn(*args)`` called at ``time``. The engine keeps these on its own queue
+    (:meth:`_Des.schedule`), in the order simpy keeps its events in: by time, then by the event
+    counter it shares with simpy (every engine event has simpy's ``NORMAL`` priority). It is also
+    a bare simpy event (``callbacks``, ``fire``): put on simpy's queue instead, simpy's own
+    ``Environment.step`` processes it with the same outcome (a test runs both). The engine's loop
+    calls the handlers of the two commonest kinds directly (``kind``), with no argument tuple."""
 
-    __slots__ = ("args", "callbacks", "fn", "index", "kind", "lane", "owner", "time")
+    __slots__ = ("args", "callbacks", "fn", "index", "kind", "lane", "owner", "seq", "time")
     _ok = True
     _value = None
 
     def __init__(self, owner: _Des, fn: Callable[..., None], args: tuple[Any, ...], time: float,
                  kind: int = 0, lane: _Lane | None = None, index: int = 0) -> None:
         self.owner, self.fn, self.args, self.time = owner, fn, args, time
+        #: its place among events at the same time: the shared event counter's value when scheduled
+        self.seq = 0
         self.callbacks: list[Callable[[Any], None]] | None = _FIRE  # shared: simpy only reads and then drops the list
         #: what the engine's loop calls for it directly (_Des.step_until_finished): 0, ``fn(*args)``;
         #: TRANSFERRED or CLOSING, that handler of ``lane`` (hop ``index``) with no argument tuple
@@ -193,6 +194,59 @@ class _Call:
         fn(*event.args)
 
 
+def _push_call(heap: list[_Call], event: _Call) -> None:
+    """Put ``event`` on the binary heap ``heap`` (ordered by time, then ``seq``). Its ``seq`` is
+    the largest yet, so it goes above exactly the events of a later time."""
+    heap.append(event)
+    when = event.time
+    pos = len(heap) - 1
+    while pos > 0:
+        parent = (pos - 1) >> 1
+        above = heap[parent]
+        if above.time <= when:
+            break
+        heap[pos] = above
+        pos = parent
+    heap[pos] = event
+
+
+def _pop_call(heap: list[_Call]) -> _Call:
+    """Take the first event (least time, then least ``seq``) off the non-empty heap ``heap``."""
+    last = heap.pop()
+    n = len(heap)
+    if n == 0:
+        return last
+    first = heap[0]
+    when, seq = last.time, last.seq
+    pos = 0
+    child = 1
+    while child < n:
+        below = heap[child]
+        right = child + 1
+        if right < n:
+            other = heap[right]
+            if other.time < below.time or (other.time == below.time and other.seq < below.seq):
+                child, below = right, other
+        if when < below.time or (when == below.time and seq < below.seq):
+            break
+        heap[pos] = below
+        pos = child
+        child = 2 * pos + 1
+    heap[pos] = last
+    return first
+
+
+def _simpy_later(entry: Any, call: _Call) -> bool:
+    """Whether simpy's queue entry ``entry`` (time, priority, counter, event) comes after ``call``
+    (simpy's ``NORMAL`` priority, its own time and ``seq``)."""
+    when, priority = float(entry[0]), int(entry[1])
+    if when != call.time:
+        return when > call.time
+    if priority != _NORMAL:
+        return priority > _NORMAL
+    return int(entry[2]) > call.seq
+
+
 #: _Call kinds: a hop's pair heralded and in memory (_Des.transferred; args (lane, hop)), a lane's
 #: cycle closing after a delivery (_Des.close_cycle; args (lane,))
 TRANSFERRED: Final = 1
@@ -202,6 +256,14 @@ CLOSING: Final = 2
 _FIRE: Final[list[Callable[[Any], None]]] = [_Call.fire]
 _PUSH: Final = heappush
 _POP: Final = heappop
+#: Whether the engine keeps its events on its own heap of :class:`_Call` objects (_push_call,
+#: _pop_call): in the compiled build, where comparing two of them reads two unboxed fields, while
+#: simpy's 4-tuples go through the interpreter's generic tuple comparison (simpy's heap was 20 % of
+#: the event loop on a 10x10 grid with 100 demands, and a larger share the more demands; a pop took
+#: about 2,600 instructions and a push 1,200 there, 820 and 320 on this heap). The plain-Python
+#: engine puts them on simpy's queue, where heapq's C code orders tuples faster than a heap
+#: written in Python would.
+OWN_QUEUE: Final = not __file__.endswith(".py")
 
 
 class _Serial:
@@ -451,9 +513,11 @@ class _Des:
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
                  rules: list[StopRule], options: DesOptions) -> None:
         self.env = simpy.Environment()
-        #: simpy's event queue and event counter (the same objects for the environment's life),
-        #: held here so that scheduling an event reads no attribute of the Python environment
+        #: simpy's event queue (the same list for the environment's life): the run's ``finished``
+        #: event and anything else scheduled through simpy
         self.queue: list[Any] = self.env._queue
+        #: the engine's own events (_Call), a binary heap in simpy's order (_push_call, _pop_call)
+        self.calls: list[_Call] = []
         #: the event counter, shared with simpy (nothing is scheduled yet: it starts at 0)
         self.eid = _Serial()
         self.env._eid = self.eid  # type: ignore[assignment]  # simpy only calls next() on it
@@ -541,12 +605,19 @@ class _Des:
         self.schedule(when, _Call(self, fn, args, when))
 
     def schedule(self, when: float, event: _Call) -> None:
-        """Put ``event`` on simpy's queue at ``when``, as ``Environment.schedule`` does (simpy's
-        4-tuple, the next value of the shared event counter breaking ties)."""
+        """Put ``event`` on the engine's queue (:data:`OWN_QUEUE`; else simpy's, as simpy's
+        4-tuple) at ``when`` (its ``time``), with the next value of the event counter shared with
+        simpy, as ``Environment.schedule`` would number it."""
         serial = self.eid
         eid = serial.value
         serial.value = eid + 1
-        _PUSH(self.queue, (when, _NORMAL, eid, event))
+        event.time = when
+        if OWN_QUEUE:
+            event.seq = eid
+            _push_call(self.calls, event)
+        else:
+            event.callbacks = _FIRE  # (simpy drops them once called; the event may be a reused one)
+            _PUSH(self.queue, (when, _NORMAL, eid, event))
 
     # -- cycles -----------------------------------------------------------------------------
     def request(self, lane: _Lane) -> None:
@@ -610,10 +681,7 @@ class _Des:
         hop.next_round = free
         hop.flight_born, hop.flight_k = born, k
         event = hop.transfer  # its one in-flight pair's event, reused (see _Hop.transfer)
-        when = now + (born + hop.ready - now)  # Environment.schedule's time arithmetic: now + delay
-        event.time = when
-        event.callbacks = _FIRE
-        self.schedule(when, event)
+        self.schedule(now + (born + hop.ready - now), event)  # Environment.schedule's arithmetic: now + delay
 
     def transferred(self, lane: _Lane, i: int) -> None:
         """Hop ``i``'s pair in flight (``flight_born``, ``flight_k``) was heralded and both ends
@@ -940,10 +1008,7 @@ class _Des:
         event = lane.closing
         assert event is not None
         now = self.now
-        when = now + (t_d - now)  # as at()
-        event.time = when
-        event.callbacks = _FIRE
-        self.schedule(when, event)
+        self.schedule(now + (t_d - now), event)  # as at()
 
     def close_cycle(self, lane: _Lane) -> None:
         t_d = lane.delivered_at
@@ -968,6 +1033,7 @@ class _Des:
         """Stop once every demand has met its rule (``pending`` counts unmet pairs rules)."""
         if self.pending <= 0 and not self.finished.triggered and all(
                 r.done(ln.run, self.now) for r, ln in zip(self.rules, self.lanes)):
+            self.env._now = self.now  # simpy schedules it at its own clock
             self.finished.succeed()
 
     # -- purification -------------------------------------------------------------------------
@@ -1035,7 +1101,7 @@ class _Des:
                 self.step_until_finished()
             except KeyboardInterrupt:
                 interrupted = True
-            self.now = float(self.env._now)  # (an interrupt may come between simpy's clock and the event's)
+            self.env._now = self.now
             self.ended = True  # no more attempts: the final flushes need not prune the attempt log
             uptos = [float(rule.time_s) if rule.time_s is not None and not interrupted else self.now
                      for rule in self.rules]
@@ -1049,48 +1115,53 @@ class _Des:
         return out
 
     def step_until_finished(self) -> None:
-        """Process simpy's queue until ``finished`` is processed: ``Environment.run(until=
-        self.finished)``, step by step as ``Environment.step`` does it, but compiled with the rest
-        of the engine (simpy's interpreted loop was about 7 % of a 7x7 grid run).
+        """Process events until ``finished`` is processed, as ``Environment.run(until=finished)``
+        would with every engine event on simpy's queue: the engine's own queue (when it has one:
+        :data:`OWN_QUEUE`) and simpy's are merged in simpy's order (time, priority, then the shared
+        event counter).
 
-        The queue, its 4-tuples and their order (time, priority, then the shared event counter)
-        are simpy's own. An engine event (:class:`_Call`) sets the engine's clock and calls its
-        handler; any other simpy event has its callbacks called, and a failed one that is not
-        defused raises as simpy would. simpy's clock is set as ``step`` sets it (the handlers
-        read the engine's ``now``; anything else may read simpy's)."""
+        An engine event (:class:`_Call`) sets the engine's clock and calls its handler. Any other
+        simpy event is processed as ``Environment.step`` does it: simpy's clock set, its callbacks
+        called, and a failed one that is not defused raised. simpy's clock is always set before
+        simpy code runs (here and in :meth:`check_finished`)."""
+        calls = self.calls
         queue = self.queue
         finished = self.finished
         env = self.env
         while True:
-            if not queue:
-                raise RuntimeError(f'No scheduled events left but "until" event was not triggered: {finished}')
-            when, _, _, event = _POP(queue)
-            env._now = when
-            if type(event) is _Call:
-                call: _Call = event
+            if calls and (not queue or _simpy_later(queue[0], calls[0])):
+                call = _pop_call(calls)
+            else:
+                if not queue:
+                    raise RuntimeError(f'No scheduled events left but "until" event was not triggered: {finished}')
+                when, _, _, event = _POP(queue)
+                env._now = when
+                if type(event) is not _Call:
+                    self.now = when
+                    callbacks, event.callbacks = event.callbacks, None
+                    for callback in callbacks:
+                        callback(event)
+                    if event is finished:
+                        return
+                    if not event._ok and not hasattr(event, "_defused"):
+                        failure = type(event._value)(*event._value.args)
+                        failure.__cause__ = event._value
+                        raise failure
+                    continue
+                call = event
                 call.callbacks = None
-                self.now = call.time
-                kind = call.kind
-                if kind:
-                    lane = call.lane
-                    assert lane is not None
-                    if kind == TRANSFERRED:
-                        self.transferred(lane, call.index)
-                    else:
-                        self.close_cycle(lane)
+            self.now = call.time
+            kind = call.kind
+            if kind:
+                lane = call.lane
+                assert lane is not None
+                if kind == TRANSFERRED:
+                    self.transferred(lane, call.index)
                 else:
-                    fn = call.fn  # (read first: a call through the attribute is a generic lookup when compiled)
-                    fn(*call.args)
-                continue
-            callbacks, event.callbacks = event.callbacks, None
-            for callback in callbacks:
-                callback(event)
-            if event is finished:
-                return
-            if not event._ok and not hasattr(event, "_defused"):
-                failure = type(event._value)(*event._value.args)
-                failure.__cause__ = event._value
-                raise failure
+                    self.close_cycle(lane)
+            else:
+                fn = call.fn  # (read first: a call through the attribute is a generic lookup when compiled)
+                fn(*call.args)
 
     def finish(self, lane: _Lane, now: float, interrupted: bool) -> ChainRun:
         for hop in lane.hops:  # heralded by the end, still moving to memory
