@@ -11,6 +11,7 @@ import networkx as nx
 import numpy as np
 import pytest
 
+from netsim import qinfo
 from netsim.engine import run
 from netsim.engine.chain import synthetic_physics
 from netsim.network import build_graph, estimate_route, find_route, route_hops
@@ -261,3 +262,77 @@ def test_fixed_storage_state_takes_the_transfer_error_before_the_decay_as_the_en
     np.testing.assert_allclose(estimate._delivered(chain.hops, sites, storage), engine_state, rtol=0, atol=1e-13)
     other_order = _reference_delivered(chain.hops, sites, storage, transfer_first=False)
     assert np.abs(other_order - engine_state).max() > 1e-4
+
+
+def _changed(value: object) -> list[object]:
+    """Other values of a site or physics field, up and down where it is a number."""
+    if isinstance(value, bool):
+        return [not value]
+    if isinstance(value, int):
+        return [value + 1, value - 1]
+    if isinstance(value, float):
+        return [value * 1.1, value * 0.8] if value else [0.01]
+    if isinstance(value, np.ndarray):
+        return [qinfo.werner_state(0.9)]
+    return []
+
+
+def test_the_estimate_is_kept_by_everything_it_is_computed_from() -> None:
+    # estimate_hops keeps its results by _estimate_key, so that demands over chains of the same
+    # hops and sites are estimated once. The key must hold every input that changes the
+    # estimate: each field of each site (an end and an inner one) and of each hop's physics is
+    # changed in turn, the estimate computed afresh, and a changed estimate must come with a
+    # changed key (a field added to the model and read by the estimate fails here until keyed).
+    import dataclasses
+    import itertools
+
+    from netsim.errors import ParameterError, ScenarioError
+    from netsim.network import estimate as est_module
+
+    base_site = {"t1_s": 10.0, "t2_s": 0.4, "attempt_dephasing": 1e-3, "communication_qubits": 1,
+                 "bsm_success_probability": 0.9, "gate_error": 0.02, "memory_transfer_error": 0.01,
+                 "memory_transfer_s": 1e-4, "x_km": 0.0, "y_km": 0.0, "profile": "p"}
+    sites = [Site(f"Rook {k}", "user" if k in (0, 3) else "repeater", **base_site) for k in range(4)]  # type: ignore[arg-type]
+    hops = [Hop(sites[k].name, sites[k + 1].name, (), synthetic_physics(0.05, 1e-4, qinfo.werner_state(0.95),
+                                                                         herald_s=2e-4, length_km=10.0))
+            for k in range(3)]
+    cutoff = 0.02
+
+    def fresh(hop_list: list[Hop], site_list: list[Site]) -> tuple[object, ...]:
+        est_module._ESTIMATES.clear()
+        e = estimate_hops(_graph_of(site_list), hop_list, site_list, cutoff_s=cutoff)
+        return (e.rate_per_s, e.fidelity, e.fidelity_no_decay, e.wait_s, e.storage_s, e.state.tobytes(), e.rate_exact)
+
+    base, key = fresh(hops, sites), est_module._estimate_key(hops, sites, cutoff)
+    mattered = set()
+    for field in dataclasses.fields(Site):
+        for k, value in itertools.product((0, 1), _changed(getattr(sites[0], field.name))):
+            changed = list(sites)
+            changed[k] = dataclasses.replace(sites[k], **{field.name: value})
+            try:
+                if fresh(hops, changed) == base:
+                    continue
+            except (ParameterError, ScenarioError, ValueError):
+                continue  # not a valid value there (a probability above 1, ...)
+            mattered.add(field.name)
+            assert est_module._estimate_key(hops, changed, cutoff) != key, field.name
+    for field in dataclasses.fields(hops[1].physics):
+        for value in _changed(getattr(hops[1].physics, field.name)):
+            changed_hops = list(hops)
+            changed_hops[1] = Hop(hops[1].a, hops[1].b, (), dataclasses.replace(hops[1].physics, **{field.name: value}))
+            if fresh(changed_hops, sites) != base:
+                mattered.add(field.name)
+                assert est_module._estimate_key(changed_hops, sites, cutoff) != key, field.name
+    # the check saw the inputs the estimate reads (not a vacuous pass)
+    assert {"t1_s", "t2_s", "attempt_dephasing", "gate_error", "memory_transfer_error", "memory_transfer_s",
+            "bsm_success_probability", "round_success_probability", "attempt_period_s", "herald_delay_s",
+            "length_km", "state"} <= mattered
+    assert fresh(hops, sites) != fresh(hops[:2], sites[:3])  # and the chain's length
+    longer = estimate_hops(_graph_of(sites), hops, sites, cutoff_s=2 * cutoff)  # and the cut-off
+    assert longer.rate_per_s != base[0] and est_module._estimate_key(hops, sites, 2 * cutoff) != key
+    # the same values under other names: one estimate, shared and read-only
+    renamed = [dataclasses.replace(s, name=s.name + " East") for s in sites]
+    first = estimate_hops(_graph_of(sites), hops, sites, cutoff_s=cutoff)
+    again = estimate_hops(_graph_of(renamed), [Hop(h.a + " East", h.b + " East", (), h.physics) for h in hops],
+                          renamed, cutoff_s=cutoff)
+    assert again is first and not first.state.flags.writeable

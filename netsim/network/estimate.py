@@ -109,6 +109,12 @@ from netsim.scenario.model import Site
 #: the cut-off timeline is not sampled: the rate is then that order of magnitude, the
 #: fidelity unknown (NaN).
 MAX_SAMPLED_LINK_PAIRS = 2000.0
+#: :func:`estimate_hops` keeps its results by what they are computed from (:func:`_estimate_key`):
+#: a metro's demands often run over chains of the same hops and sites (on a generated 10x10 grid,
+#: 100 demands over 41 distinct chains), and each is then estimated once. Emptied when it holds
+#: this many.
+ESTIMATES_KEPT = 4096
+_ESTIMATES: dict[tuple[object, ...], RouteEstimate] = {}
 
 __all__ = ["MAX_SAMPLED_LINK_PAIRS", "HighestRate", "RouteEstimate", "cutoff_scan_point", "estimate_hops", "estimate_route", "expected_storage_s"]
 
@@ -237,6 +243,29 @@ def estimate_hops(graph: nx.Graph, hops: Sequence[Hop], sites: Sequence[Site] | 
     if sites is None:
         sites = [graph.nodes[h.a]["site"] for h in hops] + [graph.nodes[hops[-1].b]["site"]]
     cutoff = graph_cutoff_s(graph) if cutoff_s == "scenario" else cutoff_s
+    key = _estimate_key(hops, sites, cutoff)
+    known = _ESTIMATES.get(key)
+    if known is None:
+        if len(_ESTIMATES) >= ESTIMATES_KEPT:
+            _ESTIMATES.clear()
+        known = _ESTIMATES[key] = _estimate(hops, sites, cutoff)
+        known.state.setflags(write=False)  # shared by every caller with the same key
+    return known
+
+
+def _estimate_key(hops: Sequence[Hop], sites: Sequence[Site], cutoff: float | None) -> tuple[object, ...]:
+    """Everything :func:`_estimate` reads of ``hops``, ``sites`` and the cut-off (a test changes
+    every field of the sites and the hops' physics and requires a changed estimate to change the
+    key): the hops' light-path physics and the sites' memory and node figures, not their names."""
+    return (cutoff,
+            tuple((p.round_success_probability, p.attempt_period_s, p.herald_delay_s, p.length_km,
+                   p.state.shape, p.state.tobytes()) for p in (h.physics for h in hops)),
+            tuple((s.t1_s, s.t2_s, s.attempt_dephasing, s.gate_error, s.memory_transfer_error,
+                   s.memory_transfer_s, s.communication_qubits, s.bsm_success_probability) for s in sites))
+
+
+def _estimate(hops: Sequence[Hop], sites: Sequence[Site], cutoff: float | None) -> RouteEstimate:
+    """:func:`estimate_hops`, computed."""
     q = [h.physics.round_success_probability for h in hops]
     period = [h.physics.attempt_period_s for h in hops]
     herald = [h.physics.herald_delay_s for h in hops]

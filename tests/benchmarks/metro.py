@@ -128,13 +128,15 @@ def geometric_metro(sites: int, demands: int, slots: int = 4, seed: int = 0, *, 
 
 def clear_result_caches() -> None:
     """Empty the package's in-process caches of computed results, so that a timed run pays for
-    everything a fresh ``netsim run`` process computes: the cut-off timeline samples, the light
-    paths' physics, the channel figures and the capacity maximisations. A benchmark that times
-    the same network twice in one process would otherwise time the second run without them."""
-    from netsim.network import channel, cutoff, graph
+    everything a fresh ``netsim run`` process computes: the cut-off timeline samples, the route
+    estimates, the light paths' physics, the channel figures and the capacity maximisations. A
+    benchmark that times the same network twice in one process would otherwise time the second
+    run without them."""
+    from netsim.network import channel, cutoff, estimate, graph
     from netsim.qinfo import capacity
 
     cutoff._sample.cache_clear()
+    estimate._ESTIMATES.clear()
     graph._PHYSICS_CACHE.clear()
     for cached in (channel.encoding_holevo_bits, channel.link_capacity_bits, channel.werner_eof_ebits,
                    capacity._capacity_cached):
