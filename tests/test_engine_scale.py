@@ -223,9 +223,11 @@ def test_final_attempt_count_of_all_demands_at_once_equals_each_demand_alone() -
                [StopRule(pairs=10**6)] * len(chains), DesOptions(cutoff_s=0.5))
     for lane in sim.lanes:
         sim.request(lane)
-    sim.env.run(until=2.0)
+    sim.at(2.0, sim.finished.succeed)  # stop part-way
+    sim.step_until_finished()
     sim.ended = True
-    rows = [sim.take_rows(lane, sim.env.now) for lane in sim.lanes]
+    assert sim.now == sim.env.now == 2.0
+    rows = [sim.take_rows(lane, sim.now) for lane in sim.lanes]
     assert len(sim.sequences) > 10 and all(len(r[0]) > 0 for r in rows)
     together = sim.count_attempts(list(zip(sim.lanes, rows)))
     for lane, r, both in zip(sim.lanes, rows, together):

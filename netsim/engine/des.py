@@ -1122,8 +1122,9 @@ class _Des:
 
         An engine event (:class:`_Call`) sets the engine's clock and calls its handler. Any other
         simpy event is processed as ``Environment.step`` does it: simpy's clock set, its callbacks
-        called, and a failed one that is not defused raised. simpy's clock is always set before
-        simpy code runs (here and in :meth:`check_finished`)."""
+        called, and a failed one that is not defused raised. simpy's clock is set before simpy
+        code may run: before a simpy event, before an engine event of no fixed kind, and in
+        :meth:`check_finished` (the two fixed kinds call simpy only through it)."""
         calls = self.calls
         queue = self.queue
         finished = self.finished
@@ -1159,7 +1160,8 @@ class _Des:
                     self.transferred(lane, call.index)
                 else:
                     self.close_cycle(lane)
-            else:
+            else:  # any handler: it may call simpy (a test stops a run with finished.succeed)
+                env._now = call.time
                 fn = call.fn  # (read first: a call through the attribute is a generic lookup when compiled)
                 fn(*call.args)
 
