@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from netsim.network.bounds import (
+    CapacityTable,
     chain_fidelity,
     expected_rounds,
     expected_wait_s,
@@ -255,6 +256,30 @@ def test_multipath_bound_equals_networkx_maximum_flow(seed: int) -> None:
                 want = math.inf
         got = multipath_capacity(g, a, b)
         assert got == pytest.approx(want, rel=1e-12, abs=0.0) if math.isfinite(want) else got == want
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_bounds_read_from_a_table_of_the_graph_equal_the_bounds_read_from_the_graph(seed: int) -> None:
+    """The budget reads the graph once (CapacityTable) for every demand's bounds, with the other
+    end users left out of each: exactly the figures of reading the graph itself, and the minimum
+    cut still networkx's maximum flow (reference library) on the graph without those sites."""
+    rng = np.random.default_rng(300 + seed)
+    n = int(rng.integers(14, 31))
+    g = nx.relabel_nodes(nx.gnp_random_graph(n, float(rng.uniform(0.1, 0.4)), seed=seed), {k: f"S{k}" for k in range(n)})
+    for u, v in g.edges:
+        g.edges[u, v]["bound_cut_bits_per_s"] = float(10 ** rng.uniform(-2, 3))
+        g.edges[u, v]["bound_bits_per_s"] = float(10 ** rng.uniform(-2, 3))
+    table = CapacityTable(g)
+    users = [f"S{k}" for k in range(0, n, 3)]
+    for a, b in itertools.combinations(users, 2):
+        skip = set(users) - {a, b}
+        cut = multipath_capacity(g, a, b, exclude=skip, table=table)
+        assert cut == multipath_capacity(g, a, b, exclude=skip)
+        assert single_path_capacity(g, a, b, exclude=skip, table=table) == single_path_capacity(g, a, b, exclude=skip)
+        rest = g.subgraph(n for n in g if n not in skip)
+        want = nx.maximum_flow_value(rest, a, b, capacity="bound_cut_bits_per_s") if nx.has_path(rest, a, b) else 0.0
+        assert cut == pytest.approx(want, rel=1e-12, abs=0.0)
+    assert CapacityTable(nx.Graph()).links == []
 
 
 def test_multipath_bound_of_the_bundled_mesh_equals_networkx_maximum_flow() -> None:

@@ -11,7 +11,7 @@ import itertools
 from collections import Counter
 import math
 from collections.abc import Collection, Sequence
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import networkx as nx
 import numpy as np
@@ -20,6 +20,7 @@ if TYPE_CHECKING:
     import scipy.sparse
 
 __all__ = [
+    "CapacityTable",
     "MAX_EXACT_SWAP_HOPS",
     "bottleneck_capacity",
     "chain_fidelity",
@@ -252,8 +253,25 @@ def chain_fidelity(hop_fidelities: Sequence[float], gate_errors: Sequence[float]
     return (1.0 + 3.0 * w) / 4.0
 
 
+class CapacityTable:
+    """``graph``'s sites and links read once, for the bounds between many pairs of its sites
+    (:func:`single_path_capacity` and :func:`multipath_capacity` take it as ``table``; the budget
+    builds one per network rather than walking the graph's views again for every demand). It
+    holds the graph's own link attribute dicts; valid while ``graph`` is not changed."""
+
+    def __init__(self, graph: nx.Graph) -> None:
+        self.graph = graph
+        #: each site's neighbours with their link's attributes, in the graph's order
+        self.adj = {n: list(nbrs.items()) for n, nbrs in graph.adj.items()}
+        #: every site, in sorted-name order (multipath_capacity's numbering), and its number
+        self.names = sorted(graph, key=str)
+        self.order = {n: k for k, n in enumerate(self.names)}
+        #: every link as (its ends' numbers, their names, its attributes)
+        self.links = [(self.order[u], self.order[v], u, v, d) for u, v, d in graph.edges(data=True)]
+
+
 def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s", *,
-                         exclude: Collection[str] = ()) -> float:
+                         exclude: Collection[str] = (), table: CapacityTable | None = None) -> float:
     """Single-path (widest path) capacity bound: max over routes of the weakest link's capacity.
 
     ``exclude``: sites no route passes through (the same as removing them from ``graph``; the
@@ -264,16 +282,17 @@ def single_path_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_b
     S. Pirandola, "End-to-end capacities of a quantum communication network",
     Commun. Phys. 2, 51 (2019).
     """
-    return bottleneck_capacity(graph, a, b, weight, exclude=exclude)
+    return bottleneck_capacity(graph, a, b, weight, exclude=exclude, table=table)
 
 
 def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bits_per_s", *,
-                        exclude: Collection[str] = ()) -> float:
+                        exclude: Collection[str] = (), table: CapacityTable | None = None) -> float:
     """max over paths from ``a`` to ``b`` of the smallest edge ``weight`` on the path (0 without a
     path): the widest-path value, by the max-min form of Dijkstra's search (Pollack, "The
     maximum capacity through a network", Oper. Res. 8, 733 (1960)). It visits only what it
     must, where a maximum spanning tree of the whole graph (:func:`netsim.network.routing.widest_path`)
     costs the same for every pair; the value (a min of edge weights, no arithmetic) is the same.
+    ``table``: ``graph`` read once (:class:`CapacityTable`).
     """
     if a == b:
         return math.inf
@@ -281,7 +300,11 @@ def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bi
     heap = [(-math.inf, 0, a)]
     order = 1
     done: set[str] = set(exclude) - {a, b}
-    adj = graph.adj
+    if table is not None and table.graph is graph:
+        neighbours = table.adj.__getitem__
+    else:
+        def neighbours(node: str) -> Any:
+            return graph.adj[node].items()
     while heap:
         neg, _, node = heapq.heappop(heap)
         if node in done:
@@ -290,7 +313,7 @@ def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bi
             return -neg
         done.add(node)
         width = -neg
-        for nbr, data in adj[node].items():
+        for nbr, data in neighbours(node):
             if nbr in done:
                 continue
             w = min(width, data[weight])
@@ -302,7 +325,7 @@ def bottleneck_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_bi
 
 
 def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut_bits_per_s", *,
-                       exclude: Collection[str] = ()) -> float:
+                       exclude: Collection[str] = (), table: CapacityTable | None = None) -> float:
     """Multipath (flooding) capacity bound: the minimum cut between ``a`` and ``b``.
 
     The capacity of a cut is the sum of the link capacities it severs; the bound is the
@@ -311,6 +334,7 @@ def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut
     J. ACM 19, 248, 1972) and its value is the correctly rounded sum (``math.fsum``) of the
     capacities it severs, so the float does not depend on the order of sites, links or the hash
     seed (tests check it against networkx's maximum flow and against every cut of small graphs).
+    ``table``: ``graph`` read once (:class:`CapacityTable`).
 
     References
     ----------
@@ -321,18 +345,19 @@ def multipath_capacity(graph: nx.Graph, a: str, b: str, weight: str = "bound_cut
     if a == b or a not in graph or b not in graph:
         return _networkx_min_cut(_without(graph, skip), a, b, weight)  # networkx's errors for these
     # sites in sorted-name order and each site's neighbours in that order: the search, and so
-    # the cut it finds, is the same however the graph was built
-    names = sorted((n for n in graph if n not in skip), key=str)
-    order = {n: k for k, n in enumerate(names)}
+    # the cut it finds, is the same however the graph was built (numbering the left-out sites
+    # too changes no site's place among the others)
+    if table is None or table.graph is not graph:
+        table = CapacityTable(graph)
+    order = table.order
     edges = []
-    residual: list[dict[int, float]] = [{} for _ in names]
-    for u, v, d in graph.edges(data=True):
+    residual: list[dict[int, float]] = [{} for _ in table.names]
+    for i, j, u, v, d in table.links:
         if u in skip or v in skip:
             continue
         c = float(d[weight])
         if not c >= 0.0:  # NaN or negative: not a capacity; networkx decides what that gives
             return _networkx_min_cut(_without(graph, skip), a, b, weight)
-        i, j = order[u], order[v]
         if i == j:
             continue
         edges.append((i, j, c))

@@ -20,6 +20,7 @@ from netsim.errors import ParameterError
 from netsim.hardware.fibre import loss_db
 from netsim.network.bounds import (
     MAX_EXACT_SWAP_HOPS,
+    CapacityTable,
     multipath_capacity,
     single_path_capacity,
 )
@@ -158,9 +159,10 @@ def demand_rows(scenario: Scenario, graph: nx.Graph | None = None, policy: str |
     graph = build_graph(scenario) if graph is None else graph
     rows, warnings = [], []
     users = frozenset(n for n, d in graph.nodes(data=True) if d["site"].role == "user")
+    table = CapacityTable(graph)
     for k, demand in enumerate(scenario.demands):
         row, warning = _demand_row(graph, demand, policy or scenario.protocol.routing, users,
-                                   list(routes[k]) if routes is not None and routes[k] else None)
+                                   list(routes[k]) if routes is not None and routes[k] else None, table)
         rows.append(row)
         warnings += [warning] if warning else []
     return rows, warnings
@@ -221,14 +223,14 @@ def _physics_figures(physics: Any) -> dict[str, Any]:
 
 
 def _demand_row(graph: nx.Graph, demand: Demand, policy: str, users: frozenset[str],
-                route: list[str] | None = None) -> tuple[dict[str, Any], str]:
+                route: list[str] | None = None, table: CapacityTable | None = None) -> tuple[dict[str, Any], str]:
     # other end users never relay (netsim.network.routing.relay_graph): passed as sites to leave
     # out, the same bounds as on the relay view without its filtering at every access
     row: dict[str, Any] = {
         "demand": demand.name, "min_fidelity": demand.min_fidelity, "min_rate_per_s": demand.min_rate_per_s,
         "meets_fidelity": None, "meets_rate": None,
-        "single_path_bits_per_s": single_path_capacity(graph, demand.a, demand.b, exclude=users),
-        "multipath_bits_per_s": multipath_capacity(graph, demand.a, demand.b, exclude=users),
+        "single_path_bits_per_s": single_path_capacity(graph, demand.a, demand.b, exclude=users, table=table),
+        "multipath_bits_per_s": multipath_capacity(graph, demand.a, demand.b, exclude=users, table=table),
     }
     try:
         route = find_route(graph, demand.a, demand.b, policy) if route is None else route
