@@ -504,10 +504,11 @@ def _add_figures(batch: list[tuple[ChainRun, NDArray[np.complex128], NDArray[np.
 class _Des:
     """One event-engine run over a group of demands that share memory sites.
 
-    Every model step is a plain callback on a simpy event (no generator process per hop, swap or
-    timer): the model is the one described above, one simpy event per link pair (when it is
-    heralded and in memory), per delivery, per delayed slot release and per cut-off deadline of a
-    lane.
+    Every model step is a plain callback on an engine event (:class:`_Call`, a bare simpy event;
+    no generator process per hop, swap or timer): the model is the one described above, one event
+    per link pair (when it is heralded and in memory), per delivery, per delayed slot release and
+    per cut-off deadline of a lane. The events are kept on the engine's own heap in the compiled
+    build and on simpy's queue in plain Python (:data:`OWN_QUEUE`), in simpy's order either way.
     """
 
     def __init__(self, chains: list[Chain], rngs: list[np.random.Generator], capacity: dict[str, int],
