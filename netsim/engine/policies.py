@@ -148,6 +148,34 @@ def swap_policy(name: str | SwapPolicy) -> SwapPolicy:
     return SWAPPING[name]
 
 
+class _Slots:
+    """One site's memory slots as the broker keeps them (unboxed fields in the compiled build: a
+    grant or release touches a few of them at every site of a path)."""
+
+    __slots__ = ("blocked", "limit", "loads", "peak", "queue", "requests", "room", "shift", "since",
+                 "time_at", "total", "waited")
+
+    def __init__(self, limit: int) -> None:
+        self.limit = limit
+        self.room = limit  # free slots
+        #: waiting requests that need slots here, in policy order
+        self.queue: list[Request] = []
+        #: waiting requests filed here because they did not fit here (_pass), in policy order
+        self.blocked: list[Request] = []
+        self.total = 0  # slots needed by the waiting
+        #: subtracted from every waiting request's ``ahead`` here (_grant_all)
+        self.shift = 0
+        # occupancy statistics (SlotBroker.stats)
+        self.since = 0.0
+        #: time spent with 0, 1, ... slots in use (index = slots in use)
+        self.time_at: list[float] = [0.0] * (limit + 1)
+        self.peak = 0
+        self.requests = 0
+        self.waited = 0
+        #: requests that met each load (index = slots in use + queued + own need)
+        self.loads: list[int] = []
+
+
 class SlotBroker:
     """Grants path reservations of memory slots in the order a scheduling policy gives.
 
@@ -170,36 +198,21 @@ class SlotBroker:
     def __init__(self, capacity: dict[str, int], policy: SchedulingPolicy,
                  clock: Callable[[], float] = lambda: 0.0) -> None:
         self.policy, self.clock = policy, clock
-        #: the sites, numbered: every per-site figure below is a list indexed by that number
-        #: (the per-cycle bookkeeping by name was a tenth of a grid run's instructions)
+        #: the sites, numbered: per site one _Slots, in a list indexed by that number (the
+        #: per-cycle bookkeeping by name was a tenth of a grid run's instructions, and per-site
+        #: lists of boxed numbers most of the broker's own cost)
         self.names: list[str] = list(capacity)
         self.number: dict[str, int] = {name: k for k, name in enumerate(self.names)}
-        n = len(self.names)
-        self.limit: list[int] = [capacity[name] for name in self.names]
-        self.room: list[int] = list(self.limit)  # free slots per site
+        self.slots: list[_Slots] = [_Slots(int(capacity[name])) for name in self.names]
         self.waiting: dict[int, tuple[Request, Callable[[], None]]] = {}
-        self.queues: list[list[Request]] = [[] for _ in range(n)]
-        self.blocked: list[list[Request]] = [[] for _ in range(n)]
-        self.total: list[int] = [0] * n  # slots needed by the waiting, per site
-        #: per site: subtracted from every waiting request's ``ahead`` there (_grant_all)
-        self.shift: list[int] = [0] * n
         self._sequence = 0
         self._key: Callable[[Request], tuple[float, ...]] | None = policy.key if isinstance(policy, _Sorted) else None
         self._newest_last = isinstance(policy, _Sorted) and policy.newest_last
-        # occupancy statistics per site (see stats())
-        self._since: list[float] = [0.0] * n
-        #: per site: time spent with 0, 1, ... slots in use (index = slots in use)
-        self._time_at: list[list[float]] = [[0.0] * (int(k) + 1) for k in self.limit]
-        self._peak: list[int] = [0] * n
-        self._requests: list[int] = [0] * n
-        self._waited: list[int] = [0] * n
-        #: per site: requests that met each load (index = slots in use + queued + own need)
-        self._loads: list[list[int]] = [[] for _ in range(n)]
 
     @property
     def free(self) -> dict[str, int]:
         """Free slots per site name."""
-        return {name: self.room[k] for k, name in enumerate(self.names)}
+        return {name: self.slots[k].room for k, name in enumerate(self.names)}
 
     def numbered(self, need: dict[str, int]) -> tuple[list[int], list[int]]:
         """``need`` as (site numbers, slots at each), the form :meth:`request` and :meth:`release`
@@ -217,73 +230,75 @@ class SlotBroker:
         req.sites, req.counts = sites, counts
         self.waiting[req.sequence] = (req, on_grant)
         key = self._key
+        slots = self.slots
         if key is None:
             self._full_pass()
         else:
             own = req.rank = key(req)
-            queues, total, shift, newest_last = self.queues, self.total, self.shift, self._newest_last
+            newest_last = self._newest_last
             ahead = req.ahead = [0] * len(sites)
             for j in range(len(sites)):
                 site, k = sites[j], counts[j]
-                queue = queues[site]
+                st = slots[site]
+                queue = st.queue
                 if queue and not newest_last and queue[-1].rank > own:
                     at = bisect.bisect_right(queue, own, key=_rank)
                     queue.insert(at, req)
-                    ahead[j] = sum(other.counts[other.sites.index(site)] for other in queue[:at]) + shift[site]
+                    ahead[j] = sum(other.counts[other.sites.index(site)] for other in queue[:at]) + st.shift
                     for other in queue[at + 1:]:
                         ahead_other = other.ahead
                         at_site = other.sites.index(site)
                         ahead_other[at_site] = ahead_other[at_site] + k
                 else:
-                    ahead[j] = total[site] + shift[site]
+                    ahead[j] = st.total + st.shift
                     queue.append(req)
-                total[site] = total[site] + k
+                st.total += k
             blocker = self._blocker(req)  # only the newcomer can fit: nobody else's room grew
             if blocker < 0:
                 self._grant_all([req])
             elif newest_last:
-                self.blocked[blocker].append(req)
+                slots[blocker].blocked.append(req)
             else:
-                bisect.insort(self.blocked[blocker], req, key=_rank)
+                bisect.insort(slots[blocker].blocked, req, key=_rank)
         if req.sequence in self.waiting:
-            waited = self._waited
             for site in short or sites:
-                waited[site] = waited[site] + 1
+                slots[site].waited += 1
 
     def _count_request(self, sites: list[int], counts: list[int]) -> list[int]:
         """Record what a new request meets at each of its sites (slots in use + queued before it
         + its own need) and return the sites where that exceeds the capacity."""
         short = []
-        limit, room, total, loads, requests = self.limit, self.room, self.total, self._loads, self._requests
+        slots = self.slots
         incremental = self._key is not None
         for j in range(len(sites)):
             site, k = sites[j], counts[j]
+            st = slots[site]
             if incremental:
-                queued = total[site]
+                queued = st.total
             else:
                 name = self.names[site]
                 queued = sum(r.need.get(name, 0) for r, _ in self.waiting.values())
-            load = limit[site] - room[site] + queued + k
-            seen = loads[site]
+            load = st.limit - st.room + queued + k
+            seen = st.loads
             if load >= len(seen):
                 seen.extend([0] * (load + 1 - len(seen)))
             seen[load] = seen[load] + 1
-            requests[site] = requests[site] + 1
-            if load > limit[site]:
+            st.requests += 1
+            if load > st.limit:
                 short.append(site)
         return short
 
     def release(self, need: dict[str, int], numbered: tuple[list[int], list[int]] | None = None) -> None:
         """Return the slots of ``need`` (``numbered``: as :meth:`numbered` gives it)."""
-        now, room, limit, since, spent = self.clock(), self.room, self.limit, self._since, self._time_at
+        now, slots = self.clock(), self.slots
         sites, counts = self.numbered(need) if numbered is None else numbered
         for j in range(len(sites)):  # credit the time since the last change (see _tick)
-            site, k = sites[j], counts[j]
-            in_use = limit[site] - room[site]
-            per_use = spent[site]
-            per_use[in_use] = per_use[in_use] + (now - since[site])
-            since[site] = now
-            room[site] = room[site] + k
+            st = slots[sites[j]]
+            in_use = st.limit - st.room
+            per_use = st.time_at
+            per_use[in_use] = per_use[in_use] + (now - st.since)
+            st.since = now
+            st.room += counts[j]
         if not self.waiting:
             return
         if self._key is None:
@@ -291,11 +306,11 @@ class SlotBroker:
         else:
             self._pass(sites)
 
-    def _tick(self, site: int, now: float) -> None:
+    def _tick(self, st: _Slots, now: float) -> None:
         """Credit the time since the last change to the current number of slots in use."""
-        per_use, in_use = self._time_at[site], self.limit[site] - self.room[site]
-        per_use[in_use] = per_use[in_use] + (now - self._since[site])
-        self._since[site] = now
+        per_use, in_use = st.time_at, st.limit - st.room
+        per_use[in_use] = per_use[in_use] + (now - st.since)
+        st.since = now
 
     def stats(self) -> dict[str, dict[str, Any]]:
         """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
@@ -303,9 +318,9 @@ class SlotBroker:
         that were short), ``loads`` ({slots in use + queued + own need at the request: count}, by load)."""
         out: dict[str, dict[str, Any]] = {}
         now = self.clock()
-        for site, name in enumerate(self.names):
-            self._tick(site, now)
-            spent = {in_use: t for in_use, t in enumerate(self._time_at[site]) if t > 0}
+        for st, name in zip(self.slots, self.names):
+            self._tick(st, now)
+            spent = {in_use: t for in_use, t in enumerate(st.time_at) if t > 0}
             total = sum(spent.values())
             p99, running = 0, 0.0
             for in_use in sorted(spent):
@@ -313,17 +328,17 @@ class SlotBroker:
                 p99 = in_use
                 if total > 0 and running >= 0.99 * total:
                     break
-            out[name] = {"peak": self._peak[site], "p99": p99, "requests": self._requests[site],
-                         "waited": self._waited[site], "loads": {load: count for load, count in enumerate(self._loads[site]) if count}}
+            out[name] = {"peak": st.peak, "p99": p99, "requests": st.requests,
+                         "waited": st.waited, "loads": {load: count for load, count in enumerate(st.loads) if count}}
         return out
 
     def _blocker(self, req: Request) -> int:
         """A site where ``req`` does not fit behind the requests ahead of it, or -1 if it fits."""
-        room, ahead, shift, sites, counts = self.room, req.ahead, self.shift, req.sites, req.counts
+        slots, ahead, sites, counts = self.slots, req.ahead, req.sites, req.counts
         for j in range(len(sites)):
-            site = sites[j]
-            if room[site] - (ahead[j] - shift[site]) < counts[j]:
-                return site
+            st = slots[sites[j]]
+            if st.room - (ahead[j] - st.shift) < counts[j]:
+                return sites[j]
         return -1
 
     def _pass(self, changed: list[int]) -> None:
@@ -341,10 +356,11 @@ class SlotBroker:
             self._full_pass()
             return
         fitting: list[Request] = []
-        blocked, room, shift = self.blocked, self.room, self.shift
+        slots = self.slots
         for site in changed:
-            filed = blocked[site]
-            free = room[site] + shift[site]
+            st = slots[site]
+            filed = st.blocked
+            free = st.room + st.shift
             n = 0
             for req in filed:
                 j = req.sites.index(site)
@@ -358,9 +374,9 @@ class SlotBroker:
             for req in head:
                 ahead, sites, counts = req.ahead, req.sites, req.counts
                 for j in range(len(sites)):  # _blocker, inlined
-                    other = sites[j]
-                    if room[other] - (ahead[j] - shift[other]) < counts[j]:
-                        bisect.insort(blocked[other], req, key=_rank)
+                    other = slots[sites[j]]
+                    if other.room - (ahead[j] - other.shift) < counts[j]:
+                        bisect.insort(other.blocked, req, key=_rank)
                         break
                 else:
                     fitting.append(req)
@@ -373,11 +389,11 @@ class SlotBroker:
         later requests may use only slots it does not need (no demand starves: the slots it
         waits for can only accumulate)."""
         used = [0] * len(self.names)
-        room = self.room
+        slots = self.slots
         fitting = []
         for req in self.policy.order([r for r, _ in self.waiting.values()]):
             sites, counts = req.sites, req.counts
-            if all(room[sites[j]] - used[sites[j]] >= counts[j] for j in range(len(sites))):
+            if all(slots[sites[j]].room - used[sites[j]] >= counts[j] for j in range(len(sites))):
                 fitting.append(req)
             for j in range(len(sites)):
                 used[sites[j]] = used[sites[j]] + counts[j]
@@ -385,36 +401,35 @@ class SlotBroker:
 
     def _grant_all(self, granted: list[Request]) -> None:
         """Take the slots of ``granted`` (all found to fit in one pass), then call back in order."""
-        now, room, limit, since, spent, peak = (self.clock(), self.room, self.limit, self._since,
-                                               self._time_at, self._peak)
-        queues, total, shift, incremental = self.queues, self.total, self.shift, self._key is not None
+        now, slots, incremental = self.clock(), self.slots, self._key is not None
         for req in granted:
             sites, counts = req.sites, req.counts
             for j in range(len(sites)):
                 s, k = sites[j], counts[j]
-                in_use = limit[s] - room[s]
-                per_use = spent[s]  # credit the time since the last change (_tick)
-                per_use[in_use] = per_use[in_use] + (now - since[s])
-                since[s] = now
-                room[s] = room[s] - k
-                if in_use + k > peak[s]:
-                    peak[s] = in_use + k
+                st = slots[s]
+                in_use = st.limit - st.room
+                per_use = st.time_at  # credit the time since the last change (_tick)
+                per_use[in_use] = per_use[in_use] + (now - st.since)
+                st.since = now
+                st.room -= k
+                if in_use + k > st.peak:
+                    st.peak = in_use + k
                 if incremental:
                     # every request behind this one has k fewer slots ahead: the site's shift
                     # grows by k and the few ahead of it (grants come from near the head: 0.1
                     # ahead and 6.6 behind on average on a 100-demand grid) are compensated
-                    queue = queues[s]
+                    queue = st.queue
                     at = 0
                     while queue[at] is not req:  # grants come from near the head (below)
                         at += 1
                     queue.pop(at)  # (pop, not del: del on a list item is a generic call when compiled)
-                    shift[s] = shift[s] + k
+                    st.shift += k
                     for x in range(at):
                         other = queue[x]
                         ahead_other = other.ahead
                         at_site = other.sites.index(s)
                         ahead_other[at_site] = ahead_other[at_site] + k
-                    total[s] = total[s] - k
+                    st.total -= k
         for req in granted:
             _, on_grant = self.waiting.pop(req.sequence)
             on_grant()
