@@ -199,8 +199,8 @@ class SlotBroker:
                  clock: Callable[[], float] = lambda: 0.0) -> None:
         self.policy, self.clock = policy, clock
         #: the sites, numbered: per site one _Slots, in a list indexed by that number (the
-        #: per-cycle bookkeeping by name was a tenth of a grid run's instructions, and per-site
-        #: lists of boxed numbers most of the broker's own cost)
+        #: per-cycle bookkeeping by name was a tenth of a grid run's instructions; per-site
+        #: lists of boxed numbers then cost about a third of the broker's own work)
         self.names: list[str] = list(capacity)
         self.number: dict[str, int] = {name: k for k, name in enumerate(self.names)}
         self.slots: list[_Slots] = [_Slots(int(capacity[name])) for name in self.names]
