@@ -5,10 +5,10 @@ candidate repeaters), 80 candidate fibres (lengths 1.25 x the straight-line dist
 asking 20-80 pairs/s at fidelity >= 0.7, single-photon links at alpha = 0.05, prices in invented units. Generated from a fixed seed.
 
 ``design_s_40_sites``: wall time of :func:`netsim.design.design_network` (route enumeration,
-closed forms and the solve), best of :data:`REPEATS`, each with the package's result caches emptied
-(as in a fresh process); target <= 60 s. ``baseline``: the time of
-the route enumeration and closed-form pricing alone (:func:`netsim.design.milp.enumerate_options`)
-in the same run; ``ratio``: design time over it (what the solve adds).
+closed forms and the solve), best of :data:`REPEATS`, each with the package's result caches
+emptied (as in a fresh process); target <= 60 s. ``baseline``: the time of the route enumeration
+and closed-form pricing alone (:func:`netsim.design.milp.enumerate_options`) in the same run;
+``ratio``: design time over it (what the solve adds).
 """
 
 from __future__ import annotations

@@ -12,9 +12,10 @@ the largest exact size. ``baseline`` is the sure-swap waiting time of the same c
 (inclusion-exclusion) measured in the same run.
 
 ``cutoff_estimate_s_<demand>``: one route estimate with the cut-off (the sampled timeline of
-``network.cutoff``, its cache and the kept route estimates cleared, plus the mean delivered state) for the routes of the bundled
-mesh with two or more hops, best of :data:`REPEATS`; target <= 0.1 s. ``baseline``: the same
-route's estimate without a cut-off (closed forms), measured in the same run.
+``network.cutoff``, its cache and the kept route estimates cleared, plus the mean delivered
+state) for the routes of the bundled mesh with two or more hops, best of :data:`REPEATS`; target
+<= 0.1 s. ``baseline``: the same route's estimate without a cut-off (closed forms), measured in
+the same run.
 
 ``grid_estimate_s_cold`` and ``grid_estimate_s_warm``: the planning estimate ``netsim run`` adds
 beside each demand (``engine.api._analytic``: the budget's demand rows with the cut-off's sampled
