@@ -175,6 +175,12 @@ class _Slots:
         #: requests that met each load (index = slots in use + queued + own need)
         self.loads: list[int] = []
 
+    def tick(self, now: float) -> None:
+        """Credit the time since the last change to the current number of slots in use."""
+        per_use, in_use = self.time_at, self.limit - self.room
+        per_use[in_use] = per_use[in_use] + (now - self.since)
+        self.since = now
+
 
 class SlotBroker:
     """Grants path reservations of memory slots in the order a scheduling policy gives.
@@ -292,12 +298,9 @@ class SlotBroker:
         """Return the slots of ``need`` (``numbered``: as :meth:`numbered` gives it)."""
         now, slots = self.clock(), self.slots
         sites, counts = self.numbered(need) if numbered is None else numbered
-        for j in range(len(sites)):  # credit the time since the last change (see _tick)
+        for j in range(len(sites)):
             st = slots[sites[j]]
-            in_use = st.limit - st.room
-            per_use = st.time_at
-            per_use[in_use] = per_use[in_use] + (now - st.since)
-            st.since = now
+            st.tick(now)
             st.room += counts[j]
         if not self.waiting:
             return
@@ -306,12 +309,6 @@ class SlotBroker:
         else:
             self._pass(sites)
 
-    def _tick(self, st: _Slots, now: float) -> None:
-        """Credit the time since the last change to the current number of slots in use."""
-        per_use, in_use = st.time_at, st.limit - st.room
-        per_use[in_use] = per_use[in_use] + (now - st.since)
-        st.since = now
-
     def stats(self) -> dict[str, dict[str, Any]]:
         """Per site: ``peak`` and ``p99`` slots reserved (99th percentile over time), ``requests``
         for a reservation there, ``waited`` (requests not granted at once, counted at the sites
@@ -319,7 +316,7 @@ class SlotBroker:
         out: dict[str, dict[str, Any]] = {}
         now = self.clock()
         for st, name in zip(self.slots, self.names):
-            self._tick(st, now)
+            st.tick(now)
             spent = {in_use: t for in_use, t in enumerate(st.time_at) if t > 0}
             total = sum(spent.values())
             p99, running = 0, 0.0
@@ -408,9 +405,7 @@ class SlotBroker:
                 s, k = sites[j], counts[j]
                 st = slots[s]
                 in_use = st.limit - st.room
-                per_use = st.time_at  # credit the time since the last change (_tick)
-                per_use[in_use] = per_use[in_use] + (now - st.since)
-                st.since = now
+                st.tick(now)
                 st.room -= k
                 if in_use + k > st.peak:
                     st.peak = in_use + k
