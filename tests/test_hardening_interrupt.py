@@ -19,6 +19,7 @@ SIGINT is not ignored at start-up), exit status 128 + 2 = 130 after SIGINT (comm
 
 from __future__ import annotations
 
+import importlib
 import os
 import signal
 import subprocess
@@ -31,7 +32,7 @@ from typing import Any
 import pytest
 from test_sweep_support import write_scenario
 
-from netsim.interrupts import interrupt_deferred
+from netsim.interrupts import interrupt_deferred, interrupt_guarded
 from netsim.scenario import load
 from netsim.sweep import executors
 from netsim.sweep.executors import LocalPool
@@ -152,6 +153,83 @@ def test_a_deferred_ctrl_c_is_raised_when_the_block_ends() -> None:
     assert signal.getsignal(signal.SIGINT) is handler
     with interrupt_deferred():                  # no Ctrl-C: nothing is raised
         pass
+
+
+def _command_line_running(monkeypatch: pytest.MonkeyPatch, func: Any) -> Any:
+    """``netsim.cli`` with its parser replaced by one whose ``budget`` command runs ``func``."""
+    import netsim.cli as cli
+
+    def parser() -> Any:
+        top = cli.OneLineParser(prog="netsim")
+        sub = top.add_subparsers(dest="command")
+        sub.add_parser("budget").set_defaults(func=func)
+        return top
+
+    monkeypatch.setattr(cli, "build_parser", parser)
+    return cli
+
+
+def test_ctrl_c_that_lands_where_python_cannot_raise_it_still_stops_the_command(
+        monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    """Seen in this project's CI: SIGINT 1.0 s into `netsim sweep` ran Python's handler inside the
+    weak-reference callback with which the import system drops a module lock. A KeyboardInterrupt
+    raised there cannot propagate: Python printed "Exception ignored in ..." with a traceback and
+    the sweep ran on. Here a weak-reference callback of the command's own takes the signal; the
+    command must stop with its one line and 130 all the same (Python documentation: exceptions
+    in weak-reference callbacks go to sys.unraisablehook)."""
+    import weakref
+
+    class Thing:
+        pass
+
+    def callback(_ref: Any) -> None:
+        signal.raise_signal(signal.SIGINT)
+        time.sleep(0.05)                        # the handler runs here, where it cannot raise
+
+    reached: list[str] = []
+
+    def command(args: Any) -> int:
+        thing = Thing()
+        ref = weakref.ref(thing, callback)
+        del thing                               # the callback runs now
+        reached.append("after the callback")
+        end = time.monotonic() + 5
+        while time.monotonic() < end:           # the Ctrl-C must arrive here, well before the end
+            time.sleep(0.01)
+        reached.append("the end")
+        return 0 if ref() is None else 1
+
+    cli = _command_line_running(monkeypatch, command)
+    assert cli.main(["budget"]) == 130
+    assert reached == ["after the callback"]
+    err = capsys.readouterr().err
+    assert "Exception ignored" not in err and "Traceback" not in err
+    assert err.strip().startswith("netsim budget: interrupted")
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
+
+
+def test_ctrl_c_inside_an_import_is_raised_once_the_import_has_ended(tmp_path: Path,
+                                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    """A module whose import takes the signal in its own code: under the guard the import ends
+    whole (a C extension interrupted in its import would raise ImportError instead, see above)
+    and the KeyboardInterrupt comes right after it."""
+    (tmp_path / "slow_to_import.py").write_text(
+        "import signal, time\nsignal.raise_signal(signal.SIGINT)\ntime.sleep(0.05)\nFINISHED = True\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    monkeypatch.delitem(sys.modules, "slow_to_import", raising=False)
+    start = time.monotonic()
+    with pytest.raises(KeyboardInterrupt):
+        with interrupt_guarded():
+            import slow_to_import
+            assert slow_to_import.FINISHED
+            time.sleep(5)                       # the Ctrl-C arrives here, and wakes the sleep
+    assert time.monotonic() - start < 2.5, "the Ctrl-C held during the import waited for the sleep to end"
+    with pytest.raises(KeyboardInterrupt):      # held until the block ends: raised as it ends
+        with interrupt_guarded():
+            importlib.reload(sys.modules["slow_to_import"])
+    with interrupt_guarded():                   # no Ctrl-C: nothing is raised
+        pass
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
 
 
 def _forkserver_children() -> set[int]:

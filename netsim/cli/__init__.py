@@ -20,7 +20,7 @@ from typing import Any, NoReturn
 
 from netsim import __version__
 from netsim.errors import NetsimError, format_value, shorten
-from netsim.interrupts import interrupt_deferred
+from netsim.interrupts import interrupt_deferred, interrupt_guarded
 
 __all__ = ["OneLineParser", "build_parser", "main", "seed_value"]
 
@@ -120,9 +120,11 @@ def _unknown_option(parser: argparse.ArgumentParser, command: str | None, extra:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; Ctrl-C while it is still starting (importing, parsing) exits 130
-    with one line, as Ctrl-C during a command does."""
+    with one line, as Ctrl-C during a command does (see :func:`netsim.interrupts.interrupt_guarded`
+    for a Ctrl-C that lands where Python cannot raise it)."""
     try:
-        return _main(argv)
+        with interrupt_guarded():
+            return _main(argv)
     except KeyboardInterrupt:
         print("netsim: interrupted", file=sys.stderr)
         return 130
